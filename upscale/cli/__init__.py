@@ -1,0 +1,1 @@
+"""The ``upscale`` command line: a thin layer over the library."""

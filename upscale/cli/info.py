@@ -1,0 +1,86 @@
+"""``upscale info``: what a field holds, before upscaling it."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import click
+
+from ..export.summary import jsonable
+from ..io import read_field
+from ..stats import scan_values
+from ..upscaled import compute_together
+from .options import field_options, read_options
+from .progress import progress
+from .report import table
+
+
+@click.command()
+@click.argument("field", type=click.Path(dir_okay=False))
+@field_options
+@click.option("--json", "as_json", is_flag=True, help="Print the description as JSON.")
+@click.pass_context
+def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> None:
+    """Describe FIELD: grid, cell size, CRS, units, active cells and statistics of log k.
+
+    \b
+    Example:
+      upscale info demo-fields/marrowfen_3d.tif --dz 2
+    """
+    fine = read_field(field, checksum=False, **read_options(options))
+    with progress(ctx.obj["quiet"]):
+        scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+    grid = fine.grid
+    layers, rows, cols = fine.shape
+    kx = scans["kx"]
+    description = {
+        "path": field,
+        "dimensions": fine.ndim,
+        "shape": {"layers": layers, "rows": rows, "columns": cols},
+        "cell_size_m": {"dx": float(grid.dx[0]), "dy": float(grid.dy[0]), "dz": grid.dz.tolist()},
+        "crs": grid.crs.to_string() if grid.crs is not None else None,
+        "unit": fine.unit,
+        "active_cells": kx.active,
+        "active_fraction": kx.active / kx.cells,
+        "statistics": {name: scan.summary() for name, scan in scans.items()},
+        "log10_k": {
+            "min": math.log10(kx.minimum) if kx.minimum > 0 else None,
+            "max": math.log10(kx.maximum) if kx.maximum > 0 else None,
+            "mean": kx.log_sum / kx.positive / math.log(10) if kx.positive else None,
+            "std": kx.log10_std,
+        },
+        "problems": {
+            "negative": kx.negative, "zero": kx.zero, "infinite": kx.infinite,
+        },  # fmt: skip
+    }
+    if as_json:
+        click.echo(json.dumps(jsonable(description), indent=2))
+        return
+    click.echo(f"field        {field}")
+    click.echo(f"grid         {cols} x {rows}" + (f" x {layers}" if fine.ndim == 3 else "")
+               + f" cells ({'3D model' if fine.ndim == 3 else '2D map'})")  # fmt: skip
+    sizes = f"dx {grid.dx[0]:g} m, dy {grid.dy[0]:g} m"
+    if fine.ndim == 3:
+        dz = grid.dz
+        sizes += f", dz {dz[0]:g} m" if (dz == dz[0]).all() else f", dz {dz.min():g}-{dz.max():g} m"
+    click.echo(f"cell size    {sizes}")
+    click.echo(f"CRS          {description['crs'] or 'none'}")
+    click.echo(f"unit         {fine.unit}")
+    click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
+    log10 = description["log10_k"]
+    if log10["mean"] is not None:
+        click.echo(f"log10 k      mean {log10['mean']:.3f}, std {log10['std']:.3f}, "
+                   f"min {log10['min']:.3f}, max {log10['max']:.3f}")  # fmt: skip
+    rows_out = [
+        [name, str(s["active"]), f"{s['min']:.4g}", f"{s['max']:.4g}", f"{s['mean']:.4g}",
+         f"{s['geometric_mean']:.4g}"]
+        for name, s in description["statistics"].items()
+    ]  # fmt: skip
+    click.echo("")
+    click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
+    bad = {k: v for k, v in description["problems"].items() if v}
+    if bad:
+        click.echo("")
+        click.echo("problems     " + ", ".join(f"{v} {k}" for k, v in bad.items())
+                   + " value(s) in kx; 'upscale run' will refuse what a method cannot take")  # fmt: skip

@@ -1,0 +1,102 @@
+"""The ``upscale`` command group and its error handling.
+
+Errors a user can fix (an `UpscaleError`, a bad option) print one line on
+stderr and exit with status 2 (input or usage) or 1 (other failures). Any
+other exception is a bug: it prints one line asking for a report, and its
+traceback with ``--debug``.
+"""
+
+from __future__ import annotations
+
+import logging
+import sys
+
+import click
+
+from ..caution import CAUTION
+from ..errors import UpscaleError
+
+
+@click.group(
+    context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
+    epilog=f"Caution: {CAUTION}",
+)
+@click.option("-v", "--verbose", count=True, help="More messages (repeat for debug messages).")
+@click.option("-q", "--quiet", is_flag=True, help="Only errors; no progress bar.")
+@click.option("--debug", is_flag=True, help="Show the traceback of an error.")
+@click.version_option(package_name="upscale", prog_name="upscale")
+@click.pass_context
+def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
+    """Upscale permeability maps and models to coarse simulation grids.
+
+    Read a fine permeability raster (GeoTIFF or any raster GDAL reads; one band
+    is a 2D map, several bands a 3D model), average it into coarse blocks, and
+    write georeferenced coarse GeoTIFFs with a summary.json that records every
+    input, parameter and statistic.
+
+    \b
+    Start with:
+      upscale demo --out demo-fields
+      upscale info demo-fields/marrowfen_lognormal.tif
+      upscale run demo-fields/marrowfen_lognormal.tif --block 8x8 --method geometric --out out/
+    """
+    level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
+    logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
+    ctx.ensure_object(dict).update(quiet=quiet, debug=debug)
+    ctx.obj.setdefault("command", ["upscale", *sys.argv[1:]])
+
+
+def _register() -> None:
+    from .demo import demo
+    from .info import info
+    from .run import run
+
+    for command in (run, info, demo):
+        cli.add_command(command)
+
+
+_register()
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; return the exit status instead of raising.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Arguments without the program name (default: ``sys.argv[1:]``).
+    """
+    args = sys.argv[1:] if argv is None else list(argv)
+    debug = "--debug" in args
+    try:
+        cli.main(
+            args=args, prog_name="upscale", standalone_mode=False, obj={"command": ["upscale", *args]}
+        )
+    except click.exceptions.Exit as exc:
+        return exc.exit_code
+    except click.ClickException as exc:
+        click.echo(f"upscale: error: {exc.format_message()}", err=True)
+        return exc.exit_code
+    except (click.Abort, KeyboardInterrupt):
+        click.echo("upscale: interrupted; nothing was written", err=True)
+        return 130
+    except UpscaleError as exc:
+        if debug:
+            raise
+        click.echo(f"upscale: error: {exc}", err=True)
+        return exc.exit_code
+    except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
+        if debug:
+            raise
+        click.echo(
+            f"upscale: internal error: {type(exc).__name__}: {exc} "
+            "(run again with --debug for the traceback, and please report it)",
+            err=True,
+        )
+        return 1
+    return 0
+
+
+def entry_point() -> None:
+    """Console-script entry: exit with the status of `main`."""
+    sys.exit(main())

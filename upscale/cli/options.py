@@ -1,0 +1,98 @@
+"""Options shared by several commands, and parsers for their values."""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from typing import Any
+
+import click
+
+from ..io import VALUE_SCALES
+from ..units import UNITS
+
+_BYTES = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*(b|kb|mb|gb|kib|mib|gib)?\s*$", re.IGNORECASE)
+_FACTORS = {
+    None: 1, "b": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "kib": 2**10, "mib": 2**20, "gib": 2**30,
+}  # fmt: skip
+
+
+def parse_numbers(text: str | None, name: str) -> list[float] | None:
+    """``"2"`` or ``"2,3,1.5"`` -> list of floats; a clear error otherwise."""
+    if text is None:
+        return None
+    try:
+        return [float(part) for part in text.split(",")]
+    except ValueError:
+        raise click.BadParameter(f"{text!r} is not a number or a comma-separated list", param_hint=name) from None
+
+
+def parse_cell_size(text: str | None) -> tuple[float, float] | None:
+    """``"25"`` or ``"25x30"`` (x first) -> (dx, dy) in m."""
+    if text is None:
+        return None
+    parts = text.lower().split("x")
+    try:
+        values = [float(p) for p in parts]
+    except ValueError:
+        values = []
+    if len(values) not in (1, 2) or min(values) <= 0:
+        raise click.BadParameter(f"{text!r} is not DX or DXxDY in metres (e.g. 25 or 25x30)", param_hint="--cell-size")
+    return (values[0], values[-1])
+
+
+def parse_bytes(text: str | None) -> int | None:
+    """``"64MB"``, ``"1GiB"``, ``"500000"`` -> bytes."""
+    if text is None:
+        return None
+    match = _BYTES.match(text)
+    if not match or float(match.group(1)) <= 0:
+        raise click.BadParameter(f"{text!r} is not a size such as 64MB or 1GiB", param_hint="--chunk")
+    unit = match.group(2).lower() if match.group(2) else None
+    return int(float(match.group(1)) * _FACTORS[unit])
+
+
+def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """Options that describe how to read a field (shared by run and info)."""
+    options = [
+        click.option("--unit", type=click.Choice(list(UNITS)), default="mD", show_default=True,
+                     help="Unit of the stored values: permeability (mD, D, m2) or hydraulic "
+                     "conductivity (m/s, m/day)."),
+        click.option("--scale", type=click.Choice(VALUE_SCALES), default="linear", show_default=True,
+                     help="Whether the file stores k, log10(k) or ln(k)."),
+        click.option("--nodata", type=float, default=None,
+                     help="Value marking inactive cells (overrides the raster's own nodata)."),
+        click.option("--ky", type=click.Path(dir_okay=False), default=None,
+                     help="Raster of permeability along y on the same grid (default: the field)."),
+        click.option("--kz", type=click.Path(dir_okay=False), default=None,
+                     help="Raster of permeability along z, 3D only (default: the field)."),
+        click.option("--kv-kh", type=float, default=None,
+                     help="kz as a fraction of kx, 3D only (e.g. 0.1)."),
+        click.option("--porosity", type=click.Path(dir_okay=False), default=None,
+                     help="Porosity raster (fraction) on the same grid."),
+        click.option("--dz", default=None, metavar="M[,M...]",
+                     help="Layer thickness in m: one value, or one per layer (band), top first. "
+                     "Required for multi-band rasters."),
+        click.option("--cell-size", default=None, metavar="DX[xDY]",
+                     help="Cell size in m; required for .npy arrays and rasters without a "
+                     "projected CRS."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def read_options(options: dict[str, Any]) -> dict[str, Any]:
+    """Turn the values of `field_options` into keyword arguments of `upscale.read_field`."""
+    dz = parse_numbers(options.pop("dz"), "--dz")
+    return {
+        "unit": options.pop("unit"),
+        "scale": options.pop("scale"),
+        "nodata": options.pop("nodata"),
+        "ky": options.pop("ky"),
+        "kz": options.pop("kz"),
+        "kv_kh": options.pop("kv_kh"),
+        "porosity": options.pop("porosity"),
+        "dz": dz,
+        "cell_size": parse_cell_size(options.pop("cell_size")),
+    }

@@ -1,0 +1,62 @@
+"""Terminal output of the commands: short, aligned tables."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import click
+
+from ..upscaled import Upscaled
+
+
+def _number(value: float | None) -> str:
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return "-"
+    return f"{value:.4g}"
+
+
+def _dims(shape: tuple[int, int, int], ndim: int) -> str:
+    layers, rows, cols = shape
+    return f"{cols} x {rows}" + (f" x {layers}" if ndim == 3 else "")
+
+
+def table(header: list[str], rows: list[list[str]]) -> str:
+    """Left-aligned first column, right-aligned others."""
+    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
+
+    def line(cells: list[str]) -> str:
+        return "  ".join(
+            c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(cells, widths))
+        )
+
+    return "\n".join([line(header), *(line(r) for r in rows)])
+
+
+def print_result(result: Upscaled, summary: dict, out: str) -> None:
+    """Print what a run did: grids, method, and fine vs coarse statistics."""
+    fine, coarse = result.fine, result.coarse
+    opts = ", ".join(f"{k}={v}" for k, v in result.options.items())
+    axes = "(x, y, z)" if fine.ndim == 3 else "(x, y)"
+    click.echo(f"fine grid    {_dims(fine.shape, fine.ndim)} cells {axes}")
+    click.echo(
+        f"coarse grid  {_dims(coarse.shape, fine.ndim)} blocks of {result.block} cells, "
+        f"{summary['active']['coarse_blocks']} active"
+    )
+    click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
+    if result.dropped_cells:
+        click.echo(f"cropped      {result.dropped_cells} fine cells beyond the last whole block")
+    stats = summary["statistics"]
+    rows = []
+    for name in coarse.properties():
+        f, c = stats["fine"][name], stats["coarse"][name]
+        rows.append([name, _number(f["mean"]), _number(f["geometric_mean"]),
+                     _number(c["mean"]), _number(c["geometric_mean"]),
+                     _number(c["min"]), _number(c["max"])])  # fmt: skip
+    unit = fine.unit
+    click.echo("")
+    click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",
+                      "coarse min", "coarse max"], rows))  # fmt: skip
+    click.echo(f"(permeability in {unit}; porosity as a fraction)")
+    click.echo("")
+    click.echo(f"wrote {', '.join(summary['files'] + ['summary.json'])} to {Path(out)}")

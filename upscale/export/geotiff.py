@@ -1,0 +1,72 @@
+"""Coarse properties as GeoTIFFs: one file per property, one band per coarse layer."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ..field import Grid
+
+#: Unit recorded for each non-permeability property.
+PROPERTY_UNITS = {"porosity": "fraction"}
+
+
+def write_property(
+    path: str | Path,
+    values: np.ndarray,
+    grid: Grid,
+    name: str,
+    unit: str,
+    tags: dict[str, str] | None = None,
+    dtype: str = "float64",
+    nodata: float = float("nan"),
+) -> None:
+    """Write one coarse property to a GeoTIFF.
+
+    Parameters
+    ----------
+    path : str or Path
+        Destination file (``.tif``).
+    values : ndarray of shape (L, M, N)
+        Property per coarse block; NaN marks inactive blocks and is the nodata value.
+    grid : Grid
+        Coarse grid: its transform and CRS georeference the file. Edge blocks
+        smaller than the others keep the regular pixel size in the file; their
+        true sizes are in the run summary.
+    name : str
+        Property name, used in the band descriptions.
+    unit : str
+        Unit written as each band's unit type and tag.
+    tags : dict, optional
+        Extra dataset tags (method, block, tool version...).
+    dtype : str
+        Stored data type; float64 keeps coarse values exact.
+    nodata : float
+        Value stored for NaN cells and declared as the file's nodata value.
+    """
+    import rasterio
+
+    layers, rows, cols = values.shape
+    profile = {
+        "driver": "GTiff",
+        "dtype": dtype,
+        "count": layers,
+        "height": rows,
+        "width": cols,
+        "crs": grid.crs,
+        "transform": grid.transform,
+        "nodata": nodata,
+        "compress": "deflate",
+        "predictor": 3,
+    }
+    if rows >= 256 and cols >= 256:
+        profile.update(tiled=True, blockxsize=256, blockysize=256)
+    with rasterio.open(path, "w", **profile) as dst:
+        stored = values if np.isnan(nodata) else np.where(np.isnan(values), nodata, values)
+        dst.write(stored.astype(dtype, copy=False))
+        dst.update_tags(property=name, unit=unit, **(tags or {}))
+        for band in range(1, layers + 1):
+            dst.set_band_description(band, f"{name}, layer {band} of {layers} (top first)")
+            dst.set_band_unit(band, unit)
+            dst.update_tags(band, units=unit)

@@ -1,0 +1,53 @@
+"""Write a run's result: one GeoTIFF per coarse property and ``summary.json``."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+from ..upscaled import Upscaled
+from .geotiff import PROPERTY_UNITS, write_property
+from .staging import MARKER, staged_folder
+from .summary import build_summary
+
+
+def write_result(
+    result: Upscaled,
+    folder: str | Path,
+    *,
+    overwrite: bool = False,
+    command: list[str] | None = None,
+    timings: dict[str, float] | None = None,
+) -> dict[str, Any]:
+    """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
+
+    Parameters
+    ----------
+    result : Upscaled
+        What `upscale.coarsen` returned.
+    folder : str or Path
+        Output folder; created if missing.
+    overwrite : bool
+        Replace the results in a folder that already holds files.
+    command : list of str, optional
+        Command line recorded in the summary.
+    timings : dict, optional
+        Seconds per step recorded in the summary.
+
+    Returns
+    -------
+    dict
+        The summary as written to ``summary.json``.
+    """
+    coarse = result.coarse
+    tags = {"method": result.method, "block": str(result.block), "tool": "upscale"}
+    with staged_folder(folder, overwrite) as stage:
+        files = []
+        for name, values in coarse.properties().items():
+            unit = PROPERTY_UNITS.get(name, coarse.unit)
+            write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
+            files.append(f"{name}.tif")
+        summary = build_summary(result, files=files, command=command, timings=timings)
+        (stage / MARKER).write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
+    return summary

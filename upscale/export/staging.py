@@ -1,0 +1,111 @@
+"""Staged writes: results appear in the output folder complete or not at all.
+
+Files are written into a hidden temporary folder beside the destination.
+When every file is written, a new destination is created by renaming the
+whole folder (atomic on one file system); an existing one is updated file by
+file, with ``summary.json`` — the completion marker — removed first and
+written last. An interrupted run leaves the previous results untouched.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+from ..errors import OutputError, OutputExistsError
+
+#: Written last; its presence means the folder holds a complete result.
+MARKER = "summary.json"
+
+
+def check_destination(folder: str | Path, overwrite: bool) -> None:
+    """Refuse a destination that holds files unless `overwrite` is set.
+
+    Called before any work starts, so a refusal costs nothing.
+    """
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise OutputExistsError(f"{folder} exists and is not a folder")
+    if folder.is_dir() and not overwrite:
+        present = sorted(p.name for p in folder.iterdir())
+        if present:
+            shown = ", ".join(present[:4]) + (", ..." if len(present) > 4 else "")
+            raise OutputExistsError(
+                f"{folder} already holds files ({shown}); choose another folder or pass --overwrite"
+            )
+
+
+@contextmanager
+def staged_folder(
+    folder: str | Path, overwrite: bool = False, marker: str = MARKER
+) -> Iterator[Path]:
+    """Yield an empty temporary folder; on normal exit move its files into `folder`.
+
+    Parameters
+    ----------
+    folder : str or Path
+        Destination folder.
+    overwrite : bool
+        Allow replacing files in an existing, non-empty destination.
+    marker : str
+        Name of the JSON file, written last, that lists the files (key ``files``)
+        and marks the folder complete.
+
+    Raises
+    ------
+    OutputExistsError
+        If `folder` holds files and `overwrite` is False.
+    OutputError
+        If a file cannot be written; the destination is then left as it was.
+    """
+    folder = Path(folder)
+    check_destination(folder, overwrite)
+    try:
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        stage = Path(tempfile.mkdtemp(prefix=f".{folder.name}.partial-", dir=folder.parent))
+        stage.chmod(0o777 & ~_umask())  # mkdtemp makes it private; the result should not be
+    except OSError as exc:
+        raise OutputError(f"cannot write in {folder.parent}: {exc.strerror or exc}") from None
+    try:
+        yield stage
+        _commit(stage, folder, marker)
+    except OSError as exc:
+        raise OutputError(
+            f"writing {folder} failed ({exc.strerror or exc}); the previous contents are unchanged"
+        ) from None
+    finally:
+        shutil.rmtree(stage, ignore_errors=True)
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _commit(stage: Path, folder: Path, marker: str) -> None:
+    if not folder.exists():
+        os.rename(stage, folder)
+        return
+    old_marker = folder / marker
+    stale = set()
+    if old_marker.exists():
+        try:
+            stale = set(json.loads(old_marker.read_text()).get("files", []))
+        except (ValueError, AttributeError, TypeError):
+            stale = set()
+        old_marker.unlink()
+    names = sorted(p.name for p in stage.iterdir())
+    for name in names:
+        if name != marker:
+            os.replace(stage / name, folder / name)
+    for name in stale - set(names):
+        if isinstance(name, str) and Path(name).name == name:  # plain file names only
+            (folder / name).unlink(missing_ok=True)
+    if marker in names:
+        os.replace(stage / marker, folder / marker)

@@ -1,0 +1,242 @@
+"""Fields: permeability arrays on a Cartesian grid.
+
+A `Field` holds the permeability along each axis (and optionally porosity)
+as arrays of shape ``(L, M, N)`` — layer, row, column — whether it is a 2D
+map (``L == 1``) or a 3D model. Layer 0 is the top layer, row 0 the first
+raster row, column 0 the first raster column. The axes map to the usual
+names in exactly one place, `AXES`: column -> x, row -> y, layer -> z.
+
+Inactive cells (nodata in the input) hold NaN in every property array: they
+have no volume and pass no flow. Arrays may be NumPy arrays or dask arrays;
+the grid geometry is always small and in memory.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ._checks import check_positive_sizes
+from .errors import InputError
+from .units import check_unit
+
+#: Axis name -> array axis in ``(L, M, N)`` order.
+AXES: Mapping[str, int] = {"x": 2, "y": 1, "z": 0}
+#: Axis name -> permeability property along it.
+PERMEABILITY = {"x": "kx", "y": "ky", "z": "kz"}
+
+
+@dataclass(frozen=True, eq=False)
+class Grid:
+    """Geometry of a Cartesian grid.
+
+    Parameters
+    ----------
+    dz : ndarray of shape (L,)
+        Layer thicknesses in m, top layer first.
+    dy : ndarray of shape (M,)
+        Row heights in m, first raster row first.
+    dx : ndarray of shape (N,)
+        Column widths in m.
+    transform : affine.Affine or None
+        Map from (column, row) of the regular lattice to map coordinates. For a
+        coarse grid with smaller edge blocks the lattice has full-size blocks and
+        the true edge sizes are in `dx`, `dy`.
+    crs : rasterio.crs.CRS or None
+        Coordinate reference system of the map coordinates.
+    """
+
+    dz: np.ndarray
+    dy: np.ndarray
+    dx: np.ndarray
+    transform: Any = None
+    crs: Any = None
+
+    def __post_init__(self) -> None:
+        for name in ("dz", "dy", "dx"):
+            sizes = np.atleast_1d(np.asarray(getattr(self, name), dtype=np.float64))
+            check_positive_sizes(sizes, name)
+            sizes.setflags(write=False)
+            object.__setattr__(self, name, sizes)
+
+    @property
+    def shape(self) -> tuple[int, int, int]:
+        """Number of layers, rows and columns ``(L, M, N)``."""
+        return (self.dz.size, self.dy.size, self.dx.size)
+
+    def sizes(self, axis: int) -> np.ndarray:
+        """Cell sizes in m along array `axis` (0 = layers, 1 = rows, 2 = columns)."""
+        return (self.dz, self.dy, self.dx)[axis]
+
+    @property
+    def volume(self) -> float:
+        """Total bulk volume in m³."""
+        return float(self.dz.sum() * self.dy.sum() * self.dx.sum())
+
+    def cell_volumes(self) -> np.ndarray:
+        """Bulk volume of every cell in m³, shape ``(L, M, N)``."""
+        return self.dz[:, None, None] * self.dy[None, :, None] * self.dx[None, None, :]
+
+
+@dataclass(frozen=True, eq=False)
+class Source:
+    """Provenance of one input: its role (``kx``, ``porosity``…), path and SHA-256."""
+
+    role: str
+    path: str
+    sha256: str
+
+
+@dataclass(frozen=True, eq=False)
+class Field:
+    """Permeability (and porosity) on a Cartesian grid.
+
+    Parameters
+    ----------
+    kx, ky : array of shape (L, M, N)
+        Permeability along x (columns) and y (rows), in `unit`; NaN marks inactive cells.
+    kz : array of shape (L, M, N) or None
+        Permeability along z (layers); None for a 2D map.
+    porosity : array of shape (L, M, N) or None
+        Porosity as a fraction in [0, 1].
+    grid : Grid
+        Cell sizes and georeference.
+    unit : str
+        Unit of the permeabilities (see `upscale.units.UNITS`).
+    sources : tuple of Source
+        Where the arrays came from, for the run summary.
+    """
+
+    kx: Any
+    ky: Any
+    kz: Any
+    porosity: Any
+    grid: Grid
+    unit: str = "mD"
+    sources: tuple[Source, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        check_unit(self.unit)
+        for name, array in self.properties().items():
+            if tuple(array.shape) != self.grid.shape:
+                raise InputError(
+                    f"{name} has shape {tuple(array.shape)} but the grid is {self.grid.shape} "
+                    "(layers, rows, columns)"
+                )
+
+    @property
+    def ndim(self) -> int:
+        """2 for a map, 3 for a model with vertical permeability."""
+        return 2 if self.kz is None else 3
+
+    @property
+    def shape(self) -> tuple[int, int, int]:
+        """``(L, M, N)``: layers, rows, columns."""
+        return self.grid.shape
+
+    @property
+    def axes(self) -> tuple[str, ...]:
+        """The flow axes of this field: ``("x", "y")`` or ``("x", "y", "z")``."""
+        return ("x", "y", "z")[: self.ndim]
+
+    def properties(self) -> dict[str, Any]:
+        """The property arrays present, by name (``kx``, ``ky``, ``kz``, ``porosity``)."""
+        named = {"kx": self.kx, "ky": self.ky, "kz": self.kz, "porosity": self.porosity}
+        return {name: array for name, array in named.items() if array is not None}
+
+    @classmethod
+    def from_arrays(
+        cls,
+        kx: Any,
+        *,
+        ky: Any = None,
+        kz: Any = None,
+        porosity: Any = None,
+        cell_size: tuple[float, float] = (1.0, 1.0),
+        dz: float | np.ndarray | None = None,
+        unit: str = "mD",
+        three_d: bool | None = None,
+    ) -> Field:
+        """Build a field from in-memory or dask arrays.
+
+        Parameters
+        ----------
+        kx : array of shape (M, N) or (L, M, N)
+            Permeability along x in `unit`; NaN marks inactive cells.
+        ky, kz, porosity : array, optional
+            Same shape as `kx`. `ky` defaults to `kx`; `kz` defaults to `kx` for a
+            3D field.
+        cell_size : (float, float)
+            Column width and row height in m.
+        dz : float or array of shape (L,), optional
+            Layer thickness(es) in m; required for a 3D field, 1 m for a map.
+        unit : str
+            Permeability unit.
+        three_d : bool, optional
+            Force a 3D (True) or 2D (False) field; by default 3D when `kx` has
+            more than one layer.
+
+        Returns
+        -------
+        Field
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> f = Field.from_arrays(np.ones((4, 6)), cell_size=(25.0, 25.0))
+        >>> f.shape, f.ndim
+        ((1, 4, 6), 2)
+        """
+        arrays = {"kx": kx, "ky": ky, "kz": kz, "porosity": porosity}
+        arrays = {k: _as_3d(v) for k, v in arrays.items() if v is not None}
+        layers = arrays["kx"].shape[0]
+        if three_d is None:
+            three_d = layers > 1 or "kz" in arrays
+        if three_d:
+            if dz is None:
+                raise InputError("a 3D field needs the layer thickness dz in m")
+            arrays.setdefault("kz", arrays["kx"])
+        elif "kz" in arrays:
+            raise InputError("kz was given for a 2D map; a map has no vertical permeability")
+        arrays.setdefault("ky", arrays["kx"])
+        arrays = share_inactive(arrays)
+        layer_dz = np.broadcast_to(np.asarray(1.0 if dz is None else dz, float), (layers,))
+        grid = Grid(
+            dz=layer_dz,
+            dy=np.full(arrays["kx"].shape[1], float(cell_size[1])),
+            dx=np.full(arrays["kx"].shape[2], float(cell_size[0])),
+        )
+        return cls(
+            kx=arrays["kx"],
+            ky=arrays["ky"],
+            kz=arrays.get("kz"),
+            porosity=arrays.get("porosity"),
+            grid=grid,
+            unit=unit,
+        )
+
+
+def _as_3d(array: Any) -> Any:
+    if array.ndim == 2:
+        return array[None, :, :]
+    if array.ndim != 3:
+        raise InputError(f"expected a 2D or 3D array, got {array.ndim} dimensions")
+    return array
+
+
+def share_inactive(arrays: dict[str, Any]) -> dict[str, Any]:
+    """Make every array NaN wherever any of them is NaN (a cell is active in all or none).
+
+    Works on NumPy and dask arrays alike; arrays that are the same object stay shared.
+    """
+    distinct = list({id(a): a for a in arrays.values()}.values())
+    if len(distinct) == 1:
+        return dict(arrays)
+    inactive = np.isnan(distinct[0])
+    for array in distinct[1:]:
+        inactive = inactive | np.isnan(array)
+    masked = {id(a): np.where(inactive, np.nan, a) for a in distinct}
+    return {name: masked[id(a)] for name, a in arrays.items()}

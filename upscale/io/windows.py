@@ -1,0 +1,153 @@
+"""Lazy, window-by-window access to rasters and arrays on disk.
+
+A raster larger than memory is never read whole: `RasterWindows` reads the
+rectangle of bands, rows and columns that dask asks for, opening the file
+for each read (so it works from threads and from distributed workers that
+can reach the same path), and turns nodata into NaN on the way.
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Any
+
+import numpy as np
+
+#: Bytes of float64 per chunk when the caller does not choose.
+DEFAULT_CHUNK_BYTES = 64 * 2**20
+
+
+def clean_values(data: np.ndarray, nodata: float | None, scale: str) -> np.ndarray:
+    """Turn raw cell values into floats with NaN for inactive cells.
+
+    Parameters
+    ----------
+    data : ndarray
+        Raw values as stored (any real dtype).
+    nodata : float or None
+        The value that marks inactive cells, besides NaN.
+    scale : {'linear', 'log10', 'ln'}
+        How values are stored: the permeability itself or its logarithm.
+
+    Returns
+    -------
+    ndarray
+        float32 for float32 input stored linearly, float64 otherwise.
+    """
+    out = data if data.dtype in (np.float32, np.float64) else data.astype(np.float64)
+    if nodata is not None and not np.isnan(nodata):
+        missing = data == nodata
+        if missing.any():
+            out = np.where(missing, np.nan, out)
+    if scale == "log10":
+        out = np.power(10.0, out, dtype=np.float64)
+    elif scale == "ln":
+        out = np.exp(out, dtype=np.float64)
+    return out
+
+
+def value_dtype(stored: np.dtype, scale: str) -> np.dtype:
+    """The dtype `clean_values` returns for `stored` values on `scale`."""
+    if scale == "linear" and stored == np.float32:
+        return np.dtype(np.float32)
+    return np.dtype(np.float64)
+
+
+class RasterWindows:
+    """Array-like ``(bands, rows, columns)`` view of a raster that reads on demand.
+
+    Parameters
+    ----------
+    path : str
+        Raster path.
+    shape : (int, int, int)
+        ``(band count, height, width)``.
+    stored : numpy.dtype
+        The raster's data type.
+    nodata : float or None
+        Value marking inactive cells.
+    scale : str
+        See `clean_values`.
+    use_mask : bool
+        Also treat cells outside the raster's own validity mask as inactive.
+    """
+
+    def __init__(
+        self,
+        path: str,
+        shape: tuple[int, int, int],
+        stored: np.dtype,
+        nodata: float | None,
+        scale: str,
+        use_mask: bool,
+    ) -> None:
+        self.path = path
+        self.shape = shape
+        self.stored = np.dtype(stored)
+        self.dtype = value_dtype(self.stored, scale)
+        self.ndim = 3
+        self.nodata = nodata
+        self.scale = scale
+        self.use_mask = use_mask
+
+    def __dask_tokenize__(self) -> tuple:
+        stat = os.stat(self.path)
+        return (self.path, stat.st_size, stat.st_mtime_ns, self.nodata, self.scale, self.use_mask)
+
+    def __getitem__(self, key: tuple[slice, slice, slice]) -> np.ndarray:
+        import rasterio
+        from rasterio.windows import Window
+
+        bands, rows, cols = (s.indices(n) for s, n in zip(key, self.shape))
+        indexes = list(range(bands[0] + 1, bands[1] + 1))
+        window = Window(cols[0], rows[0], cols[1] - cols[0], rows[1] - rows[0])
+        with rasterio.open(self.path) as src:
+            data = src.read(indexes, window=window)
+            values = clean_values(data, self.nodata, self.scale)
+            if self.use_mask:
+                valid = src.read_masks(indexes, window=window) > 0
+                values = np.where(valid, values, np.nan).astype(self.dtype, copy=False)
+        return values
+
+
+def choose_chunks(
+    shape: tuple[int, int, int],
+    itemsize: int = 8,
+    chunk_bytes: int | None = None,
+    multiple: tuple[int, int, int] = (1, 1, 1),
+) -> tuple[int, int, int]:
+    """Chunk shape for a ``(L, M, N)`` array: whole rows first, then whole layers.
+
+    Parameters
+    ----------
+    shape : (int, int, int)
+        Array shape.
+    itemsize : int
+        Bytes per value.
+    chunk_bytes : int, optional
+        Target bytes per chunk (default `DEFAULT_CHUNK_BYTES`).
+    multiple : (int, int, int)
+        Chunk sizes are rounded to multiples of these (the coarse block).
+
+    Returns
+    -------
+    (int, int, int)
+
+    Examples
+    --------
+    >>> choose_chunks((1, 10_000, 1_000), itemsize=8, chunk_bytes=8_000_000, multiple=(1, 8, 8))
+    (1, 1000, 1000)
+    """
+    budget = max(1, (chunk_bytes or DEFAULT_CHUNK_BYTES) // itemsize)
+    L, M, N = shape
+    bz, by, bx = multiple
+
+    def fit(n: int, per_unit: int, b: int) -> int:
+        units = max(b, (budget // per_unit) // b * b)
+        return min(n, units)
+
+    if N * M <= budget:
+        return (fit(L, N * M, bz), M, N)
+    if N * by * bz <= budget:
+        return (min(L, bz), fit(M, N * bz, by), N)
+    return (min(L, bz), min(M, by), fit(N, by * bz, bx))

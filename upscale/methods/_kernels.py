@@ -1,0 +1,205 @@
+"""Compiled per-chunk kernels: weighted sums of f(k) over sub-blocks, in one pass.
+
+Every average and bound in `upscale.methods` reduces to sums of the form
+``S = sum(w * f(k))`` and ``W = sum(w)`` over the cells of each (sub-)block,
+with ``f(k)`` one of k, 1/k, ln k or a constant. The kernels below compute
+them in a single pass over the input without temporaries, so a float32
+raster is read once and never copied to float64.
+
+Layout of the pass: rows are accumulated element-wise into a buffer one row
+long (a contiguous, vectorised loop), and the buffer is folded into block
+sums once per group of rows. Weights vary per layer only (``wz``); within a
+layer every cell of a fine grid has the same area and volume, so the weight
+cancels. Blocks at the end of each axis may be smaller (edge blocks); the
+sums then run over the cells that exist.
+
+NaN marks an inactive cell. With ``skip=True`` inactive cells are left out
+(nodata-aware averages); with ``skip=False`` they count as impermeable
+cells, k = 0, which is what the flow bounds need.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+from llvmlite import ir
+from numba.core import types
+from numba.extending import intrinsic
+
+#: Reassociation lets the compiler vectorise the sums; NaN and inf stay IEEE.
+_FAST = {"reassoc", "nsz", "contract"}
+_JIT = dict(nogil=True, cache=True, fastmath=_FAST, error_model="numpy")
+
+#: f(k) selectors for `block_sums`.
+COUNT, LINEAR, RECIPROCAL = 0, 1, -1
+
+_MANTISSA = (1 << 52) - 1
+_UNIT_EXPONENT = 1023 << 52
+_LN2 = math.log(2.0)
+
+
+@intrinsic
+def _bits(typingctx, x):  # noqa: D103 (reinterpret float64 as int64)
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.IntType(64))
+
+    return types.int64(types.float64), codegen
+
+
+@intrinsic
+def _from_bits(typingctx, x):  # noqa: D103 (reinterpret int64 as float64)
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.DoubleType())
+
+    return types.float64(types.int64), codegen
+
+
+@nb.njit(**_JIT)
+def _coarse_shape(shape, sub):
+    return (
+        (shape[0] + sub[0] - 1) // sub[0],
+        (shape[1] + sub[1] - 1) // sub[1],
+        (shape[2] + sub[2] - 1) // sub[2],
+    )
+
+
+@nb.njit(inline="always", **_JIT)
+def _add_values(row, acc, fill):
+    for j in range(row.size):
+        v = np.float64(row[j])
+        acc[j] += v if v == v else fill
+
+
+@nb.njit(inline="always", **_JIT)
+def _add_reciprocals(row, acc, fill):
+    for j in range(row.size):
+        v = np.float64(row[j])
+        acc[j] += 1.0 / v if v == v else fill
+
+
+@nb.njit(inline="always", **_JIT)
+def _add_active(row, acc):
+    for j in range(row.size):
+        acc[j] += 1.0 if row[j] == row[j] else 0.0
+
+
+@nb.njit(**_JIT)
+def block_sums(k, wz, sub, mode, skip):
+    """Weighted sums of f(k) over sub-blocks of `k`.
+
+    Parameters
+    ----------
+    k : ndarray of shape (L, M, N), float32 or float64
+        Cell values; NaN marks inactive cells.
+    wz : ndarray of shape (L,)
+        Weight of every cell of each layer (its thickness in m).
+    sub : (int, int, int)
+        Sub-block size in cells ``(layers, rows, columns)``.
+    mode : int
+        ``COUNT`` (f = 0), ``LINEAR`` (f = k) or ``RECIPROCAL`` (f = 1/k).
+    skip : bool
+        True: leave inactive cells out of S and W. False: count them as k = 0.
+
+    Returns
+    -------
+    S, W : ndarray of shape (ceil(L/sz), ceil(M/sy), ceil(N/sx))
+        ``sum(w * f(k))`` and ``sum(w)`` over each sub-block.
+    """
+    L, M, N = k.shape
+    sz, sy, sx = sub
+    S = np.zeros(_coarse_shape(k.shape, sub))
+    W = np.zeros(S.shape)
+    fill = np.inf if mode == RECIPROCAL else 0.0
+    row_s = np.zeros(N)
+    row_w = np.zeros(N)
+    for layer in range(L):
+        cl = layer // sz
+        for i in range(M):
+            row = k[layer, i]
+            # one branch per row keeps every inner loop simple enough to vectorise
+            if mode == LINEAR:
+                _add_values(row, row_s, fill)
+            elif mode == RECIPROCAL:
+                _add_reciprocals(row, row_s, fill)
+            if skip:
+                _add_active(row, row_w)
+            else:
+                row_w += 1.0
+            if (i + 1) % sy == 0 or i == M - 1:
+                ci = i // sy
+                w = wz[layer]
+                for cj in range(S.shape[2]):
+                    s = 0.0
+                    c = 0.0
+                    for j in range(cj * sx, min(N, cj * sx + sx)):
+                        s += row_s[j]
+                        c += row_w[j]
+                    S[cl, ci, cj] += w * s
+                    W[cl, ci, cj] += w * c
+                row_s[:] = 0.0
+                row_w[:] = 0.0
+    return S, W
+
+
+@nb.njit(**_JIT)
+def block_log_sums(k, wz, sub):
+    """Weighted sums of ln k over sub-blocks of `k`, skipping inactive cells.
+
+    The logarithm of a product is the sum of the logarithms: each cell is
+    split exactly into mantissa and binary exponent, the exponents are summed
+    as integers and the mantissas (in [1, 2)) multiplied, and one logarithm
+    is taken per block and layer instead of one per cell. Values must be
+    positive and finite where active.
+
+    Parameters and returns as `block_sums` with f = ln k and ``skip=True``.
+    """
+    L, M, N = k.shape
+    sz, sy, sx = sub
+    S = np.zeros(_coarse_shape(k.shape, sub))
+    W = np.zeros(S.shape)
+    mant = np.ones(N)
+    expo = np.zeros(N, np.int64)
+    count = np.zeros(N)
+    rows_in_product = 0
+    for layer in range(L):
+        cl = layer // sz
+        for i in range(M):
+            row = k[layer, i]
+            for j in range(N):
+                v = np.float64(row[j])
+                ok = v == v
+                bits = _bits(v)
+                expo[j] += ((bits >> 52) - 1023) if ok else 0
+                mant[j] *= _from_bits((bits & _MANTISSA) | _UNIT_EXPONENT) if ok else 1.0
+                count[j] += 1.0 if ok else 0.0
+            rows_in_product += 1
+            flush = (i + 1) % sy == 0 or i == M - 1
+            if flush or rows_in_product == 512:
+                # renormalise each running product to [1, 2) before it can overflow
+                for j in range(N):
+                    bits = _bits(mant[j])
+                    expo[j] += (bits >> 52) - 1023
+                    mant[j] = _from_bits((bits & _MANTISSA) | _UNIT_EXPONENT)
+                rows_in_product = 0
+            if flush:
+                ci = i // sy
+                w = wz[layer]
+                for cj in range(S.shape[2]):
+                    total = 0.0
+                    c = 0.0
+                    for j0 in range(cj * sx, min(N, cj * sx + sx), 512):
+                        p = 1.0
+                        e = 0
+                        for j in range(j0, min(N, cj * sx + sx, j0 + 512)):
+                            p *= mant[j]
+                            e += expo[j]
+                            c += count[j]
+                        total += e * _LN2 + math.log(p)
+                    S[cl, ci, cj] += w * total
+                    W[cl, ci, cj] += w * c
+                mant[:] = 1.0
+                expo[:] = 0
+                count[:] = 0.0
+    return S, W

@@ -1,0 +1,111 @@
+"""Method name -> implementation, shared by the library and the command line."""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+from ..errors import InputError
+from . import averages, bounds
+
+
+@dataclass(frozen=True)
+class Method:
+    """An upscaling method.
+
+    Parameters
+    ----------
+    name : str
+        Name used on the command line and in summaries.
+    kernel : callable
+        ``kernel(k, dz, block, axis, **options) -> coarse`` on one chunk of whole blocks.
+    summary : str
+        One line for ``--help`` and reports.
+    directional : bool
+        True if the result along an axis depends on the flow axis (bounds).
+    options : tuple of str
+        Names of the method's own options (e.g. ``exponent``).
+    takes_zeros : callable
+        ``takes_zeros(options) -> bool``: whether zero-permeability cells are valid input.
+    """
+
+    name: str
+    kernel: Callable[..., Any]
+    summary: str
+    directional: bool = False
+    options: tuple[str, ...] = ()
+    takes_zeros: Callable[[Mapping[str, Any]], bool] = field(default=lambda options: True)
+
+
+METHODS: Mapping[str, Method] = {
+    m.name: m
+    for m in (
+        Method("arithmetic", averages.arithmetic_mean, "volume-weighted arithmetic mean"),
+        Method(
+            "harmonic",
+            averages.harmonic_mean,
+            "volume-weighted harmonic mean",
+            takes_zeros=lambda options: False,
+        ),
+        Method(
+            "geometric",
+            averages.geometric_mean,
+            "volume-weighted geometric mean",
+            takes_zeros=lambda options: False,
+        ),
+        Method(
+            "power",
+            averages.power_mean,
+            "volume-weighted power average with exponent ω (--exponent)",
+            options=("exponent",),
+            takes_zeros=lambda options: options["exponent"] > 0,
+        ),
+        Method(
+            "tubes",
+            bounds.tubes_bound,
+            "Cardwell–Parsons lower bound: cells in series along each tube, tubes in parallel",
+            directional=True,
+        ),
+        Method(
+            "slabs",
+            bounds.slabs_bound,
+            "Cardwell–Parsons upper bound: cells in parallel across each slab, slabs in series",
+            directional=True,
+        ),
+    )
+}
+
+
+def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Method, dict]:
+    """Look up a method and check its options.
+
+    Parameters
+    ----------
+    name : str
+        A key of `METHODS`.
+    options : mapping, optional
+        Method options; unknown ones and missing required ones are refused.
+
+    Returns
+    -------
+    (Method, dict)
+        The method and its options restricted to the ones it takes.
+
+    Examples
+    --------
+    >>> method, opts = get_method("power", {"exponent": 0.5})
+    >>> method.name, opts
+    ('power', {'exponent': 0.5})
+    """
+    if name not in METHODS:
+        raise InputError(f"unknown method {name!r}; choose one of {', '.join(METHODS)}")
+    method = METHODS[name]
+    given = {k: v for k, v in (options or {}).items() if v is not None}
+    extra = sorted(set(given) - set(method.options))
+    if extra:
+        raise InputError(f"method {name!r} takes no option {', '.join(extra)}")
+    missing = [o for o in method.options if o not in given]
+    if missing:
+        raise InputError(f"method {name!r} needs --{missing[0]}")
+    return method, {o: given[o] for o in method.options}

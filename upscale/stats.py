@@ -1,0 +1,200 @@
+"""One pass over a property array: counts of bad values and summary statistics.
+
+`scan_values` finds negative, zero and non-finite values (with the first few
+locations, so an error can name the cells) and accumulates the statistics a
+run summary reports, in one compiled pass per chunk. On dask arrays it
+returns a lazy result that shares the chunk reads of any other computation
+it is computed together with.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numba as nb
+import numpy as np
+
+from .parallel import is_dask
+
+#: How many offending cells an error message names.
+FIRST = 3
+
+
+@nb.njit(nogil=True, cache=True)
+def _scan_chunk(k):
+    counts = np.zeros(4, np.int64)  # active, negative, zero, infinite
+    firsts = np.full((3, FIRST), -1, np.int64)  # flat indices per bad kind
+    sums = np.array([np.inf, -np.inf, 0.0, 0.0, 0.0, 0.0])  # min, max, sum, n_pos, sum ln, sum ln²
+    flat = k.ravel()
+    for idx in range(flat.size):
+        v = np.float64(flat[idx])
+        if v != v:
+            continue
+        counts[0] += 1
+        bad = -1
+        if math.isinf(v):
+            bad = 2
+        elif v < 0:
+            bad = 0
+        elif v == 0:
+            bad = 1
+        if bad >= 0:
+            counts[bad + 1] += 1
+            for f in range(FIRST):
+                if firsts[bad, f] < 0:
+                    firsts[bad, f] = idx
+                    break
+            if bad == 2:
+                continue
+        sums[0] = min(sums[0], v)
+        sums[1] = max(sums[1], v)
+        sums[2] += v
+        if v > 0:
+            lv = math.log(v)
+            sums[3] += 1.0
+            sums[4] += lv
+            sums[5] += lv * lv
+    return counts, firsts, sums
+
+
+@dataclass(frozen=True)
+class ValueScan:
+    """What one pass found in a property array.
+
+    Attributes
+    ----------
+    cells : int
+        All cells, active or not.
+    active : int
+        Cells holding a value (not NaN).
+    negative, zero, infinite : int
+        Active cells with a negative, zero or infinite value.
+    first_negative, first_zero, first_infinite : tuple of (int, int, int)
+        The first few such cells as ``(layer, row, column)``.
+    minimum, maximum, total : float
+        Over finite active values.
+    positive, log_sum, log_square_sum : float
+        Count of positive finite values and the sums of ln k and (ln k)² over them.
+    """
+
+    cells: int
+    active: int
+    negative: int
+    zero: int
+    infinite: int
+    first_negative: tuple
+    first_zero: tuple
+    first_infinite: tuple
+    minimum: float
+    maximum: float
+    total: float
+    positive: float
+    log_sum: float
+    log_square_sum: float
+
+    @classmethod
+    def from_chunk(cls, chunk: np.ndarray, offset: tuple[int, int, int], shape: tuple) -> ValueScan:
+        """Scan one chunk whose first cell sits at `offset` in an array of `shape`."""
+        counts, firsts, sums = _scan_chunk(np.ascontiguousarray(chunk))
+
+        def places(row: np.ndarray) -> tuple:
+            local = [np.unravel_index(i, chunk.shape) for i in row if i >= 0]
+            return tuple(tuple(int(a + o) for a, o in zip(p, offset)) for p in local)
+
+        return cls(
+            int(chunk.size), int(counts[0]), int(counts[1]), int(counts[2]), int(counts[3]),
+            places(firsts[0]), places(firsts[1]), places(firsts[2]), *map(float, sums),
+        )  # fmt: skip
+
+    def merge(self, other: ValueScan) -> ValueScan:
+        """Combine the scans of two disjoint parts of an array."""
+
+        def first(a: tuple, b: tuple) -> tuple:
+            return tuple(sorted(a + b)[:FIRST])
+
+        return ValueScan(
+            self.cells + other.cells,
+            self.active + other.active,
+            self.negative + other.negative,
+            self.zero + other.zero,
+            self.infinite + other.infinite,
+            first(self.first_negative, other.first_negative),
+            first(self.first_zero, other.first_zero),
+            first(self.first_infinite, other.first_infinite),
+            min(self.minimum, other.minimum),
+            max(self.maximum, other.maximum),
+            self.total + other.total,
+            self.positive + other.positive,
+            self.log_sum + other.log_sum,
+            self.log_square_sum + other.log_square_sum,
+        )
+
+    @property
+    def mean(self) -> float:
+        """Arithmetic mean of the finite active values."""
+        finite = self.active - self.infinite
+        return self.total / finite if finite else math.nan
+
+    @property
+    def geometric_mean(self) -> float:
+        """Geometric mean of the positive finite values."""
+        return math.exp(self.log_sum / self.positive) if self.positive else math.nan
+
+    @property
+    def log10_std(self) -> float:
+        """Standard deviation of log10 of the positive finite values."""
+        if not self.positive:
+            return math.nan
+        mean = self.log_sum / self.positive
+        variance = max(self.log_square_sum / self.positive - mean * mean, 0.0)
+        return math.sqrt(variance) / math.log(10.0)
+
+    def summary(self) -> dict[str, float | int]:
+        """The statistics a report shows, as plain numbers."""
+        return {
+            "cells": self.cells,
+            "active": self.active,
+            "min": self.minimum if self.active else math.nan,
+            "max": self.maximum if self.active else math.nan,
+            "mean": self.mean,
+            "geometric_mean": self.geometric_mean,
+            "log10_std": self.log10_std,
+        }
+
+
+def _merge_all(scans: list[ValueScan]) -> ValueScan:
+    total = scans[0]
+    for scan in scans[1:]:
+        total = total.merge(scan)
+    return total
+
+
+def scan_values(array: Any) -> Any:
+    """Scan a property array of shape (L, M, N).
+
+    Returns
+    -------
+    ValueScan or dask.delayed.Delayed
+        A `ValueScan` for a NumPy array; a lazy one for a dask array (compute
+        it together with other results to read every chunk once).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> s = scan_values(np.array([[[1.0, -2.0, np.nan, 100.0]]]))
+    >>> s.active, s.negative, s.first_negative, round(s.geometric_mean, 6)
+    (3, 1, ((0, 0, 1),), 10.0)
+    """
+    shape = tuple(array.shape)
+    if not is_dask(array):
+        return ValueScan.from_chunk(np.asarray(array), (0, 0, 0), shape)
+    import dask
+
+    starts = [np.concatenate([[0], np.cumsum(c)[:-1]]) for c in array.chunks]
+    parts = []
+    for index, chunk in np.ndenumerate(array.to_delayed(optimize_graph=False)):
+        offset = tuple(int(starts[a][i]) for a, i in enumerate(index))
+        parts.append(dask.delayed(ValueScan.from_chunk)(chunk, offset, shape))
+    return dask.delayed(_merge_all)(parts)

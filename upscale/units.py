@@ -1,0 +1,92 @@
+"""Units of permeability and hydraulic conductivity.
+
+Permeability values are kept in the unit the user gave them in; every
+average is linear-homogeneous (scaling all cells by c scales the result by
+c), so no conversion is needed to upscale. Conversions to SI are provided
+for reports and exports.
+
+Hydraulic conductivity K (m/s) and intrinsic permeability k (m²) are related
+by ``K = k * rho * g / mu`` for a given fluid. The factor used here is for
+fresh water at 20 °C; it is only used when a conductivity has to be shown
+as a permeability or the other way round.
+"""
+
+from __future__ import annotations
+
+from typing import Final
+
+#: Standard atmosphere in pascal (exact by definition; 10th CGPM, 1954).
+ATMOSPHERE_PA: Final = 101_325.0
+#: Standard acceleration of gravity in m/s² (exact by definition; 3rd CGPM, 1901).
+GRAVITY: Final = 9.80665
+#: Density of fresh water at 20 °C in kg/m³ (from memory: 998.2).
+WATER_DENSITY_20C: Final = 998.2
+#: Dynamic viscosity of fresh water at 20 °C in Pa·s (from memory: 1.002 mPa·s).
+WATER_VISCOSITY_20C: Final = 1.002e-3
+
+#: One darcy in m²: the permeability that passes 1 cm³/s of a 1 cP fluid through
+#: 1 cm² under a gradient of 1 atm/cm (the definition of the darcy).
+DARCY_M2: Final = (1e-6 * 1e-3 * 1e-2) / (1e-4 * ATMOSPHERE_PA)
+
+#: Conductivity per permeability for water at 20 °C, in 1/(m·s): K = k * this.
+WATER_K_PER_PERMEABILITY: Final = WATER_DENSITY_20C * GRAVITY / WATER_VISCOSITY_20C
+
+_SECONDS_PER_DAY: Final = 86_400.0
+
+#: Unit name -> (kind, factor to the kind's SI unit: m² for permeability, m/s for conductivity).
+UNITS: Final[dict[str, tuple[str, float]]] = {
+    "mD": ("permeability", 1e-3 * DARCY_M2),
+    "D": ("permeability", DARCY_M2),
+    "m2": ("permeability", 1.0),
+    "m/s": ("conductivity", 1.0),
+    "m/day": ("conductivity", 1.0 / _SECONDS_PER_DAY),
+}
+
+
+def check_unit(unit: str) -> str:
+    """Return `unit` if it is known, else raise `InputError` listing the known ones.
+
+    Examples
+    --------
+    >>> check_unit("mD")
+    'mD'
+    """
+    if unit not in UNITS:
+        from .errors import InputError
+
+        raise InputError(f"unknown unit {unit!r}; use one of {', '.join(UNITS)}")
+    return unit
+
+
+def to_m2(value: float, unit: str) -> float:
+    """Convert a permeability or conductivity to intrinsic permeability in m².
+
+    Conductivities are converted for fresh water at 20 °C.
+
+    Parameters
+    ----------
+    value : float
+        Permeability or hydraulic conductivity in `unit`.
+    unit : str
+        One of the keys of `UNITS`.
+
+    Returns
+    -------
+    float
+        Intrinsic permeability in m².
+
+    Examples
+    --------
+    >>> round(to_m2(1000.0, "mD") / 1e-12, 6)
+    0.986923
+    """
+    kind, factor = UNITS[check_unit(unit)]
+    si = value * factor
+    return si / WATER_K_PER_PERMEABILITY if kind == "conductivity" else si
+
+
+def from_m2(value: float, unit: str) -> float:
+    """Convert an intrinsic permeability in m² to `unit` (inverse of `to_m2`)."""
+    kind, factor = UNITS[check_unit(unit)]
+    si = value * WATER_K_PER_PERMEABILITY if kind == "conductivity" else value
+    return si / factor

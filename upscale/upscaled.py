@@ -1,0 +1,231 @@
+"""Stage 3: coarse block properties from a fine field by a chosen method.
+
+`coarsen` is the one call that turns a fine `Field` into a coarse one. It
+checks the block against the grid, applies the method to every property
+(kx, ky, kz along their own axes; porosity by bulk volume), scans the fine
+values for anything the method cannot take, and computes it all in a
+single pass over the data — dask reads each chunk once.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+from .field import AXES, PERMEABILITY, Field
+from .grid import BlockSpec
+from .methods import averages
+from .methods.registry import Method, get_method
+from .parallel import apply_blocks, is_dask
+from .stats import ValueScan, scan_values
+
+
+@dataclass(frozen=True, eq=False)
+class Upscaled:
+    """A fine field, its coarse counterpart and how one was made from the other.
+
+    Attributes
+    ----------
+    fine : Field
+        The fine field as used (cropped to whole blocks with ``remainder='crop'``).
+    coarse : Field
+        Coarse properties on the coarse grid; NaN marks inactive blocks.
+    method : str
+        Method name.
+    options : dict
+        The method's options (e.g. ``{'exponent': 0.5}``).
+    block : BlockSpec
+        The block partition.
+    active_fraction : ndarray of shape (L', M', N')
+        Active fraction of each block's bulk volume.
+    fine_stats : dict of str to ValueScan
+        Statistics of each fine property.
+    dropped_cells : int
+        Fine cells dropped by cropping.
+    lost_pore_volume : float
+        Pore volume (m³) of blocks made inactive by ``min_active``; 0 without porosity.
+    """
+
+    fine: Field
+    coarse: Field
+    method: str
+    options: dict
+    block: BlockSpec
+    active_fraction: np.ndarray
+    fine_stats: dict[str, ValueScan] = field(default_factory=dict)
+    dropped_cells: int = 0
+    lost_pore_volume: float = 0.0
+
+
+def coarsen(
+    field: Field, block: BlockSpec | str, method: str = "geometric", **options: Any
+) -> Upscaled:
+    """Upscale every property of `field` to coarse blocks.
+
+    Parameters
+    ----------
+    field : Field
+        The fine field (NumPy or dask arrays).
+    block : BlockSpec or str
+        The block partition, or its text form such as ``"8x8"``.
+    method : str
+        A name from `upscale.METHODS`.
+    **options
+        The method's options, e.g. ``exponent=0.5`` for ``power``.
+
+    Returns
+    -------
+    Upscaled
+        Coarse properties as NumPy arrays, with the statistics of the fine ones.
+
+    Raises
+    ------
+    InputError
+        If the block does not fit the grid, a value cannot be averaged by the
+        method (negative, infinite, or zero where the method needs > 0), or no
+        cell is active.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> fine = Field.from_arrays(np.array([[1.0, 1.0], [100.0, 100.0]]), cell_size=(10.0, 10.0))
+    >>> coarsen(fine, "2x2", "geometric").coarse.kx
+    array([[[10.]]])
+    """
+    spec = BlockSpec.parse(block) if isinstance(block, str) else block
+    chosen, options = get_method(method, options)
+    spec.check(field.shape, field.ndim)
+    fine = _crop(field, spec)
+    dz, cells = fine.grid.dz, spec.cells
+
+    lazy: dict[str, Any] = {}
+    results_by_array: dict[tuple[int, int | None], Any] = {}
+    for axis_name in fine.axes:
+        name = PERMEABILITY[axis_name]
+        array = getattr(fine, name)
+        axis = AXES[axis_name]
+        # the same array under a rule that ignores the axis is computed once
+        key = (id(array), axis if chosen.directional else None)
+        if key not in results_by_array:
+            results_by_array[key] = apply_blocks(chosen.kernel, array, dz, cells, axis, **options)
+        lazy[name] = results_by_array[key]
+    if fine.porosity is not None:
+        lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
+    lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
+    scans = {name: scan_values(array) for name, array in fine.properties().items()}
+
+    done = compute_together({**lazy, **{f"_scan_{k}": v for k, v in scans.items()}})
+    scans = {name: done.pop(f"_scan_{name}") for name in scans}
+    computed = done
+    _check_values(scans, chosen, options, fine)
+
+    coarse_grid = spec.coarse_grid(fine.grid)
+    block_volume = np.multiply.outer(
+        np.add.reduceat(dz, spec.edges(fine.shape[0], 0)[:-1]),
+        np.outer(np.diff(spec.edges(fine.shape[1], 1)), np.diff(spec.edges(fine.shape[2], 2))),
+    )
+    fraction = computed.pop("_active") / block_volume
+    inactive = (fraction == 0) | (fraction < spec.min_active)
+    lost = 0.0
+    if "porosity" in computed:
+        pore = computed["porosity"] * coarse_grid.cell_volumes()
+        lost = float(pore[inactive].sum())
+    for values in computed.values():
+        values[inactive] = np.nan
+
+    coarse = Field(
+        kx=computed["kx"],
+        ky=computed["ky"],
+        kz=computed.get("kz"),
+        porosity=computed.get("porosity"),
+        grid=coarse_grid,
+        unit=field.unit,
+        sources=field.sources,
+    )
+    dropped = math.prod(field.shape) - math.prod(fine.shape)
+    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost)
+
+
+def _crop(field: Field, spec: BlockSpec) -> Field:
+    used = spec.used_shape(field.shape)
+    if used == field.shape:
+        return field
+    window = tuple(slice(0, n) for n in used)
+    arrays = {name: array[window] for name, array in field.properties().items()}
+    # keep shared arrays shared so axis-free rules still compute them once
+    for name in ("ky", "kz"):
+        if getattr(field, name) is field.kx:
+            arrays[name] = arrays["kx"]
+    grid = type(field.grid)(
+        dz=field.grid.dz[: used[0]],
+        dy=field.grid.dy[: used[1]],
+        dx=field.grid.dx[: used[2]],
+        transform=field.grid.transform,
+        crs=field.grid.crs,
+    )
+    return Field(
+        kx=arrays["kx"],
+        ky=arrays["ky"],
+        kz=arrays.get("kz"),
+        porosity=arrays.get("porosity"),
+        grid=grid,
+        unit=field.unit,
+        sources=field.sources,
+    )
+
+
+def compute_together(lazy: dict[str, Any]) -> dict[str, Any]:
+    """Compute several lazy results in one pass over their shared chunks.
+
+    NumPy arrays and finished values pass through; each array result is a
+    writable copy of its own.
+    """
+    names = [name for name, value in lazy.items() if is_dask(value) or _is_delayed(value)]
+    done = dict(lazy)
+    if names:
+        import dask
+
+        done.update(zip(names, dask.compute(*(lazy[n] for n in names))))
+    return {k: np.array(v) if isinstance(v, np.ndarray) else v for k, v in done.items()}
+
+
+def _is_delayed(value: Any) -> bool:
+    return type(value).__module__.startswith("dask.delayed")
+
+
+def _where(cells: tuple) -> str:
+    return ", ".join(f"(layer {c[0]}, row {c[1]}, column {c[2]})" for c in cells)
+
+
+def _check_values(scans: dict[str, ValueScan], method: Method, options: dict, fine: Field) -> None:
+    sources = {s.role: s.path for s in fine.sources}
+    for name, scan in scans.items():
+        label = f"{name} ({sources[name]})" if name in sources else name
+        if scan.active == 0:
+            raise InputError(f"{label}: no active cell (every cell is nodata or NaN)")
+        if scan.infinite:
+            raise InputError(
+                f"{label}: {scan.infinite} infinite value(s), first at {_where(scan.first_infinite)}; "
+                "mark them as nodata"
+            )
+        if scan.negative:
+            raise InputError(
+                f"{label}: {scan.negative} negative value(s), first at {_where(scan.first_negative)}; "
+                "permeability and porosity cannot be negative — fix the input or mark them as nodata"
+            )
+        if name == "porosity":
+            if scan.maximum > 1:
+                raise InputError(
+                    f"{label}: porosity up to {scan.maximum:g}; porosity is a fraction in [0, 1]"
+                )
+        elif scan.zero and not method.takes_zeros(options):
+            raise InputError(
+                f"{label}: {scan.zero} zero permeability value(s), first at "
+                f"{_where(scan.first_zero)}; the {method.name} average of a block with a zero is "
+                "zero whatever the other cells hold — mark them as nodata, or use arithmetic, "
+                "tubes, slabs or power with an exponent > 0"
+            )
