@@ -13,7 +13,7 @@ from ..stats import scan_values
 from ..upscaled import compute_together
 from .options import field_options, read_options
 from .progress import progress
-from .report import table
+from .report import crs_text, table
 
 
 @click.command()
@@ -65,7 +65,7 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
         dz = grid.dz
         sizes += f", dz {dz[0]:g} m" if (dz == dz[0]).all() else f", dz {dz.min():g}-{dz.max():g} m"
     click.echo(f"cell size    {sizes}")
-    click.echo(f"CRS          {description['crs'] or 'none'}")
+    click.echo(f"CRS          {crs_text(grid.crs)}")
     click.echo(f"unit         {fine.unit}")
     click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
     log10 = description["log10_k"]

@@ -16,6 +16,14 @@ def _number(value: float | None) -> str:
     return f"{value:.4g}"
 
 
+def crs_text(crs: object) -> str:
+    """A CRS in one short line: its authority code, else its PROJ string."""
+    if crs is None:
+        return "none"
+    authority = crs.to_authority()
+    return ":".join(authority) if authority else crs.to_proj4().replace("=True", "")
+
+
 def _dims(shape: tuple[int, int, int], ndim: int) -> str:
     layers, rows, cols = shape
     return f"{cols} x {rows}" + (f" x {layers}" if ndim == 3 else "")

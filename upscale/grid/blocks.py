@@ -147,5 +147,5 @@ class BlockSpec:
             sizes.append(np.add.reduceat(grid.sizes(axis)[: edges[-1]], edges[:-1]))
         transform = None
         if grid.transform is not None:
-            transform = grid.transform * Affine.scale(self.nx, self.ny)
+            transform = grid.transform @ Affine.scale(self.nx, self.ny)
         return Grid(dz=sizes[0], dy=sizes[1], dx=sizes[2], transform=transform, crs=grid.crs)

@@ -111,7 +111,7 @@ def block_sums(k, wz, sub, mode, skip):
     sz, sy, sx = sub
     S = np.zeros(_coarse_shape(k.shape, sub))
     W = np.zeros(S.shape)
-    fill = np.inf if mode == RECIPROCAL else 0.0
+    fill = np.inf if (mode == RECIPROCAL and not skip) else 0.0  # an inactive cell in series blocks flow
     row_s = np.zeros(N)
     row_w = np.zeros(N)
     for layer in range(L):
