@@ -1,8 +1,9 @@
 """One pass over a property array: counts of bad values and summary statistics.
 
-`scan_values` finds negative, zero and non-finite values (with the first few
-locations, so an error can name the cells) and accumulates the statistics a
-run summary reports, in one compiled pass per chunk. On dask arrays it
+`scan_values` accumulates the statistics a run summary reports in one
+compiled pass per chunk, and finds negative, zero and infinite values with
+the first few locations, so an error can name the cells (a second, exact
+pass runs only over chunks that hold such values). On dask arrays it
 returns a lazy result that shares the chunk reads of any other computation
 it is computed together with.
 """
@@ -16,6 +17,7 @@ from typing import Any
 import numba as nb
 import numpy as np
 
+from .methods._kernels import value_sums
 from .parallel import is_dask
 
 #: How many offending cells an error message names.
@@ -23,40 +25,20 @@ FIRST = 3
 
 
 @nb.njit(nogil=True, cache=True)
-def _scan_chunk(k):
-    counts = np.zeros(4, np.int64)  # active, negative, zero, infinite
-    firsts = np.full((3, FIRST), -1, np.int64)  # flat indices per bad kind
-    sums = np.array([np.inf, -np.inf, 0.0, 0.0, 0.0, 0.0])  # min, max, sum, n_pos, sum ln, sum ln²
+def _locate_bad(k):
+    # exact counts and first flat indices of negative, zero and infinite values
+    counts = np.zeros(3, np.int64)
+    firsts = np.full((3, FIRST), -1, np.int64)
     flat = k.ravel()
     for idx in range(flat.size):
         v = np.float64(flat[idx])
-        if v != v:
+        if v > 0.0 and v < np.inf or v != v:
             continue
-        counts[0] += 1
-        bad = -1
-        if math.isinf(v):
-            bad = 2
-        elif v < 0:
-            bad = 0
-        elif v == 0:
-            bad = 1
-        if bad >= 0:
-            counts[bad + 1] += 1
-            for f in range(FIRST):
-                if firsts[bad, f] < 0:
-                    firsts[bad, f] = idx
-                    break
-            if bad == 2:
-                continue
-        sums[0] = min(sums[0], v)
-        sums[1] = max(sums[1], v)
-        sums[2] += v
-        if v > 0:
-            lv = math.log(v)
-            sums[3] += 1.0
-            sums[4] += lv
-            sums[5] += lv * lv
-    return counts, firsts, sums
+        kind = 2 if math.isinf(v) else (0 if v < 0.0 else 1)
+        if counts[kind] < FIRST:
+            firsts[kind, counts[kind]] = idx
+        counts[kind] += 1
+    return counts, firsts
 
 
 @dataclass(frozen=True)
@@ -74,7 +56,7 @@ class ValueScan:
     first_negative, first_zero, first_infinite : tuple of (int, int, int)
         The first few such cells as ``(layer, row, column)``.
     minimum, maximum, total : float
-        Over finite active values.
+        Over finite, non-negative active values (negative ones are errors).
     positive, log_sum, log_square_sum : float
         Count of positive finite values and the sums of ln k and (ln k)² over them.
     """
@@ -97,15 +79,23 @@ class ValueScan:
     @classmethod
     def from_chunk(cls, chunk: np.ndarray, offset: tuple[int, int, int], shape: tuple) -> ValueScan:
         """Scan one chunk whose first cell sits at `offset` in an array of `shape`."""
-        counts, firsts, sums = _scan_chunk(np.ascontiguousarray(chunk))
+        chunk = np.ascontiguousarray(chunk)
+        sums, low, high = value_sums(chunk)
+        active, valid, positive = (int(x) for x in sums[:3])
+        bad = (np.zeros(3, np.int64), np.full((3, FIRST), -1, np.int64))
+        if valid < active or positive < valid:  # rare: find the offending cells exactly
+            bad = _locate_bad(chunk)
+        counts, firsts = bad
 
         def places(row: np.ndarray) -> tuple:
             local = [np.unravel_index(i, chunk.shape) for i in row if i >= 0]
             return tuple(tuple(int(a + o) for a, o in zip(p, offset)) for p in local)
 
         return cls(
-            int(chunk.size), int(counts[0]), int(counts[1]), int(counts[2]), int(counts[3]),
-            places(firsts[0]), places(firsts[1]), places(firsts[2]), *map(float, sums),
+            int(chunk.size), active, int(counts[0]), int(counts[1]), int(counts[2]),
+            places(firsts[0]), places(firsts[1]), places(firsts[2]),
+            low if valid else math.inf, high if valid else -math.inf,
+            float(sums[3]), float(positive), float(sums[4]), float(sums[5]),
         )  # fmt: skip
 
     def merge(self, other: ValueScan) -> ValueScan:
@@ -133,9 +123,9 @@ class ValueScan:
 
     @property
     def mean(self) -> float:
-        """Arithmetic mean of the finite active values."""
-        finite = self.active - self.infinite
-        return self.total / finite if finite else math.nan
+        """Arithmetic mean of the finite, non-negative active values."""
+        valid = self.active - self.infinite - self.negative
+        return self.total / valid if valid else math.nan
 
     @property
     def geometric_mean(self) -> float:
