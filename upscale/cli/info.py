@@ -13,7 +13,7 @@ from ..stats import scan_values
 from ..upscaled import compute_together
 from .options import field_options, read_options
 from .progress import progress
-from .report import crs_text, table
+from .report import crs_text, number, table
 
 
 @click.command()
@@ -68,13 +68,12 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     click.echo(f"CRS          {crs_text(grid.crs)}")
     click.echo(f"unit         {fine.unit}")
     click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
-    log10 = description["log10_k"]
-    if log10["mean"] is not None:
-        click.echo(f"log10 k      mean {log10['mean']:.3f}, std {log10['std']:.3f}, "
-                   f"min {log10['min']:.3f}, max {log10['max']:.3f}")  # fmt: skip
+    log10 = {key: number(value, ".3f") for key, value in description["log10_k"].items()}
+    click.echo(f"log10 k      mean {log10['mean']}, std {log10['std']}, "
+               f"min {log10['min']}, max {log10['max']} (over positive values)")  # fmt: skip
     rows_out = [
-        [name, str(s["active"]), f"{s['min']:.4g}", f"{s['max']:.4g}", f"{s['mean']:.4g}",
-         f"{s['geometric_mean']:.4g}"]
+        [name, str(s["active"]), number(s["min"]), number(s["max"]), number(s["mean"]),
+         number(s["geometric_mean"])]
         for name, s in description["statistics"].items()
     ]  # fmt: skip
     click.echo("")

@@ -10,10 +10,11 @@ import click
 from ..upscaled import Upscaled
 
 
-def _number(value: float | None) -> str:
+def number(value: float | None, spec: str = ".4g") -> str:
+    """A number for a table; ``-`` for a missing or non-finite one."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "-"
-    return f"{value:.4g}"
+    return format(value, spec)
 
 
 def crs_text(crs: object) -> str:
@@ -58,9 +59,9 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     rows = []
     for name in coarse.properties():
         f, c = stats["fine"][name], stats["coarse"][name]
-        rows.append([name, _number(f["mean"]), _number(f["geometric_mean"]),
-                     _number(c["mean"]), _number(c["geometric_mean"]),
-                     _number(c["min"]), _number(c["max"])])  # fmt: skip
+        rows.append([name, number(f["mean"]), number(f["geometric_mean"]),
+                     number(c["mean"]), number(c["geometric_mean"]),
+                     number(c["min"]), number(c["max"])])  # fmt: skip
     unit = fine.unit
     click.echo("")
     click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",

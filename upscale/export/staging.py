@@ -72,12 +72,19 @@ def staged_folder(
     except OSError as exc:
         raise OutputError(f"cannot write in {folder.parent}: {exc.strerror or exc}") from None
     try:
-        yield stage
-        _commit(stage, folder, marker)
-    except OSError as exc:
-        raise OutputError(
-            f"writing {folder} failed ({exc.strerror or exc}); the previous contents are unchanged"
-        ) from None
+        try:
+            yield stage
+        except OSError as exc:
+            raise OutputError(
+                f"writing {folder} failed ({exc.strerror or exc}); nothing was changed there"
+            ) from None
+        try:
+            _commit(stage, folder, marker)
+        except OSError as exc:
+            raise OutputError(
+                f"moving the results into {folder} failed ({exc.strerror or exc}); it has no "
+                f"{marker}, so it does not hold a complete result — run again"
+            ) from None
     finally:
         shutil.rmtree(stage, ignore_errors=True)
 

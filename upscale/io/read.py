@@ -22,7 +22,7 @@ from affine import Affine
 from ..errors import InputError
 from ..field import Field, Grid, Source, share_inactive
 from ..units import check_unit
-from .windows import RasterWindows, choose_chunks, clean_values, value_dtype
+from .windows import RasterWindows, choose_chunks, clean_values, open_raster, value_dtype
 
 log = logging.getLogger(__name__)
 
@@ -71,20 +71,15 @@ def _open(path: str, scale: str, nodata: float | None, chunks: Any) -> _Layout:
         )
         return _Layout(path, stored.shape, None, None, lazy)
 
-    import rasterio
     from rasterio.enums import MaskFlags
-    from rasterio.errors import RasterioError
 
-    try:
-        with rasterio.open(p) as src:
-            shape = (src.count, src.height, src.width)
-            dtype = np.dtype(src.dtypes[0])
-            transform, crs = src.transform, src.crs
-            file_nodata = src.nodata
-            use_mask = MaskFlags.per_dataset in src.mask_flag_enums[0]
-            georeferenced = not (transform.is_identity and crs is None)
-    except RasterioError as exc:
-        raise InputError(f"{path}: cannot be read as a raster ({exc})") from None
+    with open_raster(str(p)) as src:
+        shape = (src.count, src.height, src.width)
+        dtype = np.dtype(src.dtypes[0])
+        transform, crs = src.transform, src.crs
+        file_nodata = src.nodata
+        use_mask = MaskFlags.per_dataset in src.mask_flag_enums[0]
+        georeferenced = not (transform.is_identity and crs is None)
     if np.issubdtype(dtype, np.complexfloating):
         raise InputError(f"{path}: complex values cannot be permeabilities")
     if not np.issubdtype(dtype, np.floating):
@@ -112,7 +107,8 @@ def _cell_size(first: _Layout, cell_size: Sequence[float] | None) -> tuple[float
     if cell_size is not None:
         dx, dy = (float(v) for v in cell_size)
         if t is not None and first.crs is not None and first.crs.is_projected:
-            own = (abs(t.a), abs(t.e))
+            factor = first.crs.linear_units_factor[1]
+            own = (abs(t.a) * factor, abs(t.e) * factor)
             if not (math.isclose(dx, own[0], rel_tol=1e-9) and math.isclose(dy, own[1], rel_tol=1e-9)):
                 raise InputError(
                     f"{first.path}: the raster's own cell size is {own[0]:g} x {own[1]:g} m; "

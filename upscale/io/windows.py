@@ -9,12 +9,36 @@ can reach the same path), and turns nodata into NaN on the way.
 from __future__ import annotations
 
 import os
+import warnings
+from collections.abc import Iterator
+from contextlib import contextmanager
 from typing import Any
 
 import numpy as np
 
+from ..errors import InputError
+
 #: Bytes of float64 per chunk when the caller does not choose.
 DEFAULT_CHUNK_BYTES = 64 * 2**20
+
+
+@contextmanager
+def open_raster(path: str) -> Iterator[Any]:
+    """Open a raster read-only; any failure to read it becomes one `InputError`.
+
+    A raster without georeference is legitimate input here (the cell size is
+    then given by the user), so rasterio's warning about it is not passed on.
+    """
+    import rasterio
+    from rasterio.errors import NotGeoreferencedWarning, RasterioError
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", NotGeoreferencedWarning)
+            with rasterio.open(path) as src:
+                yield src
+    except RasterioError as exc:
+        raise InputError(f"{path}: cannot be read as a raster ({exc})") from None
 
 
 def clean_values(data: np.ndarray, nodata: float | None, scale: str) -> np.ndarray:
@@ -95,13 +119,12 @@ class RasterWindows:
         return (self.path, stat.st_size, stat.st_mtime_ns, self.nodata, self.scale, self.use_mask)
 
     def __getitem__(self, key: tuple[slice, slice, slice]) -> np.ndarray:
-        import rasterio
         from rasterio.windows import Window
 
         bands, rows, cols = (s.indices(n) for s, n in zip(key, self.shape))
         indexes = list(range(bands[0] + 1, bands[1] + 1))
         window = Window(cols[0], rows[0], cols[1] - cols[0], rows[1] - rows[0])
-        with rasterio.open(self.path) as src:
+        with open_raster(self.path) as src:
             data = src.read(indexes, window=window)
             values = clean_values(data, self.nodata, self.scale)
             if self.use_mask:

@@ -1,0 +1,87 @@
+"""Tests of ``upscale demo`` and the demo fields it writes.
+
+The demo fields come from fixed seeds: a second generation must be
+identical, array for array, to the first (the session's `demo_dir`), and
+equal to the arrays `upscale.demo.scenario.fields` builds in memory.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import rasterio
+from conftest import DEMO_NAMES, partial_leftovers, snapshot
+
+from upscale.demo.scenario import LISTING, NODATA, fields
+
+
+def _raster(path):
+    with rasterio.open(path) as src:
+        return src.read(), src.transform, src.crs, src.nodata, src.dtypes
+
+
+def test_demo_writes_five_fields_and_a_listing(run_cli, tmp_path):
+    out = tmp_path / "demo"
+    code, stdout, err = run_cli("demo", "--out", out)
+    assert (code, err) == (0, "")
+    assert stdout == f"wrote 5 demo fields to {out}: {', '.join(DEMO_NAMES)}\n"
+    assert sorted(p.name for p in out.iterdir()) == sorted([*DEMO_NAMES, LISTING])
+    listing = json.loads((out / LISTING).read_text())
+    assert listing["files"] == list(DEMO_NAMES)
+    for name in DEMO_NAMES:
+        values, transform, crs, nodata, dtypes = _raster(out / name)
+        entry = listing["fields"][name]
+        assert list(values.shape) == entry["shape"]
+        assert transform.a == -transform.e == entry["cell_size_m"]
+        assert crs is not None and crs.is_projected
+        assert nodata == NODATA and set(dtypes) == {"float32"}
+    assert partial_leftovers(tmp_path) == []
+
+
+def test_demo_refuses_to_overwrite_without_the_flag(run_cli, tmp_path):
+    out = tmp_path / "demo"
+    assert run_cli("--quiet", "demo", "--out", out)[0] == 0
+    (out / LISTING).write_text('{"files": []}\n')  # mark the folder so a rewrite shows
+    before = snapshot(out)
+    code, stdout, err = run_cli("demo", "--out", out)
+    assert code == 2
+    assert stdout == ""
+    assert err.startswith(f"upscale: error: {out} already holds files")
+    assert err.count("\n") == 1 and "--overwrite" in err
+    assert snapshot(out) == before
+    code, _, err = run_cli("--quiet", "demo", "--out", out, "--overwrite")
+    assert (code, err) == (0, "")
+    assert json.loads((out / LISTING).read_text())["files"] == list(DEMO_NAMES)
+
+
+def test_demo_fields_are_deterministic(run_cli, demo_dir, tmp_path):
+    out = tmp_path / "again"
+    assert run_cli("--quiet", "demo", "--out", out)[0] == 0
+    for name in DEMO_NAMES:
+        first, second = _raster(demo_dir / name), _raster(out / name)
+        np.testing.assert_array_equal(second[0], first[0])
+        assert second[1:] == first[1:]
+    assert (out / LISTING).read_text() == (demo_dir / LISTING).read_text()
+
+
+def test_demo_files_hold_the_generated_arrays(demo_dir):
+    for name, spec in fields().items():
+        values, *_ = _raster(demo_dir / name)
+        np.testing.assert_array_equal(values, spec["values"].astype(np.float32))
+
+
+def test_demo_fields_have_inactive_outlines_and_plausible_values(demo_dir):
+    lognormal, *_ = _raster(demo_dir / "marrowfen_lognormal.tif")
+    porosity, *_ = _raster(demo_dir / "marrowfen_porosity.tif")
+    outside = lognormal == NODATA
+    assert 0 < outside.sum() < outside.size
+    np.testing.assert_array_equal(porosity == NODATA, outside)  # same outline
+    assert outside[0, 0, -1] and not outside[0, -1, 0]  # the north-east corner is cut off
+    inside = porosity[~outside]
+    assert inside.min() >= 0.04 - 1e-7 and inside.max() <= 0.32 + 1e-7
+    layered, *_ = _raster(demo_dir / "marrowfen_layered.tif")
+    assert layered.shape == (20, 64, 64)
+    # every fifth layer is a 0.01 mD barrier (with mild lateral variability)
+    assert np.all(np.median(layered[4::5], axis=(1, 2)) < 0.1)
+    assert np.all(np.median(layered[0::5], axis=(1, 2)) > 10)

@@ -1,0 +1,164 @@
+"""Tests of ``upscale info``: the description of a field, as text and as JSON.
+
+Numbers in the ``--json`` output are checked against NumPy on the values
+rasterio reads from the same GeoTIFF.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from conftest import lognormal, read_raster
+
+SEED = 6_042_917_385
+SHAPE = (32, 48)
+
+
+@pytest.fixture
+def map_path(write_tif):
+    """A 2D map with nodata and NaN cells, cells of 12.5 m by 7.5 m."""
+    k = lognormal(SHAPE, SEED)
+    k[:3, :10] = -9999.0
+    k[20, 5] = np.nan
+    return write_tif("map.tif", k, cell_size=(12.5, 7.5), nodata=-9999.0)
+
+
+def _info_json(run_cli, *args):
+    code, stdout, err = run_cli("info", *args, "--json")
+    assert (code, err) == (0, "")
+
+    def refuse(constant):
+        raise AssertionError(f"info --json printed {constant}")
+
+    return json.loads(stdout, parse_constant=refuse)
+
+
+def test_text_description(run_cli, map_path):
+    code, stdout, err = run_cli("info", map_path)
+    assert (code, err) == (0, "")
+    lines = stdout.splitlines()
+    assert lines[0] == f"field        {map_path}"
+    assert "grid         48 x 32 cells (2D map)" in lines
+    assert "cell size    dx 12.5 m, dy 7.5 m" in lines
+    assert "CRS          EPSG:32633" in lines
+    assert "unit         mD" in lines
+    active = 32 * 48 - 31
+    assert f"active       {active} of 1536 cells ({100 * active / 1536:.1f} %)" in lines
+    assert any(line.startswith("log10 k      mean ") for line in lines)
+    assert any(line.split()[:2] == ["kx", str(active)] for line in lines)
+
+
+def test_json_numbers_match_numpy(run_cli, map_path):
+    description = _info_json(run_cli, map_path)
+    k = read_raster(map_path)
+    active = k[~np.isnan(k)]
+    assert description["path"] == str(map_path)
+    assert description["dimensions"] == 2
+    assert description["shape"] == {"layers": 1, "rows": 32, "columns": 48}
+    assert description["cell_size_m"] == {"dx": 12.5, "dy": 7.5, "dz": [1.0]}
+    assert description["crs"] == "EPSG:32633"
+    assert description["unit"] == "mD"
+    assert description["active_cells"] == active.size == 1536 - 31
+    assert description["active_fraction"] == pytest.approx(active.size / 1536, rel=1e-15)
+    stats = description["statistics"]["kx"]
+    assert stats["cells"] == 1536 and stats["active"] == active.size
+    assert stats["min"] == active.min() and stats["max"] == active.max()
+    assert stats["mean"] == pytest.approx(active.mean(), rel=1e-12)
+    assert stats["geometric_mean"] == pytest.approx(np.exp(np.log(active).mean()), rel=1e-12)
+    assert stats["log10_std"] == pytest.approx(np.log10(active).std(), rel=1e-9)
+    log10 = description["log10_k"]
+    assert log10["min"] == pytest.approx(np.log10(active.min()), rel=1e-12)
+    assert log10["max"] == pytest.approx(np.log10(active.max()), rel=1e-12)
+    assert log10["mean"] == pytest.approx(np.log10(active).mean(), rel=1e-12)
+    assert description["problems"] == {"negative": 0, "zero": 0, "infinite": 0}
+    assert description["statistics"]["ky"] == stats
+
+
+def test_json_of_a_3d_demo_model_matches_numpy(run_cli, demo_dir):
+    path = demo_dir / "marrowfen_3d.tif"
+    description = _info_json(run_cli, path, "--dz", "2", "--kv-kh", "0.5")
+    k = read_raster(path)
+    assert k.shape == (16, 96, 96)
+    active = k[~np.isnan(k)]
+    assert description["dimensions"] == 3
+    assert description["shape"] == {"layers": 16, "rows": 96, "columns": 96}
+    assert description["cell_size_m"] == {"dx": 20.0, "dy": 20.0, "dz": [2.0] * 16}
+    assert description["active_cells"] == active.size
+    assert 0 < active.size < k.size
+    kx, kz = description["statistics"]["kx"], description["statistics"]["kz"]
+    assert kx["mean"] == pytest.approx(active.mean(), rel=1e-12)
+    assert kz["mean"] == pytest.approx(0.5 * active.mean(), rel=1e-7)  # float32 raster
+    assert description["crs"].startswith("PROJCS") or "+proj=tmerc" in description["crs"]
+
+
+def test_per_layer_dz_and_unit_are_shown(run_cli, write_tif):
+    path = write_tif("model.tif", lognormal((4, *SHAPE), SEED + 1))
+    code, stdout, err = run_cli("info", path, "--dz", "1,2,3,4", "--unit", "D")
+    assert (code, err) == (0, "")
+    assert "grid         48 x 32 x 4 cells (3D model)" in stdout
+    assert "cell size    dx 10 m, dy 10 m, dz 1-4 m" in stdout
+    assert "unit         D" in stdout
+    assert _info_json(run_cli, path, "--dz", "1,2,3,4")["cell_size_m"]["dz"] == [1, 2, 3, 4]
+
+
+def test_porosity_is_described_too(run_cli, map_path, write_tif):
+    por = write_tif("por.tif", np.full(SHAPE, 0.125), cell_size=(12.5, 7.5))
+    description = _info_json(run_cli, map_path, "--porosity", por)
+    assert description["statistics"]["porosity"]["max"] == 0.125
+    assert description["statistics"]["porosity"]["active"] == description["active_cells"]
+
+
+def test_all_inactive_field_is_described_without_invalid_json(run_cli, write_tif):
+    path = write_tif("empty.tif", np.full(SHAPE, -9999.0), nodata=-9999.0)
+    description = _info_json(run_cli, path)
+    assert description["active_cells"] == 0
+    assert description["statistics"]["kx"]["mean"] is None
+    assert description["log10_k"]["mean"] is None
+
+
+def test_problem_values_are_counted_in_json(run_cli, write_tif):
+    k = lognormal(SHAPE, SEED + 2)
+    k[1, 2] = k[3, 4] = 0.0
+    k[5, 6] = -3.0
+    description = _info_json(run_cli, write_tif("bad.tif", k))
+    assert description["problems"] == {"negative": 1, "zero": 2, "infinite": 0}
+    assert description["log10_k"]["min"] is None
+    positive = k[k > 0]
+    assert description["log10_k"]["max"] == pytest.approx(math.log10(positive.max()), rel=1e-12)
+
+
+def _problem_field(write_tif, bad):
+    k = lognormal(SHAPE, SEED + 3)
+    k[7, 8] = bad
+    return write_tif("bad.tif", k)
+
+
+def test_text_description_of_a_field_with_a_negative_value(run_cli, write_tif):
+    code, stdout, err = run_cli("info", _problem_field(write_tif, -3.0))
+    assert (code, err) == (0, "")
+    assert "problems     1 negative value(s) in kx" in stdout
+
+
+def test_text_description_of_a_field_with_a_zero_value(run_cli, write_tif):
+    code, stdout, err = run_cli("info", _problem_field(write_tif, 0.0))
+    assert (code, err) == (0, "")
+    assert "problems     1 zero value(s) in kx" in stdout
+
+
+@pytest.mark.filterwarnings("ignore::rasterio.errors.NotGeoreferencedWarning")
+def test_raster_without_georeference_with_cell_size(run_cli, write_tif):
+    path = write_tif("plain.tif", lognormal(SHAPE, SEED + 4), georeferenced=False)
+    code, stdout, _ = run_cli("info", path, "--cell-size", "5x4")
+    assert code == 0
+    assert "cell size    dx 5 m, dy 4 m" in stdout
+    assert "CRS          none" in stdout
+
+
+def test_raster_without_georeference_gives_a_clean_stderr(run_cli, write_tif):
+    path = write_tif("plain.tif", lognormal(SHAPE, SEED + 4), georeferenced=False)
+    code, stdout, err = run_cli("info", path, "--cell-size", "5")
+    assert (code, err) == (0, "")
+    assert "CRS          none" in stdout
