@@ -127,10 +127,12 @@ def power_mean(
     """
     if exponent == 0:
         return geometric_mean(k, dz, block)
-    with np.errstate(divide="ignore"):
+    # zeros, negatives and infinities are refused by the caller's value scan, which
+    # runs in the same pass; their arithmetic here must stay quiet
+    with np.errstate(divide="ignore", invalid="ignore"):
         powered = np.exp(exponent * np.log(k, dtype=np.float64))
-    S, W = kern.block_sums(powered, dz, block, kern.LINEAR, True)
-    return _ratio(S, W) ** (1.0 / exponent)
+        S, W = kern.block_sums(powered, dz, block, kern.LINEAR, True)
+        return _ratio(S, W) ** (1.0 / exponent)
 
 
 def bulk_mean(
