@@ -32,8 +32,8 @@ from numba.extending import intrinsic
 _FAST = {"reassoc", "nsz", "contract"}
 _JIT = dict(nogil=True, cache=True, fastmath=_FAST, error_model="numpy")
 
-#: f(k) selectors for `block_sums`.
-COUNT, LINEAR, RECIPROCAL = 0, 1, -1
+#: f(k) selectors for `block_sums`: 0, k, 1/k, k**exponent.
+COUNT, LINEAR, RECIPROCAL, POWER = 0, 1, -1, 2
 
 _MANTISSA = (1 << 52) - 1
 _UNIT_EXPONENT = 1023 << 52
@@ -41,6 +41,10 @@ _LN2 = math.log(2.0)
 _SQRT2 = math.sqrt(2.0)
 _TWO52 = 2.0**52
 _TWO52_BITS = 0x4330000000000000  # bits of 2**52: OR-ing a small integer in gives 2**52 + it
+_LN2_HIGH = 6.93147180369123816490e-01  # ln 2 split so n * _LN2_HIGH is exact for |n| < 2**11
+_LN2_LOW = 1.90821492927058770002e-10
+_EXP_MAX = 709.782712893384  # ln of the largest float64
+_EXP_MIN = -708.3964185322641  # ln of the smallest normal float64
 
 
 @intrinsic
@@ -88,6 +92,41 @@ def ln(v):
     p = p * s2 + 1.0 / 3.0
     p = p * s2 + 1.0
     return exponent * _LN2 + 2.0 * s * p
+
+
+@nb.njit(inline="always", **_JIT)
+def exp(x):
+    """Exponential of a float64 in a form the compiler vectorises; companion of `ln`.
+
+    ``x = n ln 2 + r`` with |r| <= ln(2)/2 (ln 2 in two parts, so r is exact),
+    ``exp(r)`` from its Taylor series to r**13 (truncation below 1e-17), and
+    the factor ``2**n`` built from its bits. Saturates to inf above ln(max
+    float) and to 0 below ln(min normal float).
+    """
+    xc = min(max(x, _EXP_MIN), _EXP_MAX)
+    n = np.floor(xc / _LN2 + 0.5)
+    r = (xc - n * _LN2_HIGH) - n * _LN2_LOW
+    p = 1.0 / 6227020800.0
+    p = p * r + 1.0 / 479001600.0
+    p = p * r + 1.0 / 39916800.0
+    p = p * r + 1.0 / 3628800.0
+    p = p * r + 1.0 / 362880.0
+    p = p * r + 1.0 / 40320.0
+    p = p * r + 1.0 / 5040.0
+    p = p * r + 1.0 / 720.0
+    p = p * r + 1.0 / 120.0
+    p = p * r + 1.0 / 24.0
+    p = p * r + 1.0 / 6.0
+    p = p * r + 0.5
+    p = p * r + 1.0
+    p = p * r + 1.0
+    top = n > 1023.0  # 2**1024 is not a float64: take one factor 2 into p
+    n = n - 1.0 if top else n
+    p = p * 2.0 if top else p
+    scale = _from_bits(((_bits(n + (_TWO52 + 1023.0)) & 0x7FF) << 52))
+    result = p * scale
+    result = np.inf if x > _EXP_MAX else result
+    return 0.0 if x < _EXP_MIN else result
 
 
 @nb.njit(**_JIT)
@@ -168,6 +207,17 @@ def _add_reciprocals(row, acc, fill):
         acc[j] += 1.0 / v if v == v else fill
 
 
+@nb.njit(**_JIT)
+def _add_powers(row, acc, exponent, scratch):
+    # two loops: ln and exp in one loop are too much for the vectoriser
+    for j in range(row.size):
+        v = np.float64(row[j])
+        scratch[j] = exponent * ln(v if v > 0.0 else 1.0)
+    for j in range(row.size):
+        # zero -> 0 (the exponent is then > 0); NaN and the rest are left out
+        acc[j] += exp(scratch[j]) if row[j] > 0.0 else 0.0
+
+
 @nb.njit(inline="always", **_JIT)
 def _add_active(row, acc):
     for j in range(row.size):
@@ -175,7 +225,7 @@ def _add_active(row, acc):
 
 
 @nb.njit(**_JIT)
-def block_sums(k, wz, sub, mode, skip):
+def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     """Weighted sums of f(k) over sub-blocks of `k`.
 
     Parameters
@@ -187,9 +237,12 @@ def block_sums(k, wz, sub, mode, skip):
     sub : (int, int, int)
         Sub-block size in cells ``(layers, rows, columns)``.
     mode : int
-        ``COUNT`` (f = 0), ``LINEAR`` (f = k) or ``RECIPROCAL`` (f = 1/k).
+        ``COUNT`` (f = 0), ``LINEAR`` (f = k), ``RECIPROCAL`` (f = 1/k) or
+        ``POWER`` (f = k**exponent, for positive k).
     skip : bool
         True: leave inactive cells out of S and W. False: count them as k = 0.
+    exponent : float
+        The exponent of ``POWER``.
 
     Returns
     -------
@@ -203,6 +256,7 @@ def block_sums(k, wz, sub, mode, skip):
     fill = np.inf if (mode == RECIPROCAL and not skip) else 0.0  # an inactive cell in series blocks flow
     row_s = np.zeros(N)
     row_w = np.zeros(N)
+    scratch = np.empty(N)
     for layer in range(L):
         cl = layer // sz
         for i in range(M):
@@ -212,6 +266,8 @@ def block_sums(k, wz, sub, mode, skip):
                 _add_values(row, row_s, fill)
             elif mode == RECIPROCAL:
                 _add_reciprocals(row, row_s, fill)
+            elif mode == POWER:
+                _add_powers(row, row_s, exponent, scratch)
             if skip:
                 _add_active(row, row_w)
             else:

@@ -127,11 +127,9 @@ def power_mean(
     """
     if exponent == 0:
         return geometric_mean(k, dz, block)
-    # zeros, negatives and infinities are refused by the caller's value scan, which
-    # runs in the same pass; their arithmetic here must stay quiet
-    with np.errstate(divide="ignore", invalid="ignore"):
-        powered = np.exp(exponent * np.log(k, dtype=np.float64))
-        S, W = kern.block_sums(powered, dz, block, kern.LINEAR, True)
+    S, W = kern.block_sums(k, dz, block, kern.POWER, True, float(exponent))
+    # zero or huge means with a negative exponent arise only from refused input
+    with np.errstate(divide="ignore", over="ignore"):
         return _ratio(S, W) ** (1.0 / exponent)
 
 
