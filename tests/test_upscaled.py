@@ -30,7 +30,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import upscale
-from upscale import BlockSpec, Field, InputError, coarsen
+from upscale import BlockSpec, Field, Grid, InputError, coarsen
 from upscale.methods.registry import METHODS
 
 OPTIONS = {"power": {"exponent": 0.57}}
@@ -483,3 +483,13 @@ def test_transposing_a_map_swaps_kx_and_ky(name):
     np.testing.assert_allclose(flipped.kx, original.ky.transpose(0, 2, 1), rtol=1e-13)
     # and the directions really differ on this field
     assert np.nanmax(np.abs(original.kx / original.ky - 1.0)) > 0.05
+
+
+def test_fine_grid_with_unequal_columns_is_refused():
+    # the block kernels weight cells by layer thickness only; a fine grid with unequal
+    # column widths (possible only through the Python API) must not be averaged silently
+    k = np.ones((1, 2, 4))
+    grid = Grid(dz=np.ones(1), dy=np.ones(2), dx=np.array([1.0, 2.0, 1.0, 1.0]))
+    field = Field(kx=k, ky=k, kz=None, porosity=None, grid=grid)
+    with pytest.raises(InputError, match="dx must be uniform"):
+        coarsen(field, "2x2", "arithmetic")

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from .errors import InputError
-from .field import AXES, PERMEABILITY, Field
+from .field import AXES, PERMEABILITY, Field, Grid
 from .grid import BlockSpec
 from .methods import averages
 from .methods.registry import Method, get_method
@@ -99,6 +99,10 @@ def coarsen(
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     chosen, options = get_method(method, options)
     spec.check(field.shape, field.ndim)
+    for name in ("dx", "dy"):
+        sizes = getattr(field.grid, name)
+        if np.any(sizes != sizes[0]):
+            raise InputError(f"the fine grid's {name} must be uniform (every raster's is)")
     fine = _crop(field, spec)
     dz, cells = fine.grid.dz, spec.cells
 
@@ -124,12 +128,10 @@ def coarsen(
     _check_values(scans, chosen, options, fine)
 
     coarse_grid = spec.coarse_grid(fine.grid)
-    block_volume = np.multiply.outer(
-        np.add.reduceat(dz, spec.edges(fine.shape[0], 0)[:-1]),
-        np.outer(np.diff(spec.edges(fine.shape[1], 1)), np.diff(spec.edges(fine.shape[2], 2))),
-    )
-    # the two volumes are summed in different orders: compare with a rounding margin
-    fraction = np.clip(computed.pop("_active") / block_volume, 0.0, 1.0)
+    # active volume came in units of (cell area x m); the two are summed in different
+    # orders, so the comparison below allows for rounding
+    cell_area = fine.grid.dx[0] * fine.grid.dy[0]
+    fraction = np.clip(computed.pop("_active") * cell_area / coarse_grid.cell_volumes(), 0.0, 1.0)
     inactive = (fraction == 0) | (fraction < spec.min_active * (1 - 1e-12))
     lost = 0.0
     if "porosity" in computed:
@@ -161,7 +163,7 @@ def _crop(field: Field, spec: BlockSpec) -> Field:
     for name in ("ky", "kz"):
         if getattr(field, name) is field.kx:
             arrays[name] = arrays["kx"]
-    grid = type(field.grid)(
+    grid = Grid(
         dz=field.grid.dz[: used[0]],
         dy=field.grid.dy[: used[1]],
         dx=field.grid.dx[: used[2]],
