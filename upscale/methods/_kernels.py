@@ -257,6 +257,7 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     row_s = np.zeros(N)
     row_w = np.zeros(N)
     scratch = np.empty(N)
+    rows = 0
     for layer in range(L):
         cl = layer // sz
         for i in range(M):
@@ -270,21 +271,26 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
                 _add_powers(row, row_s, exponent, scratch)
             if skip:
                 _add_active(row, row_w)
-            else:
-                row_w += 1.0
+            rows += 1
             if (i + 1) % sy == 0 or i == M - 1:
                 ci = i // sy
                 w = wz[layer]
                 for cj in range(S.shape[2]):
+                    j0, j1 = cj * sx, min(N, cj * sx + sx)
                     s = 0.0
-                    c = 0.0
-                    for j in range(cj * sx, min(N, cj * sx + sx)):
+                    for j in range(j0, j1):
                         s += row_s[j]
-                        c += row_w[j]
                     S[cl, ci, cj] += w * s
-                    W[cl, ci, cj] += w * c
+                    if skip:
+                        c = 0.0
+                        for j in range(j0, j1):
+                            c += row_w[j]
+                        W[cl, ci, cj] += w * c
+                    else:  # every cell counts: no need to add them up
+                        W[cl, ci, cj] += w * rows * (j1 - j0)
                 row_s[:] = 0.0
                 row_w[:] = 0.0
+                rows = 0
     return S, W
 
 
