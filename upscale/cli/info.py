@@ -13,7 +13,7 @@ from ..stats import scan_values
 from ..upscaled import compute_together
 from .options import field_options, read_options
 from .progress import progress
-from .report import crs_text, number, table
+from .report import crs_text, dims, number, table
 
 
 @click.command()
@@ -58,8 +58,8 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
         click.echo(json.dumps(jsonable(description), indent=2))
         return
     click.echo(f"field        {field}")
-    click.echo(f"grid         {cols} x {rows}" + (f" x {layers}" if fine.ndim == 3 else "")
-               + f" cells ({'3D model' if fine.ndim == 3 else '2D map'})")  # fmt: skip
+    kind = "3D model" if fine.ndim == 3 else "2D map"
+    click.echo(f"grid         {dims(fine.shape, fine.ndim)} cells ({kind})")
     sizes = f"dx {grid.dx[0]:g} m, dy {grid.dy[0]:g} m"
     if fine.ndim == 3:
         dz = grid.dz

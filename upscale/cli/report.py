@@ -7,6 +7,7 @@ from pathlib import Path
 
 import click
 
+from ..field import PERMEABILITY
 from ..upscaled import Upscaled
 
 
@@ -25,7 +26,7 @@ def crs_text(crs: object) -> str:
     return ":".join(authority) if authority else crs.to_proj4().replace("=True", "")
 
 
-def _dims(shape: tuple[int, int, int], ndim: int) -> str:
+def dims(shape: tuple[int, int, int], ndim: int) -> str:
     layers, rows, cols = shape
     return f"{cols} x {rows}" + (f" x {layers}" if ndim == 3 else "")
 
@@ -47,9 +48,9 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     fine, coarse = result.fine, result.coarse
     opts = ", ".join(f"{k}={v}" for k, v in result.options.items())
     axes = "(x, y, z)" if fine.ndim == 3 else "(x, y)"
-    click.echo(f"fine grid    {_dims(fine.shape, fine.ndim)} cells {axes}")
+    click.echo(f"fine grid    {dims(fine.shape, fine.ndim)} cells {axes}")
     click.echo(
-        f"coarse grid  {_dims(coarse.shape, fine.ndim)} blocks of {result.block} cells, "
+        f"coarse grid  {dims(coarse.shape, fine.ndim)} blocks of {result.block} cells, "
         f"{summary['active']['coarse_blocks']} active"
     )
     click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
@@ -62,10 +63,10 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
         rows.append([name, number(f["mean"]), number(f["geometric_mean"]),
                      number(c["mean"]), number(c["geometric_mean"]),
                      number(c["min"]), number(c["max"])])  # fmt: skip
-    unit = fine.unit
     click.echo("")
     click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",
                       "coarse min", "coarse max"], rows))  # fmt: skip
-    click.echo(f"(permeability in {unit}; porosity as a fraction)")
+    click.echo(f"({', '.join(PERMEABILITY[a] for a in fine.axes)} in {fine.unit}"
+               + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
     click.echo("")
     click.echo(f"wrote {', '.join(summary['files'] + ['summary.json'])} to {Path(out)}")
