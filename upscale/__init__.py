@@ -24,13 +24,13 @@ Examples
 from importlib.metadata import PackageNotFoundError, version
 
 from .caution import CAUTION
-from .upscaled import Upscaled, coarsen
 from .errors import InputError, UpscaleError
 from .export import write_result
 from .field import Field, Grid
 from .grid import BlockSpec
 from .io import read_field
 from .methods.registry import METHODS
+from .upscaled import Upscaled, coarsen
 
 try:
     __version__ = version("upscale")

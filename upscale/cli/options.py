@@ -24,7 +24,9 @@ def parse_numbers(text: str | None, name: str) -> list[float] | None:
     try:
         return [float(part) for part in text.split(",")]
     except ValueError:
-        raise click.BadParameter(f"{text!r} is not a number or a comma-separated list", param_hint=name) from None
+        raise click.BadParameter(
+            f"{text!r} is not a number or a comma-separated list", param_hint=name
+        ) from None
 
 
 def parse_cell_size(text: str | None) -> tuple[float, float] | None:
@@ -37,7 +39,9 @@ def parse_cell_size(text: str | None) -> tuple[float, float] | None:
     except ValueError:
         values = []
     if len(values) not in (1, 2) or min(values) <= 0:
-        raise click.BadParameter(f"{text!r} is not DX or DXxDY in metres (e.g. 25 or 25x30)", param_hint="--cell-size")
+        raise click.BadParameter(
+            f"{text!r} is not DX or DXxDY in metres (e.g. 25 or 25x30)", param_hint="--cell-size"
+        )
     return (values[0], values[-1])
 
 

@@ -27,6 +27,7 @@ def crs_text(crs: object) -> str:
 
 
 def dims(shape: tuple[int, int, int], ndim: int) -> str:
+    """Grid size x first, e.g. ``256 x 128`` or ``96 x 96 x 16``."""
     layers, rows, cols = shape
     return f"{cols} x {rows}" + (f" x {layers}" if ndim == 3 else "")
 

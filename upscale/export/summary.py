@@ -10,9 +10,9 @@ from typing import Any
 import numpy as np
 
 from ..caution import CAUTION
-from ..upscaled import Upscaled
 from ..field import Grid
 from ..stats import scan_values
+from ..upscaled import Upscaled
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "scikit-image", "matplotlib")
 

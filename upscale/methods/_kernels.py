@@ -123,7 +123,7 @@ def exp(x):
     top = n > 1023.0  # 2**1024 is not a float64: take one factor 2 into p
     n = n - 1.0 if top else n
     p = p * 2.0 if top else p
-    scale = _from_bits(((_bits(n + (_TWO52 + 1023.0)) & 0x7FF) << 52))
+    scale = _from_bits((_bits(n + (_TWO52 + 1023.0)) & 0x7FF) << 52)
     result = p * scale
     result = np.inf if x > _EXP_MAX else result
     return 0.0 if x < _EXP_MIN else result
