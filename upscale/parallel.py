@@ -109,3 +109,22 @@ def apply_blocks(
         dtype=np.float64,
         meta=np.empty((0, 0, 0), dtype=np.float64),
     )
+
+
+def compute_together(lazy: dict[str, Any]) -> dict[str, Any]:
+    """Compute several lazy results in one pass over their shared chunks.
+
+    NumPy arrays and finished values pass through; each array result is a
+    writable copy of its own.
+    """
+    names = [name for name, value in lazy.items() if is_dask(value) or _is_delayed(value)]
+    done = dict(lazy)
+    if names:
+        import dask
+
+        done.update(zip(names, dask.compute(*(lazy[n] for n in names))))
+    return {k: np.array(v) if isinstance(v, np.ndarray) else v for k, v in done.items()}
+
+
+def _is_delayed(value: Any) -> bool:
+    return type(value).__module__.startswith("dask.delayed")

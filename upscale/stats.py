@@ -17,11 +17,66 @@ from typing import Any
 import numba as nb
 import numpy as np
 
-from .methods._kernels import value_sums
+from ._elementary import JIT, as_float, as_int, ln
 from .parallel import is_dask
 
 #: How many offending cells an error message names.
 FIRST = 3
+
+
+@nb.njit(**JIT)
+def _value_sums(k):
+    """Counts and sums over all cells of `k` for the statistics of a property.
+
+    Parameters
+    ----------
+    k : ndarray of shape (L, M, N)
+        Values; NaN marks inactive cells.
+
+    Returns
+    -------
+    sums : ndarray of shape (6,)
+        Active cells, valid cells (finite and >= 0), positive finite cells, the
+        sum of valid values, and the sums of ln k and (ln k)² over positive ones.
+    low, high : float
+        Smallest and largest valid value (inf and -inf when there is none).
+    """
+    active = 0.0
+    valid = 0.0
+    positive = 0.0
+    total = 0.0
+    log_sum = 0.0
+    log_square = 0.0
+    none = as_int(np.inf)
+    low = none
+    high = as_int(0.0)
+    L, M, N = k.shape
+    for layer in range(L):
+        for i in range(M):
+            row = k[layer, i]
+            # separate loops: each stays simple enough for the vectoriser
+            for j in range(N):
+                v = np.float64(row[j])
+                ok = (v >= 0.0) & (v < np.inf)
+                active += np.float64(v == v)  # a bool -> float conversion vectorises
+                valid += np.float64(ok)  # where a select between constants does not
+                total += v if ok else 0.0
+            for j in range(N):
+                v = np.float64(row[j])
+                good = (v > 0.0) & (v < np.inf)
+                lv = ln(v if good else 1.0)
+                positive += np.float64(good)
+                log_sum += lv
+                log_square += lv * lv
+            for j in range(N):
+                # non-negative floats order like their bit patterns: integer min/max vectorise
+                v = np.float64(row[j])
+                good = (v > 0.0) & (v < np.inf)
+                zero = v == 0.0
+                low = min(low, as_int(v) if good else (0 if zero else none))
+                high = max(high, as_int(v) if good else 0)
+    sums = np.array([active, valid, positive, total, log_sum, log_square])
+    return sums, as_float(low), as_float(high)
 
 
 @nb.njit(nogil=True, cache=True)
@@ -80,7 +135,7 @@ class ValueScan:
     def from_chunk(cls, chunk: np.ndarray, offset: tuple[int, int, int], shape: tuple) -> ValueScan:
         """Scan one chunk whose first cell sits at `offset` in an array of `shape`."""
         chunk = np.ascontiguousarray(chunk)
-        sums, low, high = value_sums(chunk)
+        sums, low, high = _value_sums(chunk)
         active, valid, positive = (int(x) for x in sums[:3])
         bad = (np.zeros(3, np.int64), np.full((3, FIRST), -1, np.int64))
         if valid < active or positive < valid:  # rare: find the offending cells exactly

@@ -20,7 +20,7 @@ from .field import AXES, PERMEABILITY, Field, Grid
 from .grid import BlockSpec
 from .methods import averages
 from .methods.registry import Method, get_method
-from .parallel import apply_blocks, is_dask
+from .parallel import apply_blocks, compute_together
 from .stats import ValueScan, scan_values
 
 
@@ -179,25 +179,6 @@ def _crop(field: Field, spec: BlockSpec) -> Field:
         unit=field.unit,
         sources=field.sources,
     )
-
-
-def compute_together(lazy: dict[str, Any]) -> dict[str, Any]:
-    """Compute several lazy results in one pass over their shared chunks.
-
-    NumPy arrays and finished values pass through; each array result is a
-    writable copy of its own.
-    """
-    names = [name for name, value in lazy.items() if is_dask(value) or _is_delayed(value)]
-    done = dict(lazy)
-    if names:
-        import dask
-
-        done.update(zip(names, dask.compute(*(lazy[n] for n in names))))
-    return {k: np.array(v) if isinstance(v, np.ndarray) else v for k, v in done.items()}
-
-
-def _is_delayed(value: Any) -> bool:
-    return type(value).__module__.startswith("dask.delayed")
 
 
 def _where(cells: tuple) -> str:

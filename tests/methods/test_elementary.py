@@ -12,7 +12,7 @@ import numba as nb
 import numpy as np
 import pytest
 
-from upscale.methods._kernels import exp, ln
+from upscale._elementary import exp, ln
 
 
 @nb.njit(error_model="numpy")

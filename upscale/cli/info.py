@@ -9,8 +9,8 @@ import click
 
 from ..export.summary import jsonable
 from ..io import read_field
+from ..parallel import compute_together
 from ..stats import scan_values
-from ..upscaled import compute_together
 from .options import field_options, read_options
 from .progress import progress
 from .report import crs_text, dims, number, table

@@ -24,165 +24,12 @@ import math
 
 import numba as nb
 import numpy as np
-from llvmlite import ir
-from numba.core import types
-from numba.extending import intrinsic
 
-#: Reassociation lets the compiler vectorise the sums; NaN and inf stay IEEE.
-_FAST = {"reassoc", "nsz", "contract"}
-_JIT = dict(nogil=True, cache=True, fastmath=_FAST, error_model="numpy")
+from .._elementary import JIT as _JIT
+from .._elementary import LN2, MANTISSA, UNIT_EXPONENT, as_float, as_int, exp, ln
 
 #: f(k) selectors for `block_sums`: 0, k, 1/k, k**exponent.
 COUNT, LINEAR, RECIPROCAL, POWER = 0, 1, -1, 2
-
-_MANTISSA = (1 << 52) - 1
-_UNIT_EXPONENT = 1023 << 52
-_LN2 = math.log(2.0)
-_SQRT2 = math.sqrt(2.0)
-_TWO52 = 2.0**52
-_TWO52_BITS = 0x4330000000000000  # bits of 2**52: OR-ing a small integer in gives 2**52 + it
-_LN2_HIGH = 6.93147180369123816490e-01  # ln 2 split so n * _LN2_HIGH is exact for |n| < 2**11
-_LN2_LOW = 1.90821492927058770002e-10
-_EXP_MAX = 709.782712893384  # ln of the largest float64
-_EXP_MIN = -708.3964185322641  # ln of the smallest normal float64
-
-
-@intrinsic
-def _bits(typingctx, x):  # noqa: D103 (reinterpret float64 as int64)
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.IntType(64))
-
-    return types.int64(types.float64), codegen
-
-
-@intrinsic
-def _from_bits(typingctx, x):  # noqa: D103 (reinterpret int64 as float64)
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.DoubleType())
-
-    return types.float64(types.int64), codegen
-
-
-@nb.njit(inline="always", **_JIT)
-def ln(v):
-    """Natural logarithm of a positive, finite, normal float64 in a form the compiler vectorises.
-
-    ``v = m * 2**e`` with m reduced to [1/sqrt(2), sqrt(2)); then
-    ``ln m = 2 atanh(s)``, ``s = (m - 1) / (m + 1)``, |s| < 0.172, summed as the
-    odd series to s**19 (truncation below 1e-15 relative). The library ``log``
-    is a call the loop vectoriser cannot see through. Subnormal values (below
-    2.2e-308) are not handled; no permeability in any unit comes near them.
-    """
-    bits = _bits(v)
-    exponent = _from_bits((bits >> 52) | _TWO52_BITS) - (_TWO52 + 1023.0)
-    m = _from_bits((bits & _MANTISSA) | _UNIT_EXPONENT)
-    big = m > _SQRT2
-    m = m * 0.5 if big else m
-    exponent = exponent + 1.0 if big else exponent
-    s = (m - 1.0) / (m + 1.0)
-    s2 = s * s
-    p = 1.0 / 19.0
-    p = p * s2 + 1.0 / 17.0
-    p = p * s2 + 1.0 / 15.0
-    p = p * s2 + 1.0 / 13.0
-    p = p * s2 + 1.0 / 11.0
-    p = p * s2 + 1.0 / 9.0
-    p = p * s2 + 1.0 / 7.0
-    p = p * s2 + 1.0 / 5.0
-    p = p * s2 + 1.0 / 3.0
-    p = p * s2 + 1.0
-    return exponent * _LN2 + 2.0 * s * p
-
-
-@nb.njit(inline="always", **_JIT)
-def exp(x):
-    """Exponential of a float64 in a form the compiler vectorises; companion of `ln`.
-
-    ``x = n ln 2 + r`` with |r| <= ln(2)/2 (ln 2 in two parts, so r is exact),
-    ``exp(r)`` from its Taylor series to r**13 (truncation below 1e-17), and
-    the factor ``2**n`` built from its bits. Saturates to inf above ln(max
-    float) and to 0 below ln(min normal float).
-    """
-    xc = min(max(x, _EXP_MIN), _EXP_MAX)
-    n = np.floor(xc / _LN2 + 0.5)
-    r = (xc - n * _LN2_HIGH) - n * _LN2_LOW
-    p = 1.0 / 6227020800.0
-    p = p * r + 1.0 / 479001600.0
-    p = p * r + 1.0 / 39916800.0
-    p = p * r + 1.0 / 3628800.0
-    p = p * r + 1.0 / 362880.0
-    p = p * r + 1.0 / 40320.0
-    p = p * r + 1.0 / 5040.0
-    p = p * r + 1.0 / 720.0
-    p = p * r + 1.0 / 120.0
-    p = p * r + 1.0 / 24.0
-    p = p * r + 1.0 / 6.0
-    p = p * r + 0.5
-    p = p * r + 1.0
-    p = p * r + 1.0
-    top = n > 1023.0  # 2**1024 is not a float64: take one factor 2 into p
-    n = n - 1.0 if top else n
-    p = p * 2.0 if top else p
-    scale = _from_bits((_bits(n + (_TWO52 + 1023.0)) & 0x7FF) << 52)
-    result = p * scale
-    result = np.inf if x > _EXP_MAX else result
-    return 0.0 if x < _EXP_MIN else result
-
-
-@nb.njit(**_JIT)
-def value_sums(k):
-    """Counts and sums over all cells of `k` for the statistics of a property.
-
-    Parameters
-    ----------
-    k : ndarray of shape (L, M, N)
-        Values; NaN marks inactive cells.
-
-    Returns
-    -------
-    sums : ndarray of shape (6,)
-        Active cells, valid cells (finite and >= 0), positive finite cells, the
-        sum of valid values, and the sums of ln k and (ln k)² over positive ones.
-    low, high : float
-        Smallest and largest valid value (inf and -inf when there is none).
-    """
-    active = 0.0
-    valid = 0.0
-    positive = 0.0
-    total = 0.0
-    log_sum = 0.0
-    log_square = 0.0
-    none = _bits(np.inf)
-    low = none
-    high = _bits(0.0)
-    L, M, N = k.shape
-    for layer in range(L):
-        for i in range(M):
-            row = k[layer, i]
-            # separate loops: each stays simple enough for the vectoriser
-            for j in range(N):
-                v = np.float64(row[j])
-                ok = (v >= 0.0) & (v < np.inf)
-                active += np.float64(v == v)  # a bool -> float conversion vectorises
-                valid += np.float64(ok)  # where a select between constants does not
-                total += v if ok else 0.0
-            for j in range(N):
-                v = np.float64(row[j])
-                good = (v > 0.0) & (v < np.inf)
-                lv = ln(v if good else 1.0)
-                positive += np.float64(good)
-                log_sum += lv
-                log_square += lv * lv
-            for j in range(N):
-                # non-negative floats order like their bit patterns: integer min/max vectorise
-                v = np.float64(row[j])
-                good = (v > 0.0) & (v < np.inf)
-                zero = v == 0.0
-                low = min(low, _bits(v) if good else (0 if zero else none))
-                high = max(high, _bits(v) if good else 0)
-    sums = np.array([active, valid, positive, total, log_sum, log_square])
-    return sums, _from_bits(low), _from_bits(high)
-
 
 @nb.njit(**_JIT)
 def _coarse_shape(shape, sub):
@@ -321,18 +168,18 @@ def block_log_sums(k, wz, sub):
             for j in range(N):
                 v = np.float64(row[j])
                 ok = v == v
-                bits = _bits(v)
+                bits = as_int(v)
                 expo[j] += ((bits >> 52) - 1023) if ok else 0
-                mant[j] *= _from_bits((bits & _MANTISSA) | _UNIT_EXPONENT) if ok else 1.0
+                mant[j] *= as_float((bits & MANTISSA) | UNIT_EXPONENT) if ok else 1.0
                 count[j] += np.float64(ok)
             rows_in_product += 1
             flush = (i + 1) % sy == 0 or i == M - 1
             if flush or rows_in_product == 512:
                 # renormalise each running product to [1, 2) before it can overflow
                 for j in range(N):
-                    bits = _bits(mant[j])
+                    bits = as_int(mant[j])
                     expo[j] += (bits >> 52) - 1023
-                    mant[j] = _from_bits((bits & _MANTISSA) | _UNIT_EXPONENT)
+                    mant[j] = as_float((bits & MANTISSA) | UNIT_EXPONENT)
                 rows_in_product = 0
             if flush:
                 ci = i // sy
@@ -347,7 +194,7 @@ def block_log_sums(k, wz, sub):
                             p *= mant[j]
                             e += expo[j]
                             c += count[j]
-                        total += e * _LN2 + math.log(p)
+                        total += e * LN2 + math.log(p)
                     S[cl, ci, cj] += w * total
                     W[cl, ci, cj] += w * c
                 mant[:] = 1.0
