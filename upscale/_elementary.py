@@ -32,10 +32,6 @@ _LN2_HIGH = 6.93147180369123816490e-01  # ln 2 split so n * _LN2_HIGH is exact f
 _LN2_LOW = 1.90821492927058770002e-10
 _EXP_MAX = 709.782712893384  # ln of the largest float64
 _EXP_MIN = -708.3964185322641  # ln of the smallest normal float64
-#: 1/19, 1/17, ..., 1/3, 1: atanh(s)/s = sum of s**(2i) / (2i + 1), highest term first
-_ATANH_SERIES = tuple(1.0 / n for n in range(19, 0, -2))
-#: 1/13!, 1/12!, ..., 1/1!, 1/0!: the Taylor series of exp, highest term first
-_EXP_SERIES = tuple(1.0 / math.factorial(n) for n in range(13, -1, -1))
 
 
 @intrinsic
@@ -59,16 +55,6 @@ def as_float(typingctx, x):
 
 
 @nb.njit(inline="always", **JIT)
-def _horner(x, coefficients):
-    # polynomial with the given coefficients, highest power first; the loop over
-    # a constant tuple is unrolled by the compiler
-    p = 0.0
-    for c in coefficients:
-        p = p * x + c
-    return p
-
-
-@nb.njit(inline="always", **JIT)
 def ln(v):
     """Natural logarithm of a positive, finite, normal float64 in a form the compiler vectorises.
 
@@ -86,7 +72,16 @@ def ln(v):
     exponent = exponent + 1.0 if big else exponent
     s = (m - 1.0) / (m + 1.0)
     s2 = s * s
-    p = _horner(s2, _ATANH_SERIES)
+    p = 1.0 / 19.0
+    p = p * s2 + 1.0 / 17.0
+    p = p * s2 + 1.0 / 15.0
+    p = p * s2 + 1.0 / 13.0
+    p = p * s2 + 1.0 / 11.0
+    p = p * s2 + 1.0 / 9.0
+    p = p * s2 + 1.0 / 7.0
+    p = p * s2 + 1.0 / 5.0
+    p = p * s2 + 1.0 / 3.0
+    p = p * s2 + 1.0
     return exponent * LN2 + 2.0 * s * p
 
 
@@ -102,7 +97,20 @@ def exp(x):
     xc = min(max(x, _EXP_MIN), _EXP_MAX)
     n = np.floor(xc / LN2 + 0.5)
     r = (xc - n * _LN2_HIGH) - n * _LN2_LOW
-    p = _horner(r, _EXP_SERIES)
+    p = 1.0 / 6227020800.0
+    p = p * r + 1.0 / 479001600.0
+    p = p * r + 1.0 / 39916800.0
+    p = p * r + 1.0 / 3628800.0
+    p = p * r + 1.0 / 362880.0
+    p = p * r + 1.0 / 40320.0
+    p = p * r + 1.0 / 5040.0
+    p = p * r + 1.0 / 720.0
+    p = p * r + 1.0 / 120.0
+    p = p * r + 1.0 / 24.0
+    p = p * r + 1.0 / 6.0
+    p = p * r + 0.5
+    p = p * r + 1.0
+    p = p * r + 1.0
     top = n > 1023.0  # 2**1024 is not a float64: take one factor 2 into p
     n = n - 1.0 if top else n
     p = p * 2.0 if top else p
