@@ -147,6 +147,37 @@ class Field:
         named = {"kx": self.kx, "ky": self.ky, "kz": self.kz, "porosity": self.porosity}
         return {name: array for name, array in named.items() if array is not None}
 
+    def leading(self, shape: tuple[int, int, int]) -> Field:
+        """The field restricted to its first ``shape`` layers, rows and columns.
+
+        Used to crop a grid to whole blocks. Arrays shared between properties
+        stay shared.
+        """
+        shape = tuple(shape)
+        if shape == self.shape:
+            return self
+        window = tuple(slice(0, n) for n in shape)
+        cropped = {id(a): a[window] for a in self.properties().values()}
+        grid = Grid(
+            dz=self.grid.dz[: shape[0]],
+            dy=self.grid.dy[: shape[1]],
+            dx=self.grid.dx[: shape[2]],
+            transform=self.grid.transform,
+            crs=self.grid.crs,
+        )
+        def cut(array: Any) -> Any:
+            return None if array is None else cropped[id(array)]
+
+        return Field(
+            kx=cut(self.kx),
+            ky=cut(self.ky),
+            kz=cut(self.kz),
+            porosity=cut(self.porosity),
+            grid=grid,
+            unit=self.unit,
+            sources=self.sources,
+        )
+
     @classmethod
     def from_arrays(
         cls,

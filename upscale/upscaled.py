@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from .errors import InputError
-from .field import AXES, PERMEABILITY, Field, Grid
+from .field import AXES, PERMEABILITY, Field
 from .grid import BlockSpec
 from .methods import averages
 from .methods.registry import Method, get_method
@@ -103,7 +103,7 @@ def coarsen(
         sizes = getattr(field.grid, name)
         if np.any(sizes != sizes[0]):
             raise InputError(f"the fine grid's {name} must be uniform (every raster's is)")
-    fine = _crop(field, spec)
+    fine = field.leading(spec.used_shape(field.shape))
     dz, cells = fine.grid.dz, spec.cells
 
     lazy: dict[str, Any] = {}
@@ -151,34 +151,6 @@ def coarsen(
     )
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost)
-
-
-def _crop(field: Field, spec: BlockSpec) -> Field:
-    used = spec.used_shape(field.shape)
-    if used == field.shape:
-        return field
-    window = tuple(slice(0, n) for n in used)
-    arrays = {name: array[window] for name, array in field.properties().items()}
-    # keep shared arrays shared so axis-free rules still compute them once
-    for name in ("ky", "kz"):
-        if getattr(field, name) is field.kx:
-            arrays[name] = arrays["kx"]
-    grid = Grid(
-        dz=field.grid.dz[: used[0]],
-        dy=field.grid.dy[: used[1]],
-        dx=field.grid.dx[: used[2]],
-        transform=field.grid.transform,
-        crs=field.grid.crs,
-    )
-    return Field(
-        kx=arrays["kx"],
-        ky=arrays["ky"],
-        kz=arrays.get("kz"),
-        porosity=arrays.get("porosity"),
-        grid=grid,
-        unit=field.unit,
-        sources=field.sources,
-    )
 
 
 def _where(cells: tuple) -> str:
