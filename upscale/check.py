@@ -107,3 +107,40 @@ def check_flow(
             pressure_drop(coarse_t, axis, solver=solver, tolerance=tolerance),
         )
     return checks
+
+
+#: Fine cells above which the check is not run in memory (about 2.5 GB of solver data).
+DEFAULT_LIMIT = 20_000_000
+
+
+def check_summary(
+    fine: Field,
+    coarse: Field | Transmissibilities,
+    *,
+    solver: str = "auto",
+    tolerance: float = 1e-10,
+    max_cells: int = DEFAULT_LIMIT,
+) -> dict[str, Any]:
+    """`check_flow` as JSON-ready data, or the reason it was not run.
+
+    Parameters
+    ----------
+    fine, coarse, solver, tolerance
+        As in `check_flow`.
+    max_cells : int
+        Largest fine grid (in cells) solved whole; a larger one is not checked
+        and the summary says so (``{"skipped": reason}``) — never silently.
+
+    Returns
+    -------
+    dict
+        Per axis ``AxisCheck.summary()``, or ``{"skipped": reason}``.
+    """
+    cells = math.prod(fine.shape)
+    if cells > max_cells:
+        return {
+            "skipped": f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
+            "raise --check-limit if the memory allows (about 130 bytes per cell)"
+        }
+    checks = check_flow(fine, coarse, solver=solver, tolerance=tolerance)
+    return {axis: c.summary() for axis, c in checks.items()}

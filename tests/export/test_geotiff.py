@@ -185,7 +185,8 @@ def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_in
     assert summary["command"] == ["upscale", "run", "x"]
     assert summary["timings_s"] == {"a": 1.5}
     assert summary["inputs"] == [
-        {"role": role, "path": str(path), "sha256": hashlib.sha256(path.read_bytes()).hexdigest()}
+        {"role": role, "path": str(path), "resolved": str(path.resolve()),
+         "sha256": hashlib.sha256(path.read_bytes()).hexdigest()}
         for role, path in (("kx", kx_path), ("porosity", por_path))
     ]
     assert summary["unit"] == "mD"

@@ -48,11 +48,12 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
 
 
 def _register() -> None:
+    from .check import check
     from .demo import demo
     from .info import info
     from .run import run
 
-    for command in (run, info, demo):
+    for command in (run, check, info, demo):
         cli.add_command(command)
 
 

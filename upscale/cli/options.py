@@ -8,6 +8,8 @@ from typing import Any
 
 import click
 
+from ..check import DEFAULT_LIMIT
+from ..flow.solvers import SOLVERS
 from ..io import VALUE_SCALES
 from ..units import UNITS
 
@@ -86,6 +88,23 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
+def check_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """Options of the fine-versus-coarse flow check (shared by run and check)."""
+    options = [
+        click.option("--solver", type=click.Choice(SOLVERS), default="auto", show_default=True,
+                     help="Linear solver of the check: algebraic multigrid, direct, or chosen by size."),
+        click.option("--tolerance", type=click.FloatRange(min=1e-15, max=1e-3), default=1e-10,
+                     show_default=True, help="Relative residual required of every pressure solve."),
+        click.option("--check-limit", type=click.IntRange(min=1), default=DEFAULT_LIMIT,
+                     show_default=True, metavar="CELLS",
+                     help="Largest fine grid solved whole for the check; beyond it the check is "
+                     "skipped, and the summary says so."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
 def read_options(options: dict[str, Any]) -> dict[str, Any]:
     """Turn the values of `field_options` into keyword arguments of `upscale.read_field`."""
     dz = parse_numbers(options.pop("dz"), "--dz")
@@ -100,3 +119,8 @@ def read_options(options: dict[str, Any]) -> dict[str, Any]:
         "dz": dz,
         "cell_size": parse_cell_size(options.pop("cell_size")),
     }
+
+
+def recorded(read: dict[str, Any]) -> dict[str, Any]:
+    """The read options a summary records to read the field again (paths are inputs)."""
+    return {k: v for k, v in read.items() if k not in ("ky", "kz", "porosity")}

@@ -70,4 +70,28 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     click.echo(f"({', '.join(PERMEABILITY[a] for a in fine.axes)} in {fine.unit}"
                + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
     click.echo("")
+    print_check(summary["check"])
+    click.echo("")
     click.echo(f"wrote {', '.join(summary['files'] + ['summary.json'])} to {Path(out)}")
+
+
+def _solve(solve: dict) -> str:
+    text = solve["solver"] + (f", {solve['iterations']} it" if solve["iterations"] else "")
+    return text if solve["connected"] else text + ", no path"
+
+
+def print_check(check: dict | None) -> None:
+    """Print the fine-versus-coarse flow check recorded in a summary."""
+    if check is None:
+        click.echo("flow check   not run (--no-check)")
+        return
+    if "skipped" in check:
+        click.echo(f"flow check   skipped: {check['skipped']}")
+        return
+    rows = []
+    for axis, c in check.items():
+        error = "-" if c["rel_error"] is None else f"{100 * c['rel_error']:+.2f} %"
+        rows.append([axis, number(c["k_fine"]), number(c["k_coarse"]), error,
+                     _solve(c["fine"]), _solve(c["coarse"])])  # fmt: skip
+    click.echo("flow check: the same pressure drop across each axis on both grids")
+    click.echo(table(["axis", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))

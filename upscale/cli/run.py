@@ -7,12 +7,13 @@ import time
 import click
 
 from ..caution import CAUTION
+from ..check import check_summary
 from ..export import check_destination, write_result
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
 from ..methods.registry import METHODS
 from ..upscaled import coarsen
-from .options import field_options, parse_bytes, read_options
+from .options import check_options, field_options, parse_bytes, read_options, recorded
 from .progress import progress
 from .report import print_result
 
@@ -34,19 +35,24 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @field_options
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Target memory per chunk (e.g. 64MB); bounds the memory used.")
+@click.option("--no-check", is_flag=True, help="Skip the fine-versus-coarse flow check.")
+@check_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder (created; must be empty unless --overwrite).")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @click.pass_context
 def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
-        remainder: str, min_active: float, chunk: str | None, out: str, overwrite: bool,
+        remainder: str, min_active: float, chunk: str | None, no_check: bool, solver: str,
+        tolerance: float, check_limit: int, out: str, overwrite: bool,
         **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method.
 
     Writes one GeoTIFF per property into the output folder — kx.tif, ky.tif,
     kz.tif (3D), porosity.tif (when given) — on the coarse grid with the
     input's CRS, plus summary.json with the input checksums, every parameter
-    and the statistics of fine and coarse values.
+    and the statistics of fine and coarse values. Then checks, for every axis,
+    that the coarse model passes the same flow as the fine one under the same
+    pressure drop, and records the errors in summary.json.
 
     \b
     Examples:
@@ -57,11 +63,19 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
     timings = {}
     start = time.perf_counter()
-    fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read_options(options))
+    read = read_options(options)
+    fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read)
     timings["read_s"] = time.perf_counter() - start
     with progress(ctx.obj["quiet"]):
         result = coarsen(fine, spec, method, exponent=exponent)
     timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
-    summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"], timings=timings)
+    check = None
+    if not no_check:
+        mark = time.perf_counter()
+        check = check_summary(result.fine, result.coarse, solver=solver, tolerance=tolerance,
+                              max_cells=check_limit)  # fmt: skip
+        timings["check_s"] = time.perf_counter() - mark
+    summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"],
+                           timings=timings, check=check, read=recorded(read))  # fmt: skip
     if not ctx.obj["quiet"]:
         print_result(result, summary, out)

@@ -1,6 +1,6 @@
 """Stage 7: writing results (the only package that writes paths)."""
 
-from .result import write_result
+from .result import update_summary, write_result
 from .staging import check_destination
 
-__all__ = ["check_destination", "write_result"]
+__all__ = ["check_destination", "update_summary", "write_result"]

@@ -3,13 +3,29 @@
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 from typing import Any
 
 from ..upscaled import Upscaled
 from .geotiff import PROPERTY_UNITS, write_property
 from .staging import MARKER, staged_folder
-from .summary import build_summary
+from .summary import build_summary, jsonable
+
+
+def update_summary(folder: str | Path, changes: dict[str, Any]) -> dict[str, Any]:
+    """Replace top-level keys of an output folder's ``summary.json``, atomically.
+
+    The new summary is written beside the old one and renamed over it, so a
+    reader sees either the old file or the new one.
+    """
+    path = Path(folder) / MARKER
+    summary = json.loads(path.read_text())
+    summary.update(jsonable(changes))
+    staged = path.with_name(f".{MARKER}.partial")
+    staged.write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
+    os.replace(staged, path)
+    return summary
 
 
 def write_result(
@@ -19,6 +35,8 @@ def write_result(
     overwrite: bool = False,
     command: list[str] | None = None,
     timings: dict[str, float] | None = None,
+    check: dict[str, Any] | None = None,
+    read: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
     """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
 
@@ -34,6 +52,9 @@ def write_result(
         Command line recorded in the summary.
     timings : dict, optional
         Seconds per step recorded in the summary.
+    check, read : dict, optional
+        The flow check and the read options, recorded in the summary (see
+        `upscale.export.summary.build_summary`).
 
     Returns
     -------
@@ -48,6 +69,8 @@ def write_result(
             unit = PROPERTY_UNITS.get(name, coarse.unit)
             write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
             files.append(f"{name}.tif")
-        summary = build_summary(result, files=files, command=command, timings=timings)
+        summary = build_summary(
+            result, files=files, command=command, timings=timings, check=check, read=read
+        )
         (stage / MARKER).write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
     return summary

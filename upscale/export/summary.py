@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import platform
 from importlib import metadata
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -70,6 +71,8 @@ def build_summary(
     files: list[str],
     command: list[str] | None = None,
     timings: dict[str, float] | None = None,
+    check: dict[str, Any] | None = None,
+    read: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
     """Describe a run as JSON-ready data.
 
@@ -83,6 +86,12 @@ def build_summary(
         The command line that produced the run.
     timings : dict, optional
         Seconds spent per step.
+    check : dict, optional
+        The fine-versus-coarse flow check: per axis ``AxisCheck.summary()``, or
+        ``{"skipped": reason}``.
+    read : dict, optional
+        The options the fine field was read with (unit, scale, nodata, dz,
+        cell size, kv/kh), so the run can be checked again later.
 
     Returns
     -------
@@ -94,7 +103,11 @@ def build_summary(
         "tool": "upscale",
         "versions": versions(),
         "command": command,
-        "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in fine.sources],
+        "inputs": [
+            {"role": s.role, "path": s.path, "resolved": str(Path(s.path).resolve()), "sha256": s.sha256}
+            for s in fine.sources
+        ],
+        "read": read,
         "unit": fine.unit,
         "method": {"name": result.method, "options": result.options},
         "block": {
@@ -120,6 +133,7 @@ def build_summary(
                 name: scan_values(values).summary() for name, values in coarse.properties().items()
             },
         },
+        "check": check,
         "files": files,
         "timings_s": timings or {},
         "caution": CAUTION,

@@ -1,0 +1,34 @@
+"""``upscale check``: solve the flow check of a finished run again."""
+
+from __future__ import annotations
+
+import click
+
+from ..check import check_summary
+from ..export import update_summary
+from ..io.results import read_run
+from .options import check_options
+from .report import print_check
+
+
+@click.command()
+@click.argument("folder", type=click.Path(file_okay=False))
+@check_options
+@click.pass_context
+def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int) -> None:
+    """Check again that the coarse grid in FOLDER passes the fine model's flow.
+
+    Reads the run's summary.json, its fine inputs (which must be unchanged:
+    their SHA-256 is compared) and its coarse GeoTIFFs, applies the same
+    pressure drop across each axis to both grids, prints the errors and
+    records them in summary.json.
+
+    \b
+    Example:
+      upscale check out/ --solver direct
+    """
+    _, fine, coarse = read_run(folder)
+    result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
+    summary = update_summary(folder, {"check": result})
+    if not ctx.obj["quiet"]:
+        print_check(summary["check"])
