@@ -57,7 +57,12 @@ def test_console_example_prints_what_the_readme_shows(
     assert command[0] == "upscale"
     assert main(command[1:]) == 0
     printed = capsys.readouterr().out.rstrip("\n").splitlines()
-    assert printed == expected
+    # iteration counts of the multigrid solver may move with library versions; the numbers may not
+    assert [_iterations(line) for line in printed] == [_iterations(line) for line in expected]
+
+
+def _iterations(line: str) -> str:
+    return re.sub(r"amg, +\d+ it", "amg, N it", line)
 
 
 def test_python_example_runs(in_copy: Path) -> None:
