@@ -33,7 +33,7 @@ def test_run_records_and_prints_the_check_per_axis(demo_dir, tmp_path, run_cli):
     assert status == 0
     check = _summary(out)["check"]
     assert set(check) == {"x", "y"}
-    for axis, c in check.items():
+    for c in check.values():
         assert c["rel_error"] == pytest.approx((c["k_coarse"] - c["k_fine"]) / c["k_fine"], rel=1e-12)
         assert c["fine"]["mass_balance"] < 1e-8 and c["coarse"]["mass_balance"] < 1e-8
         assert c["fine"]["connected"] and c["coarse"]["connected"]
