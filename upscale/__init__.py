@@ -6,9 +6,10 @@ The package follows the data through numbered stages:
 2. ``grid``     partition the fine grid into coarse blocks (`BlockSpec`)
 3. ``methods``  coarse block properties: averages and bounds, one module per family;
                 ``coarsen`` applies a method to a whole field, chunk by chunk with dask
+5. ``check``    the same pressure drop on the fine and the coarse grid, per axis
 7. ``export``   write coarse GeoTIFFs and the run summary, staged so nothing is half-written
 
-Shared pieces: ``field`` (arrays + grid), ``units``, ``stats`` (value scans),
+Shared pieces: ``flow`` (two-point flux engine), ``field`` (arrays + grid), ``units``, ``stats`` (value scans),
 ``parallel`` (NumPy/dask block mapping), ``errors``, ``demo`` (synthetic
 fields), ``cli`` (the ``upscale`` command).
 
@@ -24,6 +25,7 @@ Examples
 from importlib.metadata import PackageNotFoundError, version
 
 from .caution import CAUTION
+from .check import check_flow
 from .errors import InputError, UpscaleError
 from .export import write_result
 from .field import Field, Grid
@@ -46,6 +48,7 @@ __all__ = [
     "InputError",
     "UpscaleError",
     "Upscaled",
+    "check_flow",
     "coarsen",
     "read_field",
     "write_result",
