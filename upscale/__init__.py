@@ -9,9 +9,9 @@ The package follows the data through numbered stages:
 5. ``check``    the same pressure drop on the fine and the coarse grid, per axis
 7. ``export``   write coarse GeoTIFFs and the run summary, staged so nothing is half-written
 
-Shared pieces: ``flow`` (two-point flux engine), ``field`` (arrays + grid), ``units``, ``stats`` (value scans),
-``parallel`` (NumPy/dask block mapping), ``errors``, ``demo`` (synthetic
-fields), ``cli`` (the ``upscale`` command).
+Shared pieces: ``flow`` (two-point flux engine), ``field`` (arrays + grid),
+``units``, ``stats`` (value scans), ``parallel`` (NumPy/dask block mapping),
+``errors``, ``demo`` (synthetic fields), ``cli`` (the ``upscale`` command).
 
 Examples
 --------
