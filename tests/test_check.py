@@ -30,6 +30,7 @@ import pytest
 from upscale import BlockSpec, Field, Grid, coarsen
 from upscale.check import DEFAULT_LIMIT, AxisCheck, check_flow, check_summary
 from upscale.demo.fields import lognormal_field
+from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.methods.registry import METHODS
 
@@ -119,15 +120,17 @@ def test_homogeneous_field_with_kept_edge_blocks(name):
         assert check.rel_error == pytest.approx(0.0, abs=1e-12)
 
 
-def test_edge_blocks_taken_as_full_size_would_show():
+def test_edge_blocks_taken_as_full_size_are_refused():
     # the same coarse values as in the kept-edge test, on a grid whose edge blocks are
-    # (wrongly) full size: the layer of the edge block weighs double and the check sees it
+    # (wrongly) full size: that grid covers more than the fine one, and the check refuses
+    # to compare models of different domains
     fine = Field.from_arrays(_rows_as_layers(10, 13, 174_209_663), cell_size=(3.0, 7.0))
     coarse = coarsen(fine, BlockSpec(5, 4, remainder="keep"), "arithmetic").coarse
     full_size = Grid(dz=coarse.grid.dz, dy=[28.0, 28.0, 28.0], dx=[15.0, 15.0, 15.0])
     wrong = Field(kx=coarse.kx, ky=coarse.ky, kz=None, porosity=None, grid=full_size)
     assert abs(check_flow(fine, coarse)["x"].rel_error) < 1e-12
-    assert abs(check_flow(fine, wrong)["x"].rel_error) > 1e-2
+    with pytest.raises(InputError, match=r"differ in extent along y: 70 m against 84 m"):
+        check_flow(fine, wrong)
 
 
 # --------------------------------------------------------------------------------------

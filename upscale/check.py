@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from .errors import InputError
 from .field import Field
 from .flow import AxisFlow, Transmissibilities, pressure_drop, transmissibilities
 
@@ -87,6 +88,11 @@ def check_flow(
     -------
     dict of str to AxisCheck
 
+    Raises
+    ------
+    InputError
+        If the two grids do not cover the same domain.
+
     Examples
     --------
     >>> import numpy as np
@@ -97,8 +103,15 @@ def check_flow(
     >>> abs(check["x"].rel_error) < 1e-12, round(check["y"].rel_error, 4)   # exact along, not across
     (True, 0.5625)
     """
-    fine_t = transmissibilities(fine)
     coarse_t = coarse if isinstance(coarse, Transmissibilities) else transmissibilities(coarse)
+    for name, a, b in zip("zyx", (fine.grid.dz, fine.grid.dy, fine.grid.dx),
+                          (coarse_t.grid.dz, coarse_t.grid.dy, coarse_t.grid.dx)):  # fmt: skip
+        if not math.isclose(a.sum(), b.sum(), rel_tol=1e-9):
+            raise InputError(
+                f"the fine and coarse grids differ in extent along {name}: {a.sum():g} m against "
+                f"{b.sum():g} m; they must cover the same domain"
+            )
+    fine_t = transmissibilities(fine)
     checks = {}
     for axis in axes or fine.axes:
         checks[axis] = AxisCheck(
