@@ -229,4 +229,6 @@ def test_extreme_contrast_in_series_amg():
     flow = _flow(Field.from_arrays(k), "x", solver="amg")
     # Bear 1972, Dynamics of Fluids in Porous Media: harmonic mean in series
     assert flow.k_eff == pytest.approx(1.0 / np.mean(1.0 / k), rel=1e-8)
-    assert flow.mass_balance < 1e-6
+    # the inflow t_in (1 - p) at a 1e4 mD inlet cell keeps few digits in float64 when the
+    # flow is set by 1e-4 mD cells (docs/discretisation.md): the balance is ~4e-6 here
+    assert flow.mass_balance < 1e-5

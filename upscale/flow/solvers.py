@@ -78,7 +78,15 @@ class Solver:
         else:
             import pyamg
 
-            self._hierarchy = pyamg.ruge_stuben_solver(self.A, strength=("classical", {"theta": 0.1}))
+            # forward sweeps down, backward sweeps up: a symmetric V-cycle (so a valid CG
+            # preconditioner) at half the smoothing cost of symmetric sweeps both ways, which
+            # also stalled near 1e-5 on the 2D and 3D lognormal benchmark systems
+            self._hierarchy = pyamg.ruge_stuben_solver(
+                self.A,
+                strength=("classical", {"theta": 0.1}),
+                presmoother=("gauss_seidel", {"sweep": "forward"}),
+                postsmoother=("gauss_seidel", {"sweep": "backward"}),
+            )
 
     def solve(self, b: np.ndarray) -> tuple[np.ndarray, SolveInfo]:
         """Solve ``A x = b`` until the scaled residual ``max |b - A x| / diag(A)`` meets the tolerance.
@@ -114,7 +122,9 @@ class Solver:
             if not scaled(x) <= self.tolerance:
                 x = x + self._factor.solve(b - self.A @ x)
         else:
-            x, target, best = None, self.tolerance, np.inf
+            # pyamg stops on |r| / |b|; a tenth of the tolerance usually meets the scaled
+            # residual in one pass (a restart costs the Krylov space built so far)
+            x, target, best = None, 0.1 * self.tolerance, np.inf
             norm = np.linalg.norm(b)
             while iterations < self.max_iterations:
                 history: list[float] = []
@@ -127,7 +137,7 @@ class Solver:
                 if residual <= self.tolerance or not residual < 0.5 * best:
                     break  # met, or no longer improving (round-off)
                 best = residual
-                # pyamg stops on |r| / |b|: ask for a thousandfold reduction of the current |r|
+                # not met: ask for a thousandfold reduction of the current |r|
                 target = max(1e-3 * np.linalg.norm(b - self.A @ x) / norm, 1e-16)
         residual = scaled(x)
         if not residual <= self.tolerance:  # also catches NaN

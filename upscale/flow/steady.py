@@ -133,13 +133,12 @@ def pressure_drop(
     inside = keep[first]
     i, j, T = number[first[inside]], number[second[inside]], T[inside]
     m = int(keep.sum())
-    diagonal = np.zeros(m)
-    np.add.at(diagonal, i, T)
-    np.add.at(diagonal, j, T)
-    rhs = np.zeros(m)
-    np.add.at(diagonal, number[inlet_cells], t_in)
-    np.add.at(rhs, number[inlet_cells], t_in)  # p = 1 on the inlet face
-    np.add.at(diagonal, number[outlet_cells], t_out)  # p = 0 on the outlet face
+    inlet, outlet = number[inlet_cells], number[outlet_cells]
+    rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet face, p = 0 on the outlet
+    diagonal = (
+        np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
+        + rhs + np.bincount(outlet, t_out, minlength=m)
+    )  # fmt: skip
     A = sparse.coo_matrix(
         (np.concatenate([diagonal, -T, -T]),
          (np.concatenate([np.arange(m), i, j]), np.concatenate([np.arange(m), j, i]))),
@@ -147,8 +146,8 @@ def pressure_drop(
     ).tocsr()  # fmt: skip
 
     p, info = make_solver(A, solver, tolerance).solve(rhs)
-    inflow = float(np.sum(t_in * (1.0 - p[number[inlet_cells]]))) if m else 0.0
-    outflow = float(np.sum(t_out * p[number[outlet_cells]])) if m else 0.0
+    inflow = float(np.sum(t_in * (1.0 - p[inlet]))) if m else 0.0
+    outflow = float(np.sum(t_out * p[outlet])) if m else 0.0
     largest = max(abs(inflow), abs(outflow))
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
