@@ -20,7 +20,7 @@ import numpy as np
 from scipy import sparse
 
 from ..field import AXES
-from .islands import anchored, regions
+from .islands import anchored
 from .solvers import make_solver
 from .transmissibility import Transmissibilities
 
@@ -66,21 +66,6 @@ class AxisFlow:
     pressure: np.ndarray
 
 
-def _neighbour_pairs(trans: Transmissibilities) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Flat indices of the two cells of every face with T > 0, and its T."""
-    index = np.arange(np.prod(trans.shape)).reshape(trans.shape)
-    firsts, seconds, values = [], [], []
-    for axis, T in enumerate(trans.faces):
-        n = trans.shape[axis]
-        first = np.take(index, np.arange(n - 1), axis=axis)
-        second = np.take(index, np.arange(1, n), axis=axis)
-        conducting = T > 0
-        firsts.append(first[conducting])
-        seconds.append(second[conducting])
-        values.append(T[conducting])
-    return np.concatenate(firsts), np.concatenate(seconds), np.concatenate(values)
-
-
 def pressure_drop(
     trans: Transmissibilities, axis: str, *, solver: str = "auto", tolerance: float = 1e-10
 ) -> AxisFlow:
@@ -122,8 +107,8 @@ def pressure_drop(
     inlet_cells, t_in = inlet_cells[t_in > 0], t_in[t_in > 0]
     outlet_cells, t_out = outlet_cells[t_out > 0], t_out[t_out > 0]
 
-    first, second, T = _neighbour_pairs(trans)
-    keep, connected = anchored(regions(n, first, second), inlet_cells, outlet_cells)
+    first, second, T = trans.connections
+    keep, connected = anchored(trans.regions, inlet_cells, outlet_cells)
     keep &= trans.active.ravel()
     isolated = int(trans.active.sum() - keep.sum())
     number = np.full(n, -1)

@@ -19,10 +19,12 @@ in the user's unit, which is how `upscale.flow.steady` reports k_eff.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
 from ..field import AXES, PERMEABILITY, Field, Grid
+from .islands import regions
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,6 +55,25 @@ class Transmissibilities:
     def shape(self) -> tuple[int, int, int]:
         """``(L, M, N)``."""
         return self.grid.shape
+
+    @cached_property
+    def connections(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Flat indices of the two cells of every face with T > 0, and its T (computed once)."""
+        index = np.arange(np.prod(self.shape)).reshape(self.shape)
+        firsts, seconds, values = [], [], []
+        for axis, T in enumerate(self.faces):
+            n = self.shape[axis]
+            conducting = T > 0
+            firsts.append(np.take(index, np.arange(n - 1), axis=axis)[conducting])
+            seconds.append(np.take(index, np.arange(1, n), axis=axis)[conducting])
+            values.append(T[conducting])
+        return np.concatenate(firsts), np.concatenate(seconds), np.concatenate(values)
+
+    @cached_property
+    def regions(self) -> np.ndarray:
+        """Connected-region label of every cell, flat (computed once; see `upscale.flow.islands`)."""
+        first, second, _ = self.connections
+        return regions(int(np.prod(self.shape)), first, second)
 
 
 def half_cell(k: np.ndarray, grid: Grid, axis: int) -> np.ndarray:
