@@ -108,8 +108,8 @@ def pressure_drop(
     outlet_cells, t_out = outlet_cells[t_out > 0], t_out[t_out > 0]
 
     first, second, T = trans.connections
+    # inactive cells have t = 0 on every face: regions of their own that are never anchored
     keep, connected = anchored(trans.regions, inlet_cells, outlet_cells)
-    keep &= trans.active.ravel()
     isolated = int(trans.active.sum() - keep.sum())
     number = np.full(n, -1)
     number[keep] = np.arange(int(keep.sum()))

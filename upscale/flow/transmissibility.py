@@ -140,14 +140,18 @@ def transmissibilities(field: Field) -> Transmissibilities:
     -------
     Transmissibilities
     """
+    # read each distinct array once: kx, ky and kz are often the same (lazy) array
+    loaded: dict[int, np.ndarray] = {}
+    for array in (field.kx, field.ky, field.kz):
+        if array is not None and id(array) not in loaded:
+            loaded[id(array)] = np.asarray(array, dtype=np.float64)
     faces, boundary = [None, None, None], [None, None, None]
-    active = ~np.isnan(np.asarray(field.kx))
     for name, axis in AXES.items():
-        k = getattr(field, PERMEABILITY[name])
-        if k is None:  # a map has no vertical permeability; with one layer, no z faces
-            k = field.kx
-        t = half_cell(k, field.grid, axis)
+        array = getattr(field, PERMEABILITY[name])
+        # a map has no vertical permeability; with one layer it has no z faces either
+        t = half_cell(loaded[id(field.kx if array is None else array)], field.grid, axis)
         faces[axis] = harmonic_faces(t, axis)
         last = t.shape[axis] - 1
         boundary[axis] = (np.take(t, [0], axis=axis), np.take(t, [last], axis=axis))
+    active = ~np.isnan(loaded[id(field.kx)])
     return Transmissibilities(field.grid, tuple(faces), tuple(boundary), active)
