@@ -20,20 +20,24 @@ def is_dask(array: Any) -> bool:
     return type(array).__module__.startswith("dask.")
 
 
-def align_chunks(array: Any, block: tuple[int, int, int]) -> Any:
+def align_chunks(array: Any, block: tuple[int, int, int], least: tuple[int, int, int] = (0, 0, 0)) -> Any:
     """Rechunk a dask array so every chunk holds whole blocks (the last may be smaller).
 
     Chunks already aligned are left alone; otherwise each axis gets chunks of
-    the block multiple nearest its current typical chunk size.
+    the block multiple nearest its current typical chunk size. With `least`,
+    every chunk along an axis also holds at least that many cells (a last
+    chunk that would be shorter joins the one before it), as overlapping
+    chunks need.
     """
     new = []
-    for chunks, b in zip(array.chunks, block):
-        if all(c % b == 0 for c in chunks[:-1]):
-            new.append(chunks)
-            continue
-        size = max(b, round(max(chunks) / b) * b)
+    for chunks, b, m in zip(array.chunks, block, least):
         n = sum(chunks)
-        new.append((size,) * (n // size) + ((n % size,) if n % size else ()))
+        if not (all(c % b == 0 for c in chunks[:-1]) and min(chunks) >= min(m, n)):
+            size = max(b, round(max(chunks) / b) * b, -(-m // b) * b)
+            chunks = (size,) * (n // size) + ((n % size,) if n % size else ())
+            if len(chunks) > 1 and chunks[-1] < m:
+                chunks = chunks[:-2] + (chunks[-2] + chunks[-1],)
+        new.append(tuple(chunks))
     new = tuple(new)
     return array if new == array.chunks else array.rechunk(new)
 
@@ -108,6 +112,102 @@ def apply_blocks(
         chunks=out_chunks,
         dtype=np.float64,
         meta=np.empty((0, 0, 0), dtype=np.float64),
+    )
+
+
+def _run_region_chunk(
+    *chunks: np.ndarray,
+    function: Callable[..., np.ndarray],
+    dz: np.ndarray,
+    depth: tuple[int, int, int],
+    core_chunks: tuple[tuple[int, ...], ...],
+    block: tuple[int, int, int],
+    options: dict,
+    block_info: dict | None = None,
+) -> np.ndarray:
+    location = block_info[None]["chunk-location"][-3:]
+    starts, before = [], []
+    for axis, (i, sizes) in enumerate(zip(location, core_chunks)):
+        starts.append(sum(sizes[:i]) - (depth[axis] if i > 0 else 0))
+        before.append(depth[axis] if i > 0 else 0)
+    core = tuple((b, b + sizes[i]) for b, i, sizes in zip(before, location, core_chunks))
+    layers = dz[starts[0] : starts[0] + chunks[0].shape[0]]
+    return function(*chunks, dz=layers, core=core, block=block, **options)
+
+
+def apply_regions(
+    function: Callable[..., np.ndarray],
+    arrays: list[Any],
+    dz: np.ndarray,
+    block: tuple[int, int, int],
+    depth: tuple[int, int, int],
+    outputs: int,
+    **options: Any,
+) -> Any:
+    """Compute `outputs` values per block from several arrays and a border around each block.
+
+    Parameters
+    ----------
+    function : callable
+        ``function(*chunks, dz, core, block, **options) -> ndarray of shape (outputs, l, m, n)``
+        for the blocks of ``core`` (``((z0, z1), (y0, y1), (x0, x1))``, cells of the
+        chunk that are its own) — the chunk also holds up to `depth` cells on every
+        side that belong to its neighbours (fewer at the edges of the domain).
+    arrays : list of ndarray or dask array of shape (L, M, N)
+        Inputs on the same grid (NaN marks inactive cells).
+    dz : ndarray of shape (L,)
+        Layer thicknesses in m (the chunk's own slice is passed on).
+    block : (int, int, int)
+        Cells per block ``(layers, rows, columns)``.
+    depth : (int, int, int)
+        Cells of the neighbouring chunks each chunk sees along each axis.
+    outputs : int
+        Values per block.
+    **options
+        Passed to `function`.
+
+    Returns
+    -------
+    ndarray or dask array of shape (outputs, ceil(L/bz), ceil(M/by), ceil(N/bx))
+        The same values whatever the chunking: every block sees the same cells.
+    """
+    if not any(is_dask(a) for a in arrays):
+        core = tuple((0, n) for n in np.shape(arrays[0]))
+        return function(*(np.asarray(a) for a in arrays), dz=dz, core=core, block=block, **options)
+    import dask.array as da
+
+    template = next(a for a in arrays if is_dask(a))
+    template = align_chunks(template, block, depth)
+    aligned = [
+        (a if is_dask(a) else da.from_array(a)).rechunk(template.chunks) for a in arrays
+    ]
+    core_chunks = template.chunks
+    sides = {axis: d if max(core_chunks[axis]) < sum(core_chunks[axis]) else 0
+             for axis, d in enumerate(depth)}  # fmt: skip
+    widened = [da.overlap.overlap(a, depth=sides, boundary="none") for a in aligned]
+    expected = tuple(
+        tuple(c + (sides[axis] if i > 0 else 0) + (sides[axis] if i < len(cs) - 1 else 0)
+              for i, c in enumerate(cs))
+        for axis, cs in enumerate(core_chunks)
+    )  # fmt: skip
+    if widened[0].chunks != expected:
+        raise RuntimeError(f"overlapping chunks {widened[0].chunks} differ from {expected}")
+    out_chunks = ((outputs,),) + tuple(
+        tuple(-(-c // b) for c in cs) for cs, b in zip(core_chunks, block)
+    )
+    return da.map_blocks(
+        _run_region_chunk,
+        *widened,
+        function=function,
+        dz=dz,
+        depth=tuple(sides[a] for a in range(3)),
+        core_chunks=core_chunks,
+        block=block,
+        options=options,
+        chunks=out_chunks,
+        new_axis=0,
+        dtype=np.float64,
+        meta=np.empty((0, 0, 0, 0), dtype=np.float64),
     )
 
 

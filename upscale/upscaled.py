@@ -10,15 +10,17 @@ single pass over the data — dask reads each chunk once.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
 from .errors import InputError
 from .field import AXES, PERMEABILITY, Field
+from .flow import Transmissibilities, transmissibilities
 from .grid import BlockSpec
 from .methods import averages
+from .methods.flow_based import TENSOR
 from .methods.registry import Method, get_method
 from .parallel import apply_blocks, compute_together
 from .stats import ValueScan, scan_values
@@ -48,6 +50,16 @@ class Upscaled:
         Fine cells dropped by cropping.
     lost_pore_volume : float
         Pore volume (m³) of blocks made inactive by ``min_active``; 0 without porosity.
+    tensor : dict of str to ndarray
+        Off-diagonal permeability terms (``kxy`` ... , unit of k) of full-tensor
+        methods: ``kxy`` is the flux along x per unit gradient along y.
+    faces : tuple of 3 ndarray or None
+        Coarse face transmissibilities upscaled directly, in (unit of k) · m,
+        laid out as `upscale.flow.Transmissibilities.faces`.
+    replaced_faces : int
+        Faces between active blocks whose direct value was undefined (no
+        pressure drop between the two blocks) and that took the harmonic
+        half-block value instead.
     """
 
     fine: Field
@@ -59,6 +71,20 @@ class Upscaled:
     fine_stats: dict[str, ValueScan] = field(default_factory=dict)
     dropped_cells: int = 0
     lost_pore_volume: float = 0.0
+    tensor: dict[str, np.ndarray] = field(default_factory=dict)
+    faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+    replaced_faces: int = 0
+
+    def transmissibilities(self) -> Transmissibilities:
+        """Coarse transmissibilities, in (unit of k) · m.
+
+        Upscaled directly when the method made them; otherwise by the harmonic
+        half-block rule from the block permeabilities.
+        """
+        harmonic = transmissibilities(self.coarse)
+        if self.faces is None:
+            return harmonic
+        return replace(harmonic, faces=self.faces)
 
 
 def coarsen(
@@ -107,16 +133,19 @@ def coarsen(
     dz, cells = fine.grid.dz, spec.cells
 
     lazy: dict[str, Any] = {}
-    results_by_array: dict[tuple[int, int | None], Any] = {}
-    for axis_name in fine.axes:
-        name = PERMEABILITY[axis_name]
-        array = getattr(fine, name)
-        axis = AXES[axis_name]
-        # the same array under a rule that ignores the axis is computed once
-        key = (id(array), axis if chosen.directional else None)
-        if key not in results_by_array:
-            results_by_array[key] = apply_blocks(chosen.kernel, array, dz, cells, axis, **options)
-        lazy[name] = results_by_array[key]
+    if chosen.local:
+        lazy.update({f"_{k}": v for k, v in chosen.kernel(fine, cells, **options).items()})
+    else:
+        results_by_array: dict[tuple[int, int | None], Any] = {}
+        for axis_name in fine.axes:
+            name = PERMEABILITY[axis_name]
+            array = getattr(fine, name)
+            axis = AXES[axis_name]
+            # the same array under a rule that ignores the axis is computed once
+            key = (id(array), axis if chosen.directional else None)
+            if key not in results_by_array:
+                results_by_array[key] = apply_blocks(chosen.kernel, array, dz, cells, axis, **options)
+            lazy[name] = results_by_array[key]
     if fine.porosity is not None:
         lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
     lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
@@ -137,7 +166,9 @@ def coarsen(
     if "porosity" in computed:
         pore = computed["porosity"] * coarse_grid.cell_volumes()
         lost = float(pore[inactive].sum())
-    for values in computed.values():
+    tensor = _tensor_terms(computed.pop("_tensor"), fine.ndim, computed) if chosen.local else {}
+    faces = computed.pop("_faces", None)
+    for values in (*computed.values(), *tensor.values()):
         values[inactive] = np.nan
 
     coarse = Field(
@@ -149,8 +180,38 @@ def coarsen(
         unit=field.unit,
         sources=field.sources,
     )
+    replaced = 0
+    if faces is not None:
+        faces, replaced = _direct_faces(faces, transmissibilities(coarse).faces)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
-    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost)
+    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost,
+                    tensor, faces, replaced)  # fmt: skip
+
+
+def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> dict[str, np.ndarray]:
+    """Put the diagonal of a (9, L', M', N') tensor into `computed`; return the other terms."""
+    names = dict(zip(TENSOR, tensor))
+    computed["kx"], computed["ky"] = names["kxx"], names["kyy"]
+    if ndim == 3:
+        computed["kz"] = names["kzz"]
+    axes = "xyz"[:ndim]
+    off = {f"k{b}{a}": names[f"k{b}{a}"] for b in axes for a in axes if a != b}
+    return {k: np.array(v) for k, v in off.items() if np.any(v != 0)}
+
+
+def _direct_faces(direct: np.ndarray, harmonic: tuple) -> tuple[tuple, int]:
+    """Face transmissibilities from the per-block "face before" values.
+
+    Undefined ones take the harmonic value; faces touching an inactive block are closed.
+    """
+    faces, replaced = [], 0
+    for a, rule in enumerate(harmonic):
+        values = np.take(direct[a], np.arange(1, direct.shape[a + 1]), axis=a)
+        undefined = ~np.isfinite(values)
+        closed = rule == 0
+        replaced += int((undefined & ~closed).sum())
+        faces.append(np.where(undefined | closed, rule, values))
+    return tuple(faces), replaced
 
 
 def _where(cells: tuple) -> str:

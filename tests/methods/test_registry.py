@@ -2,13 +2,13 @@
 
 What is tested
 --------------
-* `METHODS` names the six methods with the right kernels, directional flags
-  and zero-permeability rules.
+* `METHODS` names the nine methods with the right kernels, directional flags,
+  zero-permeability rules and option defaults.
 * `get_method` refuses unknown methods, unknown options and missing required
   options, drops options given as None and keeps only the method's own.
-* Every registered kernel follows the common call convention and leaves a
+* Every registered average follows the common call convention and leaves a
   constant field unchanged, edge blocks and (for the averages) inactive
-  cells included.
+  cells included (the local-solve methods are tested in test_flow_based.py).
 """
 
 from __future__ import annotations
@@ -26,7 +26,10 @@ OPTIONS = {"power": {"exponent": 0.57}}
 
 def test_method_names_and_kernels():
     assert PUBLIC_METHODS is METHODS
-    assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs"]
+    assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs",
+                             "flow", "flow-transmissibility", "renormalization"]  # fmt: skip
+    assert {n for n, m in METHODS.items() if m.local} == {
+        "flow", "flow-transmissibility", "renormalization"}  # fmt: skip
     assert METHODS["arithmetic"].kernel is averages.arithmetic_mean
     assert METHODS["harmonic"].kernel is averages.harmonic_mean
     assert METHODS["geometric"].kernel is averages.geometric_mean
@@ -45,7 +48,17 @@ def test_only_the_bounds_are_directional():
 
 def test_options_declared():
     assert METHODS["power"].options == ("exponent",)
-    assert all(m.options == () for n, m in METHODS.items() if n != "power")
+    assert METHODS["flow"].options == METHODS["flow-transmissibility"].options == ("bc", "border")
+    others = {"power", "flow", "flow-transmissibility"}
+    assert all(m.options == () for n, m in METHODS.items() if n not in others)
+
+
+def test_local_methods_fill_in_their_defaults():
+    assert get_method("flow")[1] == {"bc": "sealed", "border": 0}
+    assert get_method("flow", {"border": 3, "bc": None})[1] == {"bc": "sealed", "border": 3}
+    assert get_method("flow-transmissibility", {"bc": "periodic"})[1] == {"bc": "periodic", "border": 0}
+    with pytest.raises(InputError, match="takes no option border"):
+        get_method("renormalization", {"border": 2})
 
 
 @pytest.mark.parametrize(
@@ -106,7 +119,7 @@ def _constant_field(shape, c, nan_fraction, seed):
     return k
 
 
-@pytest.mark.parametrize("name", list(METHODS))
+@pytest.mark.parametrize("name", [n for n, m in METHODS.items() if not m.local])
 @pytest.mark.parametrize("axis", [0, 1, 2])
 def test_every_method_leaves_a_constant_field_unchanged(name, axis):
     # Edge blocks: the shape (5, 11, 13) does not divide into (2, 4, 5) blocks.
@@ -118,7 +131,7 @@ def test_every_method_leaves_a_constant_field_unchanged(name, axis):
     np.testing.assert_allclose(got, c, rtol=1e-13)
 
 
-@pytest.mark.parametrize("name", [n for n, m in METHODS.items() if not m.directional])
+@pytest.mark.parametrize("name", [n for n, m in METHODS.items() if not (m.directional or m.local)])
 def test_every_average_leaves_a_constant_field_with_inactive_cells_unchanged(name):
     c = 0.042
     dz = np.array([0.5, 3.0, 1.0, 2.0, 0.1])

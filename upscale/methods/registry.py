@@ -8,6 +8,8 @@ from typing import Any
 
 from ..errors import InputError
 from . import averages, bounds
+from .flow_based import direct_properties, flow_properties
+from .renormalization import renormalized_properties
 
 
 @dataclass(frozen=True)
@@ -19,7 +21,10 @@ class Method:
     name : str
         Name used on the command line and in summaries.
     kernel : callable
-        ``kernel(k, dz, block, axis, **options) -> coarse`` on one chunk of whole blocks.
+        Averages: ``kernel(k, dz, block, axis, **options) -> coarse`` on one chunk
+        of whole blocks, applied to each property. Flow-based methods
+        (``local=True``): ``kernel(field, cells, **options) -> dict`` of lazy
+        arrays, ``"tensor"`` (and ``"faces"``) — see `upscale.methods.flow_based`.
     summary : str
         One line for ``--help`` and reports.
     directional : bool
@@ -28,6 +33,10 @@ class Method:
         Names of the method's own options (e.g. ``exponent``).
     takes_zeros : callable
         ``takes_zeros(options) -> bool``: whether zero-permeability cells are valid input.
+    defaults : mapping
+        Values of options that may be left out.
+    local : bool
+        True for methods that solve local flow problems on all properties at once.
     """
 
     name: str
@@ -36,6 +45,8 @@ class Method:
     directional: bool = False
     options: tuple[str, ...] = ()
     takes_zeros: Callable[[Mapping[str, Any]], bool] = field(default=lambda options: True)
+    defaults: Mapping[str, Any] = field(default_factory=dict)
+    local: bool = False
 
 
 METHODS: Mapping[str, Method] = {
@@ -73,6 +84,28 @@ METHODS: Mapping[str, Method] = {
             "Cardwell–Parsons upper bound: cells in parallel across each slab, slabs in series",
             directional=True,
         ),
+        Method(
+            "flow",
+            flow_properties,
+            "local pressure solve in each block (--bc sealed|linear|periodic, --border N)",
+            options=("bc", "border"),
+            defaults={"bc": "sealed", "border": 0},
+            local=True,
+        ),
+        Method(
+            "flow-transmissibility",
+            direct_properties,
+            "flow-based blocks, and coarse transmissibilities from two-block solves (--border N)",
+            options=("bc", "border"),
+            defaults={"bc": "sealed", "border": 0},
+            local=True,
+        ),
+        Method(
+            "renormalization",
+            renormalized_properties,
+            "King's renormalization: repeated exact 2x2(x2) solves; powers-of-two blocks",
+            local=True,
+        ),
     )
 }
 
@@ -102,6 +135,7 @@ def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Met
         raise InputError(f"unknown method {name!r}; choose one of {', '.join(METHODS)}")
     method = METHODS[name]
     given = {k: v for k, v in (options or {}).items() if v is not None}
+    given = {**{k: v for k, v in method.defaults.items() if k not in given}, **given}
     extra = sorted(set(given) - set(method.options))
     if extra:
         raise InputError(f"method {name!r} takes no option {', '.join(extra)}")

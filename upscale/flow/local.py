@@ -1,0 +1,455 @@
+"""Local flow problems: many small boxes of cells solved at once, in compiled code.
+
+Each problem is a box of fine cells (a coarse block, or two, with a border
+of surrounding rock) with its own boundary conditions. The pressure is
+written ``p = -x_a + p'`` for an imposed unit mean gradient along axis `a`
+(x_a in m from the box's first face along a), and the box's outer faces are
+
+* ``SEALED``: p fixed on the two faces across a (0 and -L_a), the others closed;
+* ``LINEAR``: p = -x_a fixed on every outer face;
+* ``PERIODIC``: p' and the flux periodic across every pair of opposite faces
+  (Durlofsky 1991, "Numerical calculation of equivalent grid block
+  permeability tensors for heterogeneous porous media").
+
+Cells connect by the harmonic face rule of `upscale.flow.transmissibility`,
+written with the same half-cell transmissibilities ``t`` (0 for an inactive
+cell). Every box is assembled into a banded matrix, factored once and
+solved for each imposed gradient (`upscale.flow.banded`); problems run in
+parallel threads. A group of cells with no fixed pressure (an island, or
+any group under periodic conditions) has its pressure pinned at one cell,
+which fixes the level without changing any flux.
+
+What comes back is not the pressure field but what upscaling needs from
+it, computed over a sub-box (the block itself, without its border):
+
+* `block_tensors`: the volume averages of the flux density and of the
+  pressure gradient, ``<u_b>`` and ``<∂p/∂x_b>``, for each imposed gradient.
+  ``<u_b>`` is the integral of the flux through the block's planes normal
+  to b (trapezoid rule over the planes at cell faces) over the block volume;
+  ``<∂p/∂x_b>`` is the difference of the area-averaged pressures on the
+  block's two faces normal to b over its length (Gauss' theorem). The face
+  pressure of a fine face is the flux-continuous value
+  ``(t_i p_i + t_j p_j) / (t_i + t_j)``; faces touching only inactive
+  cells or pressure-less islands are left out of the average.
+* `pair_fluxes`: for two neighbouring blocks under a sealed pressure drop
+  across both, the flux through their shared face and the volume-averaged
+  pressure of each block (for transmissibilities upscaled directly).
+
+Units: t in (unit of k) · m, sizes in m, pressures in m (a unit gradient),
+so flux densities come out in the unit of k.
+"""
+
+from __future__ import annotations
+
+import numba as nb
+import numpy as np
+
+from .banded import EXACT_JIT, factor, solve
+
+SEALED, LINEAR, PERIODIC = 0, 1, 2
+#: Boundary condition name -> code used by the compiled kernels.
+CONDITIONS = {"sealed": SEALED, "linear": LINEAR, "periodic": PERIODIC}
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _series(ti, tj):
+    s = ti + tj
+    return ti * tj / s if s > 0.0 else 0.0
+
+
+@nb.njit(**EXACT_JIT)
+def _root(parent, i):
+    while parent[i] != i:
+        parent[i] = parent[parent[i]]
+        i = parent[i]
+    return i
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _fixed(bc, fixed_axis, b):
+    return bc == LINEAR or (bc == SEALED and b == fixed_axis)
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _combine(pi, ti, fi, pj, tj, fj):
+    """Flux-continuous pressure of a face; (value, defined)."""
+    wi = ti if (ti > 0.0 and not fi) else 0.0
+    wj = tj if (tj > 0.0 and not fj) else 0.0
+    if wi + wj > 0.0:
+        return (wi * pi + wj * pj) / (wi + wj), True
+    return 0.0, False
+
+
+@nb.njit(**EXACT_JIT)
+def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
+    """Matrix of one box into `ab`; pins the level of groups without fixed pressure.
+
+    Returns the pinned cells (flag per cell, lexicographic order) and whether
+    some group of cells touches both fixed-pressure faces across `fixed_axis`
+    (sealed conditions; without such a path nothing flows). Sets `floating`
+    for cells whose pressure level means nothing (no fixed pressure and,
+    under periodic conditions, no periodic connection).
+    """
+    n = t.shape[1]
+    stride = (shape[1] * shape[2], shape[2], 1)
+    ab[:] = 0.0
+    parent = np.arange(n)
+    grounded = np.zeros(n, np.bool_)
+    wrapped = np.zeros(n, np.bool_)
+    inlet = np.zeros(n, np.bool_)
+    outlet = np.zeros(n, np.bool_)
+    for c in range(n):
+        i = order[c]
+        for a in range(3):
+            if not axes[a]:
+                continue
+            pos = (c // stride[a]) % shape[a]
+            ta = t[a, c]
+            if _fixed(bc, fixed_axis, a):
+                if pos == 0:
+                    ab[i, 0] += ta
+                if pos == shape[a] - 1:
+                    ab[i, 0] += ta
+                if ta > 0.0 and (pos == 0 or pos == shape[a] - 1):
+                    grounded[c] = True
+                    inlet[c] |= pos == 0 and a == fixed_axis
+                    outlet[c] |= pos == shape[a] - 1 and a == fixed_axis
+            if pos + 1 < shape[a]:
+                m = c + stride[a]
+            elif bc == PERIODIC:
+                m = c - pos * stride[a]
+                if ta > 0.0 and t[a, m] > 0.0:
+                    wrapped[c] = True
+                if m == c:
+                    continue
+            else:
+                continue
+            T = _series(ta, t[a, m])
+            if T > 0.0:
+                j = order[m]
+                ab[i, 0] += T
+                ab[j, 0] += T
+                if i < j:
+                    ab[i, j - i] -= T
+                else:
+                    ab[j, i - j] -= T
+                ri, rj = _root(parent, c), _root(parent, m)
+                if ri != rj:
+                    parent[max(ri, rj)] = min(ri, rj)
+    for c in range(n):
+        r = _root(parent, c)
+        grounded[r] |= grounded[c]
+        wrapped[r] |= wrapped[c]
+        inlet[r] |= inlet[c]
+        outlet[r] |= outlet[c]
+    connected = False
+    width = ab.shape[1] - 1
+    pinned = np.zeros(n, np.bool_)
+    for c in range(n):
+        r = _root(parent, c)
+        floating[c] = not grounded[r] and not wrapped[r]
+        connected |= inlet[r] and outlet[r]
+        if r == c and not grounded[r]:
+            pinned[c] = True
+            i = order[c]
+            ab[i, 1:] = 0.0
+            for j in range(1, min(width, i) + 1):
+                ab[i - j, j] = 0.0
+            ab[i, 0] = 1.0
+    return pinned, connected
+
+
+@nb.njit(**EXACT_JIT)
+def _geometry(h, shape):
+    """Cell-centre coordinates (3, max) and box lengths (3,) in m."""
+    centre = np.zeros_like(h)
+    length = np.zeros(3)
+    for a in range(3):
+        x = 0.0
+        for k in range(shape[a]):
+            centre[a, k] = x + 0.5 * h[a, k]
+            x += h[a, k]
+        length[a] = x
+    return centre, length
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _boundary_pressure(pos_a, b, side, a, centre, length):
+    """Pressure -x_a on the outer face `side` (0 first, 1 last) normal to b."""
+    if b == a:
+        return 0.0 if side == 0 else -length[a]
+    return -centre[a, pos_a]
+
+
+@nb.njit(**EXACT_JIT)
+def _pressure(t, h, shape, order, ab, pinned, bc, axes, fixed_axis, a, centre, length):
+    """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
+    n = t.shape[1]
+    stride = (shape[1] * shape[2], shape[2], 1)
+    x = np.zeros(n)
+    for c in range(n):
+        i = order[c]
+        for b in range(3):
+            if not axes[b]:
+                continue
+            pos = (c // stride[b]) % shape[b]
+            pos_a = (c // stride[a]) % shape[a]
+            if _fixed(bc, fixed_axis, b):
+                if pos == 0:
+                    x[i] += t[b, c] * _boundary_pressure(pos_a, b, 0, a, centre, length)
+                if pos == shape[b] - 1:
+                    x[i] += t[b, c] * _boundary_pressure(pos_a, b, 1, a, centre, length)
+            if bc == PERIODIC and b == a and pos == shape[a] - 1 and shape[a] > 1:
+                m = c - pos * stride[a]
+                flux = _series(t[a, c], t[a, m]) * length[a]
+                x[i] -= flux
+                x[order[m]] += flux
+    for c in range(n):
+        if pinned[c]:
+            x[order[c]] = 0.0
+    solve(ab, x)
+    p = np.empty(n)
+    for c in range(n):
+        p[c] = x[order[c]]
+    return p
+
+
+@nb.njit(**EXACT_JIT)
+def _face(t, p, floating, shape, c, b, side, bc, fixed_axis, a, centre, length):
+    """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
+
+    Returns (flux, pressure, pressure defined).
+    """
+    stride = (shape[1] * shape[2], shape[2], 1)
+    s = stride[b]
+    pos = (c // s) % shape[b]
+    last = shape[b] - 1
+    shift = length[a] if a == b else 0.0
+    if side == 0 and pos > 0 or side == 1 and pos < last:
+        m = c - s if side == 0 else c + s
+        pm = p[m]
+    elif _fixed(bc, fixed_axis, b):
+        pos_a = (c // stride[a]) % shape[a]
+        pb = _boundary_pressure(pos_a, b, side, a, centre, length)
+        flux = t[b, c] * (pb - p[c]) if side == 0 else t[b, c] * (p[c] - pb)
+        return flux, pb, True
+    elif bc == PERIODIC:
+        # the periodic image of the cell at the other end, shifted by the imposed drop
+        m = c + last * s if side == 0 else c - last * s
+        pm = p[m] + shift if side == 0 else p[m] - shift
+    else:
+        value, defined = _combine(0.0, 0.0, True, p[c], t[b, c], floating[c])
+        return 0.0, value, defined
+    T = _series(t[b, m], t[b, c])
+    flux = T * (pm - p[c]) if side == 0 else T * (p[c] - pm)
+    value, defined = _combine(pm, t[b, m], floating[m], p[c], t[b, c], floating[c])
+    return flux, value, defined
+
+
+@nb.njit(**EXACT_JIT)
+def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, fixed_axis, a, centre, length, U, G):
+    """``<u_b>`` into ``U[a, b]`` and ``<∂p/∂x_b>`` into ``G[a, b]`` over the sub-box [lo, hi)."""
+    volume = 1.0
+    for b in range(3):
+        volume *= h[b, lo[b] : hi[b]].sum()
+    for b in range(3):
+        if not axes[b]:
+            continue
+        integral = 0.0
+        p_lo = a_lo = p_hi = a_hi = 0.0
+        for iz in range(lo[0], hi[0]):
+            for iy in range(lo[1], hi[1]):
+                for ix in range(lo[2], hi[2]):
+                    c = (iz * shape[1] + iy) * shape[2] + ix
+                    pos = (iz, iy, ix)[b]
+                    area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
+                    flux, value, defined = _face(
+                        t, p, floating, shape, c, b, 0, bc, fixed_axis, a, centre, length
+                    )
+                    before = h[b, pos - 1] if pos > lo[b] else 0.0
+                    integral += 0.5 * (before + h[b, pos]) * flux
+                    if pos == lo[b] and defined:
+                        p_lo += area * value
+                        a_lo += area
+                    if pos == hi[b] - 1:
+                        flux, value, defined = _face(
+                            t, p, floating, shape, c, b, 1, bc, fixed_axis, a, centre, length
+                        )
+                        integral += 0.5 * h[b, pos] * flux
+                        if defined:
+                            p_hi += area * value
+                            a_hi += area
+        U[a, b] = integral / volume
+        if a_lo > 0.0 and a_hi > 0.0:
+            G[a, b] = (p_hi / a_hi - p_lo / a_lo) / h[b, lo[b] : hi[b]].sum()
+
+
+@nb.njit(**EXACT_JIT)
+def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
+    n = t.shape[1]
+    ab = np.empty((n, width + 1))
+    floating = np.empty(n, np.bool_)
+    centre, length = _geometry(h, shape)
+    pinned = np.empty(0, np.bool_)
+    for a in range(3):
+        if not axes[a]:
+            continue
+        if bc == SEALED or pinned.size == 0:
+            pinned, connected = _assemble(t, shape, order, bc, axes, a, ab, floating)
+            factor(ab)
+        p = _pressure(t, h, shape, order, ab, pinned, bc, axes, a, a, centre, length)
+        _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, a, centre, length, U, G)
+        if bc == SEALED and not connected:
+            U[a, :] = 0.0  # no path between the fixed faces: what moves is rounding
+
+
+@nb.njit(parallel=True, **EXACT_JIT)
+def block_tensors(t, h, shape, lo, hi, order, width, bc, axes):
+    """Average flux densities and pressure gradients of many boxes of one shape.
+
+    Parameters
+    ----------
+    t : ndarray of shape (P, 3, n)
+        Half-cell transmissibilities of each box along z, y, x, cells in
+        lexicographic (layer, row, column) order; 0 for inactive cells.
+    h : ndarray of shape (P, 3, S)
+        Cell sizes in m along z, y, x (the first ``shape[a]`` entries of axis a).
+    shape : ndarray of int, shape (3,)
+        Cells of every box along z, y, x (``n`` in all).
+    lo, hi : ndarray of int, shape (P, 3)
+        The block inside each box, ``[lo, hi)`` along each axis.
+    order : ndarray of int, shape (n,)
+        Position of each cell in the banded matrix (see `band_order`).
+    width : int
+        Half-bandwidth of the matrix under `order`.
+    bc : int
+        ``SEALED``, ``LINEAR`` or ``PERIODIC``.
+    axes : ndarray of bool, shape (3,)
+        Flow axes (z is left out of a map).
+
+    Returns
+    -------
+    U, G : ndarray of shape (P, 3, 3)
+        ``U[q, a, b]`` = ``<u_b>`` (unit of k) and ``G[q, a, b]`` = ``<∂p/∂x_b>``
+        (dimensionless) of block q under a unit gradient imposed along a; NaN
+        for axes that are not flow axes or gradients with no defined face pressure.
+    """
+    P = t.shape[0]
+    U = np.full((P, 3, 3), np.nan)
+    G = np.full((P, 3, 3), np.nan)
+    for q in nb.prange(P):
+        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+    return U, G
+
+
+@nb.njit(**EXACT_JIT)
+def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
+    n = t.shape[1]
+    ab = np.empty((n, width + 1))
+    floating = np.empty(n, np.bool_)
+    centre, length = _geometry(h, shape)
+    pinned, connected = _assemble(t, shape, order, SEALED, axes, a, ab, floating)
+    factor(ab)
+    p = _pressure(t, h, shape, order, ab, pinned, SEALED, axes, a, a, centre, length)
+    flux = 0.0
+    sums = np.zeros(4)
+    for iz in range(lo[0], hi[0]):
+        for iy in range(lo[1], hi[1]):
+            for ix in range(lo[2], hi[2]):
+                c = (iz * shape[1] + iy) * shape[2] + ix
+                pos = (iz, iy, ix)[a]
+                if pos == mid:
+                    flux += _face(t, p, floating, shape, c, a, 0, SEALED, a, a, centre, length)[0]
+                conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
+                if conducting and not floating[c]:
+                    v = h[0, iz] * h[1, iy] * h[2, ix]
+                    side = 0 if pos < mid else 2
+                    sums[side] += v * p[c]
+                    sums[side + 1] += v
+    out[0] = flux if connected else 0.0
+    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else np.nan
+    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else np.nan
+
+
+@nb.njit(parallel=True, **EXACT_JIT)
+def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
+    """Flux through the shared face of two blocks, and their mean pressures.
+
+    Each box holds two neighbouring blocks along axis `a` (``[lo, mid)`` and
+    ``[mid, hi)`` along a; ``[lo, hi)`` along the others) and a border; it is
+    solved with sealed sides under a unit gradient along a.
+
+    Parameters
+    ----------
+    t, h, shape, order, width, axes
+        As in `block_tensors`.
+    lo, hi : ndarray of int, shape (P, 3)
+        The two blocks inside each box.
+    mid : ndarray of int, shape (P,)
+        First cell of the second block along `a`.
+    a : int
+        Axis across the shared face.
+
+    Returns
+    -------
+    ndarray of shape (P, 3)
+        Flux through the face (unit of k · m², per unit pressure in m), then
+        the volume-averaged pressure (m) of the first and of the second block
+        over its active cells (NaN when none has a defined pressure).
+    """
+    P = t.shape[0]
+    out = np.empty((P, 3))
+    for q in nb.prange(P):
+        _one_pair(t[q], h[q], shape, lo[q], mid[q], hi[q], a, order, width, axes, out[q])
+    return out
+
+
+def band_order(shape: tuple[int, int, int], periodic: bool) -> tuple[np.ndarray, int]:
+    """Numbering of a box's cells that keeps its matrix narrow, and the half-bandwidth.
+
+    The longest axis is numbered slowest, so the band is one slice of the
+    two shorter axes. Under periodic conditions the slices along it are
+    interleaved from both ends (0, n-1, 1, n-2, ...), so the periodic
+    connection of the first and the last slice stays inside the band too.
+
+    Parameters
+    ----------
+    shape : (int, int, int)
+        Cells along z, y, x.
+    periodic : bool
+        Whether opposite faces are connected.
+
+    Returns
+    -------
+    order : ndarray of int, shape (n,)
+        Matrix position of each cell, cells in lexicographic order.
+    width : int
+        Largest distance between the positions of two connected cells.
+
+    Examples
+    --------
+    >>> order, width = band_order((1, 2, 3), periodic=False)
+    >>> order.reshape(2, 3).tolist(), width
+    ([[0, 2, 4], [1, 3, 5]], 2)
+    """
+    slow = int(np.argmax(shape))
+    axes = [slow] + [a for a in range(3) if a != slow]
+    slices = np.arange(shape[slow])
+    if periodic:
+        n = shape[slow]
+        visit = np.stack([slices, slices[::-1]], axis=1).ravel()[:n]  # 0, n-1, 1, n-2, ...
+        slices = np.empty(n, int)
+        slices[visit] = np.arange(n)
+    grid = np.indices(shape)
+    other = grid[axes[1]] * shape[axes[2]] + grid[axes[2]]
+    order = slices[grid[slow]] * (shape[axes[1]] * shape[axes[2]]) + other
+    width = 0
+    for a in range(3):
+        if shape[a] > 1:
+            first = np.take(order, np.arange(shape[a] - 1), axis=a)
+            second = np.take(order, np.arange(1, shape[a]), axis=a)
+            width = max(width, int(np.abs(first - second).max()))
+            if periodic:
+                ends = np.take(order, [0], axis=a) - np.take(order, [shape[a] - 1], axis=a)
+                width = max(width, int(np.abs(ends).max()))
+    return order.ravel(), max(width, 0)
