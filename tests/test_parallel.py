@@ -23,10 +23,10 @@ import pytest
 import upscale
 from upscale.methods.averages import active_volume, bulk_mean
 from upscale.methods.registry import METHODS
+from upscale.parallel import align_chunks, apply_blocks, is_dask
 
 # renormalization takes powers-of-two blocks only; it has its own tests (test_flow_based.py)
 ANY_BLOCK = [n for n in METHODS if n != "renormalization"]
-from upscale.parallel import align_chunks, apply_blocks, is_dask
 
 OPTIONS = {"power": {"exponent": 0.57}}
 SHAPE = (5, 23, 31)
