@@ -69,6 +69,19 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
                       "coarse min", "coarse max"], rows))  # fmt: skip
     click.echo(f"({', '.join(PERMEABILITY[a] for a in fine.axes)} in {fine.unit}"
                + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
+    tensor = summary.get("tensor")
+    if tensor and tensor.get("blocks"):
+        click.echo(f"tensor: anisotropy (largest/smallest principal k) median "
+                   f"{number(tensor['anisotropy_median'], '.3g')}, max "
+                   f"{number(tensor['anisotropy_max'], '.3g')}; largest off-diagonal "
+                   f"{number(tensor['off_diagonal_max'], '.2%')} of the diagonal")  # fmt: skip
+        if tensor["warning"]:
+            click.echo(f"warning: {tensor['warning']}")
+    faces = summary.get("transmissibility")
+    if faces and faces["rule"] != "harmonic half-block":
+        click.echo(f"coarse transmissibilities from {faces['rule']}"
+                   + (f"; {faces['replaced_faces']} undefined ones took the harmonic value"
+                      if faces["replaced_faces"] else ""))  # fmt: skip
     click.echo("")
     print_check(summary["check"])
     click.echo("")

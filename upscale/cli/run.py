@@ -27,6 +27,11 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
               "8x8x2 adds 2 layers.")
 @click.option("--method", required=True, type=click.Choice(list(METHODS)), help=_METHOD_HELP)
 @click.option("--exponent", type=float, default=None, help="Exponent ω of the power average.")
+@click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
+              help="Boundary conditions of the local solves of the flow methods [default: sealed].")
+@click.option("--border", type=int, default=None, metavar="CELLS",
+              help="Fine cells of surrounding rock added on every side of each block in the "
+              "local solves of the flow methods [default: 0].")
 @click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop", show_default=True,
               help="When the grid does not divide into whole blocks: stop with an error, crop "
               "the last cells, or keep smaller edge blocks.")
@@ -42,7 +47,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @click.pass_context
 def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
-        remainder: str, min_active: float, chunk: str | None, no_check: bool, solver: str,
+        bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None, no_check: bool, solver: str,
         tolerance: float, check_limit: int, out: str, overwrite: bool,
         **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method.
@@ -67,12 +72,12 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read)
     timings["read_s"] = time.perf_counter() - start
     with progress(ctx.obj["quiet"]):
-        result = coarsen(fine, spec, method, exponent=exponent)
+        result = coarsen(fine, spec, method, exponent=exponent, bc=bc, border=border)
     timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
     check = None
     if not no_check:
         mark = time.perf_counter()
-        check = check_summary(result.fine, result.coarse, solver=solver, tolerance=tolerance,
+        check = check_summary(result.fine, result.transmissibilities(), solver=solver, tolerance=tolerance,
                               max_cells=check_limit)  # fmt: skip
         timings["check_s"] = time.perf_counter() - mark
     summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"],

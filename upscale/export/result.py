@@ -8,9 +8,22 @@ from pathlib import Path
 from typing import Any
 
 from ..upscaled import Upscaled
+import numpy as np
+
 from .geotiff import PROPERTY_UNITS, write_property
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
+
+
+#: File of the coarse face transmissibilities along each axis (direct upscaling only).
+FACE_FILES = {axis: f"transmissibility_{axis}.tif" for axis in "xyz"}
+
+
+def _face_after(faces: np.ndarray, axis: int) -> np.ndarray:
+    """Faces between blocks i and i+1 along `axis`, stored at block i (NaN after the last)."""
+    pad = [(0, 0)] * 3
+    pad[axis] = (0, 1)
+    return np.pad(faces, pad, constant_values=np.nan)
 
 
 def update_summary(folder: str | Path, changes: dict[str, Any]) -> dict[str, Any]:
@@ -65,10 +78,16 @@ def write_result(
     tags = {"method": result.method, "block": str(result.block), "tool": "upscale"}
     with staged_folder(folder, overwrite) as stage:
         files = []
-        for name, values in coarse.properties().items():
+        for name, values in {**coarse.properties(), **result.tensor}.items():
             unit = PROPERTY_UNITS.get(name, coarse.unit)
             write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
             files.append(f"{name}.tif")
+        for axis in "xyz"[: coarse.ndim] if result.faces is not None else ():
+            a = "zyx".index(axis)
+            name = FACE_FILES[axis]
+            write_property(stage / name, _face_after(result.faces[a], a), coarse.grid,
+                           f"transmissibility_{axis}", f"{coarse.unit}·m", tags)  # fmt: skip
+            files.append(name)
         summary = build_summary(
             result, files=files, command=command, timings=timings, check=check, read=read
         )

@@ -10,8 +10,10 @@ from typing import Any
 
 import numpy as np
 
+from ..anisotropy import tensor_summary
 from ..caution import CAUTION
 from ..field import Grid
+from ..methods.registry import METHODS
 from ..stats import scan_values
 from ..upscaled import Upscaled
 
@@ -138,6 +140,12 @@ def build_summary(
         "timings_s": timings or {},
         "caution": CAUTION,
     }
+    if METHODS[result.method].local:
+        summary["tensor"] = tensor_summary(coarse, result.tensor)
+        summary["transmissibility"] = {
+            "rule": "two-block flow solves" if result.faces is not None else "harmonic half-block",
+            "replaced_faces": result.replaced_faces,
+        }
     if fine.porosity is not None:
         pore = np.nansum(coarse.porosity * coarse.grid.cell_volumes())
         summary["active"]["coarse_pore_volume_m3"] = float(pore)

@@ -10,12 +10,14 @@ edge blocks keep their true sizes.
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import InputError
 from ..field import Field
+from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from .read import read_field, sha256
 from .windows import open_raster
@@ -23,7 +25,7 @@ from .windows import open_raster
 SUMMARY = "summary.json"
 
 
-def read_run(folder: str | Path) -> tuple[dict, Field, Field]:
+def read_run(folder: str | Path) -> tuple[dict, Field, Field | Transmissibilities]:
     """Load an output folder of ``upscale run``.
 
     Parameters
@@ -37,8 +39,10 @@ def read_run(folder: str | Path) -> tuple[dict, Field, Field]:
         The run's ``summary.json``.
     fine : Field
         The fine field as the run used it (cropped to whole blocks if it cropped).
-    coarse : Field
-        The coarse permeabilities read from the run's GeoTIFFs.
+    coarse : Field or Transmissibilities
+        The coarse permeabilities read from the run's GeoTIFFs; for a run
+        that upscaled its face transmissibilities directly, the coarse
+        transmissibilities with those faces.
 
     Raises
     ------
@@ -76,4 +80,16 @@ def read_run(folder: str | Path) -> tuple[dict, Field, Field]:
     coarse_field = Field(
         kx=coarse["kx"], ky=coarse["ky"], kz=coarse.get("kz"), porosity=None, grid=grid, unit=fine.unit
     )
-    return summary, fine, coarse_field
+    if "transmissibility_x.tif" not in summary.get("files", []):
+        return summary, fine, coarse_field
+    harmonic = transmissibilities(coarse_field)
+    faces = []
+    for axis in (0, 1, 2):
+        name = "transmissibility_" + "zyx"[axis] + ".tif"
+        if axis == 0 and fine.ndim == 2:
+            faces.append(harmonic.faces[0])
+            continue
+        with open_raster(str(folder / name)) as src:
+            after = src.read().astype(np.float64)
+        faces.append(np.take(after, np.arange(after.shape[axis] - 1), axis=axis))
+    return summary, fine, replace(harmonic, faces=tuple(faces))
