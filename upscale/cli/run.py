@@ -47,14 +47,16 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @click.pass_context
 def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
-        bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None, no_check: bool, solver: str,
-        tolerance: float, check_limit: int, out: str, overwrite: bool,
+        bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,
+        no_check: bool, solver: str, tolerance: float, check_limit: int, out: str, overwrite: bool,
         **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method.
 
     Writes one GeoTIFF per property into the output folder — kx.tif, ky.tif,
-    kz.tif (3D), porosity.tif (when given) — on the coarse grid with the
-    input's CRS, plus summary.json with the input checksums, every parameter
+    kz.tif (3D), porosity.tif (when given), the off-diagonal tensor terms
+    (kxy.tif ...) of the linear and periodic flow methods and the face
+    transmissibilities (transmissibility_x.tif ...) of flow-transmissibility —
+    on the coarse grid with the input's CRS, plus summary.json with the input checksums, every parameter
     and the statistics of fine and coarse values. Then checks, for every axis,
     that the coarse model passes the same flow as the fine one under the same
     pressure drop, and records the errors in summary.json.
@@ -63,6 +65,7 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     Examples:
       upscale run map.tif --block 8x8 --method geometric --out coarse/
       upscale run model.tif --dz 2 --kv-kh 0.1 --block 10x10x4 --method power --exponent 0.5 --out c/
+      upscale run map.tif --block 16x16 --method flow --bc periodic --border 4 --out tensor/
     """
     check_destination(out, overwrite)
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)

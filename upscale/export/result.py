@@ -7,13 +7,12 @@ import os
 from pathlib import Path
 from typing import Any
 
-from ..upscaled import Upscaled
 import numpy as np
 
+from ..upscaled import Upscaled
 from .geotiff import PROPERTY_UNITS, write_property
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
-
 
 #: File of the coarse face transmissibilities along each axis (direct upscaling only).
 FACE_FILES = {axis: f"transmissibility_{axis}.tif" for axis in "xyz"}
