@@ -28,6 +28,7 @@ few more groups.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from typing import Any
 
 import numpy as np
@@ -42,7 +43,9 @@ from ..parallel import apply_regions
 TENSOR = ("kzz", "kzy", "kzx", "kyz", "kyy", "kyx", "kxz", "kxy", "kxx")
 
 
-def _half_cells(arrays: tuple[np.ndarray, ...], dz: np.ndarray, cell: tuple[float, float]) -> list:
+def _half_cells(
+    arrays: tuple[np.ndarray, ...], dz: np.ndarray, cell: tuple[float, float]
+) -> tuple[list[np.ndarray], Grid]:
     kz, ky, kx = arrays
     grid = Grid(dz=dz, dy=np.full(kx.shape[1], cell[0]), dx=np.full(kx.shape[2], cell[1]))
     return [half_cell(k, grid, axis) for axis, k in enumerate((kz, ky, kx))], grid
@@ -63,12 +66,19 @@ def _gather(t: list[np.ndarray], grid: Grid, origin: np.ndarray, shape: tuple) -
     return boxes, h
 
 
-def _groups(origin: np.ndarray, stop: np.ndarray):
-    """Indices of the boxes of each distinct shape."""
+#: Fine cells gathered into one compiled call (bounds the copies of the boxes: 24 bytes a cell).
+BATCH_CELLS = 2**20
+
+
+def _groups(origin: np.ndarray, stop: np.ndarray) -> Iterator[tuple[tuple[int, ...], np.ndarray]]:
+    """Indices of the boxes of each distinct shape, in batches of about `BATCH_CELLS` cells."""
     shapes = stop - origin
     unique, inverse = np.unique(shapes, axis=0, return_inverse=True)
     for g, shape in enumerate(unique):
-        yield tuple(int(s) for s in shape), np.flatnonzero(inverse.ravel() == g)
+        members = np.flatnonzero(inverse.ravel() == g)
+        step = max(1, BATCH_CELLS // int(np.prod(shape)))
+        for i in range(0, members.size, step):
+            yield tuple(int(s) for s in shape), members[i : i + step]
 
 
 def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int) -> np.ndarray:
