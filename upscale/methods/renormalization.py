@@ -90,7 +90,7 @@ def renormalized_properties(field: Field, cells: tuple[int, int, int]) -> dict[s
     """
     wrong = [n for n in cells if n & (n - 1)]
     if wrong:
-        block = "x".join(map(str, cells[::-1]))
+        block = "x".join(map(str, cells[::-1][: field.ndim]))
         raise InputError(
             f"renormalization coarsens by 2 at each step, so every block size must be a power of "
             f"two; {block} is not (use e.g. 4, 8, 16 or 32 cells, or --method flow)"
