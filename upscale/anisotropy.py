@@ -55,7 +55,8 @@ def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> dict[s
         part; blocks with λmin <= 0 are counted in ``blocks_not_positive``),
         ``off_diagonal_max`` and ``off_diagonal_p95`` (largest relative
         off-diagonal term per block), ``blocks_above_warning`` and ``warning``
-        (a sentence, or None).
+        (a sentence, or None), and ``blocks_without_path``: per axis, the active
+        blocks with no flowing path along it (value 0).
 
     Examples
     --------
@@ -68,6 +69,7 @@ def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> dict[s
     K = tensors(coarse, off_diagonal)
     if K.shape[0] == 0:
         return {"blocks": 0}
+    without = {axis: int((K[:, i, i] == 0).sum()) for i, axis in enumerate(coarse.axes)}
     eig = np.linalg.eigvalsh(0.5 * (K + np.swapaxes(K, 1, 2)))
     positive = eig[:, 0] > 0
     ratio = eig[positive, -1] / eig[positive, 0]
@@ -94,4 +96,5 @@ def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> dict[s
         "off_diagonal_p95": float(np.percentile(per_block, 95)),
         "blocks_above_warning": above,
         "warning": warning,
+        "blocks_without_path": without,
     }

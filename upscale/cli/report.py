@@ -77,6 +77,10 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
                    f"{number(tensor['off_diagonal_max'], '.2%')} of the diagonal")  # fmt: skip
         if tensor["warning"]:
             click.echo(f"warning: {tensor['warning']}")
+        closed = {a: n for a, n in tensor["blocks_without_path"].items() if n}
+        if closed:
+            click.echo("blocks with no flowing path (value 0): "
+                       + ", ".join(f"{n} along {a}" for a, n in closed.items()))  # fmt: skip
     faces = summary.get("transmissibility")
     if faces and faces["rule"] != "harmonic half-block":
         click.echo(f"coarse transmissibilities from {faces['rule']}"
