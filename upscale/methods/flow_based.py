@@ -66,6 +66,9 @@ def _gather(t: list[np.ndarray], grid: Grid, origin: np.ndarray, shape: tuple) -
     return boxes, h
 
 
+#: Tensor terms below this fraction of a block's largest term are rounding, and set to 0.
+ROUNDING = 1e-11
+
 #: Fine cells gathered into one compiled call (bounds the copies of the boxes: 24 bytes a cell).
 BATCH_CELLS = 2**20
 
@@ -101,7 +104,12 @@ def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int
     full[good] = -np.linalg.solve(np.swapaxes(g[good], 1, 2), np.swapaxes(u[good], 1, 2)).swapaxes(1, 2)
     if bc == PERIODIC and border:
         full = 0.5 * (full + np.swapaxes(full, 1, 2))
-    # a block whose mean gradient is undefined keeps its diagonal terms only
+    # rounding left where nothing flows (a block cut across an axis) is set to 0
+    full[np.abs(full) <= ROUNDING * np.abs(full).max(axis=(1, 2), keepdims=True)] = 0.0
+    # a block whose mean gradient is undefined, or whose tensor is not positive
+    # definite (possible with a border), keeps its diagonal terms only
+    nonzero = np.abs(full).max(axis=(1, 2)) > 0
+    good &= ~nonzero | (np.linalg.eigvalsh(0.5 * (full + np.swapaxes(full, 1, 2)))[:, 0] > 0)
     bad = np.flatnonzero(~good)
     full[bad] = 0.0
     full[bad[:, None], np.arange(len(flow)), np.arange(len(flow))] = diagonal[bad]
@@ -237,6 +245,8 @@ def options_for(field_grid: Grid, ndim: int) -> dict[str, Any]:
 
 
 def _check_border(field: Field, border: int) -> None:
+    if isinstance(border, bool) or not isinstance(border, (int, np.integer)):
+        raise InputError(f"--border must be a whole number of fine cells, not {border!r}")
     if border < 0:
         raise InputError(f"--border must be 0 or more fine cells, not {border}")
     largest = max(field.shape[a] for a in range(3) if field.ndim == 3 or a > 0)
