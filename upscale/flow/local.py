@@ -182,7 +182,7 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
 
 
 @nb.njit(**EXACT_JIT)
-def _pressure(t, h, shape, order, ab, pinned, bc, axes, fixed_axis, a, centre, length):
+def _pressure(t, shape, order, ab, pinned, bc, axes, fixed_axis, a, centre, length):
     """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
     n = t.shape[1]
     stride = (shape[1] * shape[2], shape[2], 1)
@@ -297,7 +297,7 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
         if bc == SEALED or pinned.size == 0:
             pinned, connected = _assemble(t, shape, order, bc, axes, a, ab, floating)
             factor(ab)
-        p = _pressure(t, h, shape, order, ab, pinned, bc, axes, a, a, centre, length)
+        p = _pressure(t, shape, order, ab, pinned, bc, axes, a, a, centre, length)
         _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, a, centre, length, U, G)
         if bc == SEALED and not connected:
             U[a, :] = 0.0  # no path between the fixed faces: what moves is rounding
@@ -350,7 +350,7 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
     centre, length = _geometry(h, shape)
     pinned, connected = _assemble(t, shape, order, SEALED, axes, a, ab, floating)
     factor(ab)
-    p = _pressure(t, h, shape, order, ab, pinned, SEALED, axes, a, a, centre, length)
+    p = _pressure(t, shape, order, ab, pinned, SEALED, axes, a, a, centre, length)
     flux = 0.0
     sums = np.zeros(4)
     for iz in range(lo[0], hi[0]):
