@@ -103,27 +103,74 @@ def check_flow(
     >>> abs(check["x"].rel_error) < 1e-12, round(check["y"].rel_error, 4)   # exact along, not across
     (True, 0.5625)
     """
+    fine_flows = fine_solves(fine, axes or fine.axes, solver=solver, tolerance=tolerance)
+    return coarse_check(fine_flows, coarse, solver=solver, tolerance=tolerance)
+
+
+def fine_solves(
+    fine: Field, axes: tuple[str, ...], *, solver: str = "auto", tolerance: float = 1e-10
+) -> dict[str, AxisFlow]:
+    """The fine half of the check: one pressure-drop solve per axis, to share between methods.
+
+    Parameters
+    ----------
+    fine : Field
+        The fine field (dask arrays are loaded into memory).
+    axes : tuple of str
+        Axes to solve along.
+    solver, tolerance
+        As in `check_flow`.
+
+    Returns
+    -------
+    dict of str to AxisFlow
+    """
+    fine_t = transmissibilities(fine)
+    return {axis: pressure_drop(fine_t, axis, solver=solver, tolerance=tolerance) for axis in axes}
+
+
+def coarse_check(
+    fine_flows: dict[str, AxisFlow],
+    coarse: Field | Transmissibilities,
+    *,
+    solver: str = "auto",
+    tolerance: float = 1e-10,
+) -> dict[str, AxisCheck]:
+    """The coarse half of the check, against fine solves from `fine_solves`.
+
+    Raises
+    ------
+    InputError
+        If the two grids do not cover the same domain.
+    """
     coarse_t = coarse if isinstance(coarse, Transmissibilities) else transmissibilities(coarse)
-    for name, a, b in zip("zyx", (fine.grid.dz, fine.grid.dy, fine.grid.dx),
+    fine_grid = next(iter(fine_flows.values())).trans.grid
+    for name, a, b in zip("zyx", (fine_grid.dz, fine_grid.dy, fine_grid.dx),
                           (coarse_t.grid.dz, coarse_t.grid.dy, coarse_t.grid.dx)):  # fmt: skip
         if not math.isclose(a.sum(), b.sum(), rel_tol=1e-9):
             raise InputError(
                 f"the fine and coarse grids differ in extent along {name}: {a.sum():g} m against "
                 f"{b.sum():g} m; they must cover the same domain"
             )
-    fine_t = transmissibilities(fine)
-    checks = {}
-    for axis in axes or fine.axes:
-        checks[axis] = AxisCheck(
-            axis,
-            pressure_drop(fine_t, axis, solver=solver, tolerance=tolerance),
-            pressure_drop(coarse_t, axis, solver=solver, tolerance=tolerance),
-        )
-    return checks
+    return {
+        axis: AxisCheck(axis, flow, pressure_drop(coarse_t, axis, solver=solver, tolerance=tolerance))
+        for axis, flow in fine_flows.items()
+    }
 
 
 #: Fine cells above which the check is not run in memory (about 2.5 GB of solver data).
 DEFAULT_LIMIT = 20_000_000
+
+
+def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
+    """Why a fine grid of `shape` is not solved whole under the limit, or None if it is."""
+    cells = math.prod(shape)
+    if cells <= max_cells:
+        return None
+    return (
+        f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
+        "raise --check-limit if the memory allows (about 130 bytes per cell)"
+    )
 
 
 def check_summary(
@@ -149,11 +196,8 @@ def check_summary(
     dict
         Per axis ``AxisCheck.summary()``, or ``{"skipped": reason}``.
     """
-    cells = math.prod(fine.shape)
-    if cells > max_cells:
-        return {
-            "skipped": f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
-            "raise --check-limit if the memory allows (about 130 bytes per cell)"
-        }
+    reason = too_large(fine.shape, max_cells)
+    if reason:
+        return {"skipped": reason}
     checks = check_flow(fine, coarse, solver=solver, tolerance=tolerance)
     return {axis: c.summary() for axis, c in checks.items()}

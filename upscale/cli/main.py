@@ -49,11 +49,12 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
 
 def _register() -> None:
     from .check import check
+    from .compare import compare
     from .demo import demo
     from .info import info
     from .run import run
 
-    for command in (run, check, info, demo):
+    for command in (run, compare, check, info, demo):
         cli.add_command(command)
 
 

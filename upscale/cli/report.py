@@ -89,7 +89,11 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     click.echo("")
     print_check(summary["check"])
     click.echo("")
-    click.echo(f"wrote {', '.join(summary['files'] + ['summary.json'])} to {Path(out)}")
+    files = [f for f in summary["files"] if not f.startswith("figures/")]
+    figures = sum(f.endswith(".png") for f in summary["files"] if f.startswith("figures/"))
+    if figures:
+        files.insert(len(files) - ("report.html" in files), f"{figures} figures in figures/ (PNG, SVG)")
+    click.echo(f"wrote {', '.join(files + ['summary.json'])} to {Path(out)}")
 
 
 def _solve(solve: dict) -> str:

@@ -7,11 +7,14 @@ import time
 import click
 
 from ..caution import CAUTION
-from ..check import check_summary
+from ..check import check_flow, too_large
+from ..compare import single
+from ..errors import InputError
 from ..export import check_destination, write_result
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
 from ..methods.registry import METHODS
+from ..report.bundle import bundle
 from ..upscaled import coarsen
 from .options import check_options, field_options, parse_bytes, read_options, recorded
 from .progress import progress
@@ -41,6 +44,13 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Target memory per chunk (e.g. 64MB); bounds the memory used.")
 @click.option("--no-check", is_flag=True, help="Skip the fine-versus-coarse flow check.")
+@click.option("--plot", is_flag=True,
+              help="Also write the figures of this run (figures/*.png and *.svg): maps, check "
+              "errors, bounds, histograms, flux mismatch, pressures.")
+@click.option("--report", "html_report", is_flag=True,
+              help="Also write report.html: one self-contained page with the figures and the check.")
+@click.option("--layer", type=click.IntRange(min=1), default=None,
+              help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @check_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder (created; must be empty unless --overwrite).")
@@ -48,7 +58,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.pass_context
 def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
         bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,
-        no_check: bool, solver: str, tolerance: float, check_limit: int, out: str, overwrite: bool,
+        no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
+        tolerance: float, check_limit: int, out: str, overwrite: bool,
         **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method.
 
@@ -68,6 +79,8 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
       upscale run map.tif --block 16x16 --method flow --bc periodic --border 4 --out tensor/
     """
     check_destination(out, overwrite)
+    if (plot or html_report) and no_check:
+        raise InputError("--plot and --report show the flow check; leave out --no-check")
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
     timings = {}
     start = time.perf_counter()
@@ -77,13 +90,29 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     with progress(ctx.obj["quiet"]):
         result = coarsen(fine, spec, method, exponent=exponent, bc=bc, border=border)
     timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
-    check = None
+    check, checks = None, None
     if not no_check:
         mark = time.perf_counter()
-        check = check_summary(result.fine, result.transmissibilities(), solver=solver, tolerance=tolerance,
-                              max_cells=check_limit)  # fmt: skip
+        reason = too_large(result.fine.shape, check_limit)
+        if reason and (plot or html_report):
+            raise InputError(f"--plot and --report show the flow check, and {reason}")
+        if reason:
+            check = {"skipped": reason}
+        else:
+            checks = check_flow(result.fine, result.transmissibilities(), solver=solver,
+                                tolerance=tolerance)  # fmt: skip
+            check = {axis: c.summary() for axis, c in checks.items()}
         timings["check_s"] = time.perf_counter() - mark
+    made = None
+    if checks and (plot or html_report):
+        if layer is not None and (result.fine.ndim != 3 or layer > result.fine.shape[0]):
+            raise InputError(f"--layer {layer}: the field has {result.fine.shape[0]} layer(s)")
+        made = bundle(single(result, checks, timings["upscale_s"]),
+                      title=f"upscale — {result.method} on {field}", command=ctx.obj["command"],
+                      layer=None if layer is None else layer - 1)  # fmt: skip
     summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"],
-                           timings=timings, check=check, read=recorded(read))  # fmt: skip
+                           timings=timings, check=check, read=recorded(read),
+                           images=made.images if made and plot else None,
+                           page=made.page if made and html_report else None)  # fmt: skip
     if not ctx.obj["quiet"]:
         print_result(result, summary, out)

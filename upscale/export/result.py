@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 
 from ..upscaled import Upscaled
+from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
@@ -49,6 +50,8 @@ def write_result(
     timings: dict[str, float] | None = None,
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
+    images: list[tuple[str, bytes, bytes]] | None = None,
+    page: str | None = None,
 ) -> dict[str, Any]:
     """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
 
@@ -67,6 +70,10 @@ def write_result(
     check, read : dict, optional
         The flow check and the read options, recorded in the summary (see
         `upscale.export.summary.build_summary`).
+    images : list of (str, bytes, bytes), optional
+        Figures to write as ``figures/NAME.png`` and ``.svg``.
+    page : str, optional
+        An HTML report to write as ``report.html``.
 
     Returns
     -------
@@ -87,6 +94,11 @@ def write_result(
             write_property(stage / name, _face_after(result.faces[a], a), coarse.grid,
                            f"transmissibility_{axis}", f"{coarse.unit}·m", tags)  # fmt: skip
             files.append(name)
+        if images:
+            files += write_figures(stage, images)
+        if page is not None:
+            (stage / "report.html").write_text(page, encoding="utf-8")
+            files.append("report.html")
         summary = build_summary(
             result, files=files, command=command, timings=timings, check=check, read=read
         )

@@ -110,6 +110,8 @@ def _commit(stage: Path, folder: Path, marker: str) -> None:
     names = sorted(p.name for p in stage.iterdir())
     for name in names:
         if name != marker:
+            if (folder / name).is_dir() and not (folder / name).is_symlink():
+                shutil.rmtree(folder / name)  # a folder of ours (figures/), replaced whole
             os.replace(stage / name, folder / name)
     for name in stale - set(names):
         if isinstance(name, str) and Path(name).name == name:  # plain file names only

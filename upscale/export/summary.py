@@ -34,7 +34,8 @@ def _version(name: str) -> str:
         return "not installed"
 
 
-def _grid(grid: Grid) -> dict[str, Any]:
+def grid_summary(grid: Grid) -> dict[str, Any]:
+    """A grid as JSON-ready data: shape, cell sizes in m, CRS and transform."""
     layers, rows, cols = grid.shape
     out: dict[str, Any] = {
         "shape": {"layers": layers, "rows": rows, "columns": cols},
@@ -120,8 +121,8 @@ def build_summary(
             "min_active": spec.min_active,
         },
         "dimensions": fine.ndim,
-        "fine": _grid(fine.grid),
-        "coarse": _grid(coarse.grid),
+        "fine": grid_summary(fine.grid),
+        "coarse": grid_summary(coarse.grid),
         "active": {
             "fine_cells": result.fine_stats["kx"].active,
             "coarse_blocks": active_blocks,

@@ -50,6 +50,8 @@ class AxisFlow:
         How the linear solve went (see `upscale.flow.solvers.SolveInfo`).
     pressure : ndarray of shape (L, M, N)
         Cell pressures (inlet 1, outlet 0); NaN where not solved.
+    trans : Transmissibilities
+        The transmissibilities solved with (for face fluxes from `pressure`).
     """
 
     axis: str
@@ -64,6 +66,7 @@ class AxisFlow:
     iterations: int
     residual: float
     pressure: np.ndarray
+    trans: Transmissibilities
 
 
 def pressure_drop(
@@ -151,4 +154,5 @@ def pressure_drop(
         iterations=info.iterations,
         residual=info.residual,
         pressure=pressure.reshape(shape),
+        trans=trans,
     )

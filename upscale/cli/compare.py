@@ -1,0 +1,128 @@
+"""``upscale compare``: every method on one field, checked, ranked, plotted and reported."""
+
+from __future__ import annotations
+
+import math
+
+import click
+import numpy as np
+
+from ..caution import CAUTION
+from ..check import too_large
+from ..compare import Candidate, Entry, candidates, compare_methods
+from ..errors import InputError
+from ..export import check_destination
+from ..export.comparison import compare_summary, write_comparison
+from ..field import PERMEABILITY
+from ..grid import REMAINDER_POLICIES, BlockSpec
+from ..io import read_field
+from ..methods.registry import METHODS
+from ..report.bundle import bundle
+from .options import check_options, field_options, parse_bytes, read_options, recorded
+from .report import number, table
+
+
+def _methods(text: str | None) -> list[str] | None:
+    return None if not text else [m.strip() for m in text.split(",") if m.strip()]
+
+
+@click.command(epilog=f"Caution: {CAUTION}")
+@click.argument("field", type=click.Path(dir_okay=False))
+@click.option("--block", required=True, metavar="NXxNY[xNZ]",
+              help="Fine cells per coarse block, x (columns) first.")
+@click.option("--methods", default=None, metavar="A,B,...",
+              help=f"Methods to compare (default: all): {', '.join(METHODS)}. 'flow' without --bc "
+              "stands for its three boundary conditions.")
+@click.option("--exponent", type=float, default=None,
+              help="Exponent ω of the power average [default: 1/3].")
+@click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
+              help="Boundary conditions of the flow methods [default: all three for flow].")
+@click.option("--border", type=int, default=None, metavar="CELLS",
+              help="Border of the flow methods' local solves, in fine cells [default: 0].")
+@click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop", show_default=True,
+              help="When the grid does not divide into whole blocks: stop, crop or keep edge blocks.")
+@click.option("--min-active", type=click.FloatRange(0, 1), default=0.0, show_default=True,
+              help="Blocks whose active volume fraction is below this become inactive.")
+@click.option("--layer", type=click.IntRange(min=1), default=None,
+              help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
+@field_options
+@click.option("--chunk", default=None, metavar="SIZE", help="Target memory per chunk (e.g. 64MB).")
+@check_options
+@click.option("--out", "out", required=True, type=click.Path(file_okay=False),
+              help="Output folder for compare.json, figures/ and report.html.")
+@click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
+@click.pass_context
+def compare(ctx: click.Context, field: str, block: str, methods: str | None, exponent: float | None,
+            bc: str | None, border: int | None, remainder: str, min_active: float,
+            layer: int | None, chunk: str | None, solver: str, tolerance: float, check_limit: int,
+            out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+    """Upscale FIELD with every method, check each against the fine model, and rank them.
+
+    The fine model is solved once per axis and shared by all methods; each
+    method's coarse model is solved under the same pressure drops, and the
+    methods are ranked by their largest check error over the axes. Writes
+    compare.json, figures/ (PNG and SVG) and report.html (self-contained)
+    into the output folder. A method that cannot run on this field is listed
+    with its reason.
+
+    \b
+    Examples:
+      upscale compare map.tif --block 8x8 --out cmp/
+      upscale compare map.tif --block 16x16 --methods geometric,flow --border 2 --out cmp/
+    """
+    check_destination(out, overwrite)
+    chosen = candidates(_methods(methods), bc=bc, border=border, exponent=exponent)
+    spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
+    read = read_options(options)
+    fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read)
+    reason = too_large(fine.shape, check_limit)
+    if reason:
+        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    if layer is not None and (fine.ndim != 3 or layer > fine.shape[0]):
+        raise InputError(f"--layer {layer}: the field has {fine.shape[0]} layer(s)")
+    quiet = ctx.obj["quiet"]
+    result = compare_methods(fine, spec, chosen, solver=solver, tolerance=tolerance,
+                             report=None if quiet else _progress)  # fmt: skip
+    if result.best is None:
+        raise InputError("no method ran on this field: " + "; ".join(
+            f"{e.candidate.label}: {e.error}" for e in result.entries))  # fmt: skip
+    files = bundle(result, title=f"upscale — methods compared on {field}", command=ctx.obj["command"],
+                   layer=None if layer is None else layer - 1)  # fmt: skip
+    summary = compare_summary(result, command=ctx.obj["command"], read=recorded(read))
+    write_comparison(out, summary, files.images, files.page, overwrite=overwrite)
+    if not quiet:
+        _print(result.entries, fine.axes, fine.unit)
+        click.echo(f"\nbest: {result.best.candidate.label}")
+        click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
+
+
+def _progress(i: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
+    if entry is None:
+        click.echo(f"[{i + 1}/{n}] {candidate.label} ...", err=True)
+    elif entry.error:
+        click.echo(f"[{i + 1}/{n}] {candidate.label}: did not run ({entry.error})", err=True)
+    else:
+        click.echo(f"[{i + 1}/{n}] {candidate.label}: done in {entry.seconds:.2f} s", err=True)
+
+
+def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
+    rows = []
+    for e in entries:
+        if e.error:
+            rows.append([e.candidate.label, "-", *(["-"] * (2 * len(axes))), f"{e.seconds:.2f}"])
+            continue
+        coarse = e.result.coarse
+        means = [number(_mean(getattr(coarse, PERMEABILITY[a]))) for a in axes]
+        errors = [f"{100 * e.checks[a].rel_error:+.2f} %" for a in axes]
+        rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
+    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
+    click.echo(table(header, rows))
+    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop)")
+    for e in entries:
+        if e.error:
+            click.echo(f"{e.candidate.label} did not run: {e.error}")
+
+
+def _mean(values: np.ndarray) -> float:
+    finite = values[np.isfinite(values)]
+    return float(finite.mean()) if finite.size else math.nan

@@ -1,0 +1,279 @@
+"""Stage 6a: several methods on one field, checked against one shared fine solve and ranked.
+
+`compare_methods` upscales the field with each method, solves the coarse
+model of each under the same pressure drops as the fine model — the fine
+solves are done once and shared — and ranks the methods by their largest
+absolute check error over the axes. A method that cannot run on this field
+(renormalization on a block that is not a power of two, a harmonic mean of
+zeros...) is kept in the list with its reason instead of stopping the
+comparison.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+from .check import AxisCheck, coarse_check, fine_solves
+from .errors import InputError
+from .field import Field
+from .flow import AxisFlow
+from .grid import BlockSpec
+from .methods.registry import METHODS
+from .upscaled import Upscaled, coarsen
+
+#: Boundary conditions a comparison tries for ``flow`` unless one is chosen.
+ALL_CONDITIONS = ("sealed", "linear", "periodic")
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One method with its options, as compared.
+
+    Attributes
+    ----------
+    label : str
+        Name in tables and figures, e.g. ``flow (periodic)``.
+    method : str
+        Method name (a key of `upscale.METHODS`).
+    options : dict
+        The method's options.
+    """
+
+    label: str
+    method: str
+    options: dict
+
+
+@dataclass(frozen=True, eq=False)
+class Entry:
+    """The outcome of one candidate.
+
+    Attributes
+    ----------
+    candidate : Candidate
+    result : Upscaled or None
+        None when the method failed.
+    checks : dict of str to AxisCheck
+        Per axis, the shared fine solve and this method's coarse solve.
+    seconds : float
+        Time to upscale and solve the coarse checks.
+    error : str or None
+        Why the method could not run on this field.
+    rank : int or None
+        1 for the smallest largest-error; None for a failed method.
+    """
+
+    candidate: Candidate
+    result: Upscaled | None
+    checks: dict[str, AxisCheck]
+    seconds: float
+    error: str | None = None
+    rank: int | None = None
+
+    @property
+    def worst_error(self) -> float:
+        """Largest ``|rel_error|`` over the axes (inf for a failed method or a NaN error)."""
+        if self.error is not None or not self.checks:
+            return math.inf
+        errors = [abs(c.rel_error) for c in self.checks.values()]
+        return math.inf if any(math.isnan(e) for e in errors) else max(errors)
+
+
+@dataclass(frozen=True, eq=False)
+class Comparison:
+    """Every candidate's outcome, ranked, with the shared fine solves.
+
+    Attributes
+    ----------
+    fine : Field
+        The fine field as used (cropped to whole blocks when asked).
+    block : BlockSpec
+    entries : list of Entry
+        In rank order; failed methods last.
+    fine_flows : dict of str to AxisFlow
+        The fine pressure-drop solve along each axis.
+    candidates : list of Candidate
+        The candidates in the order given (which breaks ties).
+    """
+
+    fine: Field
+    block: BlockSpec
+    entries: list[Entry]
+    fine_flows: dict[str, AxisFlow]
+    candidates: list[Candidate]
+
+    @property
+    def ranked(self) -> list[Entry]:
+        """The entries that ran, best first."""
+        return [e for e in self.entries if e.rank is not None]
+
+    @property
+    def best(self) -> Entry | None:
+        """The top-ranked entry (None if every method failed)."""
+        return self.ranked[0] if self.ranked else None
+
+    def best_along(self, axis: str) -> Entry | None:
+        """The entry with the smallest ``|rel_error|`` along one axis (ties: candidate order)."""
+        ran = [e for e in self.entries if e.error is None]
+        order = sorted(ran, key=lambda e: (_tied(abs(e.checks[axis].rel_error)), self._order[id(e)]))
+        return order[0] if order else None
+
+    @property
+    def _order(self) -> dict[int, int]:
+        return {id(e): self.candidates.index(e.candidate) for e in self.entries}
+
+
+def candidates(
+    methods: list[str] | None = None,
+    *,
+    bc: str | None = None,
+    border: int | None = None,
+    exponent: float | None = None,
+) -> list[Candidate]:
+    """The candidates of a comparison, from method names and shared options.
+
+    Parameters
+    ----------
+    methods : list of str, optional
+        Method names; default every method. ``flow`` without `bc` stands for
+        its three boundary conditions.
+    bc, border : optional
+        Options of the flow-based methods (``border`` defaults to 0).
+    exponent : float, optional
+        Exponent of ``power``; default 1/3 (for a 3D lognormal block the power
+        average with ω = 1/3 matches ``k_G exp(σ²/6)`` to first order; see
+        docs/methods.md).
+
+    Raises
+    ------
+    InputError
+        For an unknown method name (the message lists the valid ones).
+
+    Examples
+    --------
+    >>> [c.label for c in candidates(["geometric", "flow"])]
+    ['geometric', 'flow (sealed)', 'flow (linear)', 'flow (periodic)']
+    """
+    names = list(METHODS) if not methods else methods
+    unknown = [n for n in names if n not in METHODS]
+    if unknown:
+        raise InputError(f"unknown method {unknown[0]!r}; choose among {', '.join(METHODS)}")
+    found = []
+    for name in dict.fromkeys(names):
+        options: dict[str, Any] = {}
+        if name == "power":
+            options["exponent"] = 1.0 / 3.0 if exponent is None else exponent
+        if "border" in METHODS[name].options:
+            options["border"] = border or 0
+        conditions = [None]
+        if "bc" in METHODS[name].options:
+            conditions = [bc] if bc else (list(ALL_CONDITIONS) if name == "flow" else ["sealed"])
+        for condition in conditions:
+            opts = dict(options, **({"bc": condition} if condition else {}))
+            found.append(Candidate(_label(name, opts, len(conditions) > 1), name, opts))
+    return found
+
+
+def _label(name: str, options: dict, by_condition: bool) -> str:
+    parts = [options["bc"]] if by_condition else []
+    if options.get("border"):
+        parts.append(f"border {options['border']}")
+    if "exponent" in options:
+        parts.append(f"ω={options['exponent']:.3g}")
+    return name + (f" ({', '.join(parts)})" if parts else "")
+
+
+def compare_methods(
+    field: Field,
+    block: BlockSpec | str,
+    chosen: list[Candidate],
+    *,
+    solver: str = "auto",
+    tolerance: float = 1e-10,
+    report: Callable[[int, int, Candidate, Entry | None], None] | None = None,
+) -> Comparison:
+    """Upscale `field` with every candidate, check each against one fine solve, and rank.
+
+    Parameters
+    ----------
+    field : Field
+        The fine field.
+    block : BlockSpec or str
+        The block partition.
+    chosen : list of Candidate
+        From `candidates`.
+    solver, tolerance
+        Linear solves of the checks (see `upscale.check.check_flow`).
+    report : callable, optional
+        ``report(i, n, candidate, entry)`` before each candidate (entry None)
+        and after it — for progress messages.
+
+    Returns
+    -------
+    Comparison
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> layered = np.tile([[1.0], [4.0]], (4, 8))   # rows of 1 and 4: layers along x
+    >>> found = compare_methods(Field.from_arrays(layered), "2x2", candidates(["arithmetic", "harmonic"]))
+    >>> found.best_along("x").candidate.label, found.best_along("y").candidate.label
+    ('arithmetic', 'harmonic')
+    >>> [(e.candidate.label, e.rank) for e in found.entries]   # -36 % along x beats +56 % along y
+    [('harmonic', 1), ('arithmetic', 2)]
+    """
+    spec = BlockSpec.parse(block) if isinstance(block, str) else block
+    spec.check(field.shape, field.ndim)
+    fine = field.leading(spec.used_shape(field.shape))
+    fine_flows = fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
+    entries = []
+    for i, candidate in enumerate(chosen):
+        if report:
+            report(i, len(chosen), candidate, None)
+        start = time.perf_counter()
+        try:
+            result = coarsen(field, spec, candidate.method, **candidate.options)
+            checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
+                                  tolerance=tolerance)  # fmt: skip
+            entry = Entry(candidate, result, checks, time.perf_counter() - start)
+        except InputError as exc:
+            entry = Entry(candidate, None, {}, time.perf_counter() - start, error=str(exc))
+        entries.append(entry)
+        if report:
+            report(i, len(chosen), candidate, entry)
+    # errors equal to TIE are tied, and keep the order of the candidates
+    ran = sorted((e for e in entries if e.error is None), key=lambda e: _tied(e.worst_error))
+    ranked = [Entry(e.candidate, e.result, e.checks, e.seconds, None, r + 1) for r, e in enumerate(ran)]
+    failed = [e for e in entries if e.error is not None]
+    return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen))
+
+
+def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0) -> Comparison:
+    """A comparison of one: a run's result and its check, for the same figures and report.
+
+    Parameters
+    ----------
+    result : Upscaled
+        What `upscale.coarsen` returned.
+    checks : dict of str to AxisCheck
+        Its check, from `upscale.check.check_flow`.
+    seconds : float
+        Time the run took.
+    """
+    candidate = Candidate(_label(result.method, result.options, "bc" in result.options), result.method,
+                          result.options)  # fmt: skip
+    entry = Entry(candidate, result, checks, seconds, rank=1)
+    flows = {axis: check.fine for axis, check in checks.items()}
+    return Comparison(result.fine, result.block, [entry], flows, [candidate])
+
+
+#: Check errors closer than this are equal for ranking (far below any real difference).
+TIE = 1e-9
+
+
+def _tied(error: float) -> float:
+    return error if math.isinf(error) or math.isnan(error) else round(error / TIE) * TIE

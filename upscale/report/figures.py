@@ -1,0 +1,86 @@
+"""Every figure of a comparison, each with a one-line caption saying what to look for."""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass
+
+from matplotlib.figure import Figure
+
+from ..compare import Comparison
+from .charts import bounds_chart, error_bars, histograms
+from .maps import field_maps, mismatch_maps, pressure_maps
+
+
+@dataclass(frozen=True, eq=False)
+class Plot:
+    """A figure, the file stem it is saved under, and its caption."""
+
+    name: str
+    figure: Figure
+    caption: str
+
+
+def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None) -> list[Plot]:
+    """The figures of a comparison (or of one method: a comparison of one).
+
+    Parameters
+    ----------
+    comparison : Comparison
+        With at least one method that ran.
+    unit : str
+        Permeability unit for labels.
+    layer : int, optional
+        Fine layer drawn in plan for a 3D model (default: the middle one).
+
+    Returns
+    -------
+    list of Plot
+    """
+    fine = comparison.fine
+    if layer is None:
+        layer = fine.shape[0] // 2
+    plots = [
+        Plot("maps", field_maps(comparison, unit, layer=layer),
+             "Fine kx beside each method's coarse kx on one colour scale: look for channels and "
+             "barriers that vanish or smear in the coarse maps."),
+    ]  # fmt: skip
+    if fine.ndim == 3:
+        row = fine.shape[1] // 2
+        plots.append(Plot("section", field_maps(comparison, unit, row=row),
+                          f"Vertical section through fine row {row}: look for thin layers and "
+                          "shale breaks that the coarse layers lose."))  # fmt: skip
+    plots += [
+        Plot("errors", error_bars(comparison),
+             "Check error per method and axis; bars inside the grey ±5 % band pass the fine "
+             "model's flow closely, long bars mark the methods to distrust on this field."),
+        Plot("bounds", bounds_chart(comparison, unit),
+             "Coarse effective permeability of each method against the fine one (solid line) and "
+             "the bounds: a method outside the Cardwell–Parsons bounds is suspect."),
+        Plot("histograms", histograms(comparison, unit),
+             "Spread of kx: coarse blocks always spread less than fine cells; a method that "
+             "narrows it much more than the others smooths away extremes that carry flow."),
+    ]  # fmt: skip
+    for axis in fine.axes[:2]:
+        plots.append(Plot(f"mismatch_{axis}", mismatch_maps(comparison, axis=axis, layer=layer),
+                          f"Where each method errs under flow along {axis}: coarse-face flux minus "
+                          "the fine flux through the same face; strong colours sit on the paths "
+                          "a method misses (orange: too little flow, purple: too much)."))  # fmt: skip
+    plots.append(Plot("pressure", pressure_maps(comparison, layer=layer),
+                      "Fine pressure under a drop along x beside the coarse pressures of the best "
+                      "and the worst method: the best should follow the fine contours."))  # fmt: skip
+    return plots
+
+
+def rendered(plot: Plot, dpi: int = 130) -> tuple[bytes, bytes]:
+    """The figure as PNG and as SVG bytes (for files and for embedding in a page)."""
+    images = []
+    for kind in ("png", "svg"):
+        buffer = io.BytesIO()
+        plot.figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
+        images.append(buffer.getvalue())
+    return images[0], images[1]
+
+
+# fixed metadata, so the same figure gives the same bytes
+_METADATA = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None}}
