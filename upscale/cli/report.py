@@ -71,10 +71,11 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
                + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
     tensor = summary.get("tensor")
     if tensor and tensor.get("blocks"):
+        cross = tensor["off_diagonal_max"]
         click.echo(f"tensor: anisotropy (largest/smallest principal k) median "
                    f"{number(tensor['anisotropy_median'], '.3g')}, max "
-                   f"{number(tensor['anisotropy_max'], '.3g')}; largest off-diagonal "
-                   f"{number(tensor['off_diagonal_max'], '.2%')} of the diagonal")  # fmt: skip
+                   f"{number(tensor['anisotropy_max'], '.3g')}"
+                   + (f"; largest off-diagonal {number(cross, '.2%')} of the diagonal" if cross else ""))  # fmt: skip
         if tensor["warning"]:
             click.echo(f"warning: {tensor['warning']}")
         closed = {a: n for a, n in tensor["blocks_without_path"].items() if n}
