@@ -75,7 +75,8 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
         click.echo(f"tensor: anisotropy (largest/smallest principal k) median "
                    f"{number(tensor['anisotropy_median'], '.3g')}, max "
                    f"{number(tensor['anisotropy_max'], '.3g')}"
-                   + (f"; largest off-diagonal {number(cross, '.2%')} of the diagonal" if cross else ""))  # fmt: skip
+                   + (f"; largest off-diagonal {number(cross, '.2%')} of the diagonal"
+                      if cross else ""))  # fmt: skip
         if tensor["warning"]:
             click.echo(f"warning: {tensor['warning']}")
         closed = {a: n for a, n in tensor["blocks_without_path"].items() if n}

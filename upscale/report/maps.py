@@ -14,6 +14,7 @@ import numpy as np
 from affine import Affine
 from matplotlib.colors import Normalize, TwoSlopeNorm
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
 from ..compare import Comparison, Entry
 from ..field import Grid
@@ -44,6 +45,7 @@ def _coords(ax, grid: Grid, section: bool) -> None:
     ax.set_xlabel(f"x ({unit})")
     ax.set_ylabel("depth below top (m)" if section else f"y ({unit})")
     ax.tick_params(labelsize=7)
+    ax.xaxis.set_major_locator(MaxNLocator(4))
 
 
 def _crs_unit(grid: Grid) -> str:
