@@ -56,6 +56,10 @@ class Upscaled:
     faces : tuple of 3 ndarray or None
         Coarse face transmissibilities upscaled directly, in (unit of k) · m,
         laid out as `upscale.flow.Transmissibilities.faces`.
+    boundary : tuple of 3 (ndarray, ndarray) or None
+        With `faces`: the half transmissibilities of the first and last blocks
+        to the domain's outer faces, laid out as
+        `upscale.flow.Transmissibilities.boundary`.
     replaced_faces : int
         Faces between active blocks whose direct value was undefined (no
         pressure drop between the two blocks) and that took the harmonic
@@ -73,6 +77,7 @@ class Upscaled:
     lost_pore_volume: float = 0.0
     tensor: dict[str, np.ndarray] = field(default_factory=dict)
     faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+    boundary: tuple[tuple[np.ndarray, np.ndarray], ...] | None = None
     replaced_faces: int = 0
 
     def transmissibilities(self) -> Transmissibilities:
@@ -84,7 +89,7 @@ class Upscaled:
         harmonic = transmissibilities(self.coarse)
         if self.faces is None:
             return harmonic
-        return replace(harmonic, faces=self.faces)
+        return replace(harmonic, faces=self.faces, boundary=self.boundary)
 
 
 def coarsen(
@@ -180,12 +185,12 @@ def coarsen(
         unit=field.unit,
         sources=field.sources,
     )
-    replaced = 0
+    replaced, boundary = 0, None
     if faces is not None:
-        faces, replaced = _direct_faces(faces, transmissibilities(coarse).faces)
+        faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost,
-                    tensor, faces, replaced)  # fmt: skip
+                    tensor, faces, boundary, replaced)  # fmt: skip
 
 
 def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> dict[str, np.ndarray]:
@@ -199,19 +204,35 @@ def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> di
     return {k: np.array(v) for k, v in off.items() if np.any(v != 0)}
 
 
-def _direct_faces(direct: np.ndarray, harmonic: tuple) -> tuple[tuple, int]:
-    """Face transmissibilities from the per-block "face before" values.
+def _direct_faces(
+    direct: np.ndarray, harmonic: Transmissibilities, ndim: int
+) -> tuple[tuple, tuple, int]:
+    """Face and outer-face transmissibilities from `direct_properties`' per-block values.
 
-    Undefined ones take the harmonic value; faces touching an inactive block are closed.
+    Undefined ones take the harmonic value; faces touching an inactive block are
+    closed. A map keeps the harmonic (empty) z faces.
     """
-    faces, replaced = [], 0
-    for a, rule in enumerate(harmonic):
-        values = np.take(direct[a], np.arange(1, direct.shape[a + 1]), axis=a)
+    replaced = 0
+
+    def merge(values: np.ndarray, rule: np.ndarray) -> np.ndarray:
+        nonlocal replaced
         undefined = ~np.isfinite(values)
         closed = rule == 0
         replaced += int((undefined & ~closed).sum())
-        faces.append(np.where(undefined | closed, rule, values))
-    return tuple(faces), replaced
+        return np.where(undefined | closed, rule, values)
+
+    faces, boundary = [], []
+    for a, rule in enumerate(harmonic.faces):
+        if a == 0 and ndim == 2:
+            faces.append(rule)
+            boundary.append(harmonic.boundary[0])
+            continue
+        n = direct.shape[a + 1]
+        faces.append(merge(np.take(direct[a], np.arange(1, n), axis=a), rule))
+        first, last = harmonic.boundary[a]
+        boundary.append((merge(np.take(direct[a], [0], axis=a), first),
+                         merge(np.take(direct[3 + a], [n - 1], axis=a), last)))  # fmt: skip
+    return tuple(faces), tuple(boundary), replaced
 
 
 def _where(cells: tuple) -> str:

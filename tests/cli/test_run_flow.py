@@ -5,7 +5,8 @@ What is tested
 * ``--method flow --bc periodic --border 4`` writes kx, ky and the cross
   terms kxy, kyx equal to the library's, the tensor summary and its terminal
   line, and the check (the command of the issue's "done when").
-* ``--method flow-transmissibility`` writes the face transmissibility files;
+* ``--method flow-transmissibility`` writes the face transmissibility files
+  (inner faces and the half transmissibilities to the outer faces);
   the run's check uses them, and ``upscale check`` reading them back from the
   folder reproduces the run's coarse k_eff exactly (while block values alone
   with the harmonic rule would not).
@@ -69,12 +70,17 @@ def test_flow_transmissibility_faces_written_used_and_read_back(run_cli, demo_di
     assert "coarse transmissibilities from two-block flow solves" in stdout
     summary = json.loads((out / "summary.json").read_text())
     assert summary["transmissibility"]["rule"] == "two-block flow solves"
+    # every face normal to x, the two outer ones included: 17 for 16 blocks
     tx = _band(out / "transmissibility_x.tif")
-    assert np.all(np.isnan(tx[:, :, -1])) and np.all(tx[:, :, :-1] >= 0)
+    assert tx.shape == (1, 16, 17) and np.all(tx >= 0)
+    with rasterio.open(out / "transmissibility_x.tif") as faces, rasterio.open(out / "kx.tif") as kx:
+        assert faces.transform.c == pytest.approx(kx.transform.c - kx.transform.a / 2)
 
     result = upscale.coarsen(upscale.read_field(demo_dir / CHANNELS), "16x16",
                              "flow-transmissibility", border=2)  # fmt: skip
-    np.testing.assert_array_equal(tx[:, :, :-1], result.faces[2])
+    np.testing.assert_array_equal(tx[:, :, 1:-1], result.faces[2])
+    np.testing.assert_array_equal(tx[:, :, :1], result.boundary[2][0])
+    np.testing.assert_array_equal(tx[:, :, -1:], result.boundary[2][1])
     run_k = {axis: c["k_coarse"] for axis, c in summary["check"].items()}
     harmonic = check_flow(result.fine, result.coarse)
     assert any(abs(harmonic[a].coarse.k_eff - run_k[a]) > 1e-6 * run_k[a] for a in run_k)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -21,6 +22,7 @@ def write_property(
     tags: dict[str, str] | None = None,
     dtype: str = "float64",
     nodata: float = float("nan"),
+    transform: Any = None,
 ) -> None:
     """Write one coarse property to a GeoTIFF.
 
@@ -44,6 +46,8 @@ def write_property(
         Stored data type; float64 keeps coarse values exact.
     nodata : float
         Value stored for NaN cells and declared as the file's nodata value.
+    transform : affine.Affine, optional
+        Georeference of the raster if not the grid's (face rasters sit half a block off).
     """
     import rasterio
 
@@ -55,7 +59,7 @@ def write_property(
         "height": rows,
         "width": cols,
         "crs": grid.crs,
-        "transform": grid.transform,
+        "transform": grid.transform if transform is None else transform,
         "nodata": nodata,
         "compress": "deflate",
         "predictor": 3,

@@ -8,7 +8,9 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from affine import Affine
 
+from ..flow import Transmissibilities
 from ..upscaled import Upscaled
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
@@ -19,11 +21,14 @@ from .summary import build_summary, jsonable
 FACE_FILES = {axis: f"transmissibility_{axis}.tif" for axis in "xyz"}
 
 
-def _face_after(faces: np.ndarray, axis: int) -> np.ndarray:
-    """Faces between blocks i and i+1 along `axis`, stored at block i (NaN after the last)."""
-    pad = [(0, 0)] * 3
-    pad[axis] = (0, 1)
-    return np.pad(faces, pad, constant_values=np.nan)
+def face_raster(trans: Transmissibilities, axis: int) -> np.ndarray:
+    """Every face normal to `axis`, outer ones included: face i is the first face of block i.
+
+    Inner faces hold their T; the two outer faces hold the half transmissibility
+    of the block next to them. Shape: the coarse grid's with `axis` one longer.
+    """
+    first, last = trans.boundary[axis]
+    return np.concatenate([first, trans.faces[axis], last], axis=axis)
 
 
 def update_summary(folder: str | Path, changes: dict[str, Any]) -> dict[str, Any]:
@@ -88,12 +93,15 @@ def write_result(
             unit = PROPERTY_UNITS.get(name, coarse.unit)
             write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
             files.append(f"{name}.tif")
-        for axis in "xyz"[: coarse.ndim] if result.faces is not None else ():
+        direct = result.transmissibilities() if result.faces is not None else None
+        for axis in "xyz"[: coarse.ndim] if direct is not None else ():
             a = "zyx".index(axis)
-            name = FACE_FILES[axis]
-            write_property(stage / name, _face_after(result.faces[a], a), coarse.grid,
-                           f"transmissibility_{axis}", f"{coarse.unit}·m", tags)  # fmt: skip
-            files.append(name)
+            half = Affine.translation(-0.5, 0) if axis == "x" else Affine.translation(0, -0.5)
+            shifted = coarse.grid.transform @ half if coarse.grid.transform and axis != "z" else None
+            write_property(stage / FACE_FILES[axis], face_raster(direct, a), coarse.grid,
+                           f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
+                           transform=shifted)  # fmt: skip
+            files.append(FACE_FILES[axis])
         if images:
             files += write_figures(stage, images)
         if page is not None:

@@ -360,6 +360,8 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
                 pos = (iz, iy, ix)[a]
                 if pos == mid:
                     flux += _face(t, p, floating, shape, c, a, 0, SEALED, a, a, centre, length)[0]
+                elif mid == shape[a] and pos == mid - 1:  # the box's last face: the domain's
+                    flux += _face(t, p, floating, shape, c, a, 1, SEALED, a, a, centre, length)[0]
                 conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
                 if conducting and not floating[c]:
                     v = h[0, iz] * h[1, iy] * h[2, ix]
@@ -367,8 +369,9 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
                     sums[side] += v * p[c]
                     sums[side + 1] += v
     out[0] = flux if connected else 0.0
-    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else np.nan
-    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else np.nan
+    # without a first (second) block the face is the domain's own, at its fixed pressure
+    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if mid == 0 else np.nan)
+    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if mid == shape[a] else np.nan)
 
 
 @nb.njit(parallel=True, **EXACT_JIT)
@@ -377,7 +380,11 @@ def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
 
     Each box holds two neighbouring blocks along axis `a` (``[lo, mid)`` and
     ``[mid, hi)`` along a; ``[lo, hi)`` along the others) and a border; it is
-    solved with sealed sides under a unit gradient along a.
+    solved with sealed sides under a unit gradient along a. One of the two
+    may be empty (``mid == 0`` or ``mid`` = the box's length along a): the
+    face is then the box's first or last face, on the domain's edge, and its
+    fixed pressure (0 or -L) stands for the missing block's — which gives a
+    block's half transmissibility to the domain's outer face.
 
     Parameters
     ----------

@@ -83,13 +83,14 @@ def read_run(folder: str | Path) -> tuple[dict, Field, Field | Transmissibilitie
     if "transmissibility_x.tif" not in summary.get("files", []):
         return summary, fine, coarse_field
     harmonic = transmissibilities(coarse_field)
-    faces = []
-    for axis in (0, 1, 2):
+    faces, boundary = list(harmonic.faces), list(harmonic.boundary)
+    for axis in (0, 1, 2)[3 - fine.ndim :]:
         name = "transmissibility_" + "zyx"[axis] + ".tif"
-        if axis == 0 and fine.ndim == 2:
-            faces.append(harmonic.faces[0])
-            continue
         with open_raster(str(folder / name)) as src:
-            after = src.read().astype(np.float64)
-        faces.append(np.take(after, np.arange(after.shape[axis] - 1), axis=axis))
-    return summary, fine, replace(harmonic, faces=tuple(faces))
+            every = src.read().astype(np.float64)
+        n = every.shape[axis] - 1
+        if n != grid.shape[axis]:
+            raise InputError(f"{folder / name}: {n + 1} faces along its axis do not match the run")
+        faces[axis] = np.take(every, np.arange(1, n), axis=axis)
+        boundary[axis] = (np.take(every, [0], axis=axis), np.take(every, [n], axis=axis))
+    return summary, fine, replace(harmonic, faces=tuple(faces), boundary=tuple(boundary))

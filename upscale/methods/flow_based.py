@@ -201,39 +201,56 @@ def face_transmissibility_chunk(
         As in `block_tensor_chunk`; the chunk must also hold the block before
         its first along each axis (a depth of a block plus the border).
 
+    The first and the last block along a also get their half transmissibility
+    to the domain's outer face, ``T = Q / (p_face - p̄)`` from a solve of the
+    block alone (plus the border) with the face's fixed pressure, so that a
+    coarse model of blocks in series passes exactly the flow of the fine one.
+
     Returns
     -------
-    ndarray of shape (3, l, m, n)
-        T along z, y, x in (unit of k) · m of the face before each block; NaN
-        where there is no block before it or no defined pressure drop.
+    ndarray of shape (6, l, m, n)
+        In (unit of k) · m: ``[a]`` the T of the face before each block along
+        axis a (z, y, x) — for the first block, its half transmissibility to
+        the domain's first face; ``[3 + a]`` the half transmissibility of the
+        last block to the domain's last face. NaN elsewhere and where the
+        pressure drop is not defined.
     """
     t, grid = _half_cells((kz, ky, kx), dz, cell)
     starts = _starts(core, block)
     mesh = np.stack(np.meshgrid(*starts, indexing="ij"), axis=-1).reshape(-1, 3)
     ends = np.minimum(mesh + np.array(block), [c1 for _, c1 in core])
-    out = np.full((3, len(mesh)), np.nan)
+    out = np.full((6, len(mesh)), np.nan)
     for a in np.flatnonzero(axes):
         before = mesh.copy()
-        before[:, a] -= block[a]
-        has = before[:, a] >= 0
-        if not has.any():
-            continue
-        first, last, mid = before[has], ends[has], mesh[has, a]
-        origin = np.maximum(first - border, 0)
-        stop = np.minimum(last + border, kx.shape)
-        for shape, members in _groups(origin, stop):
-            order, width = band_order(shape, False)
-            boxes, h = _gather(t, grid, origin[members], shape)
-            lo, hi = first[members] - origin[members], last[members] - origin[members]
-            values = pair_fluxes(boxes, h, np.array(shape), lo, mid[members] - origin[members, a],
-                                 hi, a, order, width, np.array(axes))  # fmt: skip
-            flux, drop = values[:, 0], values[:, 1] - values[:, 2]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                T = np.where(flux == 0, 0.0, flux / drop)
-            T[~np.isfinite(T) | (T < 0)] = np.nan
-            out[a, np.flatnonzero(has)[members]] = T
+        before[:, a] = np.maximum(before[:, a] - block[a], 0)  # the first block pairs with the face
+        mid = mesh[:, a].copy()
+        out[a] = _pairs(t, grid, before, mid, ends, border, a, axes, kx.shape)
+        last = np.flatnonzero(ends[:, a] == kx.shape[a])
+        ends_last = ends[last, a].copy()
+        out[3 + a, last] = _pairs(t, grid, mesh[last], ends_last, ends[last], border, a, axes,
+                                  kx.shape)  # fmt: skip
     counts = [len(s) for s in starts]
-    return out.reshape(3, *counts)
+    return out.reshape(6, *counts)
+
+
+def _pairs(t: list[np.ndarray], grid: Grid, first: np.ndarray, mid: np.ndarray, last: np.ndarray,
+           border: int, a: int, axes: tuple[bool, bool, bool], extent: tuple) -> np.ndarray:  # fmt: skip
+    """``T = Q / (p̄_1 - p̄_2)`` of the boxes ``[first, last)`` split at `mid` along `a`."""
+    origin = np.maximum(first - border, 0)
+    stop = np.minimum(last + border, extent)
+    T = np.full(len(first), np.nan)
+    for shape, members in _groups(origin, stop):
+        order, width = band_order(shape, False)
+        boxes, h = _gather(t, grid, origin[members], shape)
+        lo, hi = first[members] - origin[members], last[members] - origin[members]
+        values = pair_fluxes(boxes, h, np.array(shape), lo, mid[members] - origin[members, a],
+                             hi, a, order, width, np.array(axes))  # fmt: skip
+        flux, drop = values[:, 0], values[:, 1] - values[:, 2]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            found = np.where(flux == 0, 0.0, flux / drop)
+        found[~np.isfinite(found) | (found < 0)] = np.nan
+        T[members] = found
+    return T
 
 
 def options_for(field_grid: Grid, ndim: int) -> dict[str, Any]:
@@ -306,12 +323,13 @@ def direct_properties(field: Field, cells: tuple[int, int, int], bc: str = "seal
     -------
     dict
         ``"tensor"`` as in `flow_properties`, and ``"faces"``: an array of
-        shape (3, L', M', N') with T along z, y, x of the face before each
-        block (see `face_transmissibility_chunk`).
+        shape (6, L', M', N'): T along z, y, x of the face before each block
+        and the last blocks' half transmissibilities to the domain's last
+        faces (see `face_transmissibility_chunk`).
     """
     properties = flow_properties(field, cells, bc, border)
     arrays, opts = _inputs(field)
     depth = tuple(b + border if (a > 0 or field.ndim == 3) else 0 for a, b in enumerate(cells))
     properties["faces"] = apply_regions(face_transmissibility_chunk, arrays, field.grid.dz, cells,
-                                        depth, 3, border=border, **opts)  # fmt: skip
+                                        depth, 6, border=border, **opts)  # fmt: skip
     return properties

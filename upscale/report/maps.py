@@ -159,5 +159,5 @@ def _face_grid(grid: Grid, a: int) -> Grid:
     transform = grid.transform
     if transform is not None:
         shift = (inner[0] / 2, 0) if a == 2 else (0, -inner[0] / 2)
-        transform = Affine.translation(*shift) * transform
+        transform = Affine.translation(*shift) @ transform
     return Grid(**sizes, transform=transform, crs=grid.crs)
