@@ -119,7 +119,7 @@ class Comparison:
     def best_along(self, axis: str) -> Entry | None:
         """The entry with the smallest ``|rel_error|`` along one axis (ties: candidate order)."""
         ran = [e for e in self.entries if e.error is None]
-        order = sorted(ran, key=lambda e: (_tied(abs(e.checks[axis].rel_error)), self._order[id(e)]))
+        order = sorted(ran, key=lambda e: (_tied(_size(e.checks[axis].rel_error)), self._order[id(e)]))
         return order[0] if order else None
 
     @property
@@ -157,6 +157,8 @@ def candidates(
     --------
     >>> [c.label for c in candidates(["geometric", "flow"])]
     ['geometric', 'flow (sealed)', 'flow (linear)', 'flow (periodic)']
+    >>> [c.label for c in candidates(["flow-transmissibility"], border=2)]
+    ['flow-transmissibility (sealed, border 2)']
     """
     names = list(METHODS) if not methods else methods
     unknown = [n for n in names if n not in METHODS]
@@ -174,12 +176,12 @@ def candidates(
             conditions = [bc] if bc else (list(ALL_CONDITIONS) if name == "flow" else ["sealed"])
         for condition in conditions:
             opts = dict(options, **({"bc": condition} if condition else {}))
-            found.append(Candidate(_label(name, opts, len(conditions) > 1), name, opts))
+            found.append(Candidate(_label(name, opts), name, opts))
     return found
 
 
-def _label(name: str, options: dict, by_condition: bool) -> str:
-    parts = [options["bc"]] if by_condition else []
+def _label(name: str, options: dict) -> str:
+    parts = [options["bc"]] if "bc" in options else []
     if options.get("border"):
         parts.append(f"border {options['border']}")
     if "exponent" in options:
@@ -264,8 +266,7 @@ def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0)
     seconds : float
         Time the run took.
     """
-    candidate = Candidate(_label(result.method, result.options, "bc" in result.options), result.method,
-                          result.options)  # fmt: skip
+    candidate = Candidate(_label(result.method, result.options), result.method, result.options)
     entry = Entry(candidate, result, checks, seconds, rank=1)
     flows = {axis: check.fine for axis, check in checks.items()}
     return Comparison(result.fine, result.block, [entry], flows, [candidate])
@@ -273,6 +274,11 @@ def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0)
 
 #: Check errors closer than this are equal for ranking (far below any real difference).
 TIE = 1e-9
+
+
+def _size(error: float) -> float:
+    """``|error|``, with NaN (the fine model passes nothing, the coarse one does) as infinite."""
+    return math.inf if math.isnan(error) else abs(error)
 
 
 def _tied(error: float) -> float:

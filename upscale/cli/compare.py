@@ -113,7 +113,7 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
             continue
         coarse = e.result.coarse
         means = [number(_mean(getattr(coarse, PERMEABILITY[a]))) for a in axes]
-        errors = [f"{100 * e.checks[a].rel_error:+.2f} %" for a in axes]
+        errors = [_percent(e.checks[a].rel_error) for a in axes]
         rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
     header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
     click.echo(table(header, rows))
@@ -121,6 +121,10 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     for e in entries:
         if e.error:
             click.echo(f"{e.candidate.label} did not run: {e.error}")
+
+
+def _percent(error: float) -> str:
+    return "-" if math.isnan(error) else f"{100 * error:+.2f} %"
 
 
 def _mean(values: np.ndarray) -> float:

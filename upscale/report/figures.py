@@ -5,6 +5,7 @@ from __future__ import annotations
 import io
 from dataclasses import dataclass
 
+from matplotlib import rc_context
 from matplotlib.figure import Figure
 
 from ..compare import Comparison
@@ -77,10 +78,11 @@ def rendered(plot: Plot, dpi: int = 130) -> tuple[bytes, bytes]:
     images = []
     for kind in ("png", "svg"):
         buffer = io.BytesIO()
-        plot.figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
+        with rc_context({"svg.hashsalt": "upscale"}):
+            plot.figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
         images.append(buffer.getvalue())
     return images[0], images[1]
 
 
-# fixed metadata, so the same figure gives the same bytes
+# fixed metadata and SVG ids, so the same figure gives the same bytes
 _METADATA = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None}}

@@ -66,7 +66,4 @@ def with_missing(cmap: str):
     """A copy of a colour map that draws missing values in `MISSING`."""
     from matplotlib import colormaps
 
-    copy = colormaps[cmap].copy()
-    copy.set_bad(MISSING)
-    copy.set_under(MISSING)
-    return copy
+    return colormaps[cmap].with_extremes(bad=MISSING, under=MISSING)

@@ -1,0 +1,216 @@
+"""The HTML report of ``upscale compare`` opened in a real headless browser, and its content.
+
+What is tested
+--------------
+* ``report.html`` loads in headless Chromium without script errors, console
+  errors or warnings and failed resources; every embedded figure decodes to
+  an image of non-zero size; the ranking table has one row per method.
+  Approach: a copy of the page gets a probe script at the start of ``<head>``
+  (records ``error`` events, including failed resources, and
+  ``console.error``/``console.warn`` calls) and one at the end of ``<body>``
+  that, on window load, writes a JSON verdict into ``<pre id="probe">``;
+  Chromium's ``--dump-dom`` gives the DOM back after loading.
+* A screenshot of the original page (1280 x 4000) is kept as a test artifact
+  in ``$UPSCALE_ARTIFACTS`` or ``<repo>/test-artifacts/``, and must be a
+  non-empty PNG of that size.
+* The page is self-contained (no http(s) or protocol-relative references, no
+  scripts, no stylesheet links; figures are the PNG files of figures/ as
+  data URIs) and carries the caution, the exact command line and the
+  SHA-256 of the input.
+
+Chromium is Debian's (``/usr/bin/chromium``; CI installs it, see
+``.ci/run``): the browser tests are skipped, saying so, only where no
+Chromium binary is found.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import html
+import json
+import os
+import re
+import shlex
+import shutil
+import struct
+import subprocess
+from pathlib import Path
+
+import pytest
+
+from upscale.caution import CAUTION
+from upscale.cli.main import main
+
+REPO = Path(__file__).resolve().parents[2]
+METHODS = "geometric,harmonic,flow"
+#: Labels in the ranking: flow without --bc stands for its three boundary conditions.
+LABELS = {"geometric", "harmonic", "flow (sealed)", "flow (linear)", "flow (periodic)"}
+FIGURES = ["maps", "errors", "bounds", "histograms", "mismatch_x", "mismatch_y", "pressure"]
+TIMEOUT = 60  # s per browser run
+
+
+def _chromium() -> str | None:
+    for name in ("chromium", "chromium-browser"):
+        found = shutil.which(name)
+        if found:
+            return found
+    return "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None
+
+
+def _artifacts() -> Path:
+    folder = Path(os.environ.get("UPSCALE_ARTIFACTS") or REPO / "test-artifacts")
+    folder.mkdir(parents=True, exist_ok=True)
+    return folder
+
+
+@pytest.fixture(scope="module")
+def report(demo_dir, tmp_path_factory):
+    """``upscale -q compare`` of the lognormal demo with three methods (five candidates)."""
+    field = demo_dir / "marrowfen_lognormal.tif"
+    out = tmp_path_factory.mktemp("report") / "cmp"
+    args = ["-q", "compare", str(field), "--block", "16x16", "--methods", METHODS, "--out", str(out)]
+    assert main(args) == 0
+    return {"field": field, "out": out, "command": ["upscale", *args], "page": out / "report.html"}
+
+
+@pytest.fixture(scope="module")
+def chromium():
+    found = _chromium()
+    if found is None:
+        pytest.skip("no Chromium binary found (CI installs Debian's chromium; see .ci/run)")
+    return found
+
+
+def _browse(chromium: str, profile: Path, *args: str) -> subprocess.CompletedProcess:
+    command = [chromium, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+               f"--user-data-dir={profile}", *args]  # fmt: skip
+    return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT, check=False)
+
+
+PROBE_HEAD = """<script>
+window.__problems = [];
+window.addEventListener("error", function (event) {
+  var target = event.target && event.target !== window ? (event.target.tagName || "?") : "script";
+  window.__problems.push("error (" + target + "): " + (event.message || event.type));
+}, true);
+window.addEventListener("unhandledrejection", function (event) {
+  window.__problems.push("unhandled rejection: " + event.reason);
+});
+["error", "warn"].forEach(function (level) {
+  var original = console[level];
+  console[level] = function () {
+    window.__problems.push("console." + level + ": " + Array.prototype.join.call(arguments, " "));
+    return original.apply(console, arguments);
+  };
+});
+</script>"""
+
+PROBE_BODY = """<script>
+window.addEventListener("load", function () {
+  var images = Array.prototype.map.call(document.images, function (img) {
+    return {figure: img.parentElement.id, complete: img.complete,
+            width: img.naturalWidth, height: img.naturalHeight};
+  });
+  var verdict = {
+    errors: window.__problems,
+    images: images,
+    ranking_rows: document.querySelectorAll("#ranking tr.method").length,
+    best_rows: document.querySelectorAll("#ranking tr.method.best").length,
+    labels: Array.prototype.map.call(document.querySelectorAll("#ranking tr.method td:first-child"),
+                                     function (td) { return td.textContent; }),
+    bold: document.querySelectorAll("b").length,
+    title: document.title
+  };
+  var pre = document.createElement("pre");
+  pre.id = "probe";
+  pre.textContent = JSON.stringify(verdict);
+  document.body.appendChild(pre);
+});
+</script>"""
+
+
+@pytest.fixture(scope="module")
+def verdict(report, chromium, tmp_path_factory):
+    """What the probe saw when Chromium loaded a probed copy of the page."""
+    folder = tmp_path_factory.mktemp("probe")
+    page = report["page"].read_text(encoding="utf-8")
+    assert page.count("<head>") == 1 and page.count("</body>") == 1
+    probed = page.replace("<head>", "<head>\n" + PROBE_HEAD, 1).replace(
+        "</body>", PROBE_BODY + "\n</body>", 1
+    )
+    path = folder / "report-probed.html"
+    path.write_text(probed, encoding="utf-8")
+    done = _browse(chromium, folder / "profile", "--dump-dom", "--virtual-time-budget=10000", path.as_uri())
+    found = re.search(r'<pre id="probe">(.*?)</pre>', done.stdout, re.DOTALL)
+    assert found, f"no probe verdict in the dumped DOM (exit {done.returncode}): {done.stderr[-2000:]}"
+    return json.loads(html.unescape(found.group(1)))
+
+
+# --- in the browser ------------------------------------------------------------------------------
+
+
+def test_report_loads_without_errors(verdict):
+    assert verdict["errors"] == []
+
+
+def test_every_figure_decodes_to_an_image(verdict):
+    assert [image["figure"] for image in verdict["images"]] == FIGURES
+    for image in verdict["images"]:
+        assert image["complete"] and image["width"] > 0 and image["height"] > 0, image
+
+
+def test_one_ranking_row_per_method(verdict, report):
+    assert verdict["ranking_rows"] == len(LABELS) == 5
+    assert set(verdict["labels"]) == LABELS
+    assert verdict["best_rows"] == 1
+    assert verdict["title"] == f"upscale — methods compared on {report['field']}"
+    assert verdict["bold"] == 0  # no markup leaks in from text
+
+
+def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
+    target = _artifacts() / "report-screenshot.png"
+    target.unlink(missing_ok=True)
+    options = [f"--screenshot={target}", "--window-size=1280,4000", "--virtual-time-budget=10000"]
+    done = _browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, report["page"].as_uri())
+    assert target.is_file(), f"no screenshot (exit {done.returncode}): {done.stderr[-2000:]}"
+    data = target.read_bytes()
+    assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
+    width, height = struct.unpack(">II", data[16:24])  # the IHDR chunk
+    assert (width, height) == (1280, 4000)
+
+
+# --- the page itself -----------------------------------------------------------------------------
+
+
+def test_page_is_self_contained(report):
+    page = report["page"].read_text(encoding="utf-8")
+    references = re.findall(r"""\b(?:src|href|action|poster|srcset)\s*=\s*["']?([^"'\s>]*)""", page, re.I)
+    assert references and all(r.startswith("data:image/png;base64,") for r in references), [
+        r[:60] for r in references if not r.startswith("data:")
+    ]
+    assert not re.search(r"https?://|(?:src|href)\s*=\s*[\"']?//", page, re.I)
+    assert "<script" not in page.lower() and "<link" not in page.lower() and "@import" not in page
+    assert "url(" not in page
+
+
+def test_embedded_figures_are_the_png_files(report):
+    page = report["page"].read_text(encoding="utf-8")
+    embedded = re.findall(r'<figure id="([^"]+)"><img alt="[^"]*" src="data:image/png;base64,([^"]+)">', page)
+    assert [name for name, _ in embedded] == FIGURES
+    for name, data in embedded:
+        assert base64.b64decode(data) == (report["out"] / "figures" / f"{name}.png").read_bytes(), name
+
+
+def test_page_has_the_caution_command_and_checksum(report):
+    page = report["page"].read_text(encoding="utf-8")
+    assert f'<p class="caution">{html.escape(CAUTION)}</p>' in page
+    command = shlex.join(report["command"])
+    assert f"<pre><code>{html.escape(command)}</code></pre>" in page
+    assert "--methods geometric,harmonic,flow" in command
+    sha256 = hashlib.sha256(report["field"].read_bytes()).hexdigest()
+    assert f"<code>{sha256}</code>" in page
+    summary = json.loads((report["out"] / "compare.json").read_text())
+    assert summary["inputs"][0]["sha256"] == sha256 and summary["command"] == report["command"]
+    # the verdict names the best method of compare.json
+    assert f"Best on this field: <strong>{html.escape(summary['best'])}</strong>" in page
