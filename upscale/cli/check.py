@@ -6,6 +6,7 @@ import click
 
 from ..check import check_summary
 from ..export import update_summary
+from ..io.package import read_package
 from ..io.results import read_run
 from .options import check_options
 from .report import print_check
@@ -18,16 +19,18 @@ from .report import print_check
 def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int) -> None:
     """Check again that the coarse grid in FOLDER passes the fine model's flow.
 
-    Reads the run's summary.json, its fine inputs (which must be unchanged:
-    their SHA-256 is compared) and its coarse GeoTIFFs, applies the same
-    pressure drop across each axis to both grids, prints the errors and
-    records them in summary.json.
+    Reads the run's summary.json and its fine inputs (which must be
+    unchanged: their SHA-256 is compared), rebuilds the coarse model from the
+    coarse-grid package alone (cells.csv, connections.csv, boundary.csv,
+    manifest.json), applies the same pressure drop across each axis to both,
+    prints the errors and records them in summary.json.
 
     \b
     Example:
       upscale check out/ --solver direct
     """
-    _, fine, coarse = read_run(folder)
+    _, fine = read_run(folder)
+    _, coarse = read_package(folder)
     result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
     summary = update_summary(folder, {"check": result})
     if not ctx.obj["quiet"]:

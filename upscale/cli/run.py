@@ -11,6 +11,7 @@ from ..check import check_flow, too_large
 from ..compare import single
 from ..errors import InputError
 from ..export import check_destination, write_result
+from ..export.package import unit_factors
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
 from ..methods.registry import METHODS
@@ -52,6 +53,9 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--layer", type=click.IntRange(min=1), default=None,
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @check_options
+@click.option("--units", type=click.Choice(["si", "field"]), default="si", show_default=True,
+              help="Units of the coarse-grid package: si (m, m², m³; transmissibility k·A/L in m³) "
+              "or field (ft, mD; transmissibility in mD·ft).")
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder (created; must be empty unless --overwrite).")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
@@ -59,7 +63,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
         bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
-        tolerance: float, check_limit: int, out: str, overwrite: bool,
+        tolerance: float, check_limit: int, units: str, out: str, overwrite: bool,
         **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method.
 
@@ -82,6 +86,7 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     if (plot or html_report) and no_check:
         raise InputError("--plot and --report show the flow check; leave out --no-check")
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
+    unit_factors(str(options["unit"]), units)  # refuses field units for a conductivity, early
     timings = {}
     start = time.perf_counter()
     read = read_options(options)
@@ -113,6 +118,6 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
     summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"],
                            timings=timings, check=check, read=recorded(read),
                            images=made.images if made and plot else None,
-                           page=made.page if made and html_report else None)  # fmt: skip
+                           page=made.page if made and html_report else None, units=units)  # fmt: skip
     if not ctx.obj["quiet"]:
         print_result(result, summary, out)

@@ -10,12 +10,16 @@ from typing import Any
 import numpy as np
 from affine import Affine
 
+from ..caution import CAUTION
 from ..flow import Transmissibilities
 from ..upscaled import Upscaled
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
+from .netcdf import crs_unit, write_netcdf
+from .package import FORMAT, column_units, package_tables, unit_factors, write_tables
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
+from .vtk import write_vtk
 
 #: File of the coarse face transmissibilities along each axis (direct upscaling only).
 FACE_FILES = {axis: f"transmissibility_{axis}.tif" for axis in "xyz"}
@@ -29,6 +33,59 @@ def face_raster(trans: Transmissibilities, axis: int) -> np.ndarray:
     """
     first, last = trans.boundary[axis]
     return np.concatenate([first, trans.faces[axis], last], axis=axis)
+
+
+_LONG_NAMES = {"kx": "permeability along x", "ky": "permeability along y",
+               "kz": "permeability along z", "porosity": "porosity"}  # fmt: skip
+
+
+def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str, Any] | None,
+                  command: list[str] | None) -> list[str]:  # fmt: skip
+    """Write the coarse-grid package (tables, NetCDF, VTK, manifest) into `stage`."""
+    coarse = result.coarse
+    factors = unit_factors(coarse.unit, units)
+    trans = result.transmissibilities()
+    properties = {**coarse.properties(), **result.tensor}
+    tables = package_tables(properties, trans, factors=factors,
+                            source="flow" if result.faces is not None else "harmonic")  # fmt: skip
+    files = write_tables(stage, tables)
+    length = factors["length"]
+    gridded = {}
+    for name, values in properties.items():
+        if name == "porosity":
+            gridded[name] = (values, "1", "porosity")
+        else:
+            long_name = _LONG_NAMES.get(name, f"permeability tensor term {name}")
+            gridded[name] = (values * factors["k"], factors["k_unit"], long_name)
+    bulk = coarse.grid.cell_volumes() * length**3
+    gridded["bulk_volume"] = (bulk, factors["length_unit"] + "3", "bulk volume")
+    if coarse.porosity is not None:
+        gridded["pore_volume"] = (coarse.porosity * bulk, factors["length_unit"] + "3", "pore volume")
+    attributes = {"title": f"upscale coarse grid ({result.method})", "source": "upscale",
+                  "history": " ".join(command or []), "comment": CAUTION}  # fmt: skip
+    write_netcdf(stage / "coarse.nc", coarse.grid, gridded, factors, attributes)
+    write_vtk(stage / "coarse.vtr", coarse.grid, {n: v[0] for n, v in gridded.items()}, factors)
+    files += ["coarse.nc", "coarse.vtr"]
+    grid = coarse.grid
+    manifest = {
+        "format": FORMAT,
+        "units": {"system": units, "input_unit": coarse.unit, "factors": factors,
+                  "columns": column_units(tables, factors, crs_unit(grid))},  # fmt: skip
+        "shape": {"layers": grid.shape[0], "rows": grid.shape[1], "columns": grid.shape[2]},
+        "id": "i + columns * (j + rows * k); zero-based; layer 0 on top, row 0 the first raster row",
+        "crs": grid.crs.to_wkt() if grid.crs is not None else None,
+        "transform": list(grid.transform)[:6] if grid.transform is not None else None,
+        "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in result.fine.sources],
+        "method": {"name": result.method, "options": result.options},
+        "block": {"x": result.block.nx, "y": result.block.ny, "z": result.block.nz,
+                  "remainder": result.block.remainder, "min_active": result.block.min_active},
+        "transmissibility_source": "flow" if result.faces is not None else "harmonic",
+        "check": check,
+        "files": files,
+        "caution": CAUTION,
+    }  # fmt: skip
+    (stage / "manifest.json").write_text(json.dumps(jsonable(manifest), indent=2, allow_nan=False) + "\n")
+    return files + ["manifest.json"]
 
 
 def update_summary(folder: str | Path, changes: dict[str, Any]) -> dict[str, Any]:
@@ -57,6 +114,7 @@ def write_result(
     read: dict[str, Any] | None = None,
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
+    units: str = "si",
 ) -> dict[str, Any]:
     """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
 
@@ -79,6 +137,8 @@ def write_result(
         Figures to write as ``figures/NAME.png`` and ``.svg``.
     page : str, optional
         An HTML report to write as ``report.html``.
+    units : {'si', 'field'}
+        Units of the coarse-grid package (see `upscale.export.package`).
 
     Returns
     -------
@@ -102,6 +162,7 @@ def write_result(
                            f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
                            transform=shifted)  # fmt: skip
             files.append(FACE_FILES[axis])
+        files += write_package(stage, result, units, check=check, command=command)
         if images:
             files += write_figures(stage, images)
         if page is not None:

@@ -1,32 +1,26 @@
-"""Read a finished run back: its summary, its fine field and its coarse grid.
+"""Read a finished run back: its summary and its fine field.
 
-`upscale check DIR` uses this to solve the flow check again from what a run
-left behind. The fine inputs are read from the paths the summary records and
-must still have the same SHA-256; the coarse properties come from the run's
-GeoTIFFs on the coarse grid rebuilt from the recorded block partition, so
-edge blocks keep their true sizes.
+`upscale check DIR` uses this to solve the fine half of the flow check
+again. The fine inputs are read from the paths the summary records and must
+still have the same SHA-256; the coarse half comes from the run's
+coarse-grid package alone (`upscale.io.package`).
 """
 
 from __future__ import annotations
 
 import json
-from dataclasses import replace
 from pathlib import Path
-
-import numpy as np
 
 from ..errors import InputError
 from ..field import Field
-from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from .read import read_field, sha256
-from .windows import open_raster
 
 SUMMARY = "summary.json"
 
 
-def read_run(folder: str | Path) -> tuple[dict, Field, Field | Transmissibilities]:
-    """Load an output folder of ``upscale run``.
+def read_run(folder: str | Path) -> tuple[dict, Field]:
+    """Load the summary and the fine field of an output folder of ``upscale run``.
 
     Parameters
     ----------
@@ -39,10 +33,6 @@ def read_run(folder: str | Path) -> tuple[dict, Field, Field | Transmissibilitie
         The run's ``summary.json``.
     fine : Field
         The fine field as the run used it (cropped to whole blocks if it cropped).
-    coarse : Field or Transmissibilities
-        The coarse permeabilities read from the run's GeoTIFFs; for a run
-        that upscaled its face transmissibilities directly, the coarse
-        transmissibilities with those faces.
 
     Raises
     ------
@@ -70,27 +60,4 @@ def read_run(folder: str | Path) -> tuple[dict, Field, Field | Transmissibilitie
     fine = read_field(inputs["kx"]["resolved"], checksum=False, **paths, **read)
     spec = BlockSpec(block["x"], block["y"], block["z"], block["remainder"], block["min_active"])
     fine = fine.leading(spec.used_shape(fine.shape))
-    grid = spec.coarse_grid(fine.grid)
-    coarse = {}
-    for name in ("kx", "ky", "kz")[: fine.ndim]:
-        with open_raster(str(folder / f"{name}.tif")) as src:
-            coarse[name] = src.read().astype(np.float64)
-        if coarse[name].shape != grid.shape:
-            raise InputError(f"{folder / (name + '.tif')}: shape {coarse[name].shape} does not match the run")
-    coarse_field = Field(
-        kx=coarse["kx"], ky=coarse["ky"], kz=coarse.get("kz"), porosity=None, grid=grid, unit=fine.unit
-    )
-    if "transmissibility_x.tif" not in summary.get("files", []):
-        return summary, fine, coarse_field
-    harmonic = transmissibilities(coarse_field)
-    faces, boundary = list(harmonic.faces), list(harmonic.boundary)
-    for axis in (0, 1, 2)[3 - fine.ndim :]:
-        name = "transmissibility_" + "zyx"[axis] + ".tif"
-        with open_raster(str(folder / name)) as src:
-            every = src.read().astype(np.float64)
-        n = every.shape[axis] - 1
-        if n != grid.shape[axis]:
-            raise InputError(f"{folder / name}: {n + 1} faces along its axis do not match the run")
-        faces[axis] = np.take(every, np.arange(1, n), axis=axis)
-        boundary[axis] = (np.take(every, [0], axis=axis), np.take(every, [n], axis=axis))
-    return summary, fine, replace(harmonic, faces=tuple(faces), boundary=tuple(boundary))
+    return summary, fine

@@ -1,0 +1,82 @@
+"""The coarse cell properties as a NetCDF file following the CF conventions (netCDF4).
+
+Variables on (layer, row, column) with coordinate variables ``x`` and ``y``
+(cell centres in the CRS's units) and ``z`` (cell-centre height above the
+top of the model, negative downward), a ``crs`` grid-mapping variable
+carrying the CRS as WKT, and the unit of every variable (Eaton et al., "NetCDF
+Climate and Forecast (CF) Metadata Conventions", version 1.8: §4 coordinate
+types, §5.6 grid mappings).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..field import Grid
+from .package import _centres
+
+#: CF ``units`` strings (UDUNITS) of the package's unit names.
+_UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "mD": "millidarcy", "1": "1"}
+
+
+def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors: dict[str, Any],
+                 attributes: dict[str, str]) -> None:  # fmt: skip
+    """Write the coarse properties (in package units) on (layer, row, column).
+
+    Parameters
+    ----------
+    path : Path
+        Destination ``.nc`` file.
+    grid : Grid
+        The coarse grid (sizes in m).
+    properties : dict of str to ndarray of shape (L, M, N)
+        Values already in the package's units; NaN = inactive.
+    factors : dict
+        From `upscale.export.package.unit_factors`.
+    attributes : dict of str to str
+        Global attributes (title, source, history...).
+    """
+    import netCDF4
+
+    length = factors["length"]
+    x, y, z = _centres(grid)
+    with netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
+        nc.setncatts({"Conventions": "CF-1.8", **attributes})
+        for name, size in zip(("layer", "row", "column"), grid.shape):
+            nc.createDimension(name, size)
+        crs = nc.createVariable("crs", "i4")
+        if grid.crs is not None:
+            crs.crs_wkt = grid.crs.to_wkt()
+            crs.spatial_ref = grid.crs.to_wkt()
+        for name, dim, values, standard in (("x", "column", x, "projection_x_coordinate"),
+                                            ("y", "row", y, "projection_y_coordinate")):  # fmt: skip
+            var = nc.createVariable(name, "f8", (dim,))
+            var[:] = values
+            var.standard_name = standard
+            var.units = crs_unit(grid)
+            var.axis = name.upper()
+        var = nc.createVariable("z", "f8", ("layer",))
+        var[:] = z * length
+        var.units = _UDUNITS.get(factors["length_unit"], factors["length_unit"])
+        var.positive = "up"
+        var.long_name = "cell-centre height above the top of the model"
+        var.axis = "Z"
+        for name, (values, unit, long_name) in properties.items():
+            var = nc.createVariable(name, "f8", ("layer", "row", "column"), fill_value=np.nan,
+                                    zlib=True)  # fmt: skip
+            var[:] = values
+            var.units = _UDUNITS.get(unit, unit)
+            var.long_name = long_name
+            var.grid_mapping = "crs"
+            var.coordinates = "z y x"
+
+
+def crs_unit(grid: Grid) -> str:
+    """The linear unit of a grid's CRS as a UDUNITS string (m without a CRS)."""
+    if grid.crs is None:
+        return "m"
+    unit = grid.crs.linear_units or "m"
+    return {"metre": "m", "meter": "m", "foot": "ft", "US survey foot": "US_survey_foot"}.get(unit, unit)

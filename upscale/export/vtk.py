@@ -1,0 +1,72 @@
+"""The coarse cell properties as a VTK XML rectilinear grid (``.vtr``) for 3D viewers.
+
+VTK's rectilinear grids need coordinates that increase, x fastest (Kitware,
+"VTK File Formats", XML RectilinearGrid). Rows run north to south and layers
+top to bottom in our arrays, so both are reversed here: VTK y increases
+northward and VTK z is the height above the top of the model (negative
+downward). The cell array ``id`` holds each cell's package id, so a value
+picked in a viewer leads back to ``cells.csv``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..field import Grid
+
+
+def _edges(sizes: np.ndarray, start: float, sign: float) -> np.ndarray:
+    return start + sign * np.concatenate([[0.0], np.cumsum(sizes)])
+
+
+def _ascii(values: np.ndarray) -> str:
+    return " ".join(format(v, ".17g") for v in values.ravel())
+
+
+def write_vtk(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors: dict[str, Any]) -> None:
+    """Write the coarse properties (package units; NaN = inactive) as a ``.vtr`` file.
+
+    Parameters
+    ----------
+    path : Path
+        Destination file.
+    grid : Grid
+        The coarse grid (sizes in m).
+    properties : dict of str to ndarray of shape (L, M, N)
+        Values in the package's units.
+    factors : dict
+        From `upscale.export.package.unit_factors` (for z and the lengths).
+    """
+    L, M, N = grid.shape
+    length = factors["length"]
+    x0, y0 = (0.0, 0.0) if grid.transform is None else (grid.transform.c, grid.transform.f)
+    x = _edges(grid.dx, x0, 1.0)
+    y = _edges(grid.dy, y0, -1.0)[::-1]
+    z = (-_edges(grid.dz, 0.0, 1.0) * length)[::-1]
+    arrays = {"id": np.arange(L * M * N, dtype=float).reshape(L, M, N), **properties}
+    cells = "\n".join(
+        f'<DataArray type="Float64" Name="{name}" format="ascii">{_ascii(values[::-1, ::-1, :])}'
+        "</DataArray>"
+        for name, values in arrays.items()
+    )
+    extent = f"0 {N} 0 {M} 0 {L}"
+    text = f"""<?xml version="1.0"?>
+<VTKFile type="RectilinearGrid" version="1.0" byte_order="LittleEndian">
+<RectilinearGrid WholeExtent="{extent}">
+<Piece Extent="{extent}">
+<CellData Scalars="kx">
+{cells}
+</CellData>
+<Coordinates>
+<DataArray type="Float64" Name="x" format="ascii">{_ascii(x)}</DataArray>
+<DataArray type="Float64" Name="y" format="ascii">{_ascii(y)}</DataArray>
+<DataArray type="Float64" Name="z" format="ascii">{_ascii(z)}</DataArray>
+</Coordinates>
+</Piece>
+</RectilinearGrid>
+</VTKFile>
+"""
+    path.write_text(text)
