@@ -18,6 +18,15 @@ from affine import Affine
 from conftest import UPSCALE_EXE, partial_leftovers
 
 import upscale
+from upscale.export.package import PACKAGE_FILES
+
+
+def _results(folder):
+    """The files of a run folder besides its coarse-grid package (which must be complete)."""
+    names = sorted(p.name for p in folder.iterdir())
+    assert set(PACKAGE_FILES) <= set(names)
+    return [n for n in names if n not in PACKAGE_FILES]
+
 
 LOGNORMAL = "marrowfen_lognormal.tif"
 
@@ -33,10 +42,10 @@ def test_run_2d_map_writes_kx_ky_and_summary(run_cli, demo_dir, tmp_path):
         "run", demo_dir / LOGNORMAL, "--block", "8x8", "--method", "geometric", "--out", out
     )
     assert (code, err) == (0, "")
-    assert sorted(p.name for p in out.iterdir()) == ["kx.tif", "ky.tif", "summary.json"]
+    assert _results(out) == ["kx.tif", "ky.tif", "summary.json"]
     assert "fine grid    256 x 256 cells (x, y)" in stdout
     assert "coarse grid  32 x 32 blocks of 8x8 cells" in stdout
-    assert f"wrote kx.tif, ky.tif, summary.json to {out}" in stdout
+    assert f"wrote kx.tif, ky.tif, the coarse-grid package (manifest.json), summary.json to {out}" in stdout
 
     expected = upscale.coarsen(upscale.read_field(demo_dir / LOGNORMAL), "8x8", "geometric")
     kx, transform, crs = _read(out / "kx.tif")
@@ -63,7 +72,7 @@ def test_run_with_porosity_writes_porosity(run_cli, demo_dir, tmp_path):
         "--block", "16x8", "--method", "harmonic", "--out", out,
     )  # fmt: skip
     assert (code, err) == (0, "")
-    assert sorted(p.name for p in out.iterdir()) == [
+    assert _results(out) == [
         "kx.tif", "ky.tif", "porosity.tif", "summary.json"
     ]  # fmt: skip
     porosity, _, _ = _read(out / "porosity.tif")
@@ -84,7 +93,7 @@ def test_run_3d_model_writes_kz_with_one_band_per_coarse_layer(run_cli, demo_dir
         "--method", "arithmetic", "--kv-kh", "0.1", "--out", out,
     )  # fmt: skip
     assert (code, err) == (0, "")
-    assert sorted(p.name for p in out.iterdir()) == ["kx.tif", "ky.tif", "kz.tif", "summary.json"]
+    assert _results(out) == ["kx.tif", "ky.tif", "kz.tif", "summary.json"]
     kx, _, _ = _read(out / "kx.tif")
     kz, _, _ = _read(out / "kz.tif")
     assert kx.shape == kz.shape == (8, 12, 12)
@@ -140,7 +149,7 @@ def test_overwrite_replaces_a_3d_result_with_a_2d_one(run_cli, demo_dir, tmp_pat
         "--out", out, "--overwrite",
     )  # fmt: skip
     assert (code, err) == (0, "")
-    assert sorted(p.name for p in out.iterdir()) == [
+    assert _results(out) == [
         "kx.tif", "ky.tif", "my-notes.txt", "summary.json"
     ]  # fmt: skip
     kx, _, _ = _read(out / "kx.tif")
@@ -196,8 +205,8 @@ def test_console_script_runs_in_a_subprocess(demo_dir, tmp_path):
     )  # fmt: skip
     assert done.returncode == 0, done.stderr
     assert done.stderr == ""
-    assert "wrote kx.tif, ky.tif, summary.json" in done.stdout
-    assert sorted(p.name for p in out.iterdir()) == ["kx.tif", "ky.tif", "summary.json"]
+    assert "wrote kx.tif, ky.tif, the coarse-grid package (manifest.json), summary.json" in done.stdout
+    assert _results(out) == ["kx.tif", "ky.tif", "summary.json"]
     expected = upscale.coarsen(upscale.read_field(demo_dir / LOGNORMAL), "8x8", "geometric")
     np.testing.assert_array_equal(_read(out / "ky.tif")[0], expected.coarse.ky)
     version = subprocess.run(

@@ -7,6 +7,7 @@ from pathlib import Path
 
 import click
 
+from ..export.package import PACKAGE_FILES
 from ..field import PERMEABILITY
 from ..upscaled import Upscaled
 
@@ -91,7 +92,8 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     click.echo("")
     print_check(summary["check"])
     click.echo("")
-    files = [f for f in summary["files"] if not f.startswith("figures/")]
+    files = [f for f in summary["files"] if not f.startswith("figures/") and f not in PACKAGE_FILES]
+    files.insert(len(files) - ("report.html" in files), "the coarse-grid package (manifest.json)")
     figures = sum(f.endswith(".png") for f in summary["files"] if f.startswith("figures/"))
     if figures:
         files.insert(len(files) - ("report.html" in files), f"{figures} figures in figures/ (PNG, SVG)")

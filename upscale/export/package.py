@@ -35,6 +35,9 @@ from ..units import DARCY_M2, UNITS
 #: Name and version of the package format (ours).
 FORMAT = {"name": "upscale-coarse-grid", "version": "1.0"}
 TABLES = ("cells", "connections", "boundary")
+#: Every file of the package, in the order written.
+PACKAGE_FILES = (*(f"{t}.{x}" for t in TABLES for x in ("csv", "parquet")), "coarse.nc", "coarse.vtr",
+                 "manifest.json")  # fmt: skip
 #: Output unit systems: ``si`` (m, m², m³) and ``field`` (ft, mD).
 UNIT_SYSTEMS = ("si", "field")
 FOOT_M = 0.3048  # international foot (exact, 1959 agreement)
