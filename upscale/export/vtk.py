@@ -23,7 +23,9 @@ def _edges(sizes: np.ndarray, start: float, sign: float) -> np.ndarray:
 
 
 def _ascii(values: np.ndarray) -> str:
-    return " ".join(format(v, ".17g") for v in values.ravel())
+    # shortest round-trip decimal of every value; NaN (inactive) as "nan", which VTK's
+    # number parser reads (strtod syntax)
+    return " ".join(map(repr, np.asarray(values, dtype=float).ravel().tolist()))
 
 
 def write_vtk(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors: dict[str, Any]) -> None:
