@@ -2,8 +2,9 @@
 
 Variables on (layer, row, column) with coordinate variables ``x`` and ``y``
 (cell centres in the CRS's units) and ``z`` (cell-centre height above the
-top of the model, negative downward), a ``crs`` grid-mapping variable
-carrying the CRS as WKT, and the unit of every variable (Eaton et al., "NetCDF
+top of the model, negative downward), a ``crs`` grid-mapping variable with
+the CF attributes of the CRS (``grid_mapping_name`` and its parameters, and
+``crs_wkt``; from pyproj) when there is a CRS, and the unit of every variable (Eaton et al., "NetCDF
 Climate and Forecast (CF) Metadata Conventions", version 1.8: §4 coordinate
 types, §5.6 grid mappings).
 """
@@ -47,10 +48,11 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], fact
         nc.setncatts({"Conventions": "CF-1.8", **attributes})
         for name, size in zip(("layer", "row", "column"), grid.shape):
             nc.createDimension(name, size)
-        crs = nc.createVariable("crs", "i4")
         if grid.crs is not None:
-            crs.crs_wkt = grid.crs.to_wkt()
-            crs.spatial_ref = grid.crs.to_wkt()
+            from pyproj import CRS
+
+            crs = nc.createVariable("crs", "i4")
+            crs.setncatts(CRS.from_wkt(grid.crs.to_wkt()).to_cf())  # grid_mapping_name, crs_wkt...
         for name, dim, values, standard in (("x", "column", x, "projection_x_coordinate"),
                                             ("y", "row", y, "projection_y_coordinate")):  # fmt: skip
             var = nc.createVariable(name, "f8", (dim,))
@@ -70,7 +72,8 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], fact
             var[:] = values
             var.units = _UDUNITS.get(unit, unit)
             var.long_name = long_name
-            var.grid_mapping = "crs"
+            if grid.crs is not None:
+                var.grid_mapping = "crs"
             var.coordinates = "z y x"
 
 

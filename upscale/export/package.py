@@ -19,6 +19,7 @@ column i, row j, layer k of an N x M x L coarse grid (all zero-based, layer
 
 from __future__ import annotations
 
+import hashlib
 from pathlib import Path
 from typing import Any
 
@@ -131,12 +132,12 @@ def package_tables(
     for name, values in coarse_properties.items():
         if name != "porosity":
             cells[name] = values.ravel() * kf
-    bulk = dx * dy * dz
+    bulk = bulk_volumes(grid, length).ravel()
     if "porosity" in coarse_properties:
         porosity = coarse_properties["porosity"].ravel()
         cells["porosity"] = porosity
-        cells["pore_volume"] = porosity * bulk * length**3
-    cells["bulk_volume"] = bulk * length**3
+        cells["pore_volume"] = porosity * bulk
+    cells["bulk_volume"] = bulk
 
     index = ids.reshape(L, M, N)
     centre_sizes = (grid.dz, grid.dy, grid.dx)
@@ -183,6 +184,12 @@ def package_tables(
     }
 
 
+def bulk_volumes(grid: Grid, length: float = 1.0) -> np.ndarray:
+    """Bulk volume of every cell, shape (L, M, N), in (length unit)³ (`length` per m)."""
+    return (grid.dz * length)[:, None, None] * (grid.dy * length)[None, :, None] * (
+        grid.dx * length)[None, None, :]
+
+
 def _face_areas(grid: Grid, a: int) -> np.ndarray:
     """Area in m² of each cell's face normal to array axis `a`, broadcastable to the grid."""
     sizes = [grid.dz[:, None, None], grid.dy[None, :, None], grid.dx[None, None, :]]
@@ -204,11 +211,27 @@ def column_units(tables: dict[str, pa.Table], factors: dict[str, Any], crs_unit:
     return {name: {c: known.get(c, k) for c in table.column_names} for name, table in tables.items()}
 
 
-def write_tables(stage: Path, tables: dict[str, pa.Table]) -> list[str]:
-    """Write each table as CSV and as Parquet under `stage`; the file names written."""
-    files = []
+def write_tables(stage: Path, tables: dict[str, pa.Table]) -> dict[str, dict[str, Any]]:
+    """Write each table as CSV and as Parquet under `stage`.
+
+    Returns
+    -------
+    dict
+        Per file name: ``rows`` and ``sha256``, for the manifest (a reader
+        checks them, so a truncated or changed table is caught).
+    """
+    files = {}
     for name, table in tables.items():
-        pacsv.write_csv(table, stage / f"{name}.csv")
-        pq.write_table(table, stage / f"{name}.parquet")
-        files += [f"{name}.csv", f"{name}.parquet"]
+        for suffix, write in (("csv", pacsv.write_csv), ("parquet", pq.write_table)):
+            path = stage / f"{name}.{suffix}"
+            write(table, path)
+            files[path.name] = {"rows": table.num_rows, "sha256": _sha256(path)}
     return files
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()

@@ -16,7 +16,7 @@ from ..upscaled import Upscaled
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
 from .netcdf import crs_unit, write_netcdf
-from .package import FORMAT, column_units, package_tables, unit_factors, write_tables
+from .package import FORMAT, bulk_volumes, column_units, package_tables, unit_factors, write_tables
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
 from .vtk import write_vtk
@@ -48,7 +48,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     properties = {**coarse.properties(), **result.tensor}
     tables = package_tables(properties, trans, factors=factors,
                             source="flow" if result.faces is not None else "harmonic")  # fmt: skip
-    files = write_tables(stage, tables)
+    table_files = write_tables(stage, tables)
     length = factors["length"]
     gridded = {}
     for name, values in properties.items():
@@ -57,7 +57,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         else:
             long_name = _LONG_NAMES.get(name, f"permeability tensor term {name}")
             gridded[name] = (values * factors["k"], factors["k_unit"], long_name)
-    bulk = coarse.grid.cell_volumes() * length**3
+    bulk = bulk_volumes(coarse.grid, length)
     gridded["bulk_volume"] = (bulk, factors["length_unit"] + "3", "bulk volume")
     if coarse.porosity is not None:
         gridded["pore_volume"] = (coarse.porosity * bulk, factors["length_unit"] + "3", "pore volume")
@@ -65,7 +65,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
                   "history": " ".join(command or []), "comment": CAUTION}  # fmt: skip
     write_netcdf(stage / "coarse.nc", coarse.grid, gridded, factors, attributes)
     write_vtk(stage / "coarse.vtr", coarse.grid, {n: v[0] for n, v in gridded.items()}, factors)
-    files += ["coarse.nc", "coarse.vtr"]
+    files = [*table_files, "coarse.nc", "coarse.vtr"]
     grid = coarse.grid
     manifest = {
         "format": FORMAT,
@@ -82,6 +82,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "transmissibility_source": "flow" if result.faces is not None else "harmonic",
         "check": check,
         "files": files,
+        "tables": table_files,
         "caution": CAUTION,
     }  # fmt: skip
     (stage / "manifest.json").write_text(json.dumps(jsonable(manifest), indent=2, allow_nan=False) + "\n")

@@ -3,8 +3,9 @@
 VTK's rectilinear grids need coordinates that increase, x fastest (Kitware,
 "VTK File Formats", XML RectilinearGrid). Rows run north to south and layers
 top to bottom in our arrays, so both are reversed here: VTK y increases
-northward and VTK z is the height above the top of the model (negative
-downward). The cell array ``id`` holds each cell's package id, so a value
+northward and VTK z is the height above the top of the model in m
+(negative downward), whatever the package's units, so x, y and z share one
+scale in a viewer. The cell array ``id`` holds each cell's package id, so a value
 picked in a viewer leads back to ``cells.csv``.
 """
 
@@ -40,14 +41,14 @@ def write_vtk(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors
     properties : dict of str to ndarray of shape (L, M, N)
         Values in the package's units.
     factors : dict
-        From `upscale.export.package.unit_factors` (for z and the lengths).
+        From `upscale.export.package.unit_factors`; unused for the geometry,
+        which stays in the CRS's units and metres so that views are not distorted.
     """
     L, M, N = grid.shape
-    length = factors["length"]
     x0, y0 = (0.0, 0.0) if grid.transform is None else (grid.transform.c, grid.transform.f)
     x = _edges(grid.dx, x0, 1.0)
     y = _edges(grid.dy, y0, -1.0)[::-1]
-    z = (-_edges(grid.dz, 0.0, 1.0) * length)[::-1]
+    z = (-_edges(grid.dz, 0.0, 1.0))[::-1]  # in m, like x and y in a metric CRS
     arrays = {"id": np.arange(L * M * N, dtype=float).reshape(L, M, N), **properties}
     cells = "\n".join(
         f'<DataArray type="Float64" Name="{name}" format="ascii">{_ascii(values[::-1, ::-1, :])}'

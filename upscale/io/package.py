@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pyarrow as pa
@@ -19,17 +20,46 @@ import pyarrow.csv as pacsv
 from ..errors import InputError
 from ..field import Grid
 from ..flow import Transmissibilities
+from .read import sha256
 
 MANIFEST = "manifest.json"
 _AXIS = {"z": 0, "y": 1, "x": 2}
 
 
-def _table(path: Path) -> dict[str, np.ndarray]:
+def _table(path: Path, recorded: dict[str, Any]) -> dict[str, np.ndarray]:
+    """A table, after checking it against the manifest's row count and SHA-256."""
+    if path.name not in recorded:
+        raise InputError(f"{path}: the manifest does not list it")
     try:
+        digest = sha256(path)
         table = pacsv.read_csv(path)
     except (OSError, pa.ArrowInvalid) as exc:
-        raise InputError(f"{path}: cannot be read as a package table ({exc})") from None
+        raise InputError(f"{path}: cannot be read as a package table ({_plain(exc)})") from None
+    if digest != recorded[path.name]["sha256"] or table.num_rows != recorded[path.name]["rows"]:
+        raise InputError(
+            f"{path}: changed since the run (its SHA-256 or its {recorded[path.name]['rows']} rows "
+            "differ from the manifest's); the package no longer describes the run's coarse model"
+        )
     return {name: table.column(name).to_numpy(zero_copy_only=False) for name in table.column_names}
+
+
+def _plain(exc: Exception) -> str:
+    """The first line of an error, printable characters only."""
+    text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+    return "".join(c if c.isprintable() else "?" for c in text)[:200]
+
+
+def _numbers(values: np.ndarray, what: str, path: Path, positive: bool) -> np.ndarray:
+    try:
+        numbers = np.asarray(values, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise InputError(f"{path}: {what} holds values that are not numbers") from None
+    bad = ~np.isfinite(numbers) | ((numbers <= 0) if positive else (numbers < 0))
+    if bad.any():
+        need = "positive" if positive else "0 or more"
+        raise InputError(f"{path}: {int(bad.sum())} {what} value(s) missing or not {need}, "
+                         f"first in data row {int(np.flatnonzero(bad)[0]) + 1}")  # fmt: skip
+    return numbers
 
 
 def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
@@ -56,12 +86,13 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
         manifest = json.loads((folder / MANIFEST).read_text())
         factors = manifest["units"]["factors"]
         length, tf = float(factors["length"]), float(factors["k"]) * float(factors["length"])
+        recorded = dict(manifest["tables"])
     except (OSError, ValueError, KeyError, TypeError) as exc:
         raise InputError(f"{folder / MANIFEST}: not a coarse-grid package manifest ({exc})") from None
     try:
-        cells = _table(folder / "cells.csv")
-        pairs = _table(folder / "connections.csv")
-        outer = _table(folder / "boundary.csv")
+        cells = _table(folder / "cells.csv", recorded)
+        pairs = _table(folder / "connections.csv", recorded)
+        outer = _table(folder / "boundary.csv", recorded)
         shape = (int(cells["k"].max()) + 1, int(cells["j"].max()) + 1, int(cells["i"].max()) + 1)
         L, M, N = shape
         order = np.argsort(cells["id"])
@@ -75,17 +106,27 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
         faces = [np.zeros(tuple(n - (b == a) for b, n in enumerate(shape))) for a in range(3)]
         boundary = [[np.zeros(tuple(1 if b == a else n for b, n in enumerate(shape))) for _ in "-+"]
                     for a in range(3)]  # fmt: skip
+        T = _numbers(pairs["transmissibility"], "transmissibility", folder / "connections.csv", True)
+        t = _numbers(outer["half_transmissibility"], "half_transmissibility", folder / "boundary.csv",
+                     False)  # fmt: skip
+        strides = {"x": 1, "y": N, "z": N * M}
         for name, a in _AXIS.items():
             along = pairs["axis"] == name
-            faces[a][np.unravel_index(pairs["id1"][along].astype(np.int64), shape)] = (
-                pairs["transmissibility"][along] / tf
-            )
+            first = pairs["id1"][along].astype(np.int64)
+            if np.any(pairs["id2"][along].astype(np.int64) != first + strides[name]):
+                raise InputError(f"{folder / 'connections.csv'}: a connection along {name} joins "
+                                 "cells that are not neighbours along it")  # fmt: skip
+            faces[a][np.unravel_index(first, shape)] = T[along] / tf
             for side, sign in enumerate("-+"):
                 here = outer["face"] == name + sign
                 where = list(np.unravel_index(outer["id"][here].astype(np.int64), shape))
                 where[a] = np.zeros_like(where[a])
-                boundary[a][side][tuple(where)] = outer["half_transmissibility"][here] / tf
-    except (KeyError, ValueError, IndexError) as exc:
-        raise InputError(f"{folder}: the package tables are incomplete or inconsistent ({exc})") from None
+                boundary[a][side][tuple(where)] = t[here] / tf
+    except InputError:
+        raise
+    except (KeyError, ValueError, IndexError, TypeError) as exc:
+        raise InputError(
+            f"{folder}: the package tables are incomplete or inconsistent ({_plain(exc)})"
+        ) from None
     trans = Transmissibilities(grid, tuple(faces), tuple((b[0], b[1]) for b in boundary), active)
     return manifest, trans
