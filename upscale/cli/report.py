@@ -120,3 +120,21 @@ def print_check(check: dict | None) -> None:
                      _solve(c["fine"]), _solve(c["coarse"])])  # fmt: skip
     click.echo("flow check: the same pressure drop across each axis on both grids")
     click.echo(table(["axis", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))
+
+
+def print_ensemble(ensemble: dict, out: str) -> None:
+    """Print the spread of an ensemble's check: P10, P50, P90 per quantity and axis."""
+    stats = ensemble["statistics"]
+    rows = []
+    for quantity in ("k_fine", "k_coarse", "rel_error"):
+        for axis, s in stats[quantity].items():
+            if s is None:
+                continue
+            scale, spec = (100.0, "+.2f") if quantity == "rel_error" else (1.0, ".4g")
+            rows.append([f"{quantity} {axis}", *(number(scale * s[p], spec) for p in ("p10", "p50", "p90")),
+                         str(s["count"])])  # fmt: skip
+    click.echo(f"ensemble of {len(ensemble['realizations'])} realizations")
+    if rows:
+        click.echo(table(["quantity", "P10", "P50", "P90", "n"], rows))
+        click.echo("(k in the input's unit, errors in %; P10 is exceeded by 90 % of the realizations)")
+    click.echo(f"wrote one folder per realization, ensemble.csv and ensemble.json to {Path(out)}")

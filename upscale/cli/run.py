@@ -2,30 +2,26 @@
 
 from __future__ import annotations
 
-import time
-
 import click
 
 from ..caution import CAUTION
-from ..check import check_flow, too_large
-from ..compare import single
+from ..cluster import compute_on
+from ..ensemble import expand
 from ..errors import InputError
-from ..export import check_destination, write_result
+from ..export import check_destination
 from ..export.package import unit_factors
 from ..grid import REMAINDER_POLICIES, BlockSpec
-from ..io import read_field
+from ..job import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from ..report.bundle import bundle
-from ..upscaled import coarsen
 from .options import check_options, field_options, parse_bytes, read_options, recorded
 from .progress import progress
-from .report import print_result
+from .report import print_ensemble, print_result
 
 _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 
 
 @click.command(epilog=f"Caution: {CAUTION}")
-@click.argument("field", type=click.Path(dir_okay=False))
+@click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--block", required=True, metavar="NXxNY[xNZ]",
               help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
               "8x8x2 adds 2 layers.")
@@ -56,16 +52,22 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--units", type=click.Choice(["si", "field"]), default="si", show_default=True,
               help="Units of the coarse-grid package: si (m, m², m³; transmissibility k·A/L in m³) "
               "or field (ft, mD; transmissibility in mD·ft).")
+@click.option("--workers", type=int, default=None, metavar="N",
+              help="Start a local dask cluster of N worker processes for the run.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Send the work to a running dask.distributed scheduler (e.g. tcp://host:8786); "
+              "workers read the inputs from the same paths.")
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
-              help="Output folder (created; must be empty unless --overwrite).")
+              help="Output folder (created; must be empty unless --overwrite). For several fields, "
+              "one sub-folder per field plus ensemble.json and ensemble.csv.")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @click.pass_context
-def run(ctx: click.Context, field: str, block: str, method: str, exponent: float | None,
+def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exponent: float | None,
         bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
-        tolerance: float, check_limit: int, units: str, out: str, overwrite: bool,
-        **options: object) -> None:  # fmt: skip
-    """Upscale FIELD to coarse blocks with one method.
+        tolerance: float, check_limit: int, units: str, workers: int | None, scheduler: str | None,
+        out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+    """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
 
     Writes one GeoTIFF per property into the output folder — kx.tif, ky.tif,
     kz.tif (3D), porosity.tif (when given), the off-diagonal tensor terms
@@ -81,43 +83,30 @@ def run(ctx: click.Context, field: str, block: str, method: str, exponent: float
       upscale run map.tif --block 8x8 --method geometric --out coarse/
       upscale run model.tif --dz 2 --kv-kh 0.1 --block 10x10x4 --method power --exponent 0.5 --out c/
       upscale run map.tif --block 16x16 --method flow --bc periodic --border 4 --out tensor/
+      upscale run 'realizations/*.tif' --block 8x8 --method flow --workers 2 --out ensemble/
     """
     check_destination(out, overwrite)
     if (plot or html_report) and no_check:
         raise InputError("--plot and --report show the flow check; leave out --no-check")
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
     unit_factors(str(options["unit"]), units)  # refuses field units for a conductivity, early
-    timings = {}
-    start = time.perf_counter()
     read = read_options(options)
-    fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read)
-    timings["read_s"] = time.perf_counter() - start
-    with progress(ctx.obj["quiet"]):
-        result = coarsen(fine, spec, method, exponent=exponent, bc=bc, border=border)
-    timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
-    check, checks = None, None
-    if not no_check:
-        mark = time.perf_counter()
-        reason = too_large(result.fine.shape, check_limit)
-        if reason and (plot or html_report):
-            raise InputError(f"--plot and --report show the flow check, and {reason}")
-        if reason:
-            check = {"skipped": reason}
-        else:
-            checks = check_flow(result.fine, result.transmissibilities(), solver=solver,
-                                tolerance=tolerance)  # fmt: skip
-            check = {axis: c.summary() for axis, c in checks.items()}
-        timings["check_s"] = time.perf_counter() - mark
-    made = None
-    if checks and (plot or html_report):
-        if layer is not None and (result.fine.ndim != 3 or layer > result.fine.shape[0]):
-            raise InputError(f"--layer {layer}: the field has {result.fine.shape[0]} layer(s)")
-        made = bundle(single(result, checks, timings["upscale_s"]),
-                      title=f"upscale — {result.method} on {field}", command=ctx.obj["command"],
-                      layer=None if layer is None else layer - 1)  # fmt: skip
-    summary = write_result(result, out, overwrite=overwrite, command=ctx.obj["command"],
-                           timings=timings, check=check, read=recorded(read),
-                           images=made.images if made and plot else None,
-                           page=made.page if made and html_report else None, units=units)  # fmt: skip
-    if not ctx.obj["quiet"]:
-        print_result(result, summary, out)
+    settings = Settings(
+        block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},
+        read=read, recorded_read=recorded(read), chunk_bytes=parse_bytes(chunk), check=not no_check,
+        solver=solver, tolerance=tolerance, check_limit=check_limit, units=units, plot=plot,
+        report=html_report, layer=None if layer is None else layer - 1, command=ctx.obj["command"],
+    )  # fmt: skip
+    paths = expand(list(field))
+    quiet = ctx.obj["quiet"]
+    with compute_on(workers, scheduler) as count:
+        if len(paths) == 1:
+            with progress(quiet):
+                result, summary = upscale_file(paths[0], settings, out, overwrite=overwrite)
+            if not quiet:
+                print_result(result, summary, out)
+            return
+        ensemble = run_ensemble(paths, settings, out, overwrite=overwrite, parallel=count,
+                                quiet=quiet)  # fmt: skip
+    if not quiet:
+        print_ensemble(ensemble, out)

@@ -11,6 +11,7 @@ types, §5.6 grid mappings).
 
 from __future__ import annotations
 
+import threading
 from pathlib import Path
 from typing import Any
 
@@ -18,6 +19,10 @@ import numpy as np
 
 from ..field import Grid
 from .package import _centres
+
+#: The HDF5 library under netCDF4 is not thread-safe: one file at a time (ensembles
+#: write several realizations from several threads).
+_HDF5 = threading.Lock()
 
 #: CF ``units`` strings (UDUNITS) of the package's unit names.
 _UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "mD": "millidarcy", "1": "1"}
@@ -44,7 +49,7 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], fact
 
     length = factors["length"]
     x, y, z = _centres(grid)
-    with netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
+    with _HDF5, netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
         nc.setncatts({"Conventions": "CF-1.8", **attributes})
         for name, size in zip(("layer", "row", "column"), grid.shape):
             nc.createDimension(name, size)

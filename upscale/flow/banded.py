@@ -15,6 +15,11 @@ from __future__ import annotations
 import numba as nb
 import numpy as np
 
+# Several threads (dask's, or an ensemble's) may launch the compiled parallel loops at
+# once; numba's default "workqueue" threading layer does not allow that (numba
+# documentation, "The Threading Layers"), the OpenMP or TBB layers do.
+nb.config.THREADING_LAYER = "threadsafe"
+
 #: Compiler options of the local solver. No fast-math: a result must not depend
 #: on memory alignment, so chunked and whole-array runs agree to the bit.
 EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy")

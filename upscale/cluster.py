@@ -1,0 +1,65 @@
+"""Where dask computes: this machine's threads, a local cluster, or an existing cluster.
+
+With neither ``--workers`` nor ``--scheduler``, dask's threaded scheduler
+runs the chunks on this machine. ``--workers N`` starts a
+`dask.distributed.LocalCluster` of N single-threaded worker processes for
+the run; ``--scheduler ADDRESS`` connects to a running cluster. Every
+computation inside the context then goes to that cluster. Workers read the
+rasters themselves from the paths in the task graph, so every worker must
+reach the input files at the same path (a shared file system); only small
+objects (paths, windows, options) travel from the client.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterator
+from contextlib import contextmanager
+
+from .errors import InputError
+
+#: Seconds to wait for a scheduler before giving up.
+CONNECT_TIMEOUT = 10
+
+
+@contextmanager
+def compute_on(workers: int | None = None, address: str | None = None) -> Iterator[int]:
+    """Send dask computations to a local cluster or a scheduler for the duration of the block.
+
+    Yields
+    ------
+    int
+        How many workers compute (1 for the threaded scheduler: its threads
+        share one process).
+
+    Raises
+    ------
+    InputError
+        If both are given, or the scheduler cannot be reached within `CONNECT_TIMEOUT` s.
+    """
+    if workers is not None and address is not None:
+        raise InputError("give --workers (a local cluster) or --scheduler (an existing one), not both")
+    if workers is None and address is None:
+        yield 1
+        return
+    try:
+        from dask.distributed import Client, LocalCluster
+    except ImportError:  # pragma: no cover - distributed is a dependency
+        raise InputError("--workers and --scheduler need dask.distributed") from None
+    if workers is not None:
+        if workers < 1:
+            raise InputError(f"--workers must be 1 or more, not {workers}")
+        logging.getLogger("distributed").setLevel(logging.ERROR)  # its start-up chatter
+        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
+                          dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+                Client(cluster) as client:  # fmt: skip
+            yield len(client.scheduler_info()["workers"])
+        return
+    try:
+        client = Client(address, timeout=CONNECT_TIMEOUT)
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(
+            f"cannot reach the dask scheduler at {address!r} within {CONNECT_TIMEOUT} s ({exc})"
+        ) from None
+    with client:
+        yield max(1, len(client.scheduler_info()["workers"]))

@@ -1,0 +1,177 @@
+"""One upscaling job from a file to a finished output folder: read, upscale, check, plot, write.
+
+`upscale run` calls `upscale_file` once for a field, and once per
+realization for an ensemble — the same settings, each into its own folder.
+"""
+
+from __future__ import annotations
+
+import time
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import click
+
+from .check import check_flow, too_large
+from .compare import single
+from .ensemble import check_same_grid, ensemble_summary, names_of
+from .errors import InputError
+from .export import write_result
+from .export.ensemble import ENSEMBLE, write_ensemble
+from .export.staging import staged_folder
+from .grid import BlockSpec
+from .io import read_field
+from .report.bundle import bundle
+from .upscaled import Upscaled, coarsen
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Everything a job needs besides its input path and output folder.
+
+    Attributes
+    ----------
+    block : BlockSpec
+    method : str
+    options : dict
+        The method's options (``exponent``, ``bc``, ``border``; None when not given).
+    read : dict
+        Keyword arguments of `upscale.read_field` (unit, scale, nodata, ky, kz, ...).
+    recorded_read : dict
+        The read options the summary records.
+    chunk_bytes : int or None
+    check : bool
+        Whether to run the fine-versus-coarse check.
+    solver, tolerance, check_limit
+        The check's solver settings.
+    units : {'si', 'field'}
+        Units of the coarse-grid package.
+    plot, report : bool
+        Whether to write the figures and the HTML report.
+    layer : int or None
+        Zero-based fine layer drawn in 3D maps.
+    command : list of str
+        The command line, recorded in the outputs.
+    """
+
+    block: BlockSpec
+    method: str
+    options: dict[str, Any]
+    read: dict[str, Any]
+    recorded_read: dict[str, Any]
+    chunk_bytes: int | None = None
+    check: bool = True
+    solver: str = "auto"
+    tolerance: float = 1e-10
+    check_limit: int = 20_000_000
+    units: str = "si"
+    plot: bool = False
+    report: bool = False
+    layer: int | None = None
+    command: list[str] = field(default_factory=list)
+
+
+def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False
+                 ) -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
+    """Upscale the field in `path` and write the result into `out`.
+
+    Returns
+    -------
+    (Upscaled, dict)
+        The result and its summary as written.
+
+    Raises
+    ------
+    InputError
+        For bad input, including ``--plot``/``--report`` without a check.
+    """
+    timings = {}
+    start = time.perf_counter()
+    fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells, **settings.read)
+    timings["read_s"] = time.perf_counter() - start
+    result = coarsen(fine, settings.block, settings.method, **settings.options)
+    timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
+    check, checks = None, None
+    drawing = settings.plot or settings.report
+    if settings.check:
+        mark = time.perf_counter()
+        reason = too_large(result.fine.shape, settings.check_limit)
+        if reason and drawing:
+            raise InputError(f"--plot and --report show the flow check, and {reason}")
+        if reason:
+            check = {"skipped": reason}
+        else:
+            checks = check_flow(result.fine, result.transmissibilities(), solver=settings.solver,
+                                tolerance=settings.tolerance)  # fmt: skip
+            check = {axis: c.summary() for axis, c in checks.items()}
+        timings["check_s"] = time.perf_counter() - mark
+    made = None
+    if checks and drawing:
+        layer = settings.layer
+        if layer is not None and (result.fine.ndim != 3 or layer >= result.fine.shape[0]):
+            raise InputError(f"--layer {layer + 1}: the field has {result.fine.shape[0]} layer(s)")
+        made = bundle(single(result, checks, timings["upscale_s"]),
+                      title=f"upscale — {result.method} on {path}", command=settings.command,
+                      layer=layer)  # fmt: skip
+    summary = write_result(result, out, overwrite=overwrite, command=settings.command,
+                           timings=timings, check=check, read=settings.recorded_read,
+                           images=made.images if made and settings.plot else None,
+                           page=made.page if made and settings.report else None,
+                           units=settings.units)  # fmt: skip
+    return result, summary
+
+
+def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overwrite: bool = False,
+                 parallel: int = 1, quiet: bool = True) -> dict[str, Any]:  # fmt: skip
+    """The same job on every realization, into one sub-folder each, and the ensemble's spread.
+
+    Parameters
+    ----------
+    paths : list of str
+        The realizations (on one grid).
+    settings : Settings
+        Shared by every realization.
+    out : str or Path
+        The ensemble's folder: a sub-folder per realization (named after its
+        file), ``ensemble.csv`` and ``ensemble.json`` (written last).
+    overwrite : bool
+        Replace the results in a folder that holds some.
+    parallel : int
+        Realizations processed at the same time.
+    quiet : bool
+        Without progress lines on stderr.
+
+    Returns
+    -------
+    dict
+        The content of ``ensemble.json``.
+
+    Raises
+    ------
+    InputError
+        If two realizations share a name or the grids differ (checked before any work).
+    """
+    names = names_of(paths)
+    fields = {name: read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
+                               checksum=False, **settings.read)
+              for name, path in zip(names, paths)}  # fmt: skip
+    check_same_grid(fields)
+    done = []
+
+    def one(name: str, path: str) -> dict[str, Any]:
+        _, summary = upscale_file(path, settings, stage / name)
+        done.append(name)
+        if not quiet:
+            click.echo(f"[{len(done)}/{len(paths)}] {name}: done", err=True)
+        return summary
+
+    with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
+        with ThreadPoolExecutor(max_workers=max(1, parallel)) as pool:
+            summaries = list(pool.map(one, names, paths))
+        ensemble = ensemble_summary(names, summaries)
+        ensemble.update({"method": {"name": settings.method, "options": summaries[0]["method"]["options"]},
+                         "block": summaries[0]["block"], "command": settings.command})  # fmt: skip
+        write_ensemble(stage, ensemble, names)
+    return ensemble
