@@ -43,6 +43,7 @@ DEMO_NAMES = (
     "marrowfen_channels.tif",
     "marrowfen_layered.tif",
     "marrowfen_3d.tif",
+    *(f"ensemble/marrowfen_r{r:02d}.tif" for r in range(1, 9)),
 )
 
 

@@ -24,6 +24,8 @@ LISTING = "fields.json"
 NODATA = -9999.0
 _CRS = "+proj=tmerc +lat_0=0 +lon_0=0 +k=1 +x_0=0 +y_0=0 +R=6371000 +units=m +no_defs"
 _ORIGIN = (31_000.0, 87_000.0)  # west and north edges of every demo grid, m
+#: Equiprobable realizations in demo-fields/ensemble/.
+ENSEMBLE_SIZE = 8
 
 
 def _outline(shape: tuple[int, int]) -> np.ndarray:
@@ -48,6 +50,18 @@ def fields() -> dict[str, dict]:
     three_d *= np.geomspace(0.5, 2.0, 16)[:, None, None]  # coarsening-upward trend
     three_d[:, _outline((96, 96))] = NODATA
 
+    realizations = {
+        f"ensemble/marrowfen_r{r + 1:02d}.tif": {
+            "values": lognormal_field((1, 128, 128), (1.0, 6.0, 12.0), geometric_mean=150.0,
+                                      sigma_ln=1.0, seed=61_305_000 + r),  # fmt: skip
+            "cell_size": 10.0,
+            "dz": None,
+            "unit": "mD",
+            "story": f"Realization {r + 1} of {ENSEMBLE_SIZE} of the Ostrella Sandstone: the "
+            "statistics of marrowfen_lognormal.tif on a 128 x 128 grid, seeds differ.",
+        }
+        for r in range(ENSEMBLE_SIZE)
+    }
     return {
         "marrowfen_lognormal.tif": {
             "values": lognormal[None],
@@ -97,6 +111,7 @@ def fields() -> dict[str, dict]:
             "story": "3D lognormal model, 16 layers of 2 m, geometric mean 60 mD coarsening "
             "upward, sigma(ln k) = 1.2; the north-east corner is outside the model (use --dz 2).",
         },
+        **realizations,
     }
 
 
@@ -130,6 +145,7 @@ def write_demo_fields(folder: str | Path, overwrite: bool = False) -> list[str]:
                 transform=Affine(size, 0.0, _ORIGIN[0], 0.0, -size, _ORIGIN[1]),
                 crs=crs,
             )
+            (stage / name).parent.mkdir(exist_ok=True)
             write_property(
                 stage / name,
                 values,
