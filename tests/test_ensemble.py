@@ -1,0 +1,173 @@
+"""Ensembles and dask clusters: ``upscale run`` on several realizations, on threads or a cluster.
+
+What is tested
+--------------
+* An ensemble of small generated realizations: one complete run folder per
+  realization, ``ensemble.csv`` with one row per realization equal to each
+  folder's check, and ``ensemble.json`` percentiles equal to
+  ``numpy.percentile`` over the per-realization results (Hyndman & Fan 1996,
+  "Sample quantiles in statistical packages", definition 7: numpy's default).
+* The same outputs, array for array, from the threaded scheduler, a
+  ``dask.distributed.LocalCluster`` started by the test (``--scheduler``) and
+  ``--workers 2``, for an average and for the flow method with a border; and
+  with many chunks against one.
+* Bad input: a pattern that matches nothing, realizations on different grids
+  (refused before any work, naming the odd one), two files with one name, an
+  unreachable scheduler (a clear error within the timeout), --workers with
+  --scheduler — one line on stderr, exit 2, no output folder.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+
+import numpy as np
+import pytest
+import rasterio
+from conftest import lognormal, write_raster
+
+import upscale.cluster
+from upscale.ensemble import PERCENTILES, QUANTITIES
+
+SIZE = (48, 40)
+
+
+@pytest.fixture(scope="module")
+def realizations(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("realizations")
+    for r in range(5):
+        write_raster(folder / f"r{r}.tif", lognormal(SIZE, seed=9_100 + r), cell_size=10.0)
+    return folder
+
+
+def _arrays(folder):
+    arrays = {}
+    for path in sorted(folder.rglob("*.tif")):
+        with rasterio.open(path) as src:
+            arrays[path.relative_to(folder).as_posix()] = src.read()
+    return arrays
+
+
+def _one_error(code, stdout, stderr):
+    assert code == 2 and stdout == "", (code, stdout, stderr)
+    lines = stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("upscale: error: ") and "Traceback" not in stderr
+    return lines[0]
+
+
+def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
+    out = tmp_path / "ens"
+    code, stdout, stderr = run_cli("run", str(realizations / "r*.tif"), "--block", "8x8",
+                                   "--method", "geometric", "--solver", "direct", "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    assert "ensemble of 5 realizations" in stdout and "P10" in stdout
+    assert sorted(p.name for p in out.iterdir()) == [
+        "ensemble.csv", "ensemble.json", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
+    assert stderr.count(": done") == 5  # progress per realization
+    ensemble = json.loads((out / "ensemble.json").read_text())
+    with open(out / "ensemble.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert [r["name"] for r in rows] == ["r0", "r1", "r2", "r3", "r4"]
+    for row in rows:
+        summary = json.loads((out / row["name"] / "summary.json").read_text())
+        for axis in ("x", "y"):
+            for quantity in QUANTITIES:
+                assert float(row[f"{quantity}_{axis}"]) == summary["check"][axis][quantity]
+    for quantity in QUANTITIES:
+        for axis in ("x", "y"):
+            values = [float(r[f"{quantity}_{axis}"]) for r in rows]
+            want = np.percentile(values, PERCENTILES)
+            got = [ensemble["statistics"][quantity][axis][f"p{p}"] for p in PERCENTILES]
+            np.testing.assert_allclose(got, want, rtol=1e-15)
+            assert ensemble["statistics"][quantity][axis]["count"] == 5
+
+
+@pytest.fixture(scope="module")
+def threaded(realizations, tmp_path_factory):
+    from upscale.cli.main import main
+
+    outs = {}
+    for name, method in (("geometric", ["--method", "geometric"]),
+                         ("flow", ["--method", "flow", "--bc", "periodic", "--border", "3"])):  # fmt: skip
+        out = tmp_path_factory.mktemp("threaded") / name
+        assert main(["-q", "run", str(realizations / "r*.tif"), "--block", "8x8", *method,
+                     "--solver", "direct", "--out", str(out)]) == 0  # fmt: skip
+        outs[name] = out
+    return outs
+
+
+@pytest.mark.parametrize("method", ["geometric", "flow"])
+def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_path, method):
+    from dask.distributed import LocalCluster
+
+    from upscale.cli.main import main
+
+    options = {"geometric": ["--method", "geometric"],
+               "flow": ["--method", "flow", "--bc", "periodic", "--border", "3"]}[method]  # fmt: skip
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                      dashboard_address=None) as cluster:  # fmt: skip
+        out = tmp_path / "cluster"
+        assert main(["-q", "run", str(realizations / "r*.tif"), "--block", "8x8", *options,
+                     "--solver", "direct", "--scheduler", cluster.scheduler_address,
+                     "--chunk", "2KB", "--out", str(out)]) == 0  # fmt: skip
+    want, got = _arrays(threaded[method]), _arrays(out)
+    assert want.keys() == got.keys() and len(want) >= 10
+    for name in want:
+        np.testing.assert_array_equal(got[name], want[name], err_msg=name)
+    a = json.loads((threaded[method] / "ensemble.json").read_text())["statistics"]
+    b = json.loads((out / "ensemble.json").read_text())["statistics"]
+    assert a == b
+
+
+def test_workers_option_gives_the_threaded_arrays(realizations, threaded, tmp_path, run_cli):
+    out = tmp_path / "workers"
+    code, _, stderr = run_cli("run", str(realizations / "r*.tif"), "--block", "8x8", "--method",
+                              "geometric", "--solver", "direct", "--workers", "2", "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    want, got = _arrays(threaded["geometric"]), _arrays(out)
+    for name in want:
+        np.testing.assert_array_equal(got[name], want[name], err_msg=name)
+
+
+def test_pattern_matching_nothing(run_cli, tmp_path):
+    out = tmp_path / "never"
+    line = _one_error(*run_cli("run", str(tmp_path / "none*.tif"), "--block", "8x8", "--method",
+                               "geometric", "--out", out))  # fmt: skip
+    assert "matches no file" in line and not out.exists()
+
+
+def test_realizations_on_different_grids_are_refused(run_cli, realizations, tmp_path):
+    odd = tmp_path / "odd.tif"
+    write_raster(odd, lognormal((SIZE[0], SIZE[1] + 8), seed=5), cell_size=10.0)
+    out = tmp_path / "never"
+    paths = [str(realizations / "r0.tif"), str(realizations / "r1.tif"), str(odd)]
+    line = _one_error(*run_cli("run", *paths, "--block", "8x8", "--method", "geometric", "--out", out))
+    assert "odd differ from r0" in line and not out.exists()
+
+
+def test_two_realizations_with_one_name(run_cli, realizations, tmp_path):
+    (tmp_path / "other").mkdir()
+    twin = tmp_path / "other" / "r0.tif"
+    twin.write_bytes((realizations / "r0.tif").read_bytes())
+    out = tmp_path / "never"
+    line = _one_error(*run_cli("run", str(realizations / "r0.tif"), str(twin), "--block", "8x8",
+                               "--method", "geometric", "--out", out))  # fmt: skip
+    assert "would both be written to r0/" in line and not out.exists()
+
+
+def test_unreachable_scheduler(run_cli, realizations, tmp_path, monkeypatch):
+    monkeypatch.setattr(upscale.cluster, "CONNECT_TIMEOUT", 1)
+    out = tmp_path / "never"
+    line = _one_error(*run_cli("run", str(realizations / "r0.tif"), "--block", "8x8", "--method",
+                               "geometric", "--scheduler", "tcp://127.0.0.1:9", "--out", out))  # fmt: skip
+    assert "cannot reach the dask scheduler at 'tcp://127.0.0.1:9' within 1 s" in line
+    assert not out.exists()
+
+
+def test_workers_and_scheduler_together(run_cli, realizations, tmp_path):
+    out = tmp_path / "never"
+    line = _one_error(*run_cli("run", str(realizations / "r0.tif"), "--block", "8x8", "--method",
+                               "geometric", "--workers", "2", "--scheduler", "tcp://127.0.0.1:9",
+                               "--out", out))  # fmt: skip
+    assert "not both" in line and not out.exists()
