@@ -147,6 +147,29 @@ class Field:
         named = {"kx": self.kx, "ky": self.ky, "kz": self.kz, "porosity": self.porosity}
         return {name: array for name, array in named.items() if array is not None}
 
+    def window(self, rows: slice, columns: slice) -> Field:
+        """The field on a rectangle of rows and columns (all layers), georeferenced.
+
+        Arrays shared between properties stay shared; dask arrays stay lazy.
+        """
+        from affine import Affine
+
+        cut_rows = range(self.shape[1])[rows]
+        cut_cols = range(self.shape[2])[columns]
+        part = (slice(None), rows, columns)
+        pieces = {id(a): a[part] for a in self.properties().values()}
+        transform = self.grid.transform
+        if transform is not None:
+            transform = transform @ Affine.translation(cut_cols.start, cut_rows.start)
+        grid = Grid(dz=self.grid.dz, dy=self.grid.dy[rows], dx=self.grid.dx[columns],
+                    transform=transform, crs=self.grid.crs)  # fmt: skip
+
+        def cut(array: Any) -> Any:
+            return None if array is None else pieces[id(array)]
+
+        return Field(kx=cut(self.kx), ky=cut(self.ky), kz=cut(self.kz), porosity=cut(self.porosity),
+                     grid=grid, unit=self.unit, sources=self.sources)  # fmt: skip
+
     def leading(self, shape: tuple[int, int, int]) -> Field:
         """The field restricted to its first ``shape`` layers, rows and columns.
 

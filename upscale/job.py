@@ -24,6 +24,7 @@ from .export.staging import staged_folder
 from .grid import BlockSpec
 from .io import read_field
 from .report.bundle import bundle
+from .subdomains import check_subdomains
 from .upscaled import Upscaled, coarsen
 
 
@@ -101,7 +102,10 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         if reason and drawing:
             raise InputError(f"--plot and --report show the flow check, and {reason}")
         if reason:
-            check = {"skipped": reason}
+            # never silently: the global solve is skipped, windows are checked instead
+            check = {"skipped": reason, **check_subdomains(
+                result.fine, result.coarse, result.transmissibilities(), result.block,
+                settings.check_limit, solver=settings.solver, tolerance=settings.tolerance)}  # fmt: skip
         else:
             checks = check_flow(result.fine, result.transmissibilities(), solver=settings.solver,
                                 tolerance=settings.tolerance)  # fmt: skip

@@ -111,7 +111,9 @@ def print_check(check: dict | None) -> None:
         click.echo("flow check   not run (--no-check)")
         return
     if "skipped" in check:
-        click.echo(f"flow check   skipped: {check['skipped']}")
+        click.echo(f"flow check   the whole fine model was not solved: {check['skipped']}")
+        if check.get("windows"):
+            _print_windows(check)
         return
     rows = []
     for axis, c in check.items():
@@ -120,6 +122,22 @@ def print_check(check: dict | None) -> None:
                      _solve(c["fine"]), _solve(c["coarse"])])  # fmt: skip
     click.echo("flow check: the same pressure drop across each axis on both grids")
     click.echo(table(["axis", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))
+
+
+def _print_windows(check: dict) -> None:
+    """The sub-domain check: one row per window, then the spread per axis."""
+    axes = list(check["spread"])
+    rows = []
+    for w in check["windows"]:
+        place = f"rows {w['rows'][0]}-{w['rows'][1] - 1}, columns {w['columns'][0]}-{w['columns'][1] - 1}"
+        errors = [w["check"][a]["rel_error"] for a in axes]
+        rows.append([place, *("-" if e is None else f"{100 * e:+.2f} %" for e in errors)])
+    click.echo(f"checked instead on {len(rows)} windows ({check['rule']}):")
+    click.echo(table(["window (fine cells)", *(f"error {a}" for a in axes)], rows))
+    for axis, s in check["spread"].items():
+        if s:
+            click.echo(f"spread along {axis}: min {100 * s['min']:+.2f} %, "
+                       f"median {100 * s['median']:+.2f} %, max {100 * s['max']:+.2f} %")  # fmt: skip
 
 
 def print_ensemble(ensemble: dict, out: str) -> None:
