@@ -18,7 +18,7 @@ from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
-from .options import check_options, field_options, parse_bytes, read_options, recorded
+from .options import check_options, field_options, parse_chunk, read_options, recorded
 from .report import number, table
 
 
@@ -46,7 +46,8 @@ def _methods(text: str | None) -> list[str] | None:
 @click.option("--layer", type=click.IntRange(min=1), default=None,
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @field_options
-@click.option("--chunk", default=None, metavar="SIZE", help="Target memory per chunk (e.g. 64MB).")
+@click.option("--chunk", default=None, metavar="SIZE",
+              help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks).")
 @check_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder for compare.json, figures/ and report.html.")
@@ -74,7 +75,7 @@ def compare(ctx: click.Context, field: str, block: str, methods: str | None, exp
     chosen = candidates(_methods(methods), bc=bc, border=border, exponent=exponent)
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
     read = read_options(options)
-    fine = read_field(field, chunk_bytes=parse_bytes(chunk), block=spec.cells, **read)
+    fine = read_field(field, chunk_bytes=parse_chunk(chunk, spec.cells), block=spec.cells, **read)
     reason = too_large(fine.shape, check_limit)
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}")

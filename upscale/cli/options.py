@@ -47,13 +47,33 @@ def parse_cell_size(text: str | None) -> tuple[float, float] | None:
     return (values[0], values[-1])
 
 
+def parse_chunk(text: str | None, block: tuple[int, int, int]) -> int | None:
+    """``--chunk``: a size (``"64MB"``) or a number of coarse blocks (``"400blocks"``) -> bytes.
+
+    A block count is turned into the float64 bytes of that many blocks.
+
+    Examples
+    --------
+    >>> parse_chunk("400blocks", (1, 10, 10)), parse_chunk("1KB", (1, 10, 10))
+    (320000, 1000)
+    """
+    if text is not None and text.strip().lower().endswith("blocks"):
+        count = text.strip()[:-6].strip()
+        if not count.isdigit() or int(count) < 1:
+            raise click.BadParameter(f"{text!r} is not a number of blocks such as 400blocks",
+                                     param_hint="--chunk")  # fmt: skip
+        return int(count) * block[0] * block[1] * block[2] * 8
+    return parse_bytes(text)
+
+
 def parse_bytes(text: str | None) -> int | None:
     """``"64MB"``, ``"1GiB"``, ``"500000"`` -> bytes."""
     if text is None:
         return None
     match = _BYTES.match(text)
     if not match or float(match.group(1)) <= 0:
-        raise click.BadParameter(f"{text!r} is not a size such as 64MB or 1GiB", param_hint="--chunk")
+        raise click.BadParameter(f"{text!r} is not a size such as 64MB or 1GiB, or a number of blocks "
+                                 "such as 400blocks", param_hint="--chunk")  # fmt: skip
     unit = match.group(2).lower() if match.group(2) else None
     return int(float(match.group(1)) * _FACTORS[unit])
 

@@ -13,7 +13,7 @@ from ..export.package import unit_factors
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..job import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from .options import check_options, field_options, parse_bytes, read_options, recorded
+from .options import check_options, field_options, parse_chunk, read_options, recorded
 from .progress import progress
 from .report import print_ensemble, print_result
 
@@ -39,7 +39,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
               help="Blocks whose active volume fraction is below this become inactive.")
 @field_options
 @click.option("--chunk", default=None, metavar="SIZE",
-              help="Target memory per chunk (e.g. 64MB); bounds the memory used.")
+              help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks); bounds "
+              "the memory used [default: a 64th of the available memory, 16 MiB to 256 MiB].")
 @click.option("--no-check", is_flag=True, help="Skip the fine-versus-coarse flow check.")
 @click.option("--plot", is_flag=True,
               help="Also write the figures of this run (figures/*.png and *.svg): maps, check "
@@ -93,9 +94,10 @@ def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exp
     read = read_options(options)
     settings = Settings(
         block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},
-        read=read, recorded_read=recorded(read), chunk_bytes=parse_bytes(chunk), check=not no_check,
-        solver=solver, tolerance=tolerance, check_limit=check_limit, units=units, plot=plot,
-        report=html_report, layer=None if layer is None else layer - 1, command=ctx.obj["command"],
+        read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.cells),
+        check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
+        plot=plot, report=html_report, layer=None if layer is None else layer - 1,
+        command=ctx.obj["command"],
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]

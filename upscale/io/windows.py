@@ -18,8 +18,30 @@ import numpy as np
 
 from ..errors import InputError
 
-#: Bytes of float64 per chunk when the caller does not choose.
+#: Bytes of float64 per chunk when the caller does not choose and the memory is unknown.
 DEFAULT_CHUNK_BYTES = 64 * 2**20
+
+
+def default_chunk_bytes() -> int:
+    """Chunk size from the memory available now: a 64th of it per chunk, 16 MiB to 256 MiB.
+
+    A chunk is copied a few times while it is processed (float64 values,
+    half-cell transmissibilities, the coarse result) and every dask thread
+    holds one; a 64th leaves room for all of that on every core of a
+    workstation (our rule, measured in docs/performance.md).
+
+    Examples
+    --------
+    >>> 16 * 2**20 <= default_chunk_bytes() <= 256 * 2**20
+    True
+    """
+    try:
+        import psutil
+
+        available = psutil.virtual_memory().available
+    except (ImportError, OSError):  # pragma: no cover - psutil comes with distributed
+        return DEFAULT_CHUNK_BYTES
+    return int(min(256 * 2**20, max(16 * 2**20, available // 64)))
 
 
 @contextmanager
@@ -148,7 +170,7 @@ def choose_chunks(
     itemsize : int
         Bytes per value.
     chunk_bytes : int, optional
-        Target bytes per chunk (default `DEFAULT_CHUNK_BYTES`).
+        Target bytes per chunk (default `default_chunk_bytes`).
     multiple : (int, int, int)
         Chunk sizes are rounded to multiples of these (the coarse block).
 
@@ -161,7 +183,7 @@ def choose_chunks(
     >>> choose_chunks((1, 10_000, 1_000), itemsize=8, chunk_bytes=8_000_000, multiple=(1, 8, 8))
     (1, 1000, 1000)
     """
-    budget = max(1, (chunk_bytes or DEFAULT_CHUNK_BYTES) // itemsize)
+    budget = max(1, (chunk_bytes or default_chunk_bytes()) // itemsize)
     L, M, N = shape
     bz, by, bx = multiple
 
