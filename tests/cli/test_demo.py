@@ -21,12 +21,13 @@ def _raster(path):
         return src.read(), src.transform, src.crs, src.nodata, src.dtypes
 
 
-def test_demo_writes_five_fields_and_a_listing(run_cli, tmp_path):
+def test_demo_writes_the_fields_the_ensemble_and_a_listing(run_cli, tmp_path):
     out = tmp_path / "demo"
     code, stdout, err = run_cli("demo", "--out", out)
     assert (code, err) == (0, "")
-    assert stdout == f"wrote 5 demo fields to {out}: {', '.join(DEMO_NAMES)}\n"
-    assert sorted(p.name for p in out.iterdir()) == sorted([*DEMO_NAMES, LISTING])
+    assert stdout == f"wrote {len(DEMO_NAMES)} demo fields to {out}: {', '.join(DEMO_NAMES)}\n"
+    written = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
+    assert written == sorted([*DEMO_NAMES, LISTING])
     listing = json.loads((out / LISTING).read_text())
     assert listing["files"] == list(DEMO_NAMES)
     for name in DEMO_NAMES:
