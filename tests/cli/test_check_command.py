@@ -81,16 +81,17 @@ def test_no_check_records_that_no_check_ran(demo_dir, tmp_path, run_cli):
     assert "not run (--no-check)" in stdout
 
 
-def test_a_grid_beyond_the_check_limit_is_skipped_with_a_reason(demo_dir, tmp_path, run_cli):
+def test_a_grid_beyond_the_check_limit_is_checked_on_windows_with_a_reason(demo_dir, tmp_path, run_cli):
     out = tmp_path / "out"
     status, stdout, _ = run_cli(
         "run", str(demo_dir / "marrowfen_lognormal.tif"), "--block", "8x8", "--method", "harmonic",
         "--out", str(out), "--check-limit", "1000",
     )  # fmt: skip
     assert status == 0
-    reason = _summary(out)["check"]["skipped"]
-    assert "65536 cells" in reason and "1000" in reason
-    assert "skipped" in stdout
+    check = _summary(out)["check"]
+    assert "65536 cells" in check["skipped"] and "1000" in check["skipped"]
+    assert "the whole fine model was not solved" in stdout
+    assert "checked instead on" in stdout and len(check["windows"]) == 9
 
 
 def test_check_command_reproduces_the_run(demo_dir, tmp_path, run_cli):
