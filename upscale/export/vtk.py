@@ -50,26 +50,18 @@ def write_vtk(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors
     y = _edges(grid.dy, y0, -1.0)[::-1]
     z = (-_edges(grid.dz, 0.0, 1.0))[::-1]  # in m, like x and y in a metric CRS
     arrays = {"id": np.arange(L * M * N, dtype=float).reshape(L, M, N), **properties}
-    cells = "\n".join(
-        f'<DataArray type="Float64" Name="{name}" format="ascii">{_ascii(values[::-1, ::-1, :])}'
-        "</DataArray>"
-        for name, values in arrays.items()
-    )
     extent = f"0 {N} 0 {M} 0 {L}"
-    text = f"""<?xml version="1.0"?>
-<VTKFile type="RectilinearGrid" version="1.0" byte_order="LittleEndian">
-<RectilinearGrid WholeExtent="{extent}">
-<Piece Extent="{extent}">
-<CellData Scalars="kx">
-{cells}
-</CellData>
-<Coordinates>
-<DataArray type="Float64" Name="x" format="ascii">{_ascii(x)}</DataArray>
-<DataArray type="Float64" Name="y" format="ascii">{_ascii(y)}</DataArray>
-<DataArray type="Float64" Name="z" format="ascii">{_ascii(z)}</DataArray>
-</Coordinates>
-</Piece>
-</RectilinearGrid>
-</VTKFile>
-"""
-    path.write_text(text)
+    with open(path, "w", encoding="ascii") as f:
+        f.write('<?xml version="1.0"?>\n<VTKFile type="RectilinearGrid" version="1.0" '
+                f'byte_order="LittleEndian">\n<RectilinearGrid WholeExtent="{extent}">\n'
+                f'<Piece Extent="{extent}">\n<CellData Scalars="kx">\n')  # fmt: skip
+        for name, values in arrays.items():
+            f.write(f'<DataArray type="Float64" Name="{name}" format="ascii">')
+            flipped = values[::-1, ::-1, :]
+            for layer in flipped:  # one layer at a time: the text never holds the whole grid
+                f.write(_ascii(layer) + " ")
+            f.write("</DataArray>\n")
+        f.write("</CellData>\n<Coordinates>\n")
+        for name, coords in (("x", x), ("y", y), ("z", z)):
+            f.write(f'<DataArray type="Float64" Name="{name}" format="ascii">{_ascii(coords)}</DataArray>\n')
+        f.write("</Coordinates>\n</Piece>\n</RectilinearGrid>\n</VTKFile>\n")
