@@ -51,8 +51,13 @@ def _half_cells(
     return [half_cell(k, grid, axis) for axis, k in enumerate((kz, ky, kx))], grid
 
 
-def _starts(core: tuple[tuple[int, int], ...], block: tuple[int, int, int]) -> list[np.ndarray]:
-    return [np.arange(c0, c1, b) for (c0, c1), b in zip(core, block)]
+def _blocks(core: tuple[tuple[int, int], ...], block: tuple[int, int, int]
+            ) -> tuple[np.ndarray, np.ndarray, list[int]]:  # fmt: skip
+    """First and end cells (P, 3) of every block of the chunk's own cells, and the block counts."""
+    starts = [np.arange(c0, c1, b) for (c0, c1), b in zip(core, block)]
+    mesh = np.stack(np.meshgrid(*starts, indexing="ij"), axis=-1).reshape(-1, 3)
+    ends = np.minimum(mesh + np.array(block), [c1 for _, c1 in core])
+    return mesh, ends, [len(s) for s in starts]
 
 
 def _gather(t: list[np.ndarray], grid: Grid, origin: np.ndarray, shape: tuple) -> tuple:
@@ -158,9 +163,7 @@ def block_tensor_chunk(
         The tensor terms in the order of `TENSOR`, in the unit of k.
     """
     t, grid = _half_cells((kz, ky, kx), dz, cell)
-    starts = _starts(core, block)
-    mesh = np.stack(np.meshgrid(*starts, indexing="ij"), axis=-1).reshape(-1, 3)
-    ends = np.minimum(mesh + np.array(block), [c1 for _, c1 in core])
+    mesh, ends, counts = _blocks(core, block)
     origin = np.maximum(mesh - border, 0)
     stop = np.minimum(ends + border, kx.shape)
     code, mask = CONDITIONS[bc], np.array(axes)
@@ -171,7 +174,6 @@ def block_tensor_chunk(
         lo, hi = mesh[members] - origin[members], ends[members] - origin[members]
         U, G = block_tensors(boxes, h, np.array(shape), lo, hi, order, width, code, mask)
         K[members] = _tensor(U, G, code, mask, border)
-    counts = [len(s) for s in starts]
     return K.reshape(*counts, 9).transpose(3, 0, 1, 2)
 
 
@@ -216,9 +218,7 @@ def face_transmissibility_chunk(
         pressure drop is not defined.
     """
     t, grid = _half_cells((kz, ky, kx), dz, cell)
-    starts = _starts(core, block)
-    mesh = np.stack(np.meshgrid(*starts, indexing="ij"), axis=-1).reshape(-1, 3)
-    ends = np.minimum(mesh + np.array(block), [c1 for _, c1 in core])
+    mesh, ends, counts = _blocks(core, block)
     out = np.full((6, len(mesh)), np.nan)
     for a in np.flatnonzero(axes):
         before = mesh.copy()
@@ -229,7 +229,6 @@ def face_transmissibility_chunk(
         ends_last = ends[last, a].copy()
         out[3 + a, last] = _pairs(t, grid, mesh[last], ends_last, ends[last], border, a, axes,
                                   kx.shape)  # fmt: skip
-    counts = [len(s) for s in starts]
     return out.reshape(6, *counts)
 
 
