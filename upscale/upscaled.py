@@ -86,10 +86,13 @@ class Upscaled:
         Upscaled directly when the method made them; otherwise by the harmonic
         half-block rule from the block permeabilities.
         """
-        harmonic = transmissibilities(self.coarse)
-        if self.faces is None:
-            return harmonic
-        return replace(harmonic, faces=self.faces, boundary=self.boundary)
+        known = self.__dict__.get("_transmissibilities")
+        if known is None:  # computed once: the check, the windows and the package all use it
+            known = transmissibilities(self.coarse)
+            if self.faces is not None:
+                known = replace(known, faces=self.faces, boundary=self.boundary)
+            object.__setattr__(self, "_transmissibilities", known)
+        return known
 
 
 def coarsen(
