@@ -19,6 +19,7 @@ import numpy as np
 
 from ..field import Grid
 from .package import _centres
+from .slabs import Values, slabs
 
 #: The HDF5 library under netCDF4 is not thread-safe: one file at a time (ensembles
 #: write several realizations from several threads).
@@ -28,8 +29,8 @@ _HDF5 = threading.Lock()
 _UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "mD": "millidarcy", "1": "1"}
 
 
-def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], factors: dict[str, Any],
-                 attributes: dict[str, str]) -> None:  # fmt: skip
+def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str, str]],
+                 factors: dict[str, Any], attributes: dict[str, str]) -> None:  # fmt: skip
     """Write the coarse properties (in package units) on (layer, row, column).
 
     Parameters
@@ -38,8 +39,9 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], fact
         Destination ``.nc`` file.
     grid : Grid
         The coarse grid (sizes in m).
-    properties : dict of str to ndarray of shape (L, M, N)
-        Values already in the package's units; NaN = inactive.
+    properties : dict of str to (Values, str, str)
+        Per variable: its values in the package's units over a region (NaN =
+        inactive; written slab by slab), its unit and long name.
     factors : dict
         From `upscale.export.package.unit_factors`.
     attributes : dict of str to str
@@ -74,7 +76,8 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, np.ndarray], fact
         for name, (values, unit, long_name) in properties.items():
             var = nc.createVariable(name, "f8", ("layer", "row", "column"), fill_value=np.nan,
                                     zlib=True)  # fmt: skip
-            var[:] = values
+            for region in slabs(grid.shape):
+                var[region] = values(region)
             var.units = _UDUNITS.get(unit, unit)
             var.long_name = long_name
             if grid.crs is not None:

@@ -20,6 +20,7 @@ column i, row j, layer k of an N x M x L coarse grid (all zero-based, layer
 from __future__ import annotations
 
 import hashlib
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -32,6 +33,7 @@ from ..errors import InputError
 from ..field import Grid
 from ..flow import Transmissibilities
 from ..units import DARCY_M2, UNITS
+from .slabs import Region, slabs
 
 #: Name and version of the package format (ours).
 FORMAT = {"name": "upscale-coarse-grid", "version": "1.0"}
@@ -43,6 +45,7 @@ PACKAGE_FILES = (*(f"{t}.{x}" for t in TABLES for x in ("csv", "parquet")), "coa
 UNIT_SYSTEMS = ("si", "field")
 FOOT_M = 0.3048  # international foot (exact, 1959 agreement)
 _AXES = "zyx"
+ALL: Region = (slice(None), slice(None), slice(None))
 
 
 def unit_factors(unit: str, system: str) -> dict[str, Any]:
@@ -84,21 +87,34 @@ def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return x, y, z
 
 
-def _column(values: np.ndarray) -> pa.Array:
-    values = np.asarray(values)
-    if values.dtype.kind == "f":
-        return pa.array(values, mask=~np.isfinite(values))
-    return pa.array(values)
+_INTEGER = {"id", "i", "j", "k", "id1", "id2"}
+_TEXT = {"axis", "source", "face"}
 
 
-def package_tables(
-    coarse_properties: dict[str, np.ndarray],
-    trans: Transmissibilities,
-    *,
-    factors: dict[str, Any],
-    source: str,
-) -> dict[str, pa.Table]:
-    """The three tables of the package.
+def _schema(names: list[str]) -> pa.Schema:
+    """Column types by name: ids and indices int64, ``active`` int8, labels text, the rest float64."""
+    def kind(name: str) -> pa.DataType:
+        if name in _INTEGER:
+            return pa.int64()
+        if name == "active":
+            return pa.int8()
+        return pa.string() if name in _TEXT else pa.float64()
+
+    return pa.schema([(name, kind(name)) for name in names])
+
+
+def _batch(columns: dict[str, Any], schema: pa.Schema) -> pa.Table:
+    """One slab of rows; non-finite floats (inactive cells) become nulls."""
+    arrays = []
+    for field in schema:
+        values = np.asarray(columns[field.name]).ravel()
+        mask = ~np.isfinite(values) if values.dtype.kind == "f" else None
+        arrays.append(pa.array(values, mask=mask, type=field.type))
+    return pa.Table.from_arrays(arrays, schema=schema)
+
+
+class PackageTables:
+    """The three tables of the package, produced slab by slab.
 
     Parameters
     ----------
@@ -112,82 +128,129 @@ def package_tables(
     source : str
         How the inner transmissibilities were made (``harmonic`` or ``flow``).
 
-    Returns
-    -------
-    dict of str to pyarrow.Table
+    Notes
+    -----
+    `batches` yields each table's rows in their final order — cells by id;
+    connections by axis (z, y, x), then by their first cell; outer faces by
+    axis and side — a few hundred thousand at a time, so a table is never
+    held whole (`upscale.export.slabs`).
     """
-    grid = trans.grid
-    L, M, N = grid.shape
-    length, kf = factors["length"], factors["k"]
-    tf = kf * length  # T = k A / L: one k and one length
-    k, j, i = (a.ravel() for a in np.indices((L, M, N)))
-    ids = np.arange(L * M * N)
-    x, y, z = _centres(grid)
-    dx, dy, dz = grid.dx[i], grid.dy[j], grid.dz[k]
-    active = trans.active.ravel()
-    cells: dict[str, Any] = {
-        "id": ids, "i": i, "j": j, "k": k, "x": x[i], "y": y[j], "z": z[k] * length,
-        "dx": dx * length, "dy": dy * length, "dz": dz * length, "active": active.astype(np.int8),
-    }  # fmt: skip
-    for name, values in coarse_properties.items():
-        if name != "porosity":
-            cells[name] = values.ravel() * kf
-    bulk = bulk_volumes(grid, length).ravel()
-    if "porosity" in coarse_properties:
-        porosity = coarse_properties["porosity"].ravel()
-        cells["porosity"] = porosity
-        cells["pore_volume"] = porosity * bulk
-    cells["bulk_volume"] = bulk
 
-    index = ids.reshape(L, M, N)
-    centre_sizes = (grid.dz, grid.dy, grid.dx)
-    pairs: dict[str, list] = {n: [] for n in ("id1", "id2", "axis", "transmissibility", "area",
-                                               "distance")}  # fmt: skip
-    outer: dict[str, list] = {n: [] for n in ("id", "face", "half_transmissibility", "area")}
-    for a in range(3):
-        n = grid.shape[a]
-        areas = _face_areas(grid, a)
-        T = trans.faces[a]
-        if n > 1:
-            first = np.take(index, np.arange(n - 1), axis=a)
-            second = np.take(index, np.arange(1, n), axis=a)
-            before = np.take(trans.active, np.arange(n - 1), axis=a)
-            keep = before & np.take(trans.active, np.arange(1, n), axis=a) & (T > 0)
-            half = centre_sizes[a] / 2
-            gap = (half[:-1] + half[1:])
-            shape = [1, 1, 1]
-            shape[a] = n - 1
-            distance = np.broadcast_to(gap.reshape(shape), T.shape)
-            pairs["id1"].append(first[keep])
-            pairs["id2"].append(second[keep])
-            pairs["axis"].append(np.full(int(keep.sum()), _AXES[a]))
-            pairs["transmissibility"].append(T[keep] * tf)
-            pairs["area"].append(np.broadcast_to(areas, T.shape)[keep] * length**2)
-            pairs["distance"].append(distance[keep] * length)
-        if L == 1 and a == 0:
-            continue  # a map has no top and bottom faces to flow through
-        for side, (values, sign) in enumerate(zip(trans.boundary[a], "-+")):
-            at = [0] if side == 0 else [n - 1]
-            cell_active = np.take(trans.active, at, axis=a)
-            outer["id"].append(np.take(index, at, axis=a)[cell_active])
-            outer["face"].append(np.full(int(cell_active.sum()), _AXES[a] + sign))
-            outer["half_transmissibility"].append(values[cell_active] * tf)
-            outer["area"].append(np.broadcast_to(areas, values.shape)[cell_active] * length**2)
-    connections = {name: np.concatenate(parts) if parts else np.array([], dtype=np.int64)
-                   for name, parts in pairs.items()}  # fmt: skip
-    connections["source"] = np.full(connections["id1"].size, source)
-    boundary = {name: np.concatenate(parts) if parts else np.array([]) for name, parts in outer.items()}
-    return {
-        "cells": pa.table({name: _column(values) for name, values in cells.items()}),
-        "connections": pa.table({name: _column(values) for name, values in connections.items()}),
-        "boundary": pa.table({name: _column(values) for name, values in boundary.items()}),
-    }
+    def __init__(self, coarse_properties: dict[str, np.ndarray], trans: Transmissibilities, *,
+                 factors: dict[str, Any], source: str) -> None:  # fmt: skip
+        self.properties = coarse_properties
+        self.trans = trans
+        self.grid = trans.grid
+        self.length = factors["length"]
+        self.kf = factors["k"]
+        self.tf = factors["k"] * factors["length"]  # T = k A / L: one k and one length
+        self.source = source
+        self.centres = _centres(self.grid)
+
+    def columns(self, table: str) -> list[str]:
+        """The column names of `table` (``cells``, ``connections`` or ``boundary``)."""
+        if table == "connections":
+            return ["id1", "id2", "axis", "transmissibility", "area", "distance", "source"]
+        if table == "boundary":
+            return ["id", "face", "half_transmissibility", "area"]
+        names = ["id", "i", "j", "k", "x", "y", "z", "dx", "dy", "dz", "active"]
+        names += [n for n in self.properties if n != "porosity"]
+        if "porosity" in self.properties:
+            names += ["porosity", "pore_volume"]
+        return names + ["bulk_volume"]
+
+    def batches(self, table: str) -> Iterator[pa.Table]:
+        """The rows of `table`, slab by slab, as pyarrow tables of one schema."""
+        schema = _schema(self.columns(table))
+        parts = {"cells": self._cells, "connections": self._connections, "boundary": self._boundary}
+        for columns in parts[table]():
+            yield _batch(columns, schema)
+
+    def _ids(self, region: tuple[slice, ...]) -> tuple[np.ndarray, ...]:
+        L, M, N = self.grid.shape
+        k, j, i = (a.astype(np.int64) for a in np.ogrid[region])
+        return i + N * (j + M * k), k, j, i
+
+    def _cells(self) -> Iterator[dict[str, Any]]:
+        grid, length = self.grid, self.length
+        x, y, z = self.centres
+        for region in slabs(grid.shape):
+            ids, k, j, i = self._ids(region)
+            shape = ids.shape
+            cells: dict[str, Any] = {
+                "id": ids, "i": np.broadcast_to(i, shape), "j": np.broadcast_to(j, shape),
+                "k": np.broadcast_to(k, shape), "x": np.broadcast_to(x[i], shape),
+                "y": np.broadcast_to(y[j], shape), "z": np.broadcast_to(z[k] * length, shape),
+                "dx": np.broadcast_to(grid.dx[i] * length, shape),
+                "dy": np.broadcast_to(grid.dy[j] * length, shape),
+                "dz": np.broadcast_to(grid.dz[k] * length, shape),
+                "active": self.trans.active[region].astype(np.int8),
+            }  # fmt: skip
+            for name, values in self.properties.items():
+                if name != "porosity":
+                    cells[name] = values[region] * self.kf
+            bulk = bulk_volumes(grid, length, region)
+            if "porosity" in self.properties:
+                cells["porosity"] = self.properties["porosity"][region]
+                cells["pore_volume"] = cells["porosity"] * bulk
+            cells["bulk_volume"] = bulk
+            yield cells
+
+    def _connections(self) -> Iterator[dict[str, Any]]:
+        grid, trans, length = self.grid, self.trans, self.length
+        centre_sizes = (grid.dz, grid.dy, grid.dx)
+        for a in range(3):
+            n = grid.shape[a]
+            if n < 2:
+                continue
+            gap = centre_sizes[a][:-1] / 2 + centre_sizes[a][1:] / 2
+            areas = np.broadcast_to(_face_areas(grid, a), grid.shape)
+            for region in slabs(grid.shape):
+                first = list(region)
+                first[a] = slice(first[a].start, min(first[a].stop, n - 1))
+                if first[a].start >= first[a].stop:
+                    continue
+                second = list(first)
+                second[a] = slice(first[a].start + 1, first[a].stop + 1)
+                first, second = tuple(first), tuple(second)
+                T = trans.faces[a][first]
+                keep = trans.active[first] & trans.active[second] & (T > 0)
+                ids, *index = self._ids(first)
+                ids = np.broadcast_to(ids, T.shape)[keep]
+                step = (grid.shape[1] * grid.shape[2], grid.shape[2], 1)[a]
+                distance = np.broadcast_to(gap[index[a]], T.shape)
+                yield {"id1": ids, "id2": ids + step, "axis": np.full(ids.size, _AXES[a]),
+                       "transmissibility": T[keep] * self.tf, "area": areas[first][keep] * length**2,
+                       "distance": distance[keep] * length,
+                       "source": np.full(ids.size, self.source)}  # fmt: skip
+
+    def _boundary(self) -> Iterator[dict[str, Any]]:
+        grid, trans, length = self.grid, self.trans, self.length
+        for a in range(3):
+            if grid.shape[0] == 1 and a == 0:
+                continue  # a map has no top and bottom faces to flow through
+            n = grid.shape[a]
+            areas = np.broadcast_to(_face_areas(grid, a), grid.shape)
+            plane = list(grid.shape)
+            plane[a] = 1
+            for side, (values, sign) in enumerate(zip(trans.boundary[a], "-+")):
+                for region in slabs(tuple(plane)):
+                    face = list(region)  # the values of this side hold one plane along a
+                    cell = list(region)
+                    cell[a] = slice(0, 1) if side == 0 else slice(n - 1, n)
+                    face, cell = tuple(face), tuple(cell)
+                    active = trans.active[cell]
+                    ids = np.broadcast_to(self._ids(cell)[0], active.shape)[active]
+                    yield {"id": ids, "face": np.full(ids.size, _AXES[a] + sign),
+                           "half_transmissibility": values[face][active] * self.tf,
+                           "area": areas[cell][active] * length**2}  # fmt: skip
 
 
-def bulk_volumes(grid: Grid, length: float = 1.0) -> np.ndarray:
-    """Bulk volume of every cell, shape (L, M, N), in (length unit)³ (`length` per m)."""
-    return (grid.dz * length)[:, None, None] * (grid.dy * length)[None, :, None] * (
-        grid.dx * length)[None, None, :]
+def bulk_volumes(grid: Grid, length: float = 1.0, region: Region = ALL) -> np.ndarray:
+    """Bulk volume of every cell of `region` (default the grid), in (length unit)³ (`length` per m)."""
+    layers, rows, columns = region
+    return (grid.dz[layers] * length)[:, None, None] * (grid.dy[rows] * length)[None, :, None] * (
+        grid.dx[columns] * length)[None, None, :]
 
 
 def _face_areas(grid: Grid, a: int) -> np.ndarray:
@@ -197,7 +260,7 @@ def _face_areas(grid: Grid, a: int) -> np.ndarray:
     return sizes[0] * sizes[1]
 
 
-def column_units(tables: dict[str, pa.Table], factors: dict[str, Any], crs_unit: str) -> dict:
+def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str) -> dict:
     """The unit of every column of every table, for the manifest."""
     length, k, t = factors["length_unit"], factors["k_unit"], factors["transmissibility_unit"]
     known = {
@@ -208,11 +271,11 @@ def column_units(tables: dict[str, pa.Table], factors: dict[str, Any], crs_unit:
         "transmissibility": t, "half_transmissibility": t, "area": f"{length}²",
         "distance": length, "source": "harmonic or flow", "face": "x-, x+, y-, y+, z- or z+",
     }  # fmt: skip
-    return {name: {c: known.get(c, k) for c in table.column_names} for name, table in tables.items()}
+    return {name: {c: known.get(c, k) for c in tables.columns(name)} for name in TABLES}
 
 
-def write_tables(stage: Path, tables: dict[str, pa.Table]) -> dict[str, dict[str, Any]]:
-    """Write each table as CSV and as Parquet under `stage`.
+def write_tables(stage: Path, tables: PackageTables) -> dict[str, dict[str, Any]]:
+    """Write each table as CSV and as Parquet under `stage`, slab by slab.
 
     Returns
     -------
@@ -221,11 +284,17 @@ def write_tables(stage: Path, tables: dict[str, pa.Table]) -> dict[str, dict[str
         checks them, so a truncated or changed table is caught).
     """
     files = {}
-    for name, table in tables.items():
-        for suffix, write in (("csv", pacsv.write_csv), ("parquet", pq.write_table)):
-            path = stage / f"{name}.{suffix}"
-            write(table, path)
-            files[path.name] = {"rows": table.num_rows, "sha256": _sha256(path)}
+    for name in TABLES:
+        schema = _schema(tables.columns(name))
+        csv, parquet = stage / f"{name}.csv", stage / f"{name}.parquet"
+        rows = 0
+        with pacsv.CSVWriter(csv, schema) as text, pq.ParquetWriter(parquet, schema) as columnar:
+            for batch in tables.batches(name):
+                text.write_table(batch)
+                columnar.write_table(batch)
+                rows += batch.num_rows
+        for path in (csv, parquet):
+            files[path.name] = {"rows": rows, "sha256": _sha256(path)}
     return files
 
 

@@ -16,7 +16,8 @@ from ..upscaled import Upscaled
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
 from .netcdf import crs_unit, write_netcdf
-from .package import FORMAT, bulk_volumes, column_units, package_tables, unit_factors, write_tables
+from .package import FORMAT, PackageTables, bulk_volumes, column_units, unit_factors, write_tables
+from .slabs import Values
 from .staging import MARKER, staged_folder
 from .summary import build_summary, jsonable
 from .vtk import write_vtk
@@ -39,6 +40,11 @@ _LONG_NAMES = {"kx": "permeability along x", "ky": "permeability along y",
                "kz": "permeability along z", "porosity": "porosity"}  # fmt: skip
 
 
+def _scaled(values: np.ndarray, factor: float) -> Values:
+    """`values` times `factor`, computed one region at a time when written."""
+    return lambda region: values[region] * factor
+
+
 def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str, Any] | None,
                   command: list[str] | None) -> list[str]:  # fmt: skip
     """Write the coarse-grid package (tables, NetCDF, VTK, manifest) into `stage`."""
@@ -46,27 +52,29 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     factors = unit_factors(coarse.unit, units)
     trans = result.transmissibilities()
     properties = {**coarse.properties(), **result.tensor}
-    tables = package_tables(properties, trans, factors=factors,
-                            source="flow" if result.faces is not None else "harmonic")  # fmt: skip
+    tables = PackageTables(properties, trans, factors=factors,
+                           source="flow" if result.faces is not None else "harmonic")  # fmt: skip
     table_files = write_tables(stage, tables)
     length = factors["length"]
-    gridded = {}
+    gridded: dict[str, tuple[Values, str, str]] = {}
     for name, values in properties.items():
         if name == "porosity":
-            gridded[name] = (values, "1", "porosity")
+            gridded[name] = (_scaled(values, 1.0), "1", "porosity")
         else:
             long_name = _LONG_NAMES.get(name, f"permeability tensor term {name}")
-            gridded[name] = (values * factors["k"], factors["k_unit"], long_name)
-    bulk = bulk_volumes(coarse.grid, length)
-    gridded["bulk_volume"] = (bulk, factors["length_unit"] + "3", "bulk volume")
+            gridded[name] = (_scaled(values, factors["k"]), factors["k_unit"], long_name)
+    grid = coarse.grid
+    volume = factors["length_unit"] + "3"
+    gridded["bulk_volume"] = (lambda region: bulk_volumes(grid, length, region), volume, "bulk volume")
     if coarse.porosity is not None:
-        gridded["pore_volume"] = (coarse.porosity * bulk, factors["length_unit"] + "3", "pore volume")
+        porosity = coarse.porosity
+        gridded["pore_volume"] = (lambda region: porosity[region] * bulk_volumes(grid, length, region),
+                                  volume, "pore volume")  # fmt: skip
     attributes = {"title": f"upscale coarse grid ({result.method})", "source": "upscale",
                   "history": " ".join(command or []), "comment": CAUTION}  # fmt: skip
-    write_netcdf(stage / "coarse.nc", coarse.grid, gridded, factors, attributes)
-    write_vtk(stage / "coarse.vtr", coarse.grid, {n: v[0] for n, v in gridded.items()}, factors)
+    write_netcdf(stage / "coarse.nc", grid, gridded, factors, attributes)
+    write_vtk(stage / "coarse.vtr", grid, {n: v[0] for n, v in gridded.items()}, factors)
     files = [*table_files, "coarse.nc", "coarse.vtr"]
-    grid = coarse.grid
     manifest = {
         "format": FORMAT,
         "units": {"system": units, "input_unit": coarse.unit, "factors": factors,
