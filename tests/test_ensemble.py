@@ -58,13 +58,17 @@ def _one_error(code, stdout, stderr):
 
 def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
     out = tmp_path / "ens"
-    code, stdout, stderr = run_cli("run", str(realizations / "r*.tif"), "--block", "8x8",
+    code, stdout, stderr = run_cli("-v", "run", str(realizations / "r*.tif"), "--block", "8x8",
                                    "--method", "geometric", "--solver", "direct", "--out", out)  # fmt: skip
     assert code == 0, stderr
     assert "ensemble of 5 realizations" in stdout and "P10" in stdout
     assert sorted(p.name for p in out.iterdir()) == [
         "ensemble.csv", "ensemble.json", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
-    assert stderr.count(": done") == 5  # progress per realization
+    # progress: every step of every realization, after its name, and each realization done
+    assert stderr.count("realizations done") == 5
+    for name in ("r0", "r1", "r2", "r3", "r4"):
+        for step in ("reading", "upscaling", "checking the flow", "writing"):
+            assert f"upscale: {name}: {step}" in stderr, (name, step)
     ensemble = json.loads((out / "ensemble.json").read_text())
     with open(out / "ensemble.csv", newline="") as f:
         rows = list(csv.DictReader(f))

@@ -14,9 +14,10 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Iterator
+from concurrent.futures import CancelledError
 from contextlib import contextmanager
 
-from .errors import InputError
+from .errors import ClusterError, InputError
 
 #: Seconds to wait for a scheduler before giving up.
 CONNECT_TIMEOUT = 10
@@ -52,7 +53,7 @@ def compute_on(workers: int | None = None, address: str | None = None) -> Iterat
         logging.getLogger("distributed").setLevel(logging.ERROR)  # its start-up chatter
         with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
                           dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
-                Client(cluster) as client:  # fmt: skip
+                Client(cluster) as client, _failures_explained():  # fmt: skip
             yield len(client.scheduler_info()["workers"])
         return
     try:
@@ -61,5 +62,33 @@ def compute_on(workers: int | None = None, address: str | None = None) -> Iterat
         raise InputError(
             f"cannot reach the dask scheduler at {address!r} within {CONNECT_TIMEOUT} s ({exc})"
         ) from None
-    with client:
+    with client, _failures_explained():
         yield max(1, len(client.scheduler_info()["workers"]))
+
+
+@contextmanager
+def _failures_explained() -> Iterator[None]:
+    """Turn a cluster's failure into one clear `ClusterError`.
+
+    A worker that dies while it runs a task (killed, out of memory) costs a
+    retry: dask gives the task to another worker, up to the scheduler's
+    ``distributed.scheduler.allowed-failures`` times (3 by default), so a
+    run that loses a worker usually completes with the same results. Past
+    that, or when the scheduler goes away, the run stops here; the output
+    folder, written only at the end through a staged folder, is left as it was.
+    """
+    from distributed import KilledWorker
+    from distributed.comm.core import CommClosedError
+
+    try:
+        yield
+    except KilledWorker as exc:
+        raise ClusterError(
+            f"the dask cluster lost the workers running one task too many times ({exc.args[0]}); "
+            "nothing was written — check the workers' memory limits and logs, then run again"
+        ) from None
+    except (CommClosedError, CancelledError) as exc:
+        raise ClusterError(
+            f"the dask cluster stopped answering ({type(exc).__name__}: {exc}); nothing was written "
+            "— check the scheduler, then run again"
+        ) from None

@@ -32,3 +32,9 @@ class OutputError(UpscaleError, OSError):
     """The output could not be written; nothing was moved into place."""
 
     exit_code = 1
+
+
+class ClusterError(UpscaleError, RuntimeError):
+    """The dask cluster failed the work (workers lost too often, scheduler gone); nothing was written."""
+
+    exit_code = 1

@@ -6,13 +6,10 @@ realization for an ensemble — the same settings, each into its own folder.
 
 from __future__ import annotations
 
-import time
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
-
-import click
 
 from .check import check_flow, too_large
 from .compare import single
@@ -24,6 +21,7 @@ from .export.staging import staged_folder
 from .grid import BlockSpec
 from .io import read_field
 from .report.bundle import bundle
+from .steps import Say, Steps, silent
 from .subdomains import check_subdomains
 from .upscaled import Upscaled, coarsen
 
@@ -74,9 +72,25 @@ class Settings:
     command: list[str] = field(default_factory=list)
 
 
-def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False
-                 ) -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
+def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,
+                 say: Say = silent, prefix: str = "") -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
     """Upscale the field in `path` and write the result into `out`.
+
+    Parameters
+    ----------
+    path : str
+        The fine field.
+    settings : Settings
+        What to do.
+    out : str or Path
+        The output folder (staged: complete or absent).
+    overwrite : bool
+        Replace the results in a folder that holds some.
+    say : callable, optional
+        Receives a line when each step (reading, upscaling, checking, drawing,
+        writing) starts and ends; silent by default.
+    prefix : str
+        Put before each of those lines.
 
     Returns
     -------
@@ -88,47 +102,51 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     InputError
         For bad input, including ``--plot``/``--report`` without a check.
     """
-    timings = {}
-    start = time.perf_counter()
-    fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells, **settings.read)
-    timings["read_s"] = time.perf_counter() - start
-    result = coarsen(fine, settings.block, settings.method, **settings.options)
-    timings["upscale_s"] = time.perf_counter() - start - timings["read_s"]
+    steps = Steps(say, prefix)
+    with steps("read_s", f"reading {path}"):
+        fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
+                          **settings.read)  # fmt: skip
+    cells = "x".join(map(str, fine.shape[3 - fine.ndim:]))
+    with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
+        result = coarsen(fine, settings.block, settings.method, **settings.options)
     check, checks = None, None
     drawing = settings.plot or settings.report
     if settings.check:
-        mark = time.perf_counter()
         reason = too_large(result.fine.shape, settings.check_limit)
         if reason and drawing:
             raise InputError(f"--plot and --report show the flow check, and {reason}")
         if reason:
             # never silently: the global solve is skipped, windows are checked instead
-            check = {"skipped": reason, **check_subdomains(
-                result.fine, result.coarse, result.transmissibilities(), result.block,
-                settings.check_limit, solver=settings.solver, tolerance=settings.tolerance)}  # fmt: skip
+            with steps("check_s", f"checking the flow on sub-domains ({reason})"):
+                check = {"skipped": reason, **check_subdomains(
+                    result.fine, result.coarse, result.transmissibilities(), result.block,
+                    settings.check_limit, solver=settings.solver, tolerance=settings.tolerance)}  # fmt: skip
         else:
-            checks = check_flow(result.fine, result.transmissibilities(), solver=settings.solver,
-                                tolerance=settings.tolerance)  # fmt: skip
-            check = {axis: c.summary() for axis, c in checks.items()}
-        timings["check_s"] = time.perf_counter() - mark
+            with steps("check_s", "checking the flow: fine and coarse solves along "
+                       + ", ".join(result.fine.axes)):  # fmt: skip
+                checks = check_flow(result.fine, result.transmissibilities(), solver=settings.solver,
+                                    tolerance=settings.tolerance)  # fmt: skip
+                check = {axis: c.summary() for axis, c in checks.items()}
     made = None
     if checks and drawing:
         layer = settings.layer
         if layer is not None and (result.fine.ndim != 3 or layer >= result.fine.shape[0]):
             raise InputError(f"--layer {layer + 1}: the field has {result.fine.shape[0]} layer(s)")
-        made = bundle(single(result, checks, timings["upscale_s"]),
-                      title=f"upscale — {result.method} on {path}", command=settings.command,
-                      layer=layer)  # fmt: skip
-    summary = write_result(result, out, overwrite=overwrite, command=settings.command,
-                           timings=timings, check=check, read=settings.recorded_read,
-                           images=made.images if made and settings.plot else None,
-                           page=made.page if made and settings.report else None,
-                           units=settings.units)  # fmt: skip
+        with steps(None, "drawing the figures"):
+            made = bundle(single(result, checks, steps.timings["upscale_s"]),
+                          title=f"upscale — {result.method} on {path}", command=settings.command,
+                          layer=layer)  # fmt: skip
+    with steps(None, "writing the coarse grid and the summary"):
+        summary = write_result(result, out, overwrite=overwrite, command=settings.command,
+                               timings=steps.timings, check=check, read=settings.recorded_read,
+                               images=made.images if made and settings.plot else None,
+                               page=made.page if made and settings.report else None,
+                               units=settings.units)  # fmt: skip
     return result, summary
 
 
 def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overwrite: bool = False,
-                 parallel: int = 1, quiet: bool = True) -> dict[str, Any]:  # fmt: skip
+                 parallel: int = 1, say: Say = silent) -> dict[str, Any]:  # fmt: skip
     """The same job on every realization, into one sub-folder each, and the ensemble's spread.
 
     Parameters
@@ -144,8 +162,9 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         Replace the results in a folder that holds some.
     parallel : int
         Realizations processed at the same time.
-    quiet : bool
-        Without progress lines on stderr.
+    say : callable, optional
+        Receives the progress lines: every step of every realization (after
+        its name) and each realization done; silent by default.
 
     Returns
     -------
@@ -165,10 +184,9 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     done = []
 
     def one(name: str, path: str) -> dict[str, Any]:
-        _, summary = upscale_file(path, settings, stage / name)
+        _, summary = upscale_file(path, settings, stage / name, say=say, prefix=f"{name}: ")
         done.append(name)
-        if not quiet:
-            click.echo(f"[{len(done)}/{len(paths)}] {name}: done", err=True)
+        say(f"[{len(done)}/{len(paths)}] realizations done ({name})")
         return summary
 
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:

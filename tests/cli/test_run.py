@@ -166,6 +166,20 @@ def test_quiet_run_prints_nothing(run_cli, demo_dir, tmp_path):
     assert (tmp_path / "c" / "kx.tif").exists()
 
 
+def test_verbose_run_tells_every_step_and_quiet_silences_them(run_cli, demo_dir, tmp_path):
+    # stderr is not a terminal here: progress lines need -v, and --quiet wins over -v
+    args = ["run", demo_dir / LOGNORMAL, "--block", "8x8", "--method", "geometric"]
+    code, _, err = run_cli("-v", *args, "--out", tmp_path / "v")
+    assert code == 0, err
+    lines = err.splitlines()
+    assert all(line.startswith("upscale: ") for line in lines), lines
+    for step in ("reading", "upscaling", "checking the flow", "writing"):
+        started = [i for i, line in enumerate(lines) if line.startswith(f"upscale: {step}")]
+        assert len(started) == 2 and lines[started[1]].endswith(" s"), (step, lines)  # start, end
+    assert run_cli(*args, "--out", tmp_path / "plain")[2] == ""
+    assert run_cli("-q", "-v", *args, "--out", tmp_path / "q")[1:] == ("", "")
+
+
 def test_chunk_option_does_not_change_the_result(run_cli, demo_dir, tmp_path):
     results = []
     for chunk in ("64MB", "20kB"):

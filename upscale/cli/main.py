@@ -22,8 +22,10 @@ from ..errors import UpscaleError
     context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
     epilog=f"Caution: {CAUTION}",
 )
-@click.option("-v", "--verbose", count=True, help="More messages (repeat for debug messages).")
-@click.option("-q", "--quiet", is_flag=True, help="Only errors; no progress bar.")
+@click.option("-v", "--verbose", count=True,
+              help="More messages: progress lines even when stderr is not a terminal (a log); "
+              "repeat for debug messages.")
+@click.option("-q", "--quiet", is_flag=True, help="Only errors; no progress.")
 @click.option("--debug", is_flag=True, help="Show the traceback of an error.")
 @click.version_option(package_name="upscale", prog_name="upscale")
 @click.pass_context
@@ -43,7 +45,7 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
     """
     level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
     logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
-    ctx.ensure_object(dict).update(quiet=quiet, debug=debug)
+    ctx.ensure_object(dict).update(quiet=quiet, verbose=verbose, debug=debug)
     ctx.obj.setdefault("command", ["upscale", *sys.argv[1:]])
 
 

@@ -1,10 +1,14 @@
-"""A progress bar for long dask computations, shown only to a person at a terminal."""
+"""Progress on stderr: a line per step of a job, and a bar for long dask computations at a terminal."""
 
 from __future__ import annotations
 
 import contextlib
 import sys
 from collections.abc import Iterator
+
+import click
+
+from ..steps import Say, silent
 
 
 @contextlib.contextmanager
@@ -21,3 +25,19 @@ def progress(quiet: bool) -> Iterator[None]:
 
     with ProgressBar(minimum=1.0, out=sys.stderr):
         yield
+
+
+def tell(line: str) -> None:
+    """Print one progress line on stderr (stdout keeps the results)."""
+    click.echo(f"upscale: {line}", err=True)
+
+
+def teller(ctx: click.Context) -> Say:
+    """Where a command's progress lines go: `tell` or `silent`.
+
+    Lines are told to a person at a terminal, or into a log with ``-v``;
+    never with ``--quiet``. Elsewhere stderr stays for the one line of an error.
+    """
+    if ctx.obj["quiet"]:
+        return silent
+    return tell if ctx.obj.get("verbose") or sys.stderr.isatty() else silent

@@ -14,7 +14,7 @@ from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..job import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
 from .options import check_options, field_options, parse_chunk, read_options, recorded
-from .progress import progress
+from .progress import progress, teller
 from .report import print_ensemble, print_result
 
 _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
@@ -101,14 +101,15 @@ def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exp
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]
+    say = teller(ctx)
     with compute_on(workers, scheduler) as count:
         if len(paths) == 1:
             with progress(quiet):
-                result, summary = upscale_file(paths[0], settings, out, overwrite=overwrite)
+                result, summary = upscale_file(paths[0], settings, out, overwrite=overwrite, say=say)
             if not quiet:
                 print_result(result, summary, out)
             return
         ensemble = run_ensemble(paths, settings, out, overwrite=overwrite, parallel=count,
-                                quiet=quiet)  # fmt: skip
+                                say=say)  # fmt: skip
     if not quiet:
         print_ensemble(ensemble, out)
