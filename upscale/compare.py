@@ -23,6 +23,7 @@ from .field import Field
 from .flow import AxisFlow
 from .grid import BlockSpec
 from .methods.registry import METHODS
+from .steps import Say, Steps, silent
 from .upscaled import Upscaled, coarsen
 
 #: Boundary conditions a comparison tries for ``flow`` unless one is chosen.
@@ -197,6 +198,7 @@ def compare_methods(
     solver: str = "auto",
     tolerance: float = 1e-10,
     report: Callable[[int, int, Candidate, Entry | None], None] | None = None,
+    say: Say = silent,
 ) -> Comparison:
     """Upscale `field` with every candidate, check each against one fine solve, and rank.
 
@@ -213,6 +215,8 @@ def compare_methods(
     report : callable, optional
         ``report(i, n, candidate, entry)`` before each candidate (entry None)
         and after it — for progress messages.
+    say : callable, optional
+        Told when the fine solves start and end (silent by default).
 
     Returns
     -------
@@ -231,7 +235,8 @@ def compare_methods(
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     spec.check(field.shape, field.ndim)
     fine = field.leading(spec.used_shape(field.shape))
-    fine_flows = fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
+    with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)}"):
+        fine_flows = fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
     entries = []
     for i, candidate in enumerate(chosen):
         if report:
@@ -283,3 +288,18 @@ def _size(error: float) -> float:
 
 def _tied(error: float) -> float:
     return error if math.isinf(error) or math.isnan(error) else round(error / TIE) * TIE
+
+
+def progress_line(i: int, n: int, candidate: Candidate, entry: Entry | None) -> str:
+    """The progress line of candidate `i` of `n`: starting (entry None), done, or did not run.
+
+    Examples
+    --------
+    >>> progress_line(0, 3, candidates(["geometric"])[0], None)
+    '[1/3] geometric ...'
+    """
+    if entry is None:
+        return f"[{i + 1}/{n}] {candidate.label} ..."
+    if entry.error:
+        return f"[{i + 1}/{n}] {candidate.label}: did not run ({entry.error})"
+    return f"[{i + 1}/{n}] {candidate.label}: done in {entry.seconds:.2f} s"

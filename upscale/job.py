@@ -1,7 +1,8 @@
-"""One upscaling job from a file to a finished output folder: read, upscale, check, plot, write.
+"""Jobs from files to finished output folders: read, upscale, check, plot, write.
 
-`upscale run` calls `upscale_file` once for a field, and once per
-realization for an ensemble — the same settings, each into its own folder.
+`upscale run` calls `upscale_file` once for a field, and `run_ensemble` for
+several (the same settings, each into its own folder, and their spread);
+`upscale compare` on several fields calls `compare_ensemble`.
 """
 
 from __future__ import annotations
@@ -12,15 +13,17 @@ from pathlib import Path
 from typing import Any
 
 from .check import check_flow, too_large
-from .compare import single
-from .ensemble import check_same_grid, ensemble_summary, names_of
+from .compare import Candidate, Entry, compare_methods, progress_line, single
+from .ensemble import PERCENTILE_NOTE, check_same_grid, ensemble_summary, method_spread, names_of
 from .errors import InputError
 from .export import write_result
-from .export.ensemble import ENSEMBLE, write_ensemble
+from .export.comparison import compare_summary, write_comparison
+from .export.ensemble import ENSEMBLE, write_ensemble, write_ranking
 from .export.staging import staged_folder
+from .field import Field
 from .grid import BlockSpec
 from .io import read_field
-from .report.bundle import bundle
+from .report.bundle import bundle, ensemble_bundle, spread_bundle
 from .steps import Say, Steps, silent
 from .subdomains import check_subdomains
 from .upscaled import Upscaled, coarsen
@@ -176,11 +179,8 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     InputError
         If two realizations share a name or the grids differ (checked before any work).
     """
-    names = names_of(paths)
-    fields = {name: read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
-                               checksum=False, **settings.read)
-              for name, path in zip(names, paths)}  # fmt: skip
-    check_same_grid(fields)
+    names, fields = _realizations(paths, settings.chunk_bytes, settings.block, settings.read,
+                                  checksum=False)  # fmt: skip
     done = []
 
     def one(name: str, path: str) -> dict[str, Any]:
@@ -195,5 +195,107 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         ensemble = ensemble_summary(names, summaries)
         ensemble.update({"method": {"name": settings.method, "options": summaries[0]["method"]["options"]},
                          "block": summaries[0]["block"], "command": settings.command})  # fmt: skip
-        write_ensemble(stage, ensemble, names)
+        made = None
+        if settings.plot or settings.report:
+            with Steps(say)(None, "drawing the spread over the realizations"):
+                made = ensemble_bundle(ensemble, unit=summaries[0]["unit"], command=settings.command,
+                                       title=f"upscale — {settings.method} on {len(names)} realizations")
+        write_ensemble(stage, ensemble, names, images=made.images if made and settings.plot else None,
+                       page=made.page if made and settings.report else None)  # fmt: skip
     return ensemble
+
+
+def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
+                     read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
+                     tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
+                     recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
+                     overwrite: bool = False, say: Say = silent) -> dict[str, Any]:  # fmt: skip
+    """Compare the same methods on every realization, and rank them by their spread.
+
+    Each realization gets the folder `upscale compare` writes for one field
+    (``compare.json``, figures, ``report.html``); the ensemble folder adds
+    ``ranking.csv``, ``figures/spread.*``, ``report.html`` and
+    ``ensemble.json`` (written last), ranking the methods by the P50 over the
+    realizations of their largest check error (`upscale.ensemble.method_spread`).
+
+    Parameters
+    ----------
+    paths : list of str
+        The realizations (on one grid).
+    block : BlockSpec
+    chosen : list of Candidate
+        From `upscale.compare.candidates`.
+    out : str or Path
+        The ensemble's folder.
+    read : dict
+        Keyword arguments of `upscale.read_field`.
+    chunk_bytes, solver, tolerance, check_limit, layer
+        As for one comparison; `layer` is zero-based.
+    recorded_read, command
+        Recorded in the outputs.
+    overwrite : bool
+        Replace the results in a folder that holds some.
+    say : callable, optional
+        Receives progress lines (silent by default).
+
+    Returns
+    -------
+    dict
+        The content of ``ensemble.json``.
+
+    Raises
+    ------
+    InputError
+        Realizations sharing a name or on different grids, a field past
+        `check_limit`, a `layer` the model does not have (all before any work).
+    """
+    command = command or []
+    names, fields = _realizations(paths, chunk_bytes, block, read)
+    first = next(iter(fields.values()))
+    reason = too_large(first.shape, check_limit)
+    if reason:
+        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    if layer is not None and (first.ndim != 3 or layer >= first.shape[0]):
+        raise InputError(f"--layer {layer + 1}: the field has {first.shape[0]} layer(s)")
+    summaries = []
+    with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
+        for i, (name, fine) in enumerate(fields.items(), start=1):
+            def told(line: str, name: str = name) -> None:
+                say(f"{name}: {line}")
+
+            def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
+                told(progress_line(j, n, candidate, entry))
+
+            result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
+                                     report=report, say=told)  # fmt: skip
+            with Steps(told)(None, "drawing the figures and writing"):
+                made = bundle(result, title=f"upscale — methods compared on {paths[i - 1]}",
+                              command=command, layer=layer)  # fmt: skip
+                summary = compare_summary(result, command=command, read=recorded_read)
+                write_comparison(stage / name, summary, made.images, made.page)
+            summaries.append(summary)
+            say(f"[{i}/{len(fields)}] realizations done ({name})")
+        methods = method_spread(names, summaries)
+        axes = "xyz"[: first.ndim]
+        content = {
+            "realizations": [{"name": name, **{k: s["inputs"][0][k] for k in ("path", "sha256")}}
+                             for name, s in zip(names, summaries)],
+            "axes": axes, "block": summaries[0]["block"], "command": command,
+            "ranking": "P50 over the realizations of the largest |rel_error| over the axes, smallest first",
+            "percentiles": PERCENTILE_NOTE, "methods": methods,
+            "best": methods[0]["name"] if methods and methods[0]["rank"] else None,
+        }  # fmt: skip
+        made = spread_bundle(methods, content, command=command,
+                             title=f"upscale — methods compared on {len(names)} realizations")  # fmt: skip
+        write_ranking(stage, content, names, images=made.images, page=made.page)
+    return content
+
+
+def _realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpec, read: dict[str, Any],
+                  checksum: bool = True) -> tuple[list[str], dict[str, Field]]:  # fmt: skip
+    """Open every realization (lazily) under its name, refusing clashing names and differing grids."""
+    names = names_of(paths)
+    fields = {name: read_field(path, chunk_bytes=chunk_bytes, block=block.cells, checksum=checksum, **read)
+              for name, path in zip(names, paths)}  # fmt: skip
+    check_same_grid(fields)
+    return names, fields

@@ -12,7 +12,8 @@ What is tested
 * User errors end with exit status 2 and one line on stderr: an unknown
   method name (listing the valid ones), a field over ``--check-limit``,
   ``--plot --no-check`` and ``--layer`` beyond the model.
-* Progress lines ``[i/n] label ...`` on stderr per method, and nothing at
+* Progress lines (with ``-v``: stderr is no terminal here) for the fine solves
+  and ``[i/n] label ...`` per method, and nothing at
   all with the group's ``-q``.
 * File names with HTML characters are escaped in ``report.html``.
 * ``upscale run --plot --report`` on a 3D model with ``--layer 3`` writes
@@ -145,7 +146,7 @@ def cropped(tmp_path_factory):
     except OSError:  # pragma: no cover - a file system that refuses these characters
         field = write_raster(folder / "field.tif", lognormal((50, 50), seed=7))
     out = folder / "cmp"
-    code, stdout, stderr = _run("compare", field, "--block", "12x12", "--remainder", "crop",
+    code, stdout, stderr = _run("-v", "compare", field, "--block", "12x12", "--remainder", "crop",
                                 "--methods", ",".join(CROPPED_METHODS), "--out", out)  # fmt: skip
     summary = json.loads((out / "compare.json").read_text()) if code == 0 else None
     return field, out, (code, stdout, stderr), summary
@@ -189,7 +190,10 @@ def test_progress_lines_on_stderr_per_method(cropped):
     _, _, (code, _, stderr), _ = cropped
     assert code == 0
     n = len(CROPPED_METHODS)
-    lines = stderr.splitlines()
+    assert all(line.startswith("upscale: ") for line in stderr.splitlines())
+    lines = [line.removeprefix("upscale: ") for line in stderr.splitlines()]
+    assert lines[0] == "solving the fine model along x, y ..." and lines[1].startswith(lines[0][:-4])
+    lines = lines[2:]
     for i, name in enumerate(CROPPED_METHODS, start=1):
         assert f"[{i}/{n}] {name} ..." in lines
         done = [line for line in lines if line.startswith(f"[{i}/{n}] {name}: ")]

@@ -9,17 +9,20 @@ import numpy as np
 
 from ..caution import CAUTION
 from ..check import too_large
-from ..compare import Candidate, Entry, candidates, compare_methods
+from ..compare import Entry, candidates, compare_methods, progress_line
+from ..ensemble import expand
 from ..errors import InputError
 from ..export import check_destination
 from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
+from ..job import compare_ensemble
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
 from .options import check_options, field_options, parse_chunk, read_options, recorded
-from .report import number, table
+from .progress import teller
+from .report import number, print_spread, table
 
 
 def _methods(text: str | None) -> list[str] | None:
@@ -27,7 +30,7 @@ def _methods(text: str | None) -> list[str] | None:
 
 
 @click.command(epilog=f"Caution: {CAUTION}")
-@click.argument("field", type=click.Path(dir_okay=False))
+@click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--block", required=True, metavar="NXxNY[xNZ]",
               help="Fine cells per coarse block, x (columns) first.")
 @click.option("--methods", default=None, metavar="A,B,...",
@@ -50,14 +53,20 @@ def _methods(text: str | None) -> list[str] | None:
               help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks).")
 @check_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
-              help="Output folder for compare.json, figures/ and report.html.")
+              help="Output folder for compare.json, figures/ and report.html. For several fields, "
+              "one such folder per field plus ranking.csv, figures/spread.*, report.html and "
+              "ensemble.json.")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @click.pass_context
-def compare(ctx: click.Context, field: str, block: str, methods: str | None, exponent: float | None,
-            bc: str | None, border: int | None, remainder: str, min_active: float,
+def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str | None,
+            exponent: float | None, bc: str | None, border: int | None, remainder: str, min_active: float,
             layer: int | None, chunk: str | None, solver: str, tolerance: float, check_limit: int,
             out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
+
+    Several FIELDs or a glob (an ensemble of realizations on one grid): the
+    comparison of each, and the methods ranked by the median over the
+    realizations of their largest check error, with P10 and P90.
 
     The fine model is solved once per axis and shared by all methods; each
     method's coarse model is solved under the same pressure drops, and the
@@ -70,11 +79,24 @@ def compare(ctx: click.Context, field: str, block: str, methods: str | None, exp
     Examples:
       upscale compare map.tif --block 8x8 --out cmp/
       upscale compare map.tif --block 16x16 --methods geometric,flow --border 2 --out cmp/
+      upscale compare 'realizations/*.tif' --block 8x8 --methods geometric,flow --out cmp/
     """
     check_destination(out, overwrite)
     chosen = candidates(_methods(methods), bc=bc, border=border, exponent=exponent)
     spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
     read = read_options(options)
+    say = teller(ctx)
+    paths = expand(list(field))
+    if len(paths) > 1:
+        content = compare_ensemble(
+            paths, spec, chosen, out, read=read, chunk_bytes=parse_chunk(chunk, spec.cells),
+            solver=solver, tolerance=tolerance, check_limit=check_limit,
+            layer=None if layer is None else layer - 1, recorded_read=recorded(read),
+            command=ctx.obj["command"], overwrite=overwrite, say=say)  # fmt: skip
+        if not ctx.obj["quiet"]:
+            print_spread(content, out)
+        return
+    field = paths[0]
     fine = read_field(field, chunk_bytes=parse_chunk(chunk, spec.cells), block=spec.cells, **read)
     reason = too_large(fine.shape, check_limit)
     if reason:
@@ -83,7 +105,7 @@ def compare(ctx: click.Context, field: str, block: str, methods: str | None, exp
         raise InputError(f"--layer {layer}: the field has {fine.shape[0]} layer(s)")
     quiet = ctx.obj["quiet"]
     result = compare_methods(fine, spec, chosen, solver=solver, tolerance=tolerance,
-                             report=None if quiet else _progress)  # fmt: skip
+                             report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
     if result.best is None:
         raise InputError("no method ran on this field: " + "; ".join(
             f"{e.candidate.label}: {e.error}" for e in result.entries))  # fmt: skip
@@ -95,15 +117,6 @@ def compare(ctx: click.Context, field: str, block: str, methods: str | None, exp
         _print(result.entries, fine.axes, fine.unit)
         click.echo(f"\nbest: {result.best.candidate.label}")
         click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
-
-
-def _progress(i: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
-    if entry is None:
-        click.echo(f"[{i + 1}/{n}] {candidate.label} ...", err=True)
-    elif entry.error:
-        click.echo(f"[{i + 1}/{n}] {candidate.label}: did not run ({entry.error})", err=True)
-    else:
-        click.echo(f"[{i + 1}/{n}] {candidate.label}: done in {entry.seconds:.2f} s", err=True)
 
 
 def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:

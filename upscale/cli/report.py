@@ -155,4 +155,25 @@ def print_ensemble(ensemble: dict, out: str) -> None:
     if rows:
         click.echo(table(["quantity", "P10", "P50", "P90", "n"], rows))
         click.echo("(k in the input's unit, errors in %; P10 is exceeded by 90 % of the realizations)")
-    click.echo(f"wrote one folder per realization, ensemble.csv and ensemble.json to {Path(out)}")
+    extra = [name for name in ("figures", "report.html") if (Path(out) / name).exists()]
+    click.echo(f"wrote one folder per realization, ensemble.csv, {', '.join([*extra, ''])}"
+               f"ensemble.json to {Path(out)}")  # fmt: skip
+
+
+def print_spread(content: dict, out: str) -> None:
+    """Print the methods compared over an ensemble: rank, P10/P50/P90 of the largest error, wins."""
+    rows = []
+    for m in content["methods"]:
+        w = m["worst_error"]
+        spread = [number(100 * w[p], ".2f") for p in ("p10", "p50", "p90")] if w else ["-"] * 3
+        rows.append([str(m["rank"] or "-"), m["name"], *spread, f"{m['ran']}/{m['ran'] + m['failed']}",
+                     str(m["rank_in_realizations"]["first"])])  # fmt: skip
+    click.echo(f"methods compared on {len(content['realizations'])} realizations, ranked by the P50 of "
+               "their largest check error over the axes")  # fmt: skip
+    click.echo(table(["rank", "method", "P10 %", "P50 %", "P90 %", "ran", "first"], rows))
+    click.echo("(largest |error| over the axes per realization, in %; P10 is exceeded by 90 % of the "
+               "realizations)")  # fmt: skip
+    if content["best"]:
+        click.echo(f"\nbest over the ensemble: {content['best']}")
+    click.echo(f"wrote one comparison folder per realization, ranking.csv, figures, report.html and "
+               f"ensemble.json to {Path(out)}")  # fmt: skip

@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 from ..caution import CAUTION
 from ..compare import Comparison
 from ..export.summary import versions
-from .figures import build_figures, rendered
+from .ensemble_page import ensemble_page
+from .figures import Plot, build_figures, rendered
 from .html import report_page
+from .spread import ensemble_chart, method_spread_chart
 
 
 @dataclass(frozen=True)
@@ -44,10 +47,7 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
     """
     fine = comparison.fine
     plots = build_figures(comparison, fine.unit, layer=layer)
-    images = []
-    for plot in plots:
-        png, svg = rendered(plot)
-        images.append((plot.name, png, svg))
+    images, shown = _rendered(plots)
     grid = fine.grid
     job = {
         "title": title,
@@ -60,5 +60,113 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
         "caution": CAUTION,
         "versions": versions(),
     }
-    page = report_page(comparison, [(p, png) for p, (_, png, _) in zip(plots, images)], job)
+    page = report_page(comparison, shown, job)
     return Bundle(images, page)
+
+
+def _rendered(plots: list[Plot]) -> tuple[list[tuple[str, bytes, bytes]], list[tuple[Plot, bytes]]]:
+    images = [(plot.name, *rendered(plot)) for plot in plots]
+    return images, [(plot, png) for plot, (_, png, _) in zip(plots, images)]
+
+
+def _percent(value: float | None) -> str:
+    return "–" if value is None else f"{100 * value:+.2f} %"
+
+
+def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command: list[str]) -> Bundle:
+    """The figure and the page of one method over an ensemble (``upscale run`` on several fields).
+
+    Parameters
+    ----------
+    ensemble : dict
+        From `upscale.ensemble.ensemble_summary`, with ``method`` and ``block`` added.
+    unit : str
+        Permeability unit.
+    title : str
+        Page title.
+    command : list of str
+        The command line.
+    """
+    plots = [Plot("ensemble", ensemble_chart(ensemble, unit),
+                  "Each dot is one realization; the bar spans P10 to P90 and the tick marks P50. "
+                  "Look at how far the coarse k_eff strays from the fine one, and whether the check "
+                  "errors of some realizations leave the ±5 % band.")]  # fmt: skip
+    images, shown = _rendered(plots)
+    rows = []
+    for quantity, name in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
+        for axis, s in ensemble["statistics"][quantity].items():
+            if s is None:
+                continue
+            cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
+            values = [cell(s[k]) for k in ("p10", "p50", "p90", "mean", "min", "max")]
+            rows.append([f"{name} along {axis}", *values, str(s["count"])])
+    errors = [abs(s["p50"]) for s in ensemble["statistics"]["rel_error"].values() if s]
+    job = {
+        "title": title, "command": command, "caution": CAUTION, "versions": versions(),
+        "verdict": f"{ensemble['method']['name']} on {len(ensemble['realizations'])} realizations: "
+        + (f"median check error within {100 * max(errors):.2f} % on every axis." if errors else
+           "the check was not run."),
+        "what": f"Effective permeability ({unit}) of the fine and the coarse model under the same "
+        "pressure drop, and the check error, over the realizations.",
+        "realizations": [{"name": r["name"], **(r["inputs"][0] if r["inputs"] else
+                                                {"path": "", "sha256": None})}
+                         for r in ensemble["realizations"]],
+        "block": _block(ensemble["block"], "".join(ensemble["statistics"]["k_fine"])),
+        "percentiles": ensemble["percentiles"],
+    }  # fmt: skip
+    head = ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
+    return Bundle(images, ensemble_page(job, head, rows, shown))
+
+
+def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, title: str,
+                  command: list[str]) -> Bundle:  # fmt: skip
+    """The figure and the page of methods compared over an ensemble (``upscale compare`` on several fields).
+
+    Parameters
+    ----------
+    methods : list of dict
+        From `upscale.ensemble.method_spread`.
+    ensemble : dict
+        ``realizations`` (name, inputs), ``axes``, ``block``, ``percentiles``.
+    title : str
+        Page title.
+    command : list of str
+        The command line.
+    """
+    axes = ensemble["axes"]
+    n = len(ensemble["realizations"])
+    plots = [Plot("spread", method_spread_chart(methods, axes, n),
+                  "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
+                  "(tick): prefer a method whose whole bar sits in the ±5 % band over one that is "
+                  "best on average but strays on some realizations.")]  # fmt: skip
+    images, shown = _rendered(plots)
+    rows = []
+    for m in methods:
+        w = m["worst_error"]
+        worst = [f"{100 * w[k]:.2f} %" for k in ("p10", "p50", "p90")] if w else ["–"] * 3
+        per_axis = [_percent(m["rel_error"][a]["p50"]) if m["rel_error"][a] else "–" for a in axes]
+        mean_rank = m["rank_in_realizations"]["mean"]
+        rows.append([str(m["rank"] or "–"), m["name"], f"{m['ran']} / {m['ran'] + m['failed']}", *worst,
+                     *per_axis, "–" if mean_rank is None else f"{mean_rank:.1f}",
+                     str(m["rank_in_realizations"]["first"])])  # fmt: skip
+    best = methods[0] if methods and methods[0]["rank"] else None
+    verdict = "No method ran on these realizations."
+    if best:
+        w = best["worst_error"]
+        verdict = (f"Best over {n} realizations: {best['name']}, median largest check error "
+                   f"{100 * w['p50']:.2f} % (P90 {100 * w['p90']:.2f} %).")  # fmt: skip
+    job = {
+        "title": title, "command": command, "caution": CAUTION, "versions": versions(),
+        "verdict": verdict,
+        "what": "Methods ranked by the P50 over the realizations of their largest check error over "
+        "the axes; the P10 and P90 show how much that varies from one realization to the next.",
+        "realizations": ensemble["realizations"], "block": _block(ensemble["block"], axes),
+        "percentiles": ensemble["percentiles"],
+    }  # fmt: skip
+    head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
+            *(f"P50 error along {a}" for a in axes), "mean rank", "times first"]  # fmt: skip
+    return Bundle(images, ensemble_page(job, head, rows, shown))
+
+
+def _block(block: dict[str, Any], axes: str) -> str:
+    return "x".join(str(block[a]) for a in axes) + " fine cells (x first)"

@@ -46,6 +46,43 @@ def _number(value: float) -> str:
     return "–" if value != value else f"{value:.4g}"
 
 
+def figures_html(images: list[tuple[Plot, bytes]]) -> str:
+    """Each figure as an embedded PNG with its caption."""
+    return "\n".join(
+        f'<figure id="{_e(plot.name)}"><img alt="{_e(plot.caption)}" '
+        f'src="data:image/png;base64,{base64.b64encode(png).decode()}">'
+        f"<figcaption>{_e(plot.caption)}</figcaption></figure>"
+        for plot, png in images
+    )
+
+
+def document(title: str, body: str, job: dict[str, Any]) -> str:
+    """A whole page: `body` (HTML) after the title, then how to reproduce, the versions, the cautions.
+
+    `job` holds ``command`` (list of str), ``versions`` (dict) and ``caution``.
+    """
+    versions = ", ".join(f"{_e(k)} {_e(v)}" for k, v in job["versions"].items())
+    return f"""<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>{_e(title)}</title>
+<style>{_STYLE}</style>
+</head>
+<body>
+<h1>{_e(title)}</h1>
+{body}
+<h2>Reproduce</h2>
+<pre><code>{_e(shlex.join(job["command"]))}</code></pre>
+<p>Versions: {versions}.</p>
+<h2>Cautions</h2>
+<p class="caution">{_e(job["caution"])}</p>
+</body>
+</html>
+"""
+
+
 def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None) -> str:
     label = _e(entry.candidate.label)
     if entry.error is not None:
@@ -95,28 +132,11 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
         f"<td class='text'><code>{_e(i['sha256'] or '–')}</code></td></tr>"
         for i in job["inputs"]
     )
-    figures = "\n".join(
-        f'<figure id="{_e(plot.name)}"><img alt="{_e(plot.caption)}" '
-        f'src="data:image/png;base64,{base64.b64encode(png).decode()}">'
-        f"<figcaption>{_e(plot.caption)}</figcaption></figure>"
-        for plot, png in images
-    )
-    versions = ", ".join(f"{_e(k)} {_e(v)}" for k, v in job["versions"].items())
     verdict = "No method ran on this field."
     if best:
         verdict = (f"Best on this field: <strong>{_e(best.candidate.label)}</strong>, largest check "
                    f"error {100 * best.worst_error:.2f} % over the axes.")  # fmt: skip
-    return f"""<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<title>{_e(job["title"])}</title>
-<style>{_STYLE}</style>
-</head>
-<body>
-<h1>{_e(job["title"])}</h1>
-<p>{verdict}</p>
+    return document(job["title"], f"""<p>{verdict}</p>
 <h2>Job and inputs</h2>
 <table>
 <tr><th>role</th><th>file</th><th>SHA-256</th></tr>
@@ -131,12 +151,5 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
 {rows}
 </table>
 <h2>Figures</h2>
-{figures}
-<h2>Reproduce</h2>
-<pre><code>{_e(shlex.join(job["command"]))}</code></pre>
-<p>Versions: {versions}.</p>
-<h2>Cautions</h2>
-<p class="caution">{_e(job["caution"])}</p>
-</body>
-</html>
-"""
+{figures_html(images)}
+""", job)

@@ -1,0 +1,103 @@
+"""Figures of an ensemble: how the results and the check errors spread over the realizations."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+
+from ..ensemble import PERCENTILES
+from .charts import BAND
+from .style import PALETTE
+
+
+def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str | None,
+                  half: float = 0.2) -> None:  # fmt: skip
+    """One realization per dot (spread sideways), a bar from P10 to P90 and a tick at P50, `half` wide."""
+    values = values[np.isfinite(values)]
+    if values.size == 0:
+        return
+    jitter = np.linspace(-0.6 * half, 0.6 * half, values.size) if values.size > 1 else np.zeros(1)
+    ax.plot(x + jitter, values, "o", color=color, alpha=0.45, markersize=3.5, label=label)
+    p10, p50, p90 = np.percentile(values, PERCENTILES)
+    ax.plot([x, x], [p10, p90], color=color, linewidth=3.0, solid_capstyle="butt")
+    ax.plot([x - half, x + half], [p50, p50], color="black", linewidth=1.6)
+
+
+def _band(ax: Axes, largest: float) -> None:
+    ax.axhspan(-BAND, BAND, color="#d9d9d9", alpha=0.6, label=f"±{BAND:g} %")
+    ax.axhline(0.0, color="black", linewidth=0.6)
+    if largest > 10 * BAND:
+        ax.set_yscale("symlog", linthresh=2 * BAND)
+
+
+def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: int) -> Figure:
+    """Check error of every method over the realizations, per axis, methods in ranked order.
+
+    Parameters
+    ----------
+    methods : list of dict
+        From `upscale.ensemble.method_spread` (methods that ran somewhere are drawn).
+    axes : str
+        The flow axes, e.g. ``"xy"``.
+    realizations : int
+        How many realizations, for the title.
+    """
+    ran = [m for m in methods if m["rank"] is not None]
+    fig = Figure(figsize=(max(6.5, 1.1 * len(ran) + 2.5), 4.6), layout="constrained")
+    ax = fig.subplots()
+    width = 0.8 / len(axes)
+    largest = 0.0
+    for i, axis in enumerate(axes):
+        offset = (i - (len(axes) - 1) / 2) * width
+        for j, m in enumerate(ran):
+            values = np.array([100 * r["rel_error"][axis] if r and r["rel_error"][axis] is not None
+                               else np.nan for r in m["by_realization"].values()])  # fmt: skip
+            if np.isfinite(values).any():
+                largest = max(largest, float(np.nanmax(np.abs(values))))
+            _spread_marks(ax, j + offset, values, PALETTE[i], f"along {axis}" if j == 0 else None,
+                          half=0.4 * width)  # fmt: skip
+    _band(ax, largest)
+    ax.set_xticks(range(len(ran)), [f"{m['rank']}. {m['name']}" for m in ran], rotation=30, ha="right",
+                  fontsize=8)  # fmt: skip
+    ax.set_ylabel("check error (k_coarse − k_fine) / k_fine (%)")
+    ax.set_title(f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
+    ax.legend(fontsize=8, loc="best")
+    return fig
+
+
+def ensemble_chart(ensemble: dict[str, Any], unit: str) -> Figure:
+    """One method over the realizations: fine and coarse k_eff per axis, and the check errors.
+
+    Parameters
+    ----------
+    ensemble : dict
+        From `upscale.ensemble.ensemble_summary` (with the check run).
+    unit : str
+        Permeability unit for labels.
+    """
+    rows = ensemble["realizations"]
+    axes = [a for a in "xyz" if a in ensemble["statistics"]["k_fine"]]
+    fig = Figure(figsize=(10.0, 4.4), layout="constrained")
+    left, right = fig.subplots(1, 2)
+    for i, axis in enumerate(axes):
+        for j, (quantity, name) in enumerate((("k_fine", "fine"), ("k_coarse", "coarse"))):
+            values = np.array([r[quantity].get(axis) for r in rows], dtype=float)
+            _spread_marks(left, 2 * i + 0.8 * j, values, PALETTE[j], name if i == 0 else None)
+        errors = np.array([r["rel_error"].get(axis) for r in rows], dtype=float) * 100
+        _spread_marks(right, i, errors, PALETTE[i], None)
+    left.set_yscale("log")
+    left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [f"along {a}" for a in axes])
+    left.set_ylabel(f"effective permeability ({unit})")
+    left.set_title("k_eff of the fine and the coarse model")
+    left.legend(fontsize=8, loc="best")
+    errors = np.array([r["rel_error"].get(a) for r in rows for a in axes], dtype=float) * 100
+    _band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
+    right.set_xticks(range(len(axes)), [f"along {a}" for a in axes])
+    right.set_ylabel("check error (k_coarse − k_fine) / k_fine (%)")
+    right.set_title("Check error")
+    right.legend(fontsize=8, loc="best")
+    fig.suptitle(f"Over {len(rows)} realizations: dots, P10–P90 bar, P50 tick")
+    return fig
