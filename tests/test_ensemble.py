@@ -109,8 +109,9 @@ def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_pat
 
     options = {"geometric": ["--method", "geometric"],
                "flow": ["--method", "flow", "--bc", "periodic", "--border", "3"]}[method]  # fmt: skip
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                      dashboard_address=None) as cluster:  # fmt: skip
+    # no dashboard, and the scheduler's HTTP server on a free port: a taken 8787 would warn
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None,
+                      scheduler_kwargs={"dashboard_address": ":0"}) as cluster:  # fmt: skip
         out = tmp_path / "cluster"
         assert main(["-q", "run", str(realizations / "r*.tif"), "--block", "8x8", *options,
                      "--solver", "direct", "--scheduler", cluster.scheduler_address,

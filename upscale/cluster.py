@@ -51,8 +51,10 @@ def compute_on(workers: int | None = None, address: str | None = None) -> Iterat
         if workers < 1:
             raise InputError(f"--workers must be 1 or more, not {workers}")
         logging.getLogger("distributed").setLevel(logging.ERROR)  # its start-up chatter
+        # no dashboard; the scheduler's HTTP server on any free port (a taken 8787 would warn)
         with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                          dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+                          dashboard_address=None, scheduler_kwargs={"dashboard_address": ":0"},
+                          silence_logs=logging.ERROR) as cluster, \
                 Client(cluster) as client, _failures_explained():  # fmt: skip
             yield len(client.scheduler_info()["workers"])
         return
@@ -77,6 +79,7 @@ def _failures_explained() -> Iterator[None]:
     that, or when the scheduler goes away, the run stops here; the output
     folder, written only at the end through a staged folder, is left as it was.
     """
+    from dask.utils import key_split
     from distributed import KilledWorker
     from distributed.comm.core import CommClosedError
 
@@ -84,7 +87,7 @@ def _failures_explained() -> Iterator[None]:
         yield
     except KilledWorker as exc:
         raise ClusterError(
-            f"the dask cluster lost the workers running one task too many times ({exc.args[0]}); "
+            f"the dask cluster lost the workers running one task too many times ({key_split(exc.task)}); "
             "nothing was written — check the workers' memory limits and logs, then run again"
         ) from None
     except (CommClosedError, CancelledError) as exc:
