@@ -176,3 +176,16 @@ def test_workers_and_scheduler_together(run_cli, realizations, tmp_path):
                                "geometric", "--workers", "2", "--scheduler", "tcp://127.0.0.1:9",
                                "--out", out))  # fmt: skip
     assert "not both" in line and not out.exists()
+
+
+def test_overwrite_with_fewer_realizations_removes_the_old_ones(realizations, tmp_path):
+    from upscale.cli.main import main
+
+    out = tmp_path / "ens"
+    args = ["-q", "run", "--block", "8x8", "--method", "geometric", "--no-check", "--out", str(out)]
+    assert main([*args[:2], str(realizations / "r*.tif"), *args[2:]]) == 0
+    fewer = [str(realizations / f"r{r}.tif") for r in range(3)]
+    assert main([*args[:2], *fewer, *args[2:], "--overwrite"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["ensemble.csv", "ensemble.json", "r0", "r1", "r2"]
+    assert [r["name"] for r in json.loads((out / "ensemble.json").read_text())["realizations"]] == [
+        "r0", "r1", "r2"]  # fmt: skip

@@ -153,9 +153,10 @@ def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[d
         by), ``rel_error`` (its spread per axis), ``rank_in_realizations``
         (mean rank and how often first) and ``by_realization`` (per
         realization its ``worst`` and ``rel_error`` per axis; None where the
-        method did not run). Ranked
-        by the P50 of ``worst_error`` (ties within 1e-9 keep the order of the
-        comparison); methods that ran nowhere come last, unranked.
+        method did not run). Ranked by the P50 of ``worst_error`` (ties
+        within 1e-9 keep the order of the comparison), the methods that ran
+        on every realization first, then by how many realizations a method
+        failed on; methods that ran nowhere come last, unranked.
 
     Examples
     --------
@@ -185,8 +186,9 @@ def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[d
                 a: ran[name]["check"][a]["rel_error"] for a in axes}} if name in ran else None
                 for name in names},
         })  # fmt: skip
+    # a method that failed on some realizations ranks after every one that ran on all
     ranked = sorted((m for m in methods if m["worst_error"]),
-                    key=lambda m: round(m["worst_error"]["p50"] / TIE) * TIE)  # fmt: skip
+                    key=lambda m: (m["failed"], round(m["worst_error"]["p50"] / TIE) * TIE))  # fmt: skip
     for rank, m in enumerate(ranked, start=1):
         m["rank"] = rank
     unranked = [dict(m, rank=None) for m in methods if not m["worst_error"]]

@@ -268,6 +268,9 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
 
             result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                                      report=report, say=told)  # fmt: skip
+            if result.best is None:
+                raise InputError(f"no method ran on {paths[i - 1]}: " + "; ".join(
+                    f"{e.candidate.label}: {e.error}" for e in result.entries))  # fmt: skip
             with Steps(told)(None, "drawing the figures and writing"):
                 made = bundle(result, title=f"upscale — methods compared on {paths[i - 1]}",
                               command=command, layer=layer)  # fmt: skip

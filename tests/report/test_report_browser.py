@@ -20,7 +20,8 @@ What is tested
 
 Chromium is Debian's (``/usr/bin/chromium``; CI installs it, see
 ``.ci/run``): the browser tests are skipped, saying so, only where no
-Chromium binary is found.
+Chromium binary is found. The browser and the head probe are shared with
+the ensemble pages' tests (``tests/browser_probe.py``).
 """
 
 from __future__ import annotations
@@ -32,12 +33,11 @@ import json
 import os
 import re
 import shlex
-import shutil
 import struct
-import subprocess
 from pathlib import Path
 
 import pytest
+from browser_probe import assert_self_contained, browse, chromium_binary, probe
 
 from upscale.caution import CAUTION
 from upscale.cli.main import main
@@ -47,15 +47,6 @@ METHODS = "geometric,harmonic,flow"
 #: Labels in the ranking: flow without --bc stands for its three boundary conditions.
 LABELS = {"geometric", "harmonic", "flow (sealed)", "flow (linear)", "flow (periodic)"}
 FIGURES = ["maps", "errors", "bounds", "histograms", "mismatch_x", "mismatch_y", "pressure"]
-TIMEOUT = 60  # s per browser run
-
-
-def _chromium() -> str | None:
-    for name in ("chromium", "chromium-browser"):
-        found = shutil.which(name)
-        if found:
-            return found
-    return "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None
 
 
 def _artifacts() -> Path:
@@ -76,35 +67,11 @@ def report(demo_dir, tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def chromium():
-    found = _chromium()
+    found = chromium_binary()
     if found is None:
         pytest.skip("no Chromium binary found (CI installs Debian's chromium; see .ci/run)")
     return found
 
-
-def _browse(chromium: str, profile: Path, *args: str) -> subprocess.CompletedProcess:
-    command = [chromium, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-               f"--user-data-dir={profile}", *args]  # fmt: skip
-    return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT, check=False)
-
-
-PROBE_HEAD = """<script>
-window.__problems = [];
-window.addEventListener("error", function (event) {
-  var target = event.target && event.target !== window ? (event.target.tagName || "?") : "script";
-  window.__problems.push("error (" + target + "): " + (event.message || event.type));
-}, true);
-window.addEventListener("unhandledrejection", function (event) {
-  window.__problems.push("unhandled rejection: " + event.reason);
-});
-["error", "warn"].forEach(function (level) {
-  var original = console[level];
-  console[level] = function () {
-    window.__problems.push("console." + level + ": " + Array.prototype.join.call(arguments, " "));
-    return original.apply(console, arguments);
-  };
-});
-</script>"""
 
 PROBE_BODY = """<script>
 window.addEventListener("load", function () {
@@ -133,18 +100,7 @@ window.addEventListener("load", function () {
 @pytest.fixture(scope="module")
 def verdict(report, chromium, tmp_path_factory):
     """What the probe saw when Chromium loaded a probed copy of the page."""
-    folder = tmp_path_factory.mktemp("probe")
-    page = report["page"].read_text(encoding="utf-8")
-    assert page.count("<head>") == 1 and page.count("</body>") == 1
-    probed = page.replace("<head>", "<head>\n" + PROBE_HEAD, 1).replace(
-        "</body>", PROBE_BODY + "\n</body>", 1
-    )
-    path = folder / "report-probed.html"
-    path.write_text(probed, encoding="utf-8")
-    done = _browse(chromium, folder / "profile", "--dump-dom", "--virtual-time-budget=10000", path.as_uri())
-    found = re.search(r'<pre id="probe">(.*?)</pre>', done.stdout, re.DOTALL)
-    assert found, f"no probe verdict in the dumped DOM (exit {done.returncode}): {done.stderr[-2000:]}"
-    return json.loads(html.unescape(found.group(1)))
+    return probe(chromium, report["page"], tmp_path_factory.mktemp("probe"), PROBE_BODY)
 
 
 # --- in the browser ------------------------------------------------------------------------------
@@ -172,7 +128,7 @@ def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
     target = _artifacts() / "report-screenshot.png"
     target.unlink(missing_ok=True)
     options = [f"--screenshot={target}", "--window-size=1280,4000", "--virtual-time-budget=10000"]
-    done = _browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, report["page"].as_uri())
+    done = browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, report["page"].as_uri())
     assert target.is_file(), f"no screenshot (exit {done.returncode}): {done.stderr[-2000:]}"
     data = target.read_bytes()
     assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
@@ -184,14 +140,7 @@ def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
 
 
 def test_page_is_self_contained(report):
-    page = report["page"].read_text(encoding="utf-8")
-    references = re.findall(r"""\b(?:src|href|action|poster|srcset)\s*=\s*["']?([^"'\s>]*)""", page, re.I)
-    assert references and all(r.startswith("data:image/png;base64,") for r in references), [
-        r[:60] for r in references if not r.startswith("data:")
-    ]
-    assert not re.search(r"https?://|(?:src|href)\s*=\s*[\"']?//", page, re.I)
-    assert "<script" not in page.lower() and "<link" not in page.lower() and "@import" not in page
-    assert "url(" not in page
+    assert_self_contained(report["page"].read_text(encoding="utf-8"))
 
 
 def test_embedded_figures_are_the_png_files(report):

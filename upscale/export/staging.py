@@ -114,7 +114,11 @@ def _commit(stage: Path, folder: Path, marker: str) -> None:
                 shutil.rmtree(folder / name)  # a folder of ours (figures/), replaced whole
             os.replace(stage / name, folder / name)
     for name in stale - set(names):
-        if isinstance(name, str) and Path(name).name == name:  # plain file names only
-            (folder / name).unlink(missing_ok=True)
+        if isinstance(name, str) and Path(name).name == name:  # plain names only
+            old = folder / name
+            if old.is_dir() and not old.is_symlink():
+                shutil.rmtree(old)  # a realization's folder of the previous ensemble
+            else:
+                old.unlink(missing_ok=True)
     if marker in names:
         os.replace(stage / marker, folder / marker)

@@ -137,8 +137,8 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
     n = len(ensemble["realizations"])
     plots = [Plot("spread", method_spread_chart(methods, axes, n),
                   "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
-                  "(tick): prefer a method whose whole bar sits in the ±5 % band over one that is "
-                  "best on average but strays on some realizations.")]  # fmt: skip
+                  "(tick). The ranking follows the P50 of the largest error; look at the bars too: "
+                  "a method whose P90 leaves the ±5 % band misses badly on some realizations.")]  # fmt: skip
     images, shown = _rendered(plots)
     rows = []
     for m in methods:
@@ -159,7 +159,9 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
         "title": title, "command": command, "caution": CAUTION, "versions": versions(),
         "verdict": verdict,
         "what": "Methods ranked by the P50 over the realizations of their largest check error over "
-        "the axes; the P10 and P90 show how much that varies from one realization to the next.",
+        "the axes (methods that failed on some realizations after those that ran on all); the P10 "
+        "and P90 show how much that varies from one realization to the next — with few "
+        "realizations they are interpolated between the nearest ones.",
         "realizations": ensemble["realizations"], "block": _block(ensemble["block"], axes),
         "percentiles": ensemble["percentiles"],
     }  # fmt: skip
