@@ -109,7 +109,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     with steps("read_s", f"reading {path}"):
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
                           **settings.read)  # fmt: skip
-    cells = "x".join(map(str, fine.shape[3 - fine.ndim:]))
+    cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
     with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
         result = coarsen(fine, settings.block, settings.method, **settings.options)
     check, checks = None, None

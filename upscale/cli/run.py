@@ -40,7 +40,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @field_options
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks); bounds "
-              "the memory used [default: a 64th of the available memory, 16 MiB to 256 MiB].")
+              "the memory used [default: a 64th of the available memory, 16 MiB to 128 MiB].")
 @click.option("--no-check", is_flag=True, help="Skip the fine-versus-coarse flow check.")
 @click.option("--plot", is_flag=True,
               help="Also write the figures of this run (figures/*.png and *.svg): maps, check "
