@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .check import check_flow, too_large
+from .check import check_flow, short_of_memory, too_large
 from .compare import Candidate, Entry, compare_methods, progress_line, single
 from .ensemble import PERCENTILE_NOTE, check_same_grid, ensemble_summary, method_spread, names_of
 from .errors import InputError
@@ -23,6 +23,7 @@ from .export.staging import staged_folder
 from .field import Field
 from .grid import BlockSpec
 from .io import read_field
+from .io.windows import available_memory
 from .report.bundle import bundle, ensemble_bundle, spread_bundle
 from .steps import Say, Steps, silent
 from .subdomains import check_subdomains
@@ -109,6 +110,8 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     with steps("read_s", f"reading {path}"):
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
                           **settings.read)  # fmt: skip
+    if settings.check:
+        refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
     cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
     with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
         result = coarsen(fine, settings.block, settings.method, **settings.options)
@@ -255,6 +258,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     reason = too_large(first.shape, check_limit)
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    refuse_check_past_memory(first, check_limit)
     if layer is not None and (first.ndim != 3 or layer >= first.shape[0]):
         raise InputError(f"--layer {layer + 1}: the field has {first.shape[0]} layer(s)")
     summaries = []
@@ -302,3 +306,17 @@ def _realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpec, r
               for name, path in zip(names, paths)}  # fmt: skip
     check_same_grid(fields)
     return names, fields
+
+
+def refuse_check_past_memory(fine: Field, max_cells: int) -> None:
+    """Refuse, before any work, a flow check whose largest solve would not fit in memory.
+
+    Raises
+    ------
+    InputError
+        Saying how much the check would need and which ``--check-limit`` fits.
+    """
+    available = available_memory()
+    reason = None if available is None else short_of_memory(fine.shape, fine.ndim, max_cells, available)
+    if reason:
+        raise InputError(reason)

@@ -8,9 +8,12 @@ Writes a float32 GeoTIFF of about ``--gib`` GiB (window by window, so the
 writer itself never holds it), then runs ``upscale run`` on it in a child
 process whose address space is capped at ``--limit-gib`` GiB
 (``RLIMIT_AS``: every mapping counts, so this is stricter than a cap on
-resident memory). It reports the child's peak resident memory and wall
-time, and repeats with a raster a quarter of the size: if memory is bounded
-by the chunk size, both peaks are about the same.
+resident memory), with the flow check on sub-domain windows of at most
+``--check-limit`` cells (default 10⁶: a check of the whole raster, or of
+windows of the default 2·10⁷ cells, would need more than the cap and is
+refused before any work). It reports the child's peak resident memory and
+wall time, and repeats with a raster a quarter of the size: if memory is
+bounded by the chunk size, both peaks are about the same.
 """
 
 from __future__ import annotations
@@ -66,6 +69,7 @@ def main() -> None:
     parser.add_argument("--limit-gib", type=float, default=3.0, help="address-space cap of the run")
     parser.add_argument("--method", default="geometric")
     parser.add_argument("--block", default="10x10")
+    parser.add_argument("--check-limit", default="1000000", help="cells per sub-domain window of the check")
     parser.add_argument("--workdir", default=None, help="where to write the rasters (needs space)")
     args = parser.parse_args()
     upscale = str(Path(sys.executable).with_name("upscale"))
@@ -81,16 +85,17 @@ def main() -> None:
             out = work / f"out_{side}"
             status, seconds, peak = run_capped(
                 [upscale, "-q", "run", str(raster), "--block", args.block, "--method", args.method,
-                 "--out", str(out)],  # fmt: skip
+                 "--check-limit", args.check_limit, "--out", str(out)],  # fmt: skip
                 int(args.limit_gib * 2**30),
             )
             size = raster.stat().st_size / 2**30
             summary = json.loads((out / "summary.json").read_text()) if status == 0 else {}
             results.append((side, size, status, seconds, peak, summary.get("timings_s", {})))
+            timings = " ".join(f"{k} {v:.1f}" for k, v in results[-1][5].items())
             print(f"{side} x {side} float32: {size:.2f} GiB on disk (written in {written:.0f} s); "
                   f"run under a {args.limit_gib:g} GiB address-space cap: exit {status}, "
                   f"{seconds:.1f} s, peak RSS {peak:.2f} GiB, "
-                  f"{side * side / seconds / 1e6:.0f} Mcell/s", flush=True)  # fmt: skip
+                  f"{side * side / seconds / 1e6:.0f} Mcell/s; {timings}", flush=True)  # fmt: skip
             raster.unlink()
     finally:
         shutil.rmtree(work, ignore_errors=True)

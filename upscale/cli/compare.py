@@ -17,7 +17,7 @@ from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
-from ..job import compare_ensemble
+from ..job import compare_ensemble, refuse_check_past_memory
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
 from .options import check_options, field_options, parse_chunk, read_options, recorded
@@ -101,6 +101,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str
     reason = too_large(fine.shape, check_limit)
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    refuse_check_past_memory(fine, check_limit)
     if layer is not None and (fine.ndim != 3 or layer > fine.shape[0]):
         raise InputError(f"--layer {layer}: the field has {fine.shape[0]} layer(s)")
     quiet = ctx.obj["quiet"]

@@ -96,6 +96,12 @@ def main(argv: list[str] | None = None) -> int:
             raise
         click.echo(f"upscale: error: {exc}", err=True)
         return exc.exit_code
+    except MemoryError:
+        if debug:
+            raise
+        click.echo("upscale: error: out of memory; nothing was written — give a smaller --chunk or "
+                   "--check-limit, or --no-check, or run where more memory is free", err=True)  # fmt: skip
+        return 1
     except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
         if debug:
             raise

@@ -87,6 +87,9 @@ def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return x, y, z
 
 
+#: Arrow's default pool (mimalloc) keeps what the tables allocated, about 1 kB per coarse cell
+#: written; the system allocator gives it back after every slab.
+_POOL = pa.system_memory_pool()
 _INTEGER = {"id", "i", "j", "k", "id1", "id2"}
 _TEXT = {"axis", "source", "face"}
 
@@ -109,7 +112,7 @@ def _batch(columns: dict[str, Any], schema: pa.Schema) -> pa.Table:
     for field in schema:
         values = np.asarray(columns[field.name]).ravel()
         mask = ~np.isfinite(values) if values.dtype.kind == "f" else None
-        arrays.append(pa.array(values, mask=mask, type=field.type))
+        arrays.append(pa.array(values, mask=mask, type=field.type, memory_pool=_POOL))
     return pa.Table.from_arrays(arrays, schema=schema)
 
 
@@ -288,7 +291,8 @@ def write_tables(stage: Path, tables: PackageTables) -> dict[str, dict[str, Any]
         schema = _schema(tables.columns(name))
         csv, parquet = stage / f"{name}.csv", stage / f"{name}.parquet"
         rows = 0
-        with pacsv.CSVWriter(csv, schema) as text, pq.ParquetWriter(parquet, schema) as columnar:
+        with pacsv.CSVWriter(csv, schema, memory_pool=_POOL) as text, \
+                pq.ParquetWriter(parquet, schema, memory_pool=_POOL) as columnar:  # fmt: skip
             for batch in tables.batches(name):
                 text.write_table(batch)
                 columnar.write_table(batch)

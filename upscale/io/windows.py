@@ -39,13 +39,32 @@ def default_chunk_bytes() -> int:
     >>> 16 * 2**20 <= default_chunk_bytes() <= 128 * 2**20
     True
     """
+    available = available_memory()
+    if available is None:  # pragma: no cover - psutil comes with distributed
+        return DEFAULT_CHUNK_BYTES
+    return int(min(MAX_CHUNK_BYTES, max(16 * 2**20, available // 64)))
+
+
+def available_memory() -> int | None:
+    """Bytes this process can still allocate, or None if unknown.
+
+    The system's available memory, within any address-space limit set on the
+    process (``ulimit -v``).
+    """
     try:
         import psutil
 
         available = psutil.virtual_memory().available
     except (ImportError, OSError):  # pragma: no cover - psutil comes with distributed
-        return DEFAULT_CHUNK_BYTES
-    return int(min(MAX_CHUNK_BYTES, max(16 * 2**20, available // 64)))
+        return None
+    try:
+        import resource
+    except ImportError:  # pragma: no cover - Windows has no address-space limits
+        return int(available)
+    soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+    if soft != resource.RLIM_INFINITY:
+        available = min(available, soft - psutil.Process().memory_info().vms)
+    return max(0, int(available))
 
 
 @contextmanager
