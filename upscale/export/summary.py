@@ -17,11 +17,12 @@ from ..methods.registry import METHODS
 from ..stats import scan_values
 from ..upscaled import Upscaled
 
-_DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "scikit-image", "matplotlib")
+_DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
+                 "pyarrow", "netCDF4", "pyproj")
 
 
 def versions() -> dict[str, str]:
-    """Versions of the tool, Python and the libraries that shape the numbers."""
+    """Versions of the tool, Python and the libraries that shape the numbers and the files."""
     found = {"upscale": _version("upscale"), "python": platform.python_version()}
     found.update({name: _version(name) for name in _DEPENDENCIES})
     return found
