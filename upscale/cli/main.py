@@ -8,9 +8,13 @@ traceback with ``--debug``.
 
 from __future__ import annotations
 
+import contextlib
 import logging
 import os
+import signal
 import sys
+import threading
+from collections.abc import Iterator
 
 import click
 
@@ -79,6 +83,32 @@ def main(argv: list[str] | None = None) -> int:
     os.environ.setdefault("GDAL_CACHEMAX", GDAL_CACHE_MB)  # a user's own setting wins
     args = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in args
+    with _terminate_like_interrupt():
+        return _main(args, debug)
+
+
+class _Terminated(KeyboardInterrupt):  # noqa: N818 - a signal, like its parent
+    """SIGTERM arrived (a batch scheduler or ``kill`` stopping the run); unwinds like Ctrl-C."""
+
+
+@contextlib.contextmanager
+def _terminate_like_interrupt() -> Iterator[None]:
+    """Let SIGTERM unwind the run like Ctrl-C, so staged output is cleaned up (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def stop(signum: int, frame: object) -> None:
+        raise _Terminated()
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _main(args: list[str], debug: bool) -> int:
     try:
         cli.main(
             args=args, prog_name="upscale", standalone_mode=False, obj={"command": ["upscale", *args]}
@@ -88,7 +118,10 @@ def main(argv: list[str] | None = None) -> int:
     except click.ClickException as exc:
         click.echo(f"upscale: error: {exc.format_message()}", err=True)
         return exc.exit_code
-    except (click.Abort, KeyboardInterrupt):
+    except (click.Abort, KeyboardInterrupt) as exc:  # click turns KeyboardInterrupt into Abort
+        if isinstance(exc, _Terminated) or isinstance(exc.__context__, _Terminated):
+            click.echo("upscale: stopped by SIGTERM; nothing was written", err=True)
+            return 143
         click.echo("upscale: interrupted; nothing was written", err=True)
         return 130
     except UpscaleError as exc:
