@@ -22,7 +22,7 @@ from .errors import InputError
 from .field import Field
 from .flow import AxisFlow
 from .grid import BlockSpec
-from .methods.registry import METHODS
+from .methods.registry import METHODS, check_exponent
 from .steps import Say, Steps, silent
 from .upscaled import Upscaled, coarsen
 
@@ -161,6 +161,7 @@ def candidates(
     >>> [c.label for c in candidates(["flow-transmissibility"], border=2)]
     ['flow-transmissibility (sealed, border 2)']
     """
+    check_exponent(exponent)
     names = list(METHODS) if not methods else methods
     unknown = [n for n in names if n not in METHODS]
     if unknown:

@@ -110,6 +110,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     with steps("read_s", f"reading {path}"):
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
                           **settings.read)  # fmt: skip
+    refuse_layer(settings.layer, fine)
     if settings.check:
         refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
     cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
@@ -136,8 +137,6 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     made = None
     if checks and drawing:
         layer = settings.layer
-        if layer is not None and (result.fine.ndim != 3 or layer >= result.fine.shape[0]):
-            raise InputError(f"--layer {layer + 1}: the field has {result.fine.shape[0]} layer(s)")
         with steps(None, "drawing the figures"):
             made = bundle(single(result, checks, steps.timings["upscale_s"]),
                           title=f"upscale — {result.method} on {path}", command=settings.command,
@@ -259,8 +258,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
     refuse_check_past_memory(first, check_limit)
-    if layer is not None and (first.ndim != 3 or layer >= first.shape[0]):
-        raise InputError(f"--layer {layer + 1}: the field has {first.shape[0]} layer(s)")
+    refuse_layer(layer, first)
     summaries = []
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         for i, (name, fine) in enumerate(fields.items(), start=1):
@@ -306,6 +304,17 @@ def _realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpec, r
               for name, path in zip(names, paths)}  # fmt: skip
     check_same_grid(fields)
     return names, fields
+
+
+def refuse_layer(layer: int | None, fine: Field) -> None:
+    """Refuse, before any work, a zero-based `layer` to draw that the field does not have."""
+    if layer is None:
+        return
+    if fine.ndim != 3:
+        raise InputError(f"--layer {layer + 1}: the field is a 2D map; --layer chooses the layer "
+                         "drawn of a 3D model — leave it out")  # fmt: skip
+    if layer >= fine.shape[0]:
+        raise InputError(f"--layer {layer + 1}: the field has {fine.shape[0]} layer(s)")
 
 
 def refuse_check_past_memory(fine: Field, max_cells: int) -> None:

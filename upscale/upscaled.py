@@ -242,7 +242,13 @@ def _where(cells: tuple) -> str:
     return ", ".join(f"(layer {c[0]}, row {c[1]}, column {c[2]})" for c in cells)
 
 
-def _check_values(scans: dict[str, ValueScan], method: Method, options: dict, fine: Field) -> None:
+def refuse_bad_values(fine: Field) -> None:
+    """Refuse a field with no active cell, or infinite or negative values, or porosity above 1."""
+    scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+    _check_values(scans, None, {}, fine)
+
+
+def _check_values(scans: dict[str, ValueScan], method: Method | None, options: dict, fine: Field) -> None:
     sources = {s.role: s.path for s in fine.sources}
     for name, scan in scans.items():
         label = f"{name} ({sources[name]})" if name in sources else name
@@ -263,7 +269,7 @@ def _check_values(scans: dict[str, ValueScan], method: Method, options: dict, fi
                 raise InputError(
                     f"{label}: porosity up to {scan.maximum:g}; porosity is a fraction in [0, 1]"
                 )
-        elif scan.zero and not method.takes_zeros(options):
+        elif scan.zero and method is not None and not method.takes_zeros(options):
             raise InputError(
                 f"{label}: {scan.zero} zero permeability value(s), first at "
                 f"{_where(scan.first_zero)}; the {method.name} average of a block with a zero is "

@@ -8,6 +8,7 @@ from ..check import check_summary
 from ..export import update_summary
 from ..io.package import read_package
 from ..io.results import read_run
+from ..upscaled import refuse_bad_values
 from .options import check_options
 from .report import print_check
 
@@ -30,6 +31,7 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
       upscale check out/ --solver direct
     """
     _, fine = read_run(folder)
+    refuse_bad_values(fine)  # the run checked them, but it may have recorded no SHA-256
     _, coarse = read_package(folder)
     result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
     summary = update_summary(folder, {"check": result})

@@ -17,7 +17,7 @@ from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
-from ..job import compare_ensemble, refuse_check_past_memory
+from ..job import compare_ensemble, refuse_check_past_memory, refuse_layer
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
 from .options import check_options, field_options, parse_chunk, read_options, recorded
@@ -102,8 +102,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
     refuse_check_past_memory(fine, check_limit)
-    if layer is not None and (fine.ndim != 3 or layer > fine.shape[0]):
-        raise InputError(f"--layer {layer}: the field has {fine.shape[0]} layer(s)")
+    refuse_layer(None if layer is None else layer - 1, fine)
     quiet = ctx.obj["quiet"]
     result = compare_methods(fine, spec, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip

@@ -78,8 +78,18 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     ]  # fmt: skip
     click.echo("")
     click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
-    bad = {k: v for k, v in description["problems"].items() if v}
+    bad = []
+    arrays = fine.properties()
+    for name, scan in scans.items():
+        if name != "kx" and arrays[name] is arrays["kx"]:
+            continue  # ky or kz taken from the field: its problems are those of kx
+        counts = {"negative": scan.negative, "zero": 0 if name == "porosity" else scan.zero,
+                  "infinite": scan.infinite}  # fmt: skip
+        counts = {k: v for k, v in counts.items() if v}
+        if counts:
+            bad.append(", ".join(f"{v} {k}" for k, v in counts.items()) + f" value(s) in {name}")
+        if name == "porosity" and scan.maximum > 1:
+            bad.append(f"porosity up to {scan.maximum:g}, above 1")
     if bad:
         click.echo("")
-        click.echo("problems     " + ", ".join(f"{v} {k}" for k, v in bad.items())
-                   + " value(s) in kx; 'upscale run' will refuse what a method cannot take")  # fmt: skip
+        click.echo("problems     " + "; ".join(bad) + "; 'upscale run' will refuse what a method cannot take")

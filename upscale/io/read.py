@@ -83,7 +83,7 @@ def _open(path: str, scale: str, nodata: float | None, chunks: Any) -> _Layout:
     if np.issubdtype(dtype, np.complexfloating):
         raise InputError(f"{path}: complex values cannot be permeabilities")
     if not np.issubdtype(dtype, np.floating):
-        log.info("%s: %s values converted to float64", path, dtype)
+        log.warning("%s: %s values converted to float64 (exactly for up to 2^53)", path, dtype)
     windows = RasterWindows(
         str(p), shape, dtype, file_nodata if nodata is None else nodata, scale, use_mask
     )
@@ -232,8 +232,8 @@ def read_field(
             raise InputError(f"--kv-kh was given but {path} is a one-band 2D map")
     if kz is not None and kv_kh is not None:
         raise InputError("give either --kz or --kv-kh, not both")
-    if kv_kh is not None and not kv_kh > 0:
-        raise InputError(f"--kv-kh must be > 0, got {kv_kh}")
+    if kv_kh is not None and not (kv_kh > 0 and math.isfinite(kv_kh)):
+        raise InputError(f"--kv-kh must be > 0 and finite (kz = kv_kh x kx), got {kv_kh}")
 
     arrays = {"kx": main.lazy}
     sources = [Source("kx", str(path), sha256(path) if checksum else "")]

@@ -8,7 +8,9 @@ can reach the same path), and turns nodata into NaN on the way.
 
 from __future__ import annotations
 
+import logging
 import os
+import threading
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -67,6 +69,27 @@ def available_memory() -> int | None:
     return max(0, int(available))
 
 
+_reading = threading.local()
+
+
+class _CollectDamage(logging.Filter):
+    """Keep GDAL's reports of I/O errors off the log while `open_raster` is open in this thread.
+
+    GDAL reports through rasterio's logger in the thread that called it, so a
+    thread-local list collects the reports of the file this thread reads.
+    """
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        found = getattr(_reading, "damage", None)
+        if found is None or "IO error" not in record.getMessage():
+            return True
+        found.append(record.getMessage())
+        return False
+
+
+logging.getLogger("rasterio._env").addFilter(_CollectDamage())
+
+
 @contextmanager
 def open_raster(path: str) -> Iterator[Any]:
     """Open a raster read-only; any failure to read it becomes one `InputError`.
@@ -77,13 +100,21 @@ def open_raster(path: str) -> Iterator[Any]:
     import rasterio
     from rasterio.errors import NotGeoreferencedWarning, RasterioError
 
+    outer = getattr(_reading, "damage", None)
+    _reading.damage = damage = []
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", NotGeoreferencedWarning)
             with rasterio.open(path) as src:
+                if damage:
+                    raise InputError(f"{path}: cannot be read as a raster, the file is truncated or "
+                                     f"damaged ({damage[0]})")  # fmt: skip
                 yield src
     except RasterioError as exc:
-        raise InputError(f"{path}: cannot be read as a raster ({exc})") from None
+        # rasterio's own text may be 'Read failed. See previous exception for details.'
+        raise InputError(f"{path}: cannot be read as a raster ({exc.__cause__ or exc})") from None
+    finally:
+        _reading.damage = outer
 
 
 def clean_values(data: np.ndarray, nodata: float | None, scale: str) -> np.ndarray:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -110,6 +111,12 @@ METHODS: Mapping[str, Method] = {
 }
 
 
+def check_exponent(exponent: float | None) -> None:
+    """Refuse an exponent of the power average that is not a finite number (nan, inf)."""
+    if exponent is not None and not math.isfinite(exponent):
+        raise InputError(f"--exponent must be a finite number such as 0.5 or -1, got {exponent}")
+
+
 def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Method, dict]:
     """Look up a method and check its options.
 
@@ -142,4 +149,5 @@ def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Met
     missing = [o for o in method.options if o not in given]
     if missing:
         raise InputError(f"method {name!r} needs --{missing[0]}")
+    check_exponent(given.get("exponent"))
     return method, {o: given[o] for o in method.options}
