@@ -49,6 +49,8 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
     """
     level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
     logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
+    # GDAL's own remarks (through rasterio) are for -vv; damage is reported as one error instead
+    logging.getLogger("rasterio").setLevel(logging.DEBUG if verbose >= 2 else logging.CRITICAL)
     ctx.ensure_object(dict).update(quiet=quiet, verbose=verbose, debug=debug)
     ctx.obj.setdefault("command", ["upscale", *sys.argv[1:]])
 

@@ -80,6 +80,15 @@ def _open(path: str, scale: str, nodata: float | None, chunks: Any) -> _Layout:
         file_nodata = src.nodata
         use_mask = MaskFlags.per_dataset in src.mask_flag_enums[0]
         georeferenced = not (transform.is_identity and crs is None)
+        uncompressed_tiff = src.driver == "GTiff" and src.compression is None
+    need = math.prod(shape) * dtype.itemsize
+    if uncompressed_tiff and need > p.stat().st_size:
+        # a damaged header declaring a huge grid; GDAL would read the missing cells as nodata
+        raise InputError(
+            f"{path}: cannot be read as a raster (truncated or damaged: its header declares "
+            f"{shape[2]} x {shape[1]} cells in {shape[0]} band(s) of {dtype}, {need} bytes, but the "
+            f"file holds {p.stat().st_size})"
+        )
     if np.issubdtype(dtype, np.complexfloating):
         raise InputError(f"{path}: complex values cannot be permeabilities")
     if not np.issubdtype(dtype, np.floating):

@@ -72,8 +72,13 @@ def available_memory() -> int | None:
 _reading = threading.local()
 
 
+#: Words of GDAL's reports that mean the file is damaged (its others are remarks).
+DAMAGE_SIGNS = ("IO error", "Incorrect count", "apparently corrupt")
+log = logging.getLogger(__name__)
+
+
 class _CollectDamage(logging.Filter):
-    """Keep GDAL's reports of I/O errors off the log while `open_raster` is open in this thread.
+    """Keep GDAL's reports off the log while `open_raster` is open in this thread; collect damage.
 
     GDAL reports through rasterio's logger in the thread that called it, so a
     thread-local list collects the reports of the file this thread reads.
@@ -81,9 +86,13 @@ class _CollectDamage(logging.Filter):
 
     def filter(self, record: logging.LogRecord) -> bool:
         found = getattr(_reading, "damage", None)
-        if found is None or "IO error" not in record.getMessage():
+        if found is None:
             return True
-        found.append(record.getMessage())
+        message = record.getMessage()
+        if any(sign in message for sign in DAMAGE_SIGNS):
+            found.append(message)
+        else:
+            log.debug("%s", message)  # other remarks of GDAL on this file: with -vv only
         return False
 
 
