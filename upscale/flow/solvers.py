@@ -20,6 +20,7 @@ a measure that means the same in a 1e4 mD sand and a 1e-4 mD shale.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -74,7 +75,14 @@ class Solver:
         n = self.A.shape[0]
         self.method = ("direct" if n <= DIRECT_LIMIT else "amg") if method == "auto" else method
         if self.method == "direct":
-            self._factor = linalg.splu(self.A.tocsc()) if n else None
+            try:
+                self._factor = linalg.splu(self.A.tocsc()) if n else None
+            except RuntimeError as error:  # "Factor is exactly singular"
+                raise ConvergenceError(
+                    f"the direct pressure solve met a singular matrix ({error}): part of the field is "
+                    "joined to the rest only through transmissibilities below float64 precision "
+                    "(contrasts of about 1e16 between neighbouring cells); mark such cells as nodata"
+                ) from None
         else:
             import pyamg
 
@@ -128,10 +136,13 @@ class Solver:
             norm = np.linalg.norm(b)
             while iterations < self.max_iterations:
                 history: list[float] = []
-                x = self._hierarchy.solve(
-                    b, x0=x, tol=target, accel="cg",
-                    maxiter=self.max_iterations - iterations, residuals=history,
-                )  # fmt: skip
+                with warnings.catch_warnings():  # a failure is caught by the residual below
+                    warnings.simplefilter("ignore")
+                    with np.errstate(all="ignore"):
+                        x = self._hierarchy.solve(
+                            b, x0=x, tol=target, accel="cg",
+                            maxiter=self.max_iterations - iterations, residuals=history,
+                        )  # fmt: skip
                 iterations += max(len(history) - 1, 1)
                 residual = scaled(x)
                 if residual <= self.tolerance or not residual < 0.5 * best:

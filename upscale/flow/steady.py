@@ -21,7 +21,7 @@ from scipy import sparse
 
 from ..field import AXES
 from .islands import anchored
-from .solvers import make_solver
+from .solvers import Solver, make_solver
 from .transmissibility import Transmissibilities
 
 
@@ -133,9 +133,14 @@ def pressure_drop(
         shape=(m, m),
     ).tocsr()  # fmt: skip
 
-    p, info = make_solver(A, solver, tolerance).solve(rhs)
+    solve = make_solver(A, solver, tolerance)
+    p, info = solve.solve(rhs)
+    if m and connected:
+        p = _refined(p, solve, tolerance, (i, j, T), (inlet, t_in), (outlet, t_out))
     inflow = float(np.sum(t_in * (1.0 - p[inlet]))) if m else 0.0
     outflow = float(np.sum(t_out * p[outlet])) if m else 0.0
+    if not connected:  # no path joins the faces: nothing flows, the rates are rounding
+        inflow = outflow = 0.0
     largest = max(abs(inflow), abs(outflow))
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
@@ -156,3 +161,31 @@ def pressure_drop(
         pressure=pressure.reshape(shape),
         trans=trans,
     )
+
+
+def _refined(p: np.ndarray, solve: Solver, tolerance: float, faces: tuple, inlet: tuple, outlet: tuple,
+             steps: int = 3) -> np.ndarray:  # fmt: skip
+    """Pressures corrected against the residual of the face fluxes themselves, when mass is lost.
+
+    The assembled diagonal of a permeable cell holds its tight faces only to
+    eps x diagonal, so at contrasts of 1e12 the solution of the assembled
+    system can lose percent of the mass between inlet and outlet. While the
+    inflow and outflow differ by more than ``sqrt(tolerance)`` of the flow,
+    the residual computed face by face (conservative form) is solved for a
+    correction with the same factor or hierarchy (iterative refinement, up
+    to `steps` times; common practice). A solve that balances costs nothing more.
+    """
+    i, j, T = faces
+    (into, t_in), (out, t_out) = inlet, outlet
+    m = p.size
+    for _ in range(steps):
+        inflow, outflow = np.sum(t_in * (1.0 - p[into])), np.sum(t_out * p[out])
+        if abs(inflow - outflow) <= np.sqrt(tolerance) * max(abs(inflow), abs(outflow)):
+            break
+        flux = T * (p[i] - p[j])
+        r = np.bincount(into, t_in * (1.0 - p[into]), minlength=m)
+        r -= np.bincount(out, t_out * p[out], minlength=m)
+        r -= np.bincount(i, flux, minlength=m)
+        r += np.bincount(j, flux, minlength=m)
+        p = p + solve.solve(r)[0]
+    return p
