@@ -254,11 +254,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     command = command or []
     names, fields = _realizations(paths, chunk_bytes, block, read)
     first = next(iter(fields.values()))
-    reason = too_large(first.shape, check_limit)
-    if reason:
-        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
-    refuse_check_past_memory(first, check_limit)
-    refuse_layer(layer, first)
+    refuse_comparison(first, check_limit, layer)
     summaries = []
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         for i, (name, fine) in enumerate(fields.items(), start=1):
@@ -304,6 +300,15 @@ def _realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpec, r
               for name, path in zip(names, paths)}  # fmt: skip
     check_same_grid(fields)
     return names, fields
+
+
+def refuse_comparison(fine: Field, max_cells: int, layer: int | None) -> None:
+    """Refuse, before any work, a comparison the flow check cannot rank or a `layer` it cannot draw."""
+    reason = too_large(fine.shape, max_cells)
+    if reason:
+        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    refuse_check_past_memory(fine, max_cells)
+    refuse_layer(layer, fine)
 
 
 def refuse_layer(layer: int | None, fine: Field) -> None:

@@ -8,7 +8,6 @@ import click
 import numpy as np
 
 from ..caution import CAUTION
-from ..check import too_large
 from ..compare import Entry, candidates, compare_methods, progress_line
 from ..ensemble import expand
 from ..errors import InputError
@@ -17,7 +16,7 @@ from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
-from ..job import compare_ensemble, refuse_check_past_memory, refuse_layer
+from ..job import compare_ensemble, refuse_comparison
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
 from .options import check_options, field_options, parse_chunk, read_options, recorded
@@ -98,11 +97,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str
         return
     field = paths[0]
     fine = read_field(field, chunk_bytes=parse_chunk(chunk, spec.cells), block=spec.cells, **read)
-    reason = too_large(fine.shape, check_limit)
-    if reason:
-        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
-    refuse_check_past_memory(fine, check_limit)
-    refuse_layer(None if layer is None else layer - 1, fine)
+    refuse_comparison(fine, check_limit, None if layer is None else layer - 1)
     quiet = ctx.obj["quiet"]
     result = compare_methods(fine, spec, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
