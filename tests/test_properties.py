@@ -38,14 +38,14 @@ the public API only:
   swaps the kx and ky results of every average and bound and of flow sealed,
   and swaps the check's x and y k_eff.
 
-Found by these properties, and pinned as strict xfails here: a periodic block
-cut by inactive cells keeps rounding-level k instead of 0; a sealed block
-with a border whose cells form a dead end gets k = rounding / rounding (20,
-13.3 or 0 mD depending on the unit of k). A third, a solve with no flow
-path reporting its rounding as flow (k_eff ≠ 0, mass_balance up to 1,
-rel_error 8e14 instead of NaN), is fixed and tested. Until the two are fixed, the scaling and conservation
-properties draw inactive cells only for the methods they do not affect
-(`_cut_blocks_allowed`); tests/flow/test_guards.py shows what they do to a run.
+Found by these properties, fixed, and kept here as examples: a periodic
+block cut by inactive cells kept rounding-level k instead of 0; a sealed
+block with a border whose cells form a dead end got k = rounding / rounding
+(20, 13.3 or 0 mD depending on the unit of k); a solve with no flow path
+reported its rounding as flow (k_eff ≠ 0, mass_balance up to 1, rel_error
+8e14 instead of NaN). The local solves now find the faces that carry flow
+from the graph (`upscale.flow.paths`), so every property draws inactive
+cells for every method.
 
 Every test is derandomized and uses no example database, so CI runs the same
 examples each time.
@@ -247,17 +247,6 @@ def _close(got, want, what, rtol=1e-12):
     np.testing.assert_allclose(got, want, rtol=rtol, atol=0, err_msg=str(what))
 
 
-def _cut_blocks_allowed(options):
-    """Whether a method's blocks may be cut by inactive cells in these properties.
-
-    Linear and periodic blocks cut by inactive cells may keep rounding-level k instead of 0,
-    and sealed blocks with a border whose cells form a dead end get k = rounding / rounding;
-    neither scales, and either can break the coarse solve (the xfail tests below and
-    tests/flow/test_guards.py::test_periodic_rounding_breaks_the_check).
-    """
-    return options.get("bc") not in ("linear", "periodic") and not options.get("border")
-
-
 @_settings(60)
 @given(data=st.data(), method=st.sampled_from(ALL_METHODS), c=st.floats(1e-6, 1e6))
 def test_scaling_k_scales_coarse_k_transmissibilities_and_check(data, method, c):
@@ -265,7 +254,7 @@ def test_scaling_k_scales_coarse_k_transmissibilities_and_check(data, method, c)
     # Media): k -> c k multiplies every upscaled permeability and transmissibility by c, and
     # leaves the relative error of the coarse model unchanged.
     name, options = method
-    case = data.draw(cases(nan=_cut_blocks_allowed(options), powers_of_two=True, sigma=(0.0, 2.5)),
+    case = data.draw(cases(nan=True, powers_of_two=True, sigma=(0.0, 2.5)),
                      label="case")  # fmt: skip
     if options.get("border", 0) >= max(case.field.shape):
         options = {**options, "border": 0}
@@ -303,11 +292,8 @@ def test_scaling_k_scales_coarse_k_transmissibilities_and_check(data, method, c)
             assert cb.rel_error == pytest.approx(ca.rel_error, rel=0, abs=slack)
 
 
-@pytest.mark.xfail(strict=True, reason="a periodic block with no flowing path along x keeps kx = 5.6e-15 "
-                   "(rounding), not 0: ROUNDING zeroes it in the tensor, the eigenvalue test then "
-                   "fails and _tensor falls back to the raw diagonal (upscale/methods/flow_based.py)")
 def test_periodic_block_cut_by_a_staircase_gets_exactly_zero():
-    # Found by the scaling property above (the rounding does not scale with k). The module
+    # Found by the scaling property above (the rounding did not scale with k). The module
     # docstring of upscale.methods.flow_based: "A block with no flowing path along an axis gets
     # 0 along it"; test_flow_based.py checks it for a block cut by a full row of inactive cells.
     # Here a staircase of two inactive cells cuts every periodic path along x (row 0 ends at
@@ -316,27 +302,25 @@ def test_periodic_block_cut_by_a_staircase_gets_exactly_zero():
     for cell in ((1.0, 1.0), (1.0, 2.0)):
         result = coarsen(Field.from_arrays(k, cell_size=cell), "4x2", "flow", bc="periodic")
         assert result.coarse.ky[0, 0, 0] == pytest.approx(10.0, rel=1e-12)
-        assert result.coarse.kx[0, 0, 0] == 0.0  # is 5.6e-15 (1x1 cells), 1.7e-14 (k x 3, 1x2 cells)
+        assert result.coarse.kx[0, 0, 0] == 0.0  # was 5.6e-15 (1x1 cells), 1.7e-14 (k x 3, 1x2)
 
 
-@pytest.mark.xfail(strict=True, reason="sealed flow with a border: a block whose cells form a dead end gets "
-                   "kx = <u>/<dp/dx> = rounding / rounding: 20, 13.3 or 0 depending on k x c and the cell "
-                   "size (upscale/methods/flow_based.py, _tensor)")
 def test_dead_end_block_with_a_border_does_not_depend_on_rounding():
     # Found by the scaling property above. The bottom-row block of columns 2-3 holds two active
     # cells joined to the rest only through the cell above its left one: under a gradient
-    # along x nothing flows through it and its mean gradient is 0. _tensor then divides
-    # <u> = -4.4e-15 by <dp/dx> = 2.2e-16 and keeps 20 mD (k x 1, 1 m cells), 13.3 mD
-    # (50 m cells), or gets exact zeros and 0 (k x 1.5): the block's kx, the coarse model and
-    # its check change with the unit of k. (flow-transmissibility's two-block T = Q / drop
-    # does the same: an outer-face T of 1.1e-13 becomes 2.15 under k x 1.5.)
+    # along x nothing flows through it and its mean gradient is 0. _tensor divided
+    # <u> = -4.4e-15 by <dp/dx> = 2.2e-16 and kept 20 mD (k x 1, 1 m cells), 13.3 mD
+    # (50 m cells), or got exact zeros and 0 (k x 1.5): the block's kx, the coarse model and
+    # its check changed with the unit of k. (flow-transmissibility's two-block T = Q / drop
+    # did the same: an outer-face T of 1.1e-13 became 2.15 under k x 1.5.) A block nothing
+    # flows through now gets 0, whatever the unit.
     N = np.nan
     k = np.array([[N, 20.0, 20.0, N, 20.0, 20.0], [N, 20.0, 20.0, 20.0, 20.0, 20.0],
                   [20.0, 20.0, 20.0, N, 20.0, 20.0], [20.0, N, 20.0, 20.0, N, 20.0]])  # fmt: skip
     values = {(c, cell): coarsen(Field.from_arrays(c * k, cell_size=(cell, cell)), "2x1", "flow",
                                  border=2).coarse.kx[0, 3, 1] / c
               for c in (1.0, 1.5) for cell in (1.0, 50.0)}  # fmt: skip
-    assert len(set(values.values())) == 1, values  # is {20.0, 13.33, 0.0}
+    assert set(values.values()) == {0.0}, values  # was {20.0, 13.33, 0.0}
 
 
 # --------------------------------------------------------------------------------------
@@ -383,7 +367,7 @@ def test_every_check_solve_conserves_mass(data, method, solver):
     # solver's tolerance: the bound of _imbalance_bound, not a fixed number (multigrid
     # reports balances up to 2e-7 on these fields, within that bound).
     name, options = method
-    case = data.draw(cases(nan=_cut_blocks_allowed(options), sigma=(0.0, 2.5)), label="case")
+    case = data.draw(cases(nan=True, sigma=(0.0, 2.5)), label="case")
     if options.get("border", 0) >= max(case.field.shape):
         options = {**options, "border": 0}
     spec = BlockSpec(case.spec.nx, case.spec.ny, case.spec.nz, remainder="keep")

@@ -41,10 +41,11 @@ What is tested
   the direct solve ("internal error: RuntimeError: Factor is exactly
   singular") and printed pyamg's warnings with multigrid (now one line,
   exit 1); a field cut by a nodata column, solved by multigrid, printed a
-  k_fine of -2.8e-26 and an error of -3e28 % (now no flow, no error).
-* Guards that still do not hold (xfail, strict): sealed flow blocks drift
-  0.7 % at 1e14; a periodic block cut by nodata keeps rounding-level k,
-  which crashes the check the same way.
+  k_fine of -2.8e-26 and an error of -3e28 % (now no flow, no error);
+  sealed flow blocks across layers drifted 0.7 % at 1e14 (the local solves
+  are now refined the same way); a periodic block cut by nodata kept
+  rounding-level k and crashed the check the same way (the faces that
+  carry flow are now found from the graph, `upscale.flow.paths`).
 """
 
 from __future__ import annotations
@@ -165,16 +166,17 @@ def test_alternating_layers_at_1e12_fail_loudly_or_hold(write_tif, run_cli, tmp_
     assert check["k_fine"] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-6)
 
 
-@pytest.mark.xfail(strict=True, reason="the sealed local solve loses eps x contrast across layers: 7e-3 at "
-                   "1e14 (4.6e-6 at 1e12), silently (upscale/flow/local.py reads the block flux where a "
-                   "permeable cell carries a drop 1e14 smaller)")
-def test_sealed_flow_blocks_across_layers_at_1e14():
-    # Measured on 8x8 blocks of alternating layers: relative error of the sealed block k across
-    # the layers -7.0e-9 (1e8), -2.0e-7 (1e10), 4.6e-6 (1e12), -6.5e-3 (1e14); periodic and
-    # renormalization stay at 2e-16 on the same blocks, so the exact value is reachable.
-    k, row = _layers(1e14, n=8)
-    flow = coarsen(Field.from_arrays(k), "8x8", "flow").coarse
-    assert flow.ky[0, 0, 0] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-6)
+@pytest.mark.parametrize("contrast", [1e8, 1e10, 1e12, 1e14])
+@pytest.mark.parametrize("bc", ["sealed", "periodic"])
+def test_flow_blocks_across_layers_are_exact(contrast, bc):
+    # Across layers in series the block k is their harmonic mean, along them the arithmetic
+    # (Bear 1972, Dynamics of Fluids in Porous Media, §5.10). Before the local solves were
+    # refined against the face-flux residual, sealed blocks across the layers were off by
+    # -7.0e-9 (1e8), -2.0e-7 (1e10), 4.6e-6 (1e12) and -6.5e-3 (1e14), silently.
+    k, row = _layers(contrast, n=8)
+    flow = coarsen(Field.from_arrays(k), "8x8", "flow", bc=bc).coarse
+    assert flow.ky[0, 0, 0] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-13)
+    assert flow.kx[0, 0, 0] == pytest.approx(np.mean(row), rel=1e-13)
 
 
 # --------------------------------------------------------------------------------------
@@ -457,7 +459,7 @@ def test_multigrid_iterations_are_recorded(write_tif, run_cli, tmp_path):
 
 
 # --------------------------------------------------------------------------------------
-# 7. Guards that break (xfail, strict)
+# 7. Fields that broke a solve
 # --------------------------------------------------------------------------------------
 
 
@@ -490,18 +492,19 @@ def test_pocket_behind_a_1e_13_cell_amg_says_one_line(tmp_path):
     _one_line_error(done.returncode, done.stdout, done.stderr)
 
 
-@pytest.mark.xfail(strict=True, reason="a periodic block cut by nodata keeps kx = 3e-15 (rounding) instead "
-                   "of 0; the coarse solve then meets a singular matrix: 'internal error: RuntimeError: "
-                   "Factor is exactly singular' (upscale/methods/flow_based.py, _tensor)")
-def test_periodic_rounding_breaks_the_check(write_tif, run_cli, tmp_path):
-    # Found by tests/test_properties.py. The 6x1 block has no periodic path along x (sealed
-    # gives 0); periodic gives 2.96e-15. The coarse column then has one block joined to the
-    # faces by t ~ 1e-14 and to its neighbour by T ~ 10, whose sum rounds to 10: singular.
+def test_periodic_block_cut_by_nodata_passes_the_check(write_tif, run_cli, tmp_path):
+    # Found by tests/test_properties.py. The 6x1 blocks have no periodic path along x (sealed
+    # gives 0); periodic gave 2.96e-15 of rounding. The coarse column then had one block joined
+    # to the faces by t ~ 1e-14 and to its neighbour by T ~ 10, whose sum rounds to 10: the
+    # coarse solve met a singular matrix ("internal error: RuntimeError: Factor is exactly
+    # singular"). The faces that carry flow are now found from the graph (upscale/flow/paths.py).
     k = np.array([[20.0, ND, ND, 20.0, 20.0, 20.0], [20.0, ND, 20.0, 20.0, ND, ND]])
     path = write_tif("cut.tif", k, nodata=ND)
     code, _, err = run_cli("run", path, "--block", "6x1", "--method", "flow", "--bc", "periodic",
                            "--out", tmp_path / "out")  # fmt: skip
     assert (code, err) == (0, "")
+    coarse = coarsen(Field.from_arrays(np.where(k == ND, np.nan, k)), "6x1", "flow", bc="periodic")
+    np.testing.assert_array_equal(coarse.coarse.kx, 0.0)
 
 
 def test_field_cut_by_nodata_reports_no_error_percentage(write_tif, run_cli, tmp_path):

@@ -844,6 +844,27 @@ def test_periodic_block_cut_along_y_gets_exactly_zero():
     assert _term(result, "kxy")[0, 0, 0] == 0.0 and _term(result, "kyx")[0, 0, 0] == 0.0
 
 
+def test_periodic_3d_block_cut_across_x_keeps_its_y_z_tensor():
+    # A plane of inactive cells normal to x stops every path along x; the rest is a stack of
+    # identical y-z slices of layers tilted 45 degrees. Durlofsky 1991 ("Numerical calculation
+    # of equivalent grid block permeability tensors for heterogeneous porous media"): each
+    # slice's periodic tensor is the 2D one, so the block's y-z terms are 3/4 of the 2D
+    # tensor of one slice (3 of 4 slices conduct) and its x row and column are 0. The empty
+    # x row made the tensor fail the positivity test, which dropped kyz.
+    zz, yy = np.indices((4, 4))
+    pattern = np.where((zz + yy) % 4 < 2, 100.0, 1.0)
+    k = np.broadcast_to(pattern[:, :, None], (4, 4, 4)).copy()
+    k[:, :, 0] = N
+    block = coarsen(Field.from_arrays(k, dz=np.ones(4)), "4x4x4", "flow", bc="periodic")
+    slice_ = coarsen(Field.from_arrays(pattern.T.copy()), "4x4", "flow", bc="periodic")
+    assert block.coarse.kx[0, 0, 0] == 0.0
+    assert block.coarse.ky[0, 0, 0] == pytest.approx(0.75 * slice_.coarse.ky[0, 0, 0], rel=1e-12)
+    assert block.coarse.kz[0, 0, 0] == pytest.approx(0.75 * slice_.coarse.kx[0, 0, 0], rel=1e-12)
+    kyz = _term(block, "kyz")[0, 0, 0]
+    assert kyz == pytest.approx(0.75 * _term(slice_, "kxy")[0, 0, 0], rel=1e-12) and kyz != 0
+    assert "kxy" not in block.tensor and "kxz" not in block.tensor
+
+
 def test_periodic_tensor_with_border_positive_definite_at_high_contrast():
     k = np.array([[100.0, 100.0, 100.0, 100.0], [100.0, 1.0, 1.0, 100.0],
                   [1.0, 100.0, 1.0, 1.0], [100.0, 100.0, 1.0, 1.0]])  # fmt: skip

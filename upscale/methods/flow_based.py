@@ -71,7 +71,7 @@ def _gather(t: list[np.ndarray], grid: Grid, origin: np.ndarray, shape: tuple) -
     return boxes, h
 
 
-#: Tensor terms below this fraction of a block's largest term are rounding, and set to 0.
+#: Off-diagonal terms below this fraction of ``sqrt(k_aa k_bb)`` are rounding, and set to 0.
 ROUNDING = 1e-11
 
 #: Fine cells gathered into one compiled call (bounds the copies of the boxes: 24 bytes a cell).
@@ -109,12 +109,21 @@ def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int
     full[good] = -np.linalg.solve(np.swapaxes(g[good], 1, 2), np.swapaxes(u[good], 1, 2)).swapaxes(1, 2)
     if bc == PERIODIC and border:
         full = 0.5 * (full + np.swapaxes(full, 1, 2))
-    # rounding left where nothing flows (a block cut across an axis) is set to 0
-    full[np.abs(full) <= ROUNDING * np.abs(full).max(axis=(1, 2), keepdims=True)] = 0.0
+    # an axis along which nothing flows (no live face, `upscale.flow.paths`: U_aa is exactly
+    # 0) gets an empty row and column, as a positive semidefinite tensor with k_aa = 0 must
+    still = diag_u == 0
+    full[still] = 0.0
+    full.swapaxes(1, 2)[still] = 0.0
+    # off-diagonal rounding (|k_ab| <= sqrt(k_aa k_bb) for a positive semidefinite tensor)
+    scale = np.sqrt(np.abs(full[:, range(len(flow)), range(len(flow))]))
+    full[np.abs(full) <= ROUNDING * scale[:, :, None] * scale[:, None, :]] = 0.0
     # a block whose mean gradient is undefined, or whose tensor is not positive
-    # definite (possible with a border), keeps its diagonal terms only
+    # definite on the axes it flows along (possible with a border), keeps its
+    # diagonal terms only; an axis with no flowing path has an empty row and column
     nonzero = np.abs(full).max(axis=(1, 2)) > 0
-    good &= ~nonzero | (np.linalg.eigvalsh(0.5 * (full + np.swapaxes(full, 1, 2)))[:, 0] > 0)
+    empty = ~(full != 0).any(axis=2) & ~(full != 0).any(axis=1)
+    flowing = 0.5 * (full + np.swapaxes(full, 1, 2)) + empty[:, :, None] * np.eye(len(flow))
+    good &= ~nonzero | (np.linalg.eigvalsh(flowing)[:, 0] > 0)
     bad = np.flatnonzero(~good)
     full[bad] = 0.0
     full[bad[:, None], np.arange(len(flow)), np.arange(len(flow))] = diagonal[bad]
