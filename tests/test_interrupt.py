@@ -24,9 +24,9 @@ of a small field) or does not exist yet.
 * SIGKILL cannot be caught: a staging folder may be left, but it holds no
   ``summary.json``.
 
-For SIGINT and SIGTERM the message is the only line on stderr but for one
-blank line before it, which click prints on a KeyboardInterrupt to end the
-terminal's ``^C`` echo (click 8.5, ``click/core.py``, ``Command.main``).
+For SIGINT and SIGTERM the message is the only line on stderr (at a
+terminal a newline comes first, to end the line the terminal's ``^C`` echo
+is on; stderr is a pipe here).
 
 Exit status 128 + N for a command ended by signal N is the shell's
 convention (POSIX, XCU 2.8.2 "Exit Status for Commands"); the command line
@@ -180,7 +180,7 @@ def test_sigint_and_sigterm_say_so_in_one_line_and_clean_up(stopped, sig, earlie
     status, line = CLEAN_STOP[sig]
     assert k.status == status, k.stderr
     assert "Traceback" not in k.stderr
-    assert k.stderr.removeprefix("\n") == line + "\n"  # click's blank line first, see the docstring
+    assert k.stderr == line + "\n"
     assert k.leftovers == {}
 
 

@@ -112,18 +112,20 @@ def _terminate_like_interrupt() -> Iterator[None]:
 
 def _main(args: list[str], debug: bool) -> int:
     try:
-        cli.main(
-            args=args, prog_name="upscale", standalone_mode=False, obj={"command": ["upscale", *args]}
-        )
+        # make_context and invoke, not cli.main: its handler writes a blank line on Ctrl-C
+        with cli.make_context("upscale", args, obj={"command": ["upscale", *args]}) as ctx:
+            cli.invoke(ctx)
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except click.ClickException as exc:
         click.echo(f"upscale: error: {exc.format_message()}", err=True)
         return exc.exit_code
-    except (click.Abort, KeyboardInterrupt) as exc:  # click turns KeyboardInterrupt into Abort
-        if isinstance(exc, _Terminated) or isinstance(exc.__context__, _Terminated):
+    except (click.Abort, KeyboardInterrupt) as exc:
+        if isinstance(exc, _Terminated):
             click.echo("upscale: stopped by SIGTERM; nothing was written", err=True)
             return 143
+        if sys.stderr.isatty():  # end the line the terminal's ^C is on
+            click.echo(err=True)
         click.echo("upscale: interrupted; nothing was written", err=True)
         return 130
     except UpscaleError as exc:

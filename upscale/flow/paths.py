@@ -193,6 +193,24 @@ def _whole(t, shape, axes):
 
 
 @nb.njit(**EXACT_JIT)
+def _every_face(shape, fixed, periodic, axes):
+    """`live_faces` of a box whose every face carries flow: the faces it has."""
+    n = shape[0] * shape[1] * shape[2]
+    inner = np.zeros((3, n), np.bool_)
+    outer = np.zeros((2, 3, n), np.bool_)
+    for b in range(3):
+        if not axes[b]:
+            continue
+        s = (shape[1] * shape[2], shape[2], 1)[b]
+        for c in range(n):
+            pos = (c // s) % shape[b]
+            inner[b, c] = periodic or pos < shape[b] - 1
+            outer[0, b, c] = fixed[b] and pos == 0
+            outer[1, b, c] = fixed[b] and pos == shape[b] - 1
+    return inner, outer
+
+
+@nb.njit(**EXACT_JIT)
 def live_faces(t, shape, fixed, periodic, axes, a):
     """Faces of a box that carry flow under a unit gradient along `a`.
 
@@ -222,11 +240,10 @@ def live_faces(t, shape, fixed, periodic, axes, a):
         (0 first, 1 last) can carry flow.
     """
     n = t.shape[1]
-    u, v, source, count, inner_edge, outer_edge, looped = _edges(t, shape, fixed, periodic, axes, a)
     if _whole(t, shape, axes):
-        live = np.ones(count, np.bool_)
-    else:
-        live = _charged_edges(u, v, source, count, n + 1)
+        return _every_face(shape, fixed, periodic, axes)
+    u, v, source, count, inner_edge, outer_edge, looped = _edges(t, shape, fixed, periodic, axes, a)
+    live = _charged_edges(u, v, source, count, n + 1)
     inner = looped.copy()
     outer = np.zeros((2, 3, n), np.bool_)
     for b in range(3):
