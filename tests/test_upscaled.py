@@ -167,8 +167,8 @@ def test_negative_values_refused_with_count_and_first_cell(name, options):
     with pytest.raises(
         InputError,
         match=re.escape(
-            "kx: 3 negative value(s), first at (layer 1, row 2, column 3), "
-            "(layer 1, row 3, column 0), (layer 2, row 0, column 0); "
+            "kx: 3 negative value(s), first at (band 2, row 2, column 3), "
+            "(band 2, row 3, column 0), (band 3, row 0, column 0); "
             "permeability and porosity cannot be negative"
         ),
     ):
@@ -179,12 +179,12 @@ def test_negative_values_refused_in_ky_and_porosity():
     k = np.full((4, 4), 10.0)
     ky = k.copy()
     ky[3, 1] = -2.0
-    message = "ky: 1 negative value(s), first at (layer 0, row 3, column 1)"
+    message = "ky: 1 negative value(s), first at (band 1, row 3, column 1)"
     with pytest.raises(InputError, match=re.escape(message)):
         coarsen(Field.from_arrays(k, ky=ky), "2x2", "arithmetic")
     phi = np.full((4, 4), 0.2)
     phi[0, 2] = -0.1
-    message = "porosity: 1 negative value(s), first at (layer 0, row 0, column 2)"
+    message = "porosity: 1 negative value(s), first at (band 1, row 0, column 2)"
     with pytest.raises(InputError, match=re.escape(message)):
         coarsen(Field.from_arrays(k, porosity=phi), "2x2", "arithmetic")
 
@@ -199,7 +199,7 @@ def test_infinite_values_refused(name, value):
     with pytest.raises(
         InputError,
         match=re.escape(
-            "kx: 1 infinite value(s), first at (layer 0, row 2, column 1); mark them as nodata"
+            "kx: 1 infinite value(s), first at (band 1, row 2, column 1); mark them as nodata"
         ),
     ):
         coarsen(Field.from_arrays(k), "2x2", name, **OPTIONS.get(name, {}))
@@ -227,7 +227,7 @@ def test_zeros_refused_where_they_decide_the_average(name, options):
     with pytest.raises(
         InputError,
         match=re.escape(
-            f"kx: 1 zero permeability value(s), first at (layer 1, row 3, column 2); the {name} "
+            f"kx: 1 zero permeability value(s), first at (band 2, row 3, column 2); the {name} "
             "average of a block with a zero is zero"
         ),
     ):

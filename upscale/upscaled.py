@@ -9,6 +9,7 @@ single pass over the data — dask reads each chunk once.
 
 from __future__ import annotations
 
+import logging
 import math
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -24,6 +25,12 @@ from .methods.flow_based import TENSOR
 from .methods.registry import Method, get_method
 from .parallel import apply_blocks, compute_together
 from .stats import ValueScan, scan_values
+
+log = logging.getLogger(__name__)
+
+#: Below this fraction of active cells a field is said to be almost all nodata (our
+#: threshold: irregular domains in their bounding box leave far more than 1 % active).
+SPARSE = 0.01
 
 
 @dataclass(frozen=True, eq=False)
@@ -239,7 +246,8 @@ def _direct_faces(
 
 
 def _where(cells: tuple) -> str:
-    return ", ".join(f"(layer {c[0]}, row {c[1]}, column {c[2]})" for c in cells)
+    """Cells as (band from 1, row and column from 0, as GDAL's pixel offsets)."""
+    return ", ".join(f"(band {c[0] + 1}, row {c[1]}, column {c[2]})" for c in cells)
 
 
 def refuse_bad_values(fine: Field) -> None:
@@ -254,6 +262,10 @@ def _check_values(scans: dict[str, ValueScan], method: Method | None, options: d
         label = f"{name} ({sources[name]})" if name in sources else name
         if scan.active == 0:
             raise InputError(f"{label}: no active cell (every cell is nodata or NaN)")
+        if name == "kx" and scan.active < SPARSE * scan.cells:
+            log.warning("%s: only %d of %d cells (%.2g %%) hold a value; check the nodata value "
+                        "(upscale info) and the file", label, scan.active, scan.cells,
+                        100 * scan.active / scan.cells)  # fmt: skip
         if scan.infinite:
             raise InputError(
                 f"{label}: {scan.infinite} infinite value(s), first at {_where(scan.first_infinite)}; "

@@ -203,16 +203,16 @@ CASES = {
     "negative permeability": Case(
         ("run", "@negative", "--block", "8x8", "--method", "arithmetic"),
         (r"negative\.tif", r"4 negative value\(s\)",
-         r"first at \(layer 0, row 3, column 5\), \(layer 0, row 10, column 7\)"),
+         r"first at \(band 1, row 3, column 5\), \(band 1, row 10, column 7\)"),
     ),  # fmt: skip
     "zero permeability, harmonic": Case(
         ("run", "@zero", "--block", "8x8", "--method", "harmonic"),
         (r"zero\.tif", r"2 zero permeability value\(s\)",
-         r"\(layer 0, row 4, column 9\), \(layer 0, row 30, column 2\)", r"harmonic average"),
+         r"\(band 1, row 4, column 9\), \(band 1, row 30, column 2\)", r"harmonic average"),
     ),  # fmt: skip
     "zero permeability, geometric": Case(
         ("run", "@zero", "--block", "8x8", "--method", "geometric"),
-        (r"2 zero permeability value\(s\)", r"\(layer 0, row 4, column 9\)", r"geometric average"),
+        (r"2 zero permeability value\(s\)", r"\(band 1, row 4, column 9\)", r"geometric average"),
     ),
     "all cells inactive": Case(
         ("run", "@empty", "--block", "8x8", "--method", "arithmetic"),
@@ -285,12 +285,12 @@ CASES = {
     "complex raster": Case(run_on("complex"), (r"complex\.tif: complex values cannot be permeabilities",)),
     "+inf permeability": Case(
         run_on("plus_inf"),
-        (r"kx \(.*plus_inf\.tif\): 1 infinite value\(s\)", r"first at \(layer 0, row 6, column 11\)",
+        (r"kx \(.*plus_inf\.tif\): 1 infinite value\(s\)", r"first at \(band 1, row 6, column 11\)",
          r"mark them as nodata"),
     ),  # fmt: skip
     "-inf permeability": Case(
         run_on("minus_inf"),
-        (r"minus_inf\.tif\): 1 infinite value\(s\)", r"first at \(layer 0, row 7, column 12\)"),
+        (r"minus_inf\.tif\): 1 infinite value\(s\)", r"first at \(band 1, row 7, column 12\)"),
     ),
     "negative permeability, earlier results kept with --overwrite": Case(
         (*run_on("negative", method="arithmetic"), "--overwrite"),
@@ -303,7 +303,7 @@ CASES = {
     ),
     "zero permeability, power --exponent -0.5": Case(
         run_on("zero", "--exponent", "-0.5", method="power"),
-        (r"zero\.tif\): 2 zero permeability value\(s\)", r"\(layer 0, row 4, column 9\)"),
+        (r"zero\.tif\): 2 zero permeability value\(s\)", r"\(band 1, row 4, column 9\)"),
     ),
     ".npy of one dimension": Case(
         run_on("line", "--cell-size", "10"),
@@ -366,12 +366,12 @@ CASES = {
     "negative porosity": Case(
         (*RUN, "--porosity", "@porosity_negative"),
         (r"porosity \(.*porosity_negative\.tif\): 1 negative value\(s\)",
-         r"first at \(layer 0, row 2, column 3\)", r"cannot be negative"),
+         r"first at \(band 1, row 2, column 3\)", r"cannot be negative"),
     ),  # fmt: skip
     "infinite porosity": Case(
         (*RUN, "--porosity", "@porosity_infinite"),
         (r"porosity \(.*porosity_infinite\.tif\): 1 infinite value\(s\)",
-         r"first at \(layer 0, row 5, column 6\)"),
+         r"first at \(band 1, row 5, column 6\)"),
     ),  # fmt: skip
     # --- files that are not rasters, or cannot be read
     "text file as FIELD": Case(
@@ -474,7 +474,7 @@ CASES = {
     "compare: negative permeability, earlier results kept with --overwrite": Case(
         ("compare", "@negative", "--block", "8x8", "--methods", "geometric,arithmetic", "--overwrite"),
         (r"no method ran on this field", r"negative\.tif\): 4 negative value\(s\)",
-         r"first at \(layer 0, row 3, column 5\)"),
+         r"first at \(band 1, row 3, column 5\)"),
         out="results",
     ),  # fmt: skip
     "compare: --layer beyond the model": Case(
@@ -544,7 +544,7 @@ CASES = {
     ),
     "check: input now negative (run without checksums)": Case(
         ("check", "@check_negative"),
-        (r"negative/field\.tif", r"4 negative value\(s\)", r"first at \(layer 0, row 3, column 5\)"),
+        (r"negative/field\.tif", r"4 negative value\(s\)", r"first at \(band 1, row 3, column 5\)"),
         watch="check_negative",
     ),  # fmt: skip
 }
@@ -624,7 +624,7 @@ def test_console_script_reports_a_bad_input_without_traceback(inputs, tmp_path):
     assert "Traceback" not in done.stderr
     lines = done.stderr.splitlines()
     assert len(lines) == 1 and lines[0].startswith("upscale: error: kx (")
-    assert "4 negative value(s), first at (layer 0, row 3, column 5)" in lines[0]
+    assert "4 negative value(s), first at (band 1, row 3, column 5)" in lines[0]
     assert not out.exists()
 
 
@@ -662,6 +662,22 @@ def test_integer_raster_conversion_is_noted_without_verbose(run_cli, write_tif, 
                            "--out", tmp_path / "out")  # fmt: skip
     assert code == 0
     assert "int16 values converted to float64" in err
+
+
+def test_almost_all_nodata_field_is_noted(run_cli, write_tif, tmp_path):
+    # what a wrong nodata value, or a damaged compressed file read as mostly nodata, looks like
+    sparse = np.full(SHAPE, -9999.0)
+    sparse[:2, :2] = 50.0
+    half = np.where(np.indices(SHAPE)[1] % 2 == 0, 50.0, -9999.0)
+    notes = {}
+    for name, k in (("sparse", sparse), ("half", half)):
+        path = write_tif(f"{name}.tif", k, nodata=-9999.0)
+        code, _, err = run_cli("run", path, "--block", "8x8", "--method", "arithmetic",
+                               "--out", tmp_path / name)  # fmt: skip
+        assert code == 0, err
+        notes[name] = [line for line in err.splitlines() if "hold a value" in line]
+    assert len(notes["sparse"]) == 1 and f"only 4 of {SHAPE[0] * SHAPE[1]} cells" in notes["sparse"][0]
+    assert notes["half"] == []
 
 
 def test_power_exponent_zero_is_the_geometric_mean(run_cli, inputs, tmp_path):
