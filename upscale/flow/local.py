@@ -458,9 +458,12 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
             for ix in range(lo[2], hi[2]):
                 c = (iz * shape[1] + iy) * shape[2] + ix
                 pos = (iz, iy, ix)[a]
-                if pos == mid or mid == shape[a] and pos == mid - 1:  # the last: the domain's face
-                    flux += _face(t, p, floating, shape, c, a, int(pos < mid), SEALED, a, centre,
-                                  length, inner, outer)[0]  # fmt: skip
+                if pos == mid:
+                    flux += _face(t, p, floating, shape, c, a, 0, SEALED, a, centre, length,
+                                  inner, outer)[0]  # fmt: skip
+                elif mid == shape[a] and pos == mid - 1:  # the box's last face: the domain's
+                    flux += _face(t, p, floating, shape, c, a, 1, SEALED, a, centre, length,
+                                  inner, outer)[0]  # fmt: skip
                 conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
                 if conducting and not floating[c]:
                     v = h[0, iz] * h[1, iy] * h[2, ix]
