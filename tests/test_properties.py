@@ -399,8 +399,12 @@ def test_every_check_solve_conserves_mass(data, method, solver):
             assert flow.unknowns + flow.isolated == active[side], what
             assert np.isfinite(flow.pressure).sum() == flow.unknowns, what
             p = flow.pressure[np.isfinite(flow.pressure)]
-            # maximum principle: no cell pressure outside the two face pressures
-            assert np.all(p >= -1e-9) and np.all(p <= 1 + 1e-9), what
+            # maximum principle: no cell pressure outside the two face pressures. Multigrid stops
+            # at a scaled residual of TOLERANCE, which leaves pressure errors up to the condition
+            # number times that: measured 1.4e-8 on a 12 x 9 field of 28:1 cells (residual
+            # 4.3e-11), found by a longer randomized run of this test
+            slack = 1e-9 if solver == "direct" else 1e3 * tolerance
+            assert np.all(p >= -slack) and np.all(p <= 1 + slack), what
         if check.fine.connected:
             assert np.isfinite(check.rel_error)
 

@@ -89,6 +89,28 @@ def _groups(origin: np.ndarray, stop: np.ndarray) -> Iterator[tuple[tuple[int, .
             yield tuple(int(s) for s in shape), members[i : i + step]
 
 
+def _fit_flowing_axes(full: np.ndarray, u: np.ndarray, g: np.ndarray, blocks: np.ndarray,
+                      still: np.ndarray) -> None:  # fmt: skip
+    """Tensors of `blocks` with still axes, fitted on their flowing axes F alone, into `full`.
+
+    With the rows and columns of the still axes 0, Darcy's law of the block
+    reads ``u_F = -K_FF g_F`` for every imposed gradient (the columns); K_FF is
+    its least-squares solution. Solving for the full tensor instead divides by
+    a mean-gradient matrix that is close to singular when an axis does not
+    conduct, and the still axis's rounding decides the flowing terms.
+    """
+    for pattern in np.unique(still[blocks], axis=0):
+        members = np.flatnonzero(blocks & (still == pattern).all(axis=1))
+        flowing = np.flatnonzero(~pattern)
+        full[members] = 0.0
+        if flowing.size == 0:
+            continue
+        u_f, g_f = u[members][:, flowing], g[members][:, flowing]
+        normal = g_f @ np.swapaxes(g_f, 1, 2)  # g_F g_Fᵀ, symmetric
+        fitted = -np.linalg.solve(normal, g_f @ np.swapaxes(u_f, 1, 2)).swapaxes(1, 2)
+        full[members[:, None, None], flowing[None, :, None], flowing[None, None, :]] = fitted
+
+
 def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int) -> np.ndarray:
     """Permeability tensors (P, 3, 3) from the averages of `upscale.flow.local.block_tensors`."""
     K = np.zeros(U.shape)
@@ -107,23 +129,27 @@ def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int
     good[good] = np.abs(np.linalg.det(g[good])) > 1e-12 * np.abs(g[good]).max(axis=(1, 2)) ** len(flow)
     full = np.zeros_like(u)
     full[good] = -np.linalg.solve(np.swapaxes(g[good], 1, 2), np.swapaxes(u[good], 1, 2)).swapaxes(1, 2)
-    if bc == PERIODIC and border:
-        full = 0.5 * (full + np.swapaxes(full, 1, 2))
     # an axis along which nothing flows (no live face, `upscale.flow.paths`: U_aa is exactly
     # 0) gets an empty row and column, as a positive semidefinite tensor with k_aa = 0 must
     still = diag_u == 0
+    _fit_flowing_axes(full, u, g, good & still.any(axis=1), still)
+    if bc == PERIODIC and border:
+        full = 0.5 * (full + np.swapaxes(full, 1, 2))
     full[still] = 0.0
     full.swapaxes(1, 2)[still] = 0.0
     # off-diagonal rounding (|k_ab| <= sqrt(k_aa k_bb) for a positive semidefinite tensor)
     scale = np.sqrt(np.abs(full[:, range(len(flow)), range(len(flow))]))
     full[np.abs(full) <= ROUNDING * scale[:, :, None] * scale[:, None, :]] = 0.0
     # a block whose mean gradient is undefined, or whose tensor is not positive
-    # definite on the axes it flows along (possible with a border), keeps its
-    # diagonal terms only; an axis with no flowing path has an empty row and column
-    nonzero = np.abs(full).max(axis=(1, 2)) > 0
+    # semidefinite (possible with a border), keeps its diagonal terms only. An axis
+    # with no flowing path has an empty row and column; a block whose only paths run
+    # one way (a diagonal channel under periodic conditions) has a singular tensor,
+    # whose smallest eigenvalue is rounding of either sign
+    largest = np.abs(full).max(axis=(1, 2))
     empty = ~(full != 0).any(axis=2) & ~(full != 0).any(axis=1)
-    flowing = 0.5 * (full + np.swapaxes(full, 1, 2)) + empty[:, :, None] * np.eye(len(flow))
-    good &= ~nonzero | (np.linalg.eigvalsh(flowing)[:, 0] > 0)
+    flowing = 0.5 * (full + np.swapaxes(full, 1, 2))
+    flowing += (empty * largest[:, None])[:, :, None] * np.eye(len(flow))
+    good &= (largest == 0) | (np.linalg.eigvalsh(flowing)[:, 0] >= -ROUNDING * largest)
     bad = np.flatnonzero(~good)
     full[bad] = 0.0
     full[bad[:, None], np.arange(len(flow)), np.arange(len(flow))] = diagonal[bad]
