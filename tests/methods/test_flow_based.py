@@ -66,6 +66,8 @@ from upscale.check import check_flow
 from upscale.demo.fields import lognormal_field
 from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
+from upscale.flow.local import PERIODIC
+from upscale.methods.flow_based import _tensor
 
 CONDITIONS = ("sealed", "linear", "periodic")
 SETTINGS = settings(max_examples=30, deadline=None, database=None)
@@ -903,6 +905,19 @@ def test_periodic_block_fed_and_drained_across_one_plane_has_no_net_flow():
         assert result.coarse.ky[0, 0, 0] == 0.0 and result.coarse.ky[0, 1, 0] == 0.0
         np.testing.assert_allclose(result.coarse.kx / c, results[0].coarse.kx, rtol=1e-12)
         np.testing.assert_allclose(result.coarse.ky / c, results[0].coarse.ky, rtol=1e-12)
+
+
+def test_still_axis_with_no_mean_gradient_keeps_the_cross_terms_of_the_others():
+    # A block whose z axis carries nothing and whose cells are all at one level along z under
+    # every imposed gradient: its mean-gradient matrix is singular, so the full solve cannot
+    # run, yet Darcy's law on y and x alone (u_F = -K_FF g_F) determines K_FF exactly. The
+    # fit keeps kyx; the fallback to the diagonal dropped it.
+    U = np.zeros((1, 3, 3))
+    U[0, 1:, 1:] = [[2.0, 0.5], [0.5, 3.0]]  # U[a, b] = <u_b> under the gradient along a
+    G = np.zeros((1, 3, 3))
+    G[0, 1:, 1:] = -np.eye(2)
+    K = _tensor(U, G, PERIODIC, np.ones(3, bool), border=0)
+    np.testing.assert_allclose(K[0], [[0, 0, 0], [0, 2.0, 0.5], [0, 0.5, 3.0]], rtol=1e-15)
 
 
 def test_periodic_tensor_with_border_positive_definite_at_high_contrast():

@@ -90,7 +90,7 @@ def _groups(origin: np.ndarray, stop: np.ndarray) -> Iterator[tuple[tuple[int, .
 
 
 def _fit_flowing_axes(full: np.ndarray, u: np.ndarray, g: np.ndarray, blocks: np.ndarray,
-                      still: np.ndarray) -> None:  # fmt: skip
+                      still: np.ndarray) -> np.ndarray:  # fmt: skip
     """Tensors of `blocks` with still axes, fitted on their flowing axes F alone, into `full`.
 
     With the rows and columns of the still axes 0, Darcy's law of the block
@@ -98,17 +98,25 @@ def _fit_flowing_axes(full: np.ndarray, u: np.ndarray, g: np.ndarray, blocks: np
     its least-squares solution. Solving for the full tensor instead divides by
     a mean-gradient matrix that is close to singular when an axis does not
     conduct, and the still axis's rounding decides the flowing terms.
+
+    Returns the blocks fitted (those whose ``g_F g_Fᵀ`` is not singular).
     """
+    fitted = np.zeros(len(full), bool)
     for pattern in np.unique(still[blocks], axis=0):
         members = np.flatnonzero(blocks & (still == pattern).all(axis=1))
         flowing = np.flatnonzero(~pattern)
-        full[members] = 0.0
-        if flowing.size == 0:
-            continue
-        u_f, g_f = u[members][:, flowing], g[members][:, flowing]
+        g_f = g[members][:, flowing]
         normal = g_f @ np.swapaxes(g_f, 1, 2)  # g_F g_Fᵀ, symmetric
-        fitted = -np.linalg.solve(normal, g_f @ np.swapaxes(u_f, 1, 2)).swapaxes(1, 2)
-        full[members[:, None, None], flowing[None, :, None], flowing[None, None, :]] = fitted
+        size = np.abs(normal).max(axis=(1, 2), initial=0.0) ** flowing.size  # 1 with no flowing axis
+        ok = np.abs(np.linalg.det(normal)) > 1e-12 * size
+        members = members[ok]
+        u_f, g_f, normal = u[members][:, flowing], g_f[ok], normal[ok]
+        full[members] = 0.0
+        if flowing.size:
+            K_f = -np.linalg.solve(normal, g_f @ np.swapaxes(u_f, 1, 2)).swapaxes(1, 2)
+            full[members[:, None, None], flowing[None, :, None], flowing[None, None, :]] = K_f
+        fitted[members] = True
+    return fitted
 
 
 def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int) -> np.ndarray:
@@ -125,14 +133,15 @@ def _tensor(U: np.ndarray, G: np.ndarray, bc: int, axes: np.ndarray, border: int
     # U[q, a, b] is <u_b> under the gradient along a: as matrices, u = U.T, g = G.T
     u = np.swapaxes(U[:, flow][:, :, flow], 1, 2)
     g = np.swapaxes(G[:, flow][:, :, flow], 1, 2)
-    good = np.isfinite(g).all(axis=(1, 2))
-    good[good] = np.abs(np.linalg.det(g[good])) > 1e-12 * np.abs(g[good]).max(axis=(1, 2)) ** len(flow)
-    full = np.zeros_like(u)
-    full[good] = -np.linalg.solve(np.swapaxes(g[good], 1, 2), np.swapaxes(u[good], 1, 2)).swapaxes(1, 2)
+    finite = np.isfinite(g).all(axis=(1, 2))
     # an axis along which nothing flows (no live face, `upscale.flow.paths`: U_aa is exactly
     # 0) gets an empty row and column, as a positive semidefinite tensor with k_aa = 0 must
     still = diag_u == 0
-    _fit_flowing_axes(full, u, g, good & still.any(axis=1), still)
+    good = finite & ~still.any(axis=1)
+    good[good] = np.abs(np.linalg.det(g[good])) > 1e-12 * np.abs(g[good]).max(axis=(1, 2)) ** len(flow)
+    full = np.zeros_like(u)
+    full[good] = -np.linalg.solve(np.swapaxes(g[good], 1, 2), np.swapaxes(u[good], 1, 2)).swapaxes(1, 2)
+    good |= _fit_flowing_axes(full, u, g, finite & still.any(axis=1), still)
     if bc == PERIODIC and border:
         full = 0.5 * (full + np.swapaxes(full, 1, 2))
     full[still] = 0.0
