@@ -4,9 +4,9 @@ Shared by the browser tests (``tests/report/test_report_browser.py``,
 ``tests/test_ensemble_compare.py``). A copy of the page gets `PROBE_HEAD` at
 the start of ``<head>`` (it records ``error`` events, including failed
 resources, unhandled rejections and ``console.error``/``console.warn``
-calls into ``window.__problems``) and a test's own script at the end of
-``<body>`` that, on window load, writes a JSON verdict into
-``<pre id="probe">``; Chromium's ``--dump-dom`` gives the DOM back after
+calls into ``window.__problems``) and, at the end of ``<body>``, a test's
+own script that builds a ``verdict`` object on window load, which is then
+written as JSON into ``<pre id="probe">``; Chromium's ``--dump-dom`` gives the DOM back after
 loading and `probe` returns the parsed verdict.
 
 Chromium is Debian's (``/usr/bin/chromium``; CI installs it, see
@@ -61,7 +61,20 @@ def browse(chromium: str, profile: Path, *args: str) -> subprocess.CompletedProc
     return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT, check=False)
 
 
-def probe(chromium: str, page: Path, folder: Path, body: str) -> dict[str, Any]:
+def _on_load(verdict: str) -> str:
+    """A script that runs `verdict` on window load and writes its ``verdict`` object into the page."""
+    return f"""<script>
+window.addEventListener("load", function () {{
+{verdict}
+  var pre = document.createElement("pre");
+  pre.id = "probe";
+  pre.textContent = JSON.stringify(verdict);
+  document.body.appendChild(pre);
+}});
+</script>"""
+
+
+def probe(chromium: str, page: Path, folder: Path, verdict: str) -> dict[str, Any]:
     """What the probe scripts saw when Chromium loaded a probed copy of `page`.
 
     Parameters
@@ -72,13 +85,14 @@ def probe(chromium: str, page: Path, folder: Path, body: str) -> dict[str, Any]:
         The HTML file (left unchanged).
     folder : Path
         An empty folder for the probed copy and the browser profile.
-    body : str
-        A ``<script>`` that, on window load, appends ``<pre id="probe">`` holding a JSON
-        verdict (it can read ``window.__problems``).
+    verdict : str
+        JavaScript statements, run on window load, that set ``var verdict`` to what the
+        test wants back (they can read ``window.__problems``).
     """
     text = page.read_text(encoding="utf-8")
     assert text.count("<head>") == 1 and text.count("</body>") == 1
-    probed = text.replace("<head>", "<head>\n" + PROBE_HEAD, 1).replace("</body>", body + "\n</body>", 1)
+    probed = text.replace("<head>", "<head>\n" + PROBE_HEAD, 1)
+    probed = probed.replace("</body>", _on_load(verdict) + "\n</body>", 1)
     path = folder / f"{page.stem}-probed.html"
     path.write_text(probed, encoding="utf-8")
     done = browse(chromium, folder / "profile", "--dump-dom", "--virtual-time-budget=10000", path.as_uri())

@@ -25,6 +25,7 @@ import numpy as np
 import pytest
 import rasterio
 from affine import Affine
+from browser_probe import chromium_binary
 from rasterio.errors import NotGeoreferencedWarning
 
 from upscale.cli.main import main
@@ -174,3 +175,12 @@ def run_cli(capsys: pytest.CaptureFixture[str]) -> Callable[..., tuple[int, str,
         return code, out, err
 
     return run
+
+
+@pytest.fixture(scope="session")
+def chromium() -> str:
+    """Path of a Chromium binary; the browser tests skip, saying so, where there is none."""
+    found = chromium_binary()
+    if found is None:
+        pytest.skip("no Chromium binary found (CI installs Debian's chromium; see .ci/run)")
+    return found

@@ -65,7 +65,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from browser_probe import assert_self_contained, chromium_binary, probe
+from browser_probe import assert_self_contained, probe
 from conftest import lognormal, partial_leftovers, snapshot, write_raster
 from PIL import Image
 
@@ -438,9 +438,7 @@ def test_compare_ensemble_with_a_realization_no_method_runs_on(run_cli, realizat
 
 # --- both ensemble pages in a browser --------------------------------------------------------------
 
-PROBE_BODY = """<script>
-window.addEventListener("load", function () {
-  function texts(nodes) {
+PROBE_VERDICT = """  function texts(nodes) {
     return Array.prototype.map.call(nodes, function (node) { return node.textContent; });
   }
   var rows = Array.prototype.filter.call(document.querySelectorAll("#spread tr"), function (tr) {
@@ -459,20 +457,7 @@ window.addEventListener("load", function () {
     code: texts(document.querySelectorAll("pre code")),
     title: document.title
   };
-  var pre = document.createElement("pre");
-  pre.id = "probe";
-  pre.textContent = JSON.stringify(verdict);
-  document.body.appendChild(pre);
-});
-</script>"""
-
-
-@pytest.fixture(scope="module")
-def chromium():
-    found = chromium_binary()
-    if found is None:
-        pytest.skip("no Chromium binary found (CI installs Debian's chromium; see .ci/run)")
-    return found
+"""
 
 
 @pytest.fixture(scope="module", params=["compare", "run"])
@@ -490,7 +475,7 @@ def page(request):
 @pytest.fixture(scope="module")
 def verdict(page, chromium, tmp_path_factory):
     """What the probe saw when Chromium loaded a probed copy of the page."""
-    return probe(chromium, page["path"], tmp_path_factory.mktemp(f"probe-{page['kind']}"), PROBE_BODY)
+    return probe(chromium, page["path"], tmp_path_factory.mktemp(f"probe-{page['kind']}"), PROBE_VERDICT)
 
 
 def test_page_loads_without_errors_and_its_figure_decodes(verdict, page):

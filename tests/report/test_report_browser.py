@@ -37,7 +37,7 @@ import struct
 from pathlib import Path
 
 import pytest
-from browser_probe import assert_self_contained, browse, chromium_binary, probe
+from browser_probe import assert_self_contained, browse, probe
 
 from upscale.caution import CAUTION
 from upscale.cli.main import main
@@ -65,17 +65,7 @@ def report(demo_dir, tmp_path_factory):
     return {"field": field, "out": out, "command": ["upscale", *args], "page": out / "report.html"}
 
 
-@pytest.fixture(scope="module")
-def chromium():
-    found = chromium_binary()
-    if found is None:
-        pytest.skip("no Chromium binary found (CI installs Debian's chromium; see .ci/run)")
-    return found
-
-
-PROBE_BODY = """<script>
-window.addEventListener("load", function () {
-  var images = Array.prototype.map.call(document.images, function (img) {
+PROBE_VERDICT = """  var images = Array.prototype.map.call(document.images, function (img) {
     return {figure: img.parentElement.id, complete: img.complete,
             width: img.naturalWidth, height: img.naturalHeight};
   });
@@ -89,18 +79,13 @@ window.addEventListener("load", function () {
     bold: document.querySelectorAll("b").length,
     title: document.title
   };
-  var pre = document.createElement("pre");
-  pre.id = "probe";
-  pre.textContent = JSON.stringify(verdict);
-  document.body.appendChild(pre);
-});
-</script>"""
+"""
 
 
 @pytest.fixture(scope="module")
 def verdict(report, chromium, tmp_path_factory):
     """What the probe saw when Chromium loaded a probed copy of the page."""
-    return probe(chromium, report["page"], tmp_path_factory.mktemp("probe"), PROBE_BODY)
+    return probe(chromium, report["page"], tmp_path_factory.mktemp("probe"), PROBE_VERDICT)
 
 
 # --- in the browser ------------------------------------------------------------------------------
