@@ -40,7 +40,10 @@ What is tested
   the tolerance); a pocket behind a 1e-13 mD cell (contrast 1e17) crashed
   the direct solve ("internal error: RuntimeError: Factor is exactly
   singular") and printed pyamg's warnings with multigrid (now one line,
-  exit 1); a field cut by a nodata column, solved by multigrid, printed a
+  exit 1; on a fresh machine the warning came back, because pyamg's cg
+  re-enables its own warnings on every call — the conjugate gradients are
+  now our own, and any library warning during a command is a -vv debug
+  line, tested with a real numpy warning); a field cut by a nodata column, solved by multigrid, printed a
   k_fine of -2.8e-26 and an error of -3e28 % (now no flow, no error);
   sealed flow blocks across layers drifted 0.7 % at 1e14 (the local solves
   are now refined the same way); a periodic block cut by nodata kept
@@ -51,6 +54,7 @@ What is tested
 from __future__ import annotations
 
 import json
+import logging
 import subprocess
 import sys
 from pathlib import Path
@@ -490,6 +494,22 @@ def test_pocket_behind_a_1e_13_cell_amg_says_one_line(tmp_path):
     assert done.returncode != 0
     assert not (tmp_path / "out").exists()
     _one_line_error(done.returncode, done.stdout, done.stderr)
+
+
+def test_a_library_warning_mid_run_is_a_debug_line_not_terminal_noise(tmp_path):
+    # Whatever a library warns about during a command (numpy's "Mean of empty slice" here: a
+    # real warning from a real call), the command line shows it only as a -vv debug line.
+    script = ("import logging, sys, numpy as np\n"
+              "from upscale.cli.main import _warnings_to_log\n"
+              "logging.basicConfig(level=int(sys.argv[1]), format='upscale: %(message)s')\n"
+              "with _warnings_to_log():\n"
+              "    np.mean(np.array([]))\n")  # fmt: skip
+    quiet, debug = (subprocess.run([sys.executable, "-c", script, str(level)], capture_output=True,
+                                   text=True, timeout=60) for level in (logging.WARNING, logging.DEBUG))  # fmt: skip
+    assert (quiet.returncode, quiet.stderr) == (0, "")
+    lines = debug.stderr.splitlines()
+    assert lines and all(line.startswith("upscale: RuntimeWarning from ") for line in lines), lines
+    assert "Mean of empty slice" in debug.stderr
 
 
 def test_periodic_block_cut_by_nodata_passes_the_check(write_tif, run_cli, tmp_path):

@@ -14,6 +14,7 @@ import os
 import signal
 import sys
 import threading
+import warnings
 from collections.abc import Iterator
 
 import click
@@ -85,8 +86,27 @@ def main(argv: list[str] | None = None) -> int:
     os.environ.setdefault("GDAL_CACHEMAX", GDAL_CACHE_MB)  # a user's own setting wins
     args = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in args
-    with _terminate_like_interrupt():
+    with _terminate_like_interrupt(), _warnings_to_log():
         return _main(args, debug)
+
+
+@contextlib.contextmanager
+def _warnings_to_log() -> Iterator[None]:
+    """Show a library's warnings as debug lines (``-vv``), never mid-run on the terminal.
+
+    Only how a warning is shown changes, process-wide (dask's threads
+    included); the filters stay as they are, so where they turn warnings into
+    errors (the test suite's setting) a warning still raises.
+    """
+    with warnings.catch_warnings():
+        warnings.showwarning = _log_warning
+        yield
+
+
+def _log_warning(message: Warning | str, category: type[Warning], filename: str, lineno: int,
+                 file: object = None, line: str | None = None) -> None:  # fmt: skip
+    text = " ".join(str(message).split())
+    logging.getLogger(__name__).debug("%s from %s:%d: %s", category.__name__, filename, lineno, text)
 
 
 class _Terminated(KeyboardInterrupt):  # noqa: N818 - a signal, like its parent
