@@ -11,6 +11,7 @@ comparison.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from collections.abc import Callable
@@ -18,6 +19,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from .check import AxisCheck, coarse_check, fine_solves
+from .compiling import compile_seconds
 from .errors import InputError
 from .field import Field
 from .flow import AxisFlow
@@ -61,11 +63,14 @@ class Entry:
     checks : dict of str to AxisCheck
         Per axis, the shared fine solve and this method's coarse solve.
     seconds : float
-        Time to upscale and solve the coarse checks.
+        Time to upscale and solve the coarse checks, without compiling kernels.
     error : str or None
         Why the method could not run on this field.
     rank : int or None
         1 for the smallest largest-error; None for a failed method.
+    compiling : float
+        Time spent compiling kernels on their first use meanwhile (s; see
+        `upscale.compiling`), left out of `seconds`.
     """
 
     candidate: Candidate
@@ -74,6 +79,7 @@ class Entry:
     seconds: float
     error: str | None = None
     rank: int | None = None
+    compiling: float = 0.0
 
     @property
     def worst_error(self) -> float:
@@ -242,20 +248,23 @@ def compare_methods(
     for i, candidate in enumerate(chosen):
         if report:
             report(i, len(chosen), candidate, None)
-        start = time.perf_counter()
+        start, compiled = time.perf_counter(), compile_seconds()
+        result, checks, error = None, {}, None
         try:
             result = coarsen(field, spec, candidate.method, **candidate.options)
             checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
                                   tolerance=tolerance)  # fmt: skip
-            entry = Entry(candidate, result, checks, time.perf_counter() - start)
         except InputError as exc:
-            entry = Entry(candidate, None, {}, time.perf_counter() - start, error=str(exc))
+            result, checks, error = None, {}, str(exc)
+        compiling = compile_seconds() - compiled
+        entry = Entry(candidate, result, checks, time.perf_counter() - start - compiling, error,
+                      compiling=compiling)  # fmt: skip
         entries.append(entry)
         if report:
             report(i, len(chosen), candidate, entry)
     # errors equal to TIE are tied, and keep the order of the candidates
     ran = sorted((e for e in entries if e.error is None), key=lambda e: _tied(e.worst_error))
-    ranked = [Entry(e.candidate, e.result, e.checks, e.seconds, None, r + 1) for r, e in enumerate(ran)]
+    ranked = [dataclasses.replace(e, rank=r + 1) for r, e in enumerate(ran)]
     failed = [e for e in entries if e.error is not None]
     return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen))
 

@@ -127,6 +127,10 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
     click.echo(table(header, rows))
     click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop)")
+    compiling = sum(e.compiling for e in entries)
+    if compiling >= 0.5:
+        click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "
+                   "later runs load them from the cache)")
     for e in entries:
         if e.error:
             click.echo(f"{e.candidate.label} did not run: {e.error}")

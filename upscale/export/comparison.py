@@ -23,7 +23,8 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
     """A comparison as JSON-ready data.
 
     Per method: ``name`` (label), ``method``, ``parameters``, ``rank`` (null if it
-    failed), ``error`` (why it failed, or null), ``seconds``, ``coarse_mean`` (per
+    failed), ``error`` (why it failed, or null), ``seconds`` (without compiling
+    kernels), ``compile_seconds`` (compiling kernels on first use), ``coarse_mean`` (per
     permeability, over active blocks) and ``check`` — per axis the same
     structure as the ``check`` of ``summary.json``. ``best`` names the top method,
     ``best_along`` the best one along each axis.
@@ -38,6 +39,7 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
             "rank": entry.rank,
             "error": entry.error,
             "seconds": entry.seconds,
+            "compile_seconds": entry.compiling,
             "coarse_mean": None,
             "check": None,
         }

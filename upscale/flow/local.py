@@ -54,6 +54,11 @@ from .paths import live_faces, next_cell
 SEALED, LINEAR, PERIODIC = 0, 1, 2
 #: Boundary condition name -> code used by the compiled kernels.
 CONDITIONS = {"sealed": SEALED, "linear": LINEAR, "periodic": PERIODIC}
+# The same codes as typed int64 values for calls inside the kernels: numba compiles a separate
+# copy of a function for each literal constant passed to it (a side of 0 or 1, SEALED), which
+# made the first use of the local solves compile four copies of _face and two of five others.
+_SEALED = np.int64(SEALED)
+_SIDES = (np.int64(0), np.int64(1))
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -353,6 +358,7 @@ def _net(total, magnitude):
 def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                     U, G):  # fmt: skip
     """``<u_b>`` into ``U[a, b]`` and ``<∂p/∂x_b>`` into ``G[a, b]`` over the sub-box [lo, hi)."""
+    near, far = _SIDES
     volume = 1.0
     for b in range(3):
         volume *= h[b, lo[b] : hi[b]].sum()
@@ -368,7 +374,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
                     pos = (iz, iy, ix)[b]
                     area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
                     flux, value, defined = _face(
-                        t, p, floating, shape, c, b, 0, bc, a, centre, length, inner, outer
+                        t, p, floating, shape, c, b, near, bc, a, centre, length, inner, outer
                     )
                     before = h[b, pos - 1] if pos > lo[b] else 0.0
                     integral += 0.5 * (before + h[b, pos]) * flux
@@ -378,7 +384,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
                         a_lo += area
                     if pos == hi[b] - 1:
                         flux, value, defined = _face(
-                            t, p, floating, shape, c, b, 1, bc, a, centre, length, inner, outer
+                            t, p, floating, shape, c, b, far, bc, a, centre, length, inner, outer
                         )
                         integral += 0.5 * h[b, pos] * flux
                         magnitude += 0.5 * h[b, pos] * abs(flux)
@@ -463,10 +469,11 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
     ab = np.empty((n, width + 1))
     floating = np.empty(n, np.bool_)
     centre, length = _geometry(h, shape)
-    pinned = _assemble(t, shape, order, SEALED, axes, a, ab, floating)
+    bc, (near, far) = _SEALED, _SIDES
+    pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
     factor(ab)
-    p = _pressure(t, shape, order, ab, pinned, SEALED, axes, a, centre, length)
-    inner, outer = _live(t, shape, SEALED, axes, a)
+    p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
+    inner, outer = _live(t, shape, bc, axes, a)
     flux = magnitude = 0.0
     sums = np.zeros(4)
     for iz in range(lo[0], hi[0]):
@@ -476,9 +483,9 @@ def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
                 pos = (iz, iy, ix)[a]
                 q = 0.0
                 if pos == mid:
-                    q = _face(t, p, floating, shape, c, a, 0, SEALED, a, centre, length, inner, outer)[0]
+                    q = _face(t, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
                 elif mid == shape[a] and pos == mid - 1:  # the box's last face: the domain's
-                    q = _face(t, p, floating, shape, c, a, 1, SEALED, a, centre, length, inner, outer)[0]
+                    q = _face(t, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
                 flux += q
                 magnitude += abs(q)
                 conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
