@@ -1,5 +1,5 @@
 """Stage 2: partition of the fine grid into coarse blocks."""
 
-from .blocks import REMAINDER_POLICIES, BlockSpec
+from .blocks import REMAINDER_POLICIES, ZERO_RULES, BlockSpec
 
-__all__ = ["REMAINDER_POLICIES", "BlockSpec"]
+__all__ = ["REMAINDER_POLICIES", "ZERO_RULES", "BlockSpec"]

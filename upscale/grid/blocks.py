@@ -6,10 +6,28 @@ inside the package. When the grid does not divide into whole blocks, the
 remainder policy decides: ``stop`` refuses, ``crop`` drops the last cells
 (east columns, last rows, bottom layers), ``keep`` keeps smaller edge blocks
 whose true sizes are used in every computation.
+
+Two rules decide which coarse blocks stay active: ``min_active`` (the
+smallest active volume fraction of a block) and the zero-k rule, for blocks
+whose upscaled permeability is 0 along some axis — many simulators refuse an
+active cell with k = 0 (applied by `upscale.zeros`):
+
+* ``auto`` (default): a block with k = 0 along every flow axis carries no
+  flow in the coarse model at all and becomes inactive; a zero along some
+  axes only is raised to the floor (below), so the block keeps its flow
+  along the others;
+* ``inactive``: a block with k = 0 along any axis becomes inactive;
+* ``floor`` or ``floor:VALUE``: every zero becomes VALUE (unit of k; positive
+  values are left as they are); without VALUE, 1e-6 times the geometric
+  mean of the fine values of that permeability — a contrast of a million,
+  far tighter than any block that carries flow, and a value that scales
+  with the unit of k (our choice);
+* ``keep``: zeros stay (for simulators that accept them).
 """
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 
@@ -21,6 +39,9 @@ from ..errors import InputError
 from ..field import Grid
 
 REMAINDER_POLICIES = ("stop", "crop", "keep")
+ZERO_RULES = ("auto", "inactive", "floor", "keep")
+#: The floor of ``floor`` and ``auto`` without a value, relative to the fine geometric mean.
+RELATIVE_FLOOR = 1e-6
 _SYNTAX = re.compile(r"^\s*(\d+)\s*x\s*(\d+)\s*(?:x\s*(\d+))?\s*$", re.IGNORECASE)
 
 
@@ -37,6 +58,10 @@ class BlockSpec:
     min_active : float
         A block whose active volume fraction is below this becomes inactive.
         With 0, a block is active as soon as one of its cells is.
+    zero_k : str
+        What becomes of blocks with k = 0 along some axis: ``auto``,
+        ``inactive``, ``floor``, ``floor:VALUE`` (unit of k) or ``keep`` (see
+        the module docstring).
 
     Examples
     --------
@@ -52,6 +77,7 @@ class BlockSpec:
     nz: int = 1
     remainder: str = "stop"
     min_active: float = 0.0
+    zero_k: str = "auto"
 
     def __post_init__(self) -> None:
         for name in ("nx", "ny", "nz"):
@@ -63,9 +89,31 @@ class BlockSpec:
                 f"remainder must be one of {', '.join(REMAINDER_POLICIES)}, got {self.remainder!r}"
             )
         check_fraction(self.min_active, "min_active")
+        self.zero_rule  # noqa: B018 - refuses a bad rule at construction
+
+    @property
+    def zero_rule(self) -> tuple[str, float | None]:
+        """The zero-k rule's name and its floor (unit of k; None: relative to the fine field).
+
+        Examples
+        --------
+        >>> BlockSpec(8, 8, zero_k="floor:0.001").zero_rule
+        ('floor', 0.001)
+        >>> BlockSpec(8, 8).zero_rule
+        ('auto', None)
+        """
+        name, colon, value = self.zero_k.partition(":")
+        floor = _positive(value) if colon and name == "floor" else None
+        if name not in ZERO_RULES or (colon and floor is None):
+            raise InputError(
+                f"zero-k rule must be {', '.join(ZERO_RULES[:3])}, floor:VALUE (a permeability > 0 "
+                f"in the field's unit) or keep, got {self.zero_k!r}"
+            )
+        return name, floor
 
     @classmethod
-    def parse(cls, text: str, *, remainder: str = "stop", min_active: float = 0.0) -> BlockSpec:
+    def parse(cls, text: str, *, remainder: str = "stop", min_active: float = 0.0,
+              zero_k: str = "auto") -> BlockSpec:  # fmt: skip
         """Read a block written as ``NXxNY`` or ``NXxNYxNZ`` (fine cells, x first)."""
         match = _SYNTAX.match(text)
         if not match:
@@ -74,7 +122,7 @@ class BlockSpec:
                 "(fine cells per block, x first, e.g. 8x8 or 8x8x2)"
             )
         nx, ny, nz = (int(g) if g else 1 for g in match.groups())
-        return cls(nx, ny, nz, remainder=remainder, min_active=min_active)
+        return cls(nx, ny, nz, remainder=remainder, min_active=min_active, zero_k=zero_k)
 
     @property
     def cells(self) -> tuple[int, int, int]:
@@ -149,3 +197,12 @@ class BlockSpec:
         if grid.transform is not None:
             transform = grid.transform @ Affine.scale(self.nx, self.ny)
         return Grid(dz=sizes[0], dy=sizes[1], dx=sizes[2], transform=transform, crs=grid.crs)
+
+
+def _positive(text: str) -> float | None:
+    """`text` as a finite number > 0, or None."""
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return value if 0 < value < math.inf else None
