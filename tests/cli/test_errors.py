@@ -493,7 +493,7 @@ CASES = {
     ),  # fmt: skip
     "compare: realizations on different grids": Case(
         ("compare", "@good", "@shifted", "--block", "8x8", "--methods", "geometric"),
-        (r"the realizations must share one grid; shifted differ from good",),
+        (r"the realizations must share one grid; not on the grid of good: shifted \(transform\) — ",),
     ),
     # --- info: the shared validation
     "info: complex raster": Case(("info", "@complex"), (r"complex\.tif: complex values cannot",)),
