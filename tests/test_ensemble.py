@@ -163,8 +163,8 @@ def test_the_file_on_another_grid_is_named_even_when_it_comes_first(run_cli, rea
     out = tmp_path / "never"
     paths = [odd, realizations / "r0.tif", realizations / "r1.tif"]
     line = _one_error(*run_cli(command, *paths, "--block", "8x8", *_ARGS[command], "--out", out))
-    assert line == ("upscale: error: the realizations must share one grid; not on the grid of r0, r1: "
-                    "K_ms (cell size, transform) — resample each onto that grid or leave it out")  # fmt: skip
+    assert line == ("upscale: error: the realizations must share one grid; not on the grid of r0, "
+                    "r1: K_ms (cell size, transform) — resample each onto that grid or leave it out")
     assert not out.exists()
 
 

@@ -11,7 +11,7 @@ from ..export.summary import jsonable
 from ..io import read_field
 from ..parallel import compute_together
 from ..stats import ValueScan, scan_values, where
-from .options import field_options, read_options
+from .options import field_options, global_options, read_options
 from .progress import progress
 from .report import crs_text, dims, number, table
 
@@ -20,6 +20,7 @@ from .report import crs_text, dims, number, table
 @click.argument("field", type=click.Path(dir_okay=False))
 @field_options
 @click.option("--json", "as_json", is_flag=True, help="Print the description as JSON.")
+@global_options
 @click.pass_context
 def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> None:
     """Describe FIELD: grid, cell size, CRS, units, active cells and statistics of log k.
@@ -131,7 +132,8 @@ def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: fl
     for label, line in zip(["problems", *[""] * len(lines)], lines):
         click.echo(f"{label:<13}{line}")
     if nodata is not None:
-        click.echo(f"hint         if {_shown(nodata)} marks cells without data, give --nodata {_shown(nodata)}")
+        value = _shown(nodata)
+        click.echo(f"hint         if {value} marks cells without data, give --nodata {value}")
     elif suspects:
         click.echo("hint         if these values mark cells without data, give --nodata VALUE; "
                    "'upscale run' refuses what a method cannot take")

@@ -9,7 +9,6 @@ traceback with ``--debug``.
 from __future__ import annotations
 
 import contextlib
-import logging
 import os
 import signal
 import sys
@@ -20,26 +19,24 @@ import click
 
 from ..caution import CAUTION
 from ..errors import UpscaleError
+from .options import global_options
 
 
 @click.group(
     context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
     epilog=f"Caution: {CAUTION}",
 )
-@click.option("-v", "--verbose", count=True,
-              help="More messages: progress lines even when stderr is not a terminal (a log); "
-              "repeat for debug messages.")
-@click.option("-q", "--quiet", is_flag=True, help="Only errors; no progress.")
-@click.option("--debug", is_flag=True, help="Show the traceback of an error.")
+@global_options
 @click.version_option(package_name="upscale", prog_name="upscale")
 @click.pass_context
-def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
+def cli(ctx: click.Context) -> None:
     """Upscale permeability maps and models to coarse simulation grids.
 
     Read a fine permeability raster (GeoTIFF or any raster GDAL reads; one band
     is a 2D map, several bands a 3D model), average it into coarse blocks, and
     write georeferenced coarse GeoTIFFs with a summary.json that records every
-    input, parameter and statistic.
+    input, parameter and statistic. The options -v, -q and --debug may also
+    follow the command.
 
     \b
     Start with:
@@ -47,12 +44,7 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
       upscale info demo-fields/marrowfen_lognormal.tif
       upscale run demo-fields/marrowfen_lognormal.tif --block 8x8 --method geometric --out out/
     """
-    level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
-    logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
-    # GDAL's own remarks (through rasterio) are for -vv; damage is reported as one error instead
-    logging.getLogger("rasterio").setLevel(logging.DEBUG if verbose >= 2 else logging.CRITICAL)
-    ctx.ensure_object(dict).update(quiet=quiet, verbose=verbose, debug=debug)
-    ctx.obj.setdefault("command", ["upscale", *sys.argv[1:]])
+    ctx.ensure_object(dict).setdefault("command", ["upscale", *sys.argv[1:]])
 
 
 def _register() -> None:
@@ -84,9 +76,8 @@ def main(argv: list[str] | None = None) -> int:
     """
     os.environ.setdefault("GDAL_CACHEMAX", GDAL_CACHE_MB)  # a user's own setting wins
     args = sys.argv[1:] if argv is None else list(argv)
-    debug = "--debug" in args
     with _terminate_like_interrupt():
-        return _main(args, debug)
+        return _main(args)
 
 
 class _Terminated(KeyboardInterrupt):  # noqa: N818 - a signal, like its parent
@@ -110,10 +101,11 @@ def _terminate_like_interrupt() -> Iterator[None]:
         signal.signal(signal.SIGTERM, previous)
 
 
-def _main(args: list[str], debug: bool) -> int:
+def _main(args: list[str]) -> int:
+    settings: dict[str, object] = {"command": ["upscale", *args]}  # -v, -q, --debug join as parsed
     try:
         # make_context and invoke, not cli.main: its handler writes a blank line on Ctrl-C
-        with cli.make_context("upscale", args, obj={"command": ["upscale", *args]}) as ctx:
+        with cli.make_context("upscale", args, obj=settings) as ctx:
             cli.invoke(ctx)
     except click.exceptions.Exit as exc:
         return exc.exit_code
@@ -129,18 +121,18 @@ def _main(args: list[str], debug: bool) -> int:
         click.echo("upscale: interrupted; nothing was written", err=True)
         return 130
     except UpscaleError as exc:
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo(f"upscale: error: {exc}", err=True)
         return exc.exit_code
     except MemoryError:
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo("upscale: error: out of memory; nothing was written — give a smaller --chunk or "
                    "--check-limit, or --no-check, or run where more memory is free", err=True)  # fmt: skip
         return 1
     except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo(
             f"upscale: internal error: {type(exc).__name__}: {exc} "
