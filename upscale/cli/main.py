@@ -4,6 +4,18 @@ Errors a user can fix (an `UpscaleError`, a bad option) print one line on
 stderr and exit with status 2 (input or usage) or 1 (other failures). Any
 other exception is a bug: it prints one line asking for a report, and its
 traceback with ``--debug``.
+
+A reader that stops reading (``upscale info F | head -3``, a pager quit
+early, a log reader that died) ends the command quietly with status 141,
+the 128 + SIGPIPE (13) a shell reports for a command a closed pipe ended —
+whether the pipe was stdout or the progress lines' stderr. Python ignores
+SIGPIPE and raises `BrokenPipeError` instead; letting the default signal
+action kill the process would skip the clean-up of a half-written output
+folder, so the error unwinds like Ctrl-C: what a run had finished is left
+as it was, what it was staging is removed. Before exiting, the console
+script points stdout and stderr at ``os.devnull``, so that the interpreter's
+final flush of what could not be written does not fail again (the advice of
+Python's documentation, "Note on SIGPIPE" in the `signal` module).
 """
 
 from __future__ import annotations
@@ -65,6 +77,10 @@ _register()
 #: a cache does not pay; GDAL's default (5 % of RAM) would grow with the raster.
 GDAL_CACHE_MB = "64"
 
+#: Exit status when the reader of stdout or stderr went away: 128 + SIGPIPE (13), the status a
+#: shell gives a command ended by SIGPIPE (POSIX, XCU 2.8.2 "Exit Status for Commands").
+CLOSED_PIPE = 141
+
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit status instead of raising.
@@ -77,7 +93,10 @@ def main(argv: list[str] | None = None) -> int:
     os.environ.setdefault("GDAL_CACHEMAX", GDAL_CACHE_MB)  # a user's own setting wins
     args = sys.argv[1:] if argv is None else list(argv)
     with _terminate_like_interrupt():
-        return _main(args)
+        try:
+            return _main(args)
+        except BrokenPipeError:  # the reader went away, perhaps while an error was being told
+            return CLOSED_PIPE
 
 
 class _Terminated(KeyboardInterrupt):  # noqa: N818 - a signal, like its parent
@@ -107,6 +126,8 @@ def _main(args: list[str]) -> int:
         # make_context and invoke, not cli.main: its handler writes a blank line on Ctrl-C
         with cli.make_context("upscale", args, obj=settings) as ctx:
             cli.invoke(ctx)
+    except BrokenPipeError:
+        raise  # not a bug: `main` ends quietly
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except click.ClickException as exc:
@@ -145,4 +166,18 @@ def _main(args: list[str]) -> int:
 
 def entry_point() -> None:
     """Console-script entry: exit with the status of `main`."""
-    sys.exit(main())
+    status = main()
+    if status == CLOSED_PIPE:
+        _drop_standard_streams()
+    sys.exit(status)
+
+
+def _drop_standard_streams() -> None:
+    """Point stdout and stderr at ``os.devnull``: what is still buffered for a closed pipe goes nowhere."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            os.dup2(devnull, stream.fileno())
+        except (AttributeError, OSError, ValueError):  # not a file, or already closed
+            continue
+    os.close(devnull)
