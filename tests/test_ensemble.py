@@ -148,7 +148,34 @@ def test_realizations_on_different_grids_are_refused(run_cli, realizations, tmp_
     out = tmp_path / "never"
     paths = [str(realizations / "r0.tif"), str(realizations / "r1.tif"), str(odd)]
     line = _one_error(*run_cli("run", *paths, "--block", "8x8", "--method", "geometric", "--out", out))
-    assert "odd differ from r0" in line and not out.exists()
+    assert "; not on the grid of r0, r1: odd (shape) — " in line and not out.exists()
+
+
+_ARGS = {"run": ("--method", "geometric"), "compare": ("--methods", "geometric")}
+
+
+@pytest.mark.parametrize("command", ["run", "compare"])
+def test_the_file_on_another_grid_is_named_even_when_it_comes_first(run_cli, realizations, tmp_path,
+                                                                   command):  # fmt: skip
+    # the majority's grid is the reference, not the first file's: two realizations on one grid
+    # after a file on another named the two as odd ("r0, r1 differ from K_ms")
+    odd = write_raster(tmp_path / "K_ms.tif", lognormal(SIZE, seed=5), cell_size=12.5)
+    out = tmp_path / "never"
+    paths = [odd, realizations / "r0.tif", realizations / "r1.tif"]
+    line = _one_error(*run_cli(command, *paths, "--block", "8x8", *_ARGS[command], "--out", out))
+    assert line == ("upscale: error: the realizations must share one grid; not on the grid of r0, "
+                    "r1: K_ms (cell size, transform) — resample each onto that grid or leave it out")
+    assert not out.exists()
+
+
+def test_on_a_tie_the_first_file_s_grid_is_the_reference(run_cli, realizations, tmp_path):
+    # two files on each of two grids: the grid of the first file wins; the odd ones are both named
+    wide = [write_raster(tmp_path / f"w{i}.tif", lognormal((SIZE[0], SIZE[1] + 8), seed=7 + i))
+            for i in range(2)]  # fmt: skip
+    paths = [realizations / "r0.tif", *wide, realizations / "r1.tif"]
+    line = _one_error(*run_cli("run", *paths, "--block", "8x8", "--method", "geometric", "--out",
+                               tmp_path / "never"))  # fmt: skip
+    assert "; not on the grid of r0, r1: w0 (shape), w1 (shape) — " in line
 
 
 def test_two_realizations_with_one_name(run_cli, realizations, tmp_path):

@@ -411,7 +411,9 @@ def test_compare_realizations_on_different_grids(run_cli, realizations, tmp_path
     paths = [realizations / "r0.tif", realizations / "r1.tif", tmp_path / "odd.tif", realizations / "r2.tif"]
     out = tmp_path / "never"
     line = _one_error(*run_cli("compare", *paths, "--block", "8x8", "--methods", METHODS, "--out", out))
-    assert line.startswith("upscale: error: the realizations must share one grid; odd differ from r0 ")
+    differs = "shape" if odd == "shape" else "cell size, transform"  # what the message names
+    assert line.startswith("upscale: error: the realizations must share one grid; not on the grid of "
+                           f"r0, r1, r2: odd ({differs}) — ")
     assert not out.exists() and partial_leftovers(tmp_path) == []
 
 

@@ -10,6 +10,10 @@ What is tested
 * On dask arrays the per-chunk scans merge to the NumPy result: counts and
   first locations equal, sums equal to rounding, for several chunkings.
 * float32 input, an all-inactive array, and `ValueScan.merge`.
+* Values that often mark cells without data (`upscale.stats.SENTINELS`),
+  held as float64 or float32: counted per value apart from other negatives,
+  with their first cells, equal on NumPy and dask arrays; large values that
+  are no sentinel are not flagged.
 """
 
 from __future__ import annotations
@@ -21,7 +25,7 @@ import dask.array as da
 import numpy as np
 import pytest
 
-from upscale.stats import FIRST, ValueScan, scan_values
+from upscale.stats import FIRST, KINDS, SENTINELS, ValueScan, scan_values
 
 
 def _bad_field(seed, shape=(4, 13, 17), dtype=np.float64):
@@ -163,3 +167,59 @@ def test_first_cells_offset_by_the_chunk_position():
     s = ValueScan.from_chunk(chunk, (3, 10, 20), (8, 40, 40))
     assert s.first_negative == ((3, 10, 21),)
     assert s.first_zero == ((3, 11, 20),)
+
+
+# --- values that often mark cells without data ---------------------------------------------------
+
+
+def _marked_field(seed, dtype):
+    """`_bad_field` with cells holding some of the sentinels, and large values that are none."""
+    k = _bad_field(seed).astype(np.float64)
+    rng = np.random.default_rng(seed + 1)
+    u = rng.random(k.shape)
+    k[u < 0.04] = -9999.0
+    k[(u >= 0.04) & (u < 0.06)] = 1e30
+    k[(u >= 0.06) & (u < 0.07)] = -3.4e38
+    k[(u >= 0.07) & (u < 0.08)] = float(np.finfo(np.float32).max)
+    k[(u >= 0.08) & (u < 0.10)] = 12_000.5  # large, but no sentinel
+    return k.astype(dtype)
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+def test_sentinels_are_counted_apart_from_other_negatives(dtype):
+    k = _marked_field(205_774_318, dtype)
+    wide = k.astype(np.float64)
+    s = scan_values(k)
+
+    def held(value):  # as a float64, or as the float32 nearest to it (common practice)
+        return (wide == value) | (wide == np.float64(np.float32(value)))
+
+    sentinel = np.zeros(k.shape, bool)
+    for value in SENTINELS:
+        assert s.counts[KINDS.index(value)] == held(value).sum(), value
+        assert s.firsts[KINDS.index(value)] == _firsts(held(value)), value
+        sentinel |= held(value)
+    assert held(-9999.0).sum() > 0 and held(1e30).sum() > 0 and held(-3.4e38).sum() > 0
+    other = np.isfinite(wide) & (wide < 0) & ~sentinel
+    assert s.counts[0] == other.sum() > 0 and s.firsts[0] == _firsts(other)
+    # the counts run refuses by are those of every negative cell, sentinels included
+    assert s.negative == (np.isfinite(wide) & (wide < 0)).sum()
+    assert s.first_negative == _firsts(np.isfinite(wide) & (wide < 0))
+    kinds = [kind for kind, *_ in s.suspects()]
+    assert kinds == ["sentinel"] * 4 + ["negative", "zero", "infinite"]
+    counts = [count for _, _, count, _ in s.suspects()[:4]]
+    assert counts == sorted(counts, reverse=True)
+
+
+@pytest.mark.parametrize("chunks", [(1, 5, 6), (3, 7, 9)])
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+def test_dask_scan_of_sentinels_merges_to_the_numpy_scan(chunks, dtype):
+    k = _marked_field(839_102_447, dtype)
+    want = scan_values(k)
+    got = dask.compute(scan_values(da.from_array(k, chunks=chunks)))[0]
+    assert (got.counts, got.firsts) == (want.counts, want.firsts)
+
+
+def test_large_values_that_are_no_sentinel_are_not_flagged():
+    k = np.array([[[9998.0, 9999.5, 1.0e29, 3.0e38, 12.0]]])
+    assert scan_values(k).suspects() == []

@@ -62,21 +62,45 @@ def names_of(paths: list[str]) -> list[str]:
     return names
 
 
+#: What a grid is compared on, and the name of each part in a message.
+_GRID_PARTS = ("shape", "cell size", "layers", "transform", "CRS")
+
+
+def _grid(f: Field) -> tuple:
+    g = f.grid  # a raster's columns share one width, and its rows one height
+    return (f.shape, (tuple(np.unique(g.dx)), tuple(np.unique(g.dy))), tuple(g.dz), g.transform, g.crs)
+
+
 def check_same_grid(fields: dict[str, Field]) -> None:
-    """Refuse realizations that are not on the grid of the first one, listing the odd ones."""
-    items = list(fields.items())
-    first_name, first = items[0]
+    """Refuse realizations that are not on one grid, naming the odd ones out.
 
-    def key(f: Field) -> tuple:
-        g = f.grid
-        return (f.shape, tuple(g.dx), tuple(g.dy), tuple(g.dz), g.transform, g.crs)
+    The reference is the grid most realizations share; on a tie, the grid of
+    the first one among those most shared.
 
-    odd = [name for name, f in items[1:] if key(f) != key(first)]
-    if odd:
-        raise InputError(
-            f"the realizations must share one grid; {', '.join(odd)} differ from {first_name} "
-            "(shape, cell size, layers, transform or CRS)"
-        )
+    Raises
+    ------
+    InputError
+        Naming each realization off the reference grid with what differs
+        (shape, cell size, layers, transform or CRS), and the realizations
+        on it.
+    """
+    grids = {name: _grid(f) for name, f in fields.items()}
+    shared = list(grids.values())
+    reference = max(shared, key=shared.count)  # max keeps the first of equal counts
+    odd = [name for name, g in grids.items() if g != reference]
+    if not odd:
+        return
+    on_it = [name for name, g in grids.items() if g == reference]
+
+    def differs(name: str) -> str:
+        parts = [p for p, a, b in zip(_GRID_PARTS, grids[name], reference) if a != b]
+        return f"{name} ({', '.join(parts)})"
+
+    shown = ", ".join(on_it[:3]) + (f" and {len(on_it) - 3} more" if len(on_it) > 3 else "")
+    raise InputError(
+        f"the realizations must share one grid; not on the grid of {shown}: "
+        f"{', '.join(map(differs, odd))} — resample each onto that grid or leave it out"
+    )
 
 
 def ensemble_summary(names: list[str], summaries: list[dict[str, Any]]) -> dict[str, Any]:

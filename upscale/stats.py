@@ -1,11 +1,13 @@
 """One pass over a property array: counts of bad values and summary statistics.
 
 `scan_values` accumulates the statistics a run summary reports in one
-compiled pass per chunk, and finds negative, zero and infinite values with
-the first few locations, so an error can name the cells (a second, exact
-pass runs only over chunks that hold such values). On dask arrays it
-returns a lazy result that shares the chunk reads of any other computation
-it is computed together with.
+compiled pass per chunk, and finds negative, zero and infinite values and
+values that often mark cells without data (`SENTINELS`) with the first few
+locations, so an error can name the cells (a second, exact pass runs only
+over chunks that hold values below zero, zero, infinite or as large as the
+smallest positive marker). On dask arrays it returns a lazy result that
+shares the chunk reads of any other computation it is computed together
+with.
 """
 
 from __future__ import annotations
@@ -22,6 +24,20 @@ from .parallel import is_dask
 
 #: How many offending cells an error message names.
 FIRST = 3
+
+_FLOAT32_MAX = float(np.finfo(np.float32).max)  # 3.4028234663852886e38
+#: Values that often mark cells without data in rasters written without a nodata tag (common
+#: practice: defaults of GIS, geostatistics and simulation-grid exports; ±3.4028235e38 is the
+#: largest float32, the default nodata of some GIS for float rasters). A cell matches one when it
+#: equals it as a float64, or as the float32 nearest to it (what a float32 raster holds).
+SENTINELS = (-9999.0, -999.0, -99999.0, 9999.0, 1e30, -1e30, 3.4e38, -3.4e38, _FLOAT32_MAX, -_FLOAT32_MAX)
+#: The kinds of value a scan counts with their first cells, each cell in one kind: negative
+#: (not a sentinel), zero, infinite, then each of `SENTINELS`.
+KINDS = ("negative", "zero", "infinite", *SENTINELS)
+_NEGATIVE, _ZERO, _INFINITE = 0, 1, 2
+_MARKERS = np.array([SENTINELS, np.float32(SENTINELS)], dtype=np.float64)  # (2, S): exact, float32
+#: Positive values below this are plain values: no positive sentinel is smaller.
+_LARGE = float(_MARKERS[_MARKERS > 0].min())
 
 
 @nb.njit(**JIT)
@@ -81,15 +97,22 @@ def _value_sums(k):
 
 @nb.njit(nogil=True, cache=True)
 def _locate_bad(k):
-    # exact counts and first flat indices of negative, zero and infinite values
-    counts = np.zeros(3, np.int64)
-    firsts = np.full((3, FIRST), -1, np.int64)
+    # exact counts and first flat indices of each of KINDS
+    counts = np.zeros(3 + _MARKERS.shape[1], np.int64)
+    firsts = np.full((counts.size, FIRST), -1, np.int64)
     flat = k.ravel()
     for idx in range(flat.size):
         v = np.float64(flat[idx])
-        if v > 0.0 and v < np.inf or v != v:
+        if v > 0.0 and v < _LARGE or v != v:
             continue
-        kind = 2 if math.isinf(v) else (0 if v < 0.0 else 1)
+        kind = -1
+        for j in range(_MARKERS.shape[1]):
+            if v == _MARKERS[0, j] or v == _MARKERS[1, j]:
+                kind = 3 + j
+        if kind < 0:
+            if v > 0.0 and v < np.inf:
+                continue  # a large value, but no marker
+            kind = _INFINITE if math.isinf(v) else (_NEGATIVE if v < 0.0 else _ZERO)
         if counts[kind] < FIRST:
             firsts[kind, counts[kind]] = idx
         counts[kind] += 1
@@ -106,10 +129,11 @@ class ValueScan:
         All cells, active or not.
     active : int
         Cells holding a value (not NaN).
-    negative, zero, infinite : int
-        Active cells with a negative, zero or infinite value.
-    first_negative, first_zero, first_infinite : tuple of (int, int, int)
-        The first few such cells as ``(layer, row, column)``.
+    counts : tuple of int
+        Active cells of each of `KINDS`: negative but no sentinel, zero,
+        infinite, then each sentinel value.
+    firsts : tuple of tuple of (int, int, int)
+        The first few cells of each kind as ``(layer, row, column)``.
     minimum, maximum, total : float
         Over finite, non-negative active values (negative ones are errors).
     positive, log_sum, log_square_sum : float
@@ -118,12 +142,8 @@ class ValueScan:
 
     cells: int
     active: int
-    negative: int
-    zero: int
-    infinite: int
-    first_negative: tuple
-    first_zero: tuple
-    first_infinite: tuple
+    counts: tuple
+    firsts: tuple
     minimum: float
     maximum: float
     total: float
@@ -137,37 +157,27 @@ class ValueScan:
         chunk = np.ascontiguousarray(chunk)
         sums, low, high = _value_sums(chunk)
         active, valid, positive = (int(x) for x in sums[:3])
-        bad = (np.zeros(3, np.int64), np.full((3, FIRST), -1, np.int64))
-        if valid < active or positive < valid:  # rare: find the offending cells exactly
-            bad = _locate_bad(chunk)
-        counts, firsts = bad
+        counts, firsts = np.zeros(len(KINDS), np.int64), np.full((len(KINDS), FIRST), -1, np.int64)
+        if valid < active or positive < valid or (valid and high >= _LARGE):  # rare: an exact pass
+            counts, firsts = _locate_bad(chunk)
 
         def places(row: np.ndarray) -> tuple:
             local = [np.unravel_index(i, chunk.shape) for i in row if i >= 0]
             return tuple(tuple(int(a + o) for a, o in zip(p, offset)) for p in local)
 
         return cls(
-            int(chunk.size), active, int(counts[0]), int(counts[1]), int(counts[2]),
-            places(firsts[0]), places(firsts[1]), places(firsts[2]),
+            int(chunk.size), active, tuple(int(c) for c in counts), tuple(places(row) for row in firsts),
             low if valid else math.inf, high if valid else -math.inf,
             float(sums[3]), float(positive), float(sums[4]), float(sums[5]),
         )  # fmt: skip
 
     def merge(self, other: ValueScan) -> ValueScan:
         """Combine the scans of two disjoint parts of an array."""
-
-        def first(a: tuple, b: tuple) -> tuple:
-            return tuple(sorted(a + b)[:FIRST])
-
         return ValueScan(
             self.cells + other.cells,
             self.active + other.active,
-            self.negative + other.negative,
-            self.zero + other.zero,
-            self.infinite + other.infinite,
-            first(self.first_negative, other.first_negative),
-            first(self.first_zero, other.first_zero),
-            first(self.first_infinite, other.first_infinite),
+            tuple(a + b for a, b in zip(self.counts, other.counts)),
+            tuple(_first(a, b) for a, b in zip(self.firsts, other.firsts)),
             min(self.minimum, other.minimum),
             max(self.maximum, other.maximum),
             self.total + other.total,
@@ -175,6 +185,58 @@ class ValueScan:
             self.log_sum + other.log_sum,
             self.log_square_sum + other.log_square_sum,
         )
+
+    @property
+    def negative(self) -> int:
+        """Active cells with a negative finite value, sentinels such as -9999 included."""
+        return sum(self.counts[i] for i in _NEGATIVE_KINDS)
+
+    @property
+    def first_negative(self) -> tuple:
+        """The first few negative finite cells as ``(layer, row, column)``."""
+        return _first(*(self.firsts[i] for i in _NEGATIVE_KINDS))
+
+    @property
+    def zero(self) -> int:
+        """Active cells holding zero."""
+        return self.counts[_ZERO]
+
+    @property
+    def first_zero(self) -> tuple:
+        """The first few zero cells as ``(layer, row, column)``."""
+        return self.firsts[_ZERO]
+
+    @property
+    def infinite(self) -> int:
+        """Active cells holding +inf or -inf."""
+        return self.counts[_INFINITE]
+
+    @property
+    def first_infinite(self) -> tuple:
+        """The first few infinite cells as ``(layer, row, column)``."""
+        return self.firsts[_INFINITE]
+
+    def suspects(self) -> list[tuple[str, float | None, int, tuple]]:
+        """Every kind of value found that may be no data: sentinels, most frequent first, then the rest.
+
+        Returns
+        -------
+        list of (kind, value, count, first)
+            `kind` is ``"sentinel"`` (with its `value`), ``"negative"`` (negative
+            values that are no sentinel), ``"zero"`` or ``"infinite"`` (`value`
+            None); `count` cells, the first few of them as ``(layer, row, column)``.
+
+        Examples
+        --------
+        >>> scan_values(np.array([[[5.0, -9999.0, 0.0, -9999.0]]])).suspects()
+        [('sentinel', -9999.0, 2, ((0, 0, 1), (0, 0, 3))), ('zero', None, 1, ((0, 0, 2),))]
+        """
+        found = []
+        for i, count in enumerate(self.counts):
+            if count:
+                kind, value = (KINDS[i], None) if i < 3 else ("sentinel", KINDS[i])
+                found.append((kind, value, count, self.firsts[i]))
+        return sorted(found, key=lambda s: (s[0] != "sentinel", -s[2] if s[0] == "sentinel" else 0))
 
     @property
     def mean(self) -> float:
@@ -207,6 +269,26 @@ class ValueScan:
             "geometric_mean": self.geometric_mean,
             "log10_std": self.log10_std,
         }
+
+
+#: Indices into `KINDS` of the negative values: plain ones and the negative sentinels.
+_NEGATIVE_KINDS = (_NEGATIVE, *(3 + i for i, v in enumerate(SENTINELS) if v < 0))
+
+
+def _first(*places: tuple) -> tuple:
+    """The first `FIRST` cells, in C order, of several lists of first cells."""
+    return tuple(sorted(sum(places, ()))[:FIRST])
+
+
+def where(cells: tuple) -> str:
+    """Cells as (band from 1, row and column from 0, as GDAL's pixel offsets).
+
+    Examples
+    --------
+    >>> where(((0, 2, 5), (1, 0, 0)))
+    '(band 1, row 2, column 5), (band 2, row 0, column 0)'
+    """
+    return ", ".join(f"(band {c[0] + 1}, row {c[1]}, column {c[2]})" for c in cells)
 
 
 def _merge_all(scans: list[ValueScan]) -> ValueScan:

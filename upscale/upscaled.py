@@ -24,7 +24,7 @@ from .methods import averages
 from .methods.flow_based import TENSOR
 from .methods.registry import Method, get_method
 from .parallel import apply_blocks, compute_together
-from .stats import ValueScan, scan_values
+from .stats import ValueScan, scan_values, where
 
 log = logging.getLogger(__name__)
 
@@ -245,11 +245,6 @@ def _direct_faces(
     return tuple(faces), tuple(boundary), replaced
 
 
-def _where(cells: tuple) -> str:
-    """Cells as (band from 1, row and column from 0, as GDAL's pixel offsets)."""
-    return ", ".join(f"(band {c[0] + 1}, row {c[1]}, column {c[2]})" for c in cells)
-
-
 def refuse_bad_values(fine: Field) -> None:
     """Refuse a field with no active cell, or infinite or negative values, or porosity above 1."""
     scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
@@ -268,12 +263,12 @@ def _check_values(scans: dict[str, ValueScan], method: Method | None, options: d
                         100 * scan.active / scan.cells)  # fmt: skip
         if scan.infinite:
             raise InputError(
-                f"{label}: {scan.infinite} infinite value(s), first at {_where(scan.first_infinite)}; "
+                f"{label}: {scan.infinite} infinite value(s), first at {where(scan.first_infinite)}; "
                 "mark them as nodata"
             )
         if scan.negative:
             raise InputError(
-                f"{label}: {scan.negative} negative value(s), first at {_where(scan.first_negative)}; "
+                f"{label}: {scan.negative} negative value(s), first at {where(scan.first_negative)}; "
                 "permeability and porosity cannot be negative — fix the input or mark them as nodata"
             )
         if name == "porosity":
@@ -284,7 +279,7 @@ def _check_values(scans: dict[str, ValueScan], method: Method | None, options: d
         elif scan.zero and method is not None and not method.takes_zeros(options):
             raise InputError(
                 f"{label}: {scan.zero} zero permeability value(s), first at "
-                f"{_where(scan.first_zero)}; the {method.name} average of a block with a zero is "
+                f"{where(scan.first_zero)}; the {method.name} average of a block with a zero is "
                 "zero whatever the other cells hold — mark them as nodata, or use arithmetic, "
                 "tubes, slabs or power with an exponent > 0"
             )

@@ -493,7 +493,7 @@ CASES = {
     ),  # fmt: skip
     "compare: realizations on different grids": Case(
         ("compare", "@good", "@shifted", "--block", "8x8", "--methods", "geometric"),
-        (r"the realizations must share one grid; shifted differ from good",),
+        (r"the realizations must share one grid; not on the grid of good: shifted \(transform\) — ",),
     ),
     # --- info: the shared validation
     "info: complex raster": Case(("info", "@complex"), (r"complex\.tif: complex values cannot",)),
@@ -717,8 +717,11 @@ def test_nan_and_nodata_cells_are_inactive_not_errors(run_cli, write_tif, tmp_pa
 def test_info_describes_problem_values_without_refusing(run_cli, inputs):
     code, out, err = run_cli("info", inputs.negative)
     assert (code, err) == (0, "")
-    assert ("problems     4 negative value(s) in kx; 'upscale run' will refuse what a method "
-            "cannot take") in out.splitlines()  # fmt: skip
+    lines = out.splitlines()
+    assert lines[lines.index("active       1536 of 1536 cells (100.0 %)") + 1].startswith(
+        "problems     4 negative value(s) in kx, first at (band 1, row 3, column 5), ")
+    assert ("hint         if these values mark cells without data, give --nodata VALUE; 'upscale run' "
+            "refuses what a method cannot take") in lines  # fmt: skip
     code, out, _ = run_cli("info", inputs.plus_inf, "--json")
     assert code == 0
     assert json.loads(out)["problems"] == {"negative": 0, "zero": 0, "infinite": 1}

@@ -1,7 +1,10 @@
 """Tests of ``upscale info``: the description of a field, as text and as JSON.
 
 Numbers in the ``--json`` output are checked against NumPy on the values
-rasterio reads from the same GeoTIFF.
+rasterio reads from the same GeoTIFF. Rasters without a nodata tag that hold
+-9999, 1e30 and the other values of `upscale.stats.SENTINELS` (as float64
+and float32), zeros and negative values are flagged with counts and first
+cells, and a ``--nodata`` is suggested; a clean field shows no flag.
 """
 
 from __future__ import annotations
@@ -162,3 +165,90 @@ def test_raster_without_georeference_gives_a_clean_stderr(run_cli, write_tif):
     code, stdout, err = run_cli("info", path, "--cell-size", "5")
     assert (code, err) == (0, "")
     assert "CRS          none" in stdout
+
+
+# --- values that may mark cells without data, in rasters without a nodata tag --------------------
+
+
+def _firsts(mask):
+    return [{"band": int(b) + 1, "row": int(r), "column": int(c)} for b, r, c in np.argwhere(mask)[:3]]
+
+
+def _cells(firsts):
+    return ", ".join(f"(band {f['band']}, row {f['row']}, column {f['column']})" for f in firsts)
+
+
+@pytest.fixture(params=[np.float64, np.float32])
+def marked(request, write_tif):
+    """A map without a nodata tag: 60 cells of -9999, 7 of 1e30, 2 zeros, 1 other negative value."""
+    k = lognormal(SHAPE, SEED + 6)
+    k[2:5, 10:30] = -9999.0
+    k[31, 40:47] = 1e30
+    k[6, 3] = k[9, 1] = 0.0
+    k[12, 20] = -2.5
+    path = write_tif("marked.tif", k.astype(request.param))
+    return path, read_raster(path)  # of shape (1, M, N): what the file holds, as float64
+
+
+def test_sentinels_zeros_and_negatives_are_flagged_in_json(run_cli, marked):
+    path, k = marked
+    description = _info_json(run_cli, path)
+    assert description["suspect_values"] == [
+        {"property": "kx", "kind": "sentinel", "value": -9999.0, "count": 60, "first": _firsts(k == -9999.0)},
+        {"property": "kx", "kind": "sentinel", "value": 1e30, "count": 7, "first": _firsts(k > 1e29)},
+        {"property": "kx", "kind": "negative", "value": None, "count": 1, "first": _firsts(k == -2.5)},
+        {"property": "kx", "kind": "zero", "value": None, "count": 2, "first": _firsts(k == 0.0)},
+    ]  # fmt: skip
+    assert description["suggested_nodata"] == -9999.0
+    assert description["problems"] == {"negative": 61, "zero": 2, "infinite": 0}
+    assert description["active_cells"] == k.size  # no nodata tag: every cell holds a value
+
+
+def test_sentinels_are_flagged_next_to_the_active_count_with_one_line_of_advice(run_cli, marked):
+    path, k = marked
+    code, stdout, err = run_cli("info", path)
+    assert (code, err) == (0, "")
+    lines = stdout.splitlines()
+    at = lines.index(f"active       {k.size} of {k.size} cells (100.0 %)")
+    assert lines[at + 1:at + 6] == [
+        "problems     60 cell(s) of kx hold -9999, a common nodata marker; first at "
+        + _cells(_firsts(k == -9999.0)),
+        "             7 cell(s) of kx hold 1e+30, a common nodata marker; first at "
+        + _cells(_firsts(k > 1e29)),
+        "             1 negative value(s) in kx, first at " + _cells(_firsts(k == -2.5)),
+        "             2 zero value(s) in kx, first at " + _cells(_firsts(k == 0.0)),
+        "hint         if -9999 marks cells without data, give --nodata -9999",
+    ]  # fmt: skip
+
+
+def test_the_suggested_nodata_makes_the_sentinel_cells_inactive(run_cli, marked):
+    path, k = marked
+    description = _info_json(run_cli, path, "--nodata", "-9999")
+    assert description["active_cells"] == k.size - 60
+    assert [s["value"] for s in description["suspect_values"]] == [1e30, None, None]
+    again = _info_json(run_cli, path, "--nodata", str(description["suggested_nodata"]))  # 1e+30
+    assert again["active_cells"] == k.size - 7
+    assert again["suggested_nodata"] == -9999.0
+
+
+@pytest.mark.parametrize("value", [-999.0, -99999.0, 9999.0, -1e30, 3.4e38, -3.4e38,
+                                   float(np.finfo(np.float32).max)])  # fmt: skip
+def test_every_sentinel_of_the_list_is_flagged_in_a_float32_raster(run_cli, write_tif, value):
+    k = lognormal(SHAPE, SEED + 7).astype(np.float32)
+    k[20:22, 30:35] = value
+    description = _info_json(run_cli, write_tif("one.tif", k))
+    (found,) = description["suspect_values"]
+    assert (found["kind"], found["value"], found["count"]) == ("sentinel", value, 10)
+    assert found["first"] == [{"band": 1, "row": 20, "column": c} for c in (30, 31, 32)]
+    assert description["suggested_nodata"] == value
+
+
+def test_a_clean_field_shows_no_flag(run_cli, write_tif):
+    k = lognormal(SHAPE, SEED + 8)
+    k[0, :4] = [9998.0, 9999.5, 12_000.0, 2.5e30]  # large, but no sentinel
+    path = write_tif("clean.tif", k)
+    code, stdout, err = run_cli("info", path)
+    assert (code, err) == (0, "")
+    assert not any(line.startswith(("problems", "hint")) for line in stdout.splitlines())
+    description = _info_json(run_cli, path)
+    assert description["suspect_values"] == [] and description["suggested_nodata"] is None

@@ -6,7 +6,8 @@ exception raised inside that block. Checks that a new folder appears only
 when complete, that existing results are refused without ``overwrite`` and
 replaced with it (stale files listed in the old ``summary.json`` removed,
 the user's own files kept), that a failure leaves the previous output
-byte-identical, and that the folder's permissions follow the umask.
+byte-identical (a closed pipe passing through as itself, not as a failure
+to write), and that the folder's permissions follow the umask.
 """
 
 from __future__ import annotations
@@ -152,6 +153,18 @@ def test_os_error_in_a_writer_becomes_an_output_error(previous):
             (stage / "missing-folder" / "ky.tif").write_text("cannot be written")
     assert info.value.exit_code == 1
     assert str(previous) in str(info.value)
+    assert snapshot(previous) == before
+    assert partial_leftovers(previous.parent) == []
+
+
+def test_a_closed_progress_pipe_is_no_output_error(previous):
+    # the reader of the progress lines went away mid-run: not a failure to write the results, so the
+    # command line can end quietly instead of saying "writing ... failed (Broken pipe)"
+    before = snapshot(previous)
+    with pytest.raises(BrokenPipeError):
+        with staged_folder(previous, overwrite=True) as stage:
+            (stage / "kx.tif").write_text("new")
+            raise BrokenPipeError(32, "Broken pipe")
     assert snapshot(previous) == before
     assert partial_leftovers(previous.parent) == []
 

@@ -9,13 +9,14 @@ from ..export import update_summary
 from ..io.package import read_package
 from ..io.results import read_run
 from ..upscaled import refuse_bad_values
-from .options import check_options
+from .options import check_options, global_options
 from .report import print_check
 
 
 @click.command()
 @click.argument("folder", type=click.Path(file_okay=False))
 @check_options
+@global_options
 @click.pass_context
 def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int) -> None:
     """Check again that the coarse grid in FOLDER passes the fine model's flow.

@@ -19,7 +19,8 @@ from ..io import read_field
 from ..job import compare_ensemble, refuse_comparison
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
-from .options import check_options, field_options, parse_chunk, read_options, recorded
+from .options import (check_options, field_options, global_options, parse_chunk, read_options,
+                      recorded)
 from .progress import teller
 from .report import number, print_spread, table
 
@@ -56,6 +57,7 @@ def _methods(text: str | None) -> list[str] | None:
               "one such folder per field plus ranking.csv, figures/spread.*, report.html and "
               "ensemble.json.")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
+@global_options
 @click.pass_context
 def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str | None,
             exponent: float | None, bc: str | None, border: int | None, remainder: str, min_active: float,

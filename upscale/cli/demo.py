@@ -5,12 +5,14 @@ from __future__ import annotations
 import click
 
 from ..demo.scenario import write_demo_fields
+from .options import global_options
 
 
 @click.command()
 @click.option("--out", "out", default="demo-fields", show_default=True,
               type=click.Path(file_okay=False), help="Folder to write the demo fields into.")
 @click.option("--overwrite", is_flag=True, help="Replace demo fields already in the folder.")
+@global_options
 @click.pass_context
 def demo(ctx: click.Context, out: str, overwrite: bool) -> None:  # fmt: skip
     """Write the demo fields of the fictional Marrowfen Basin.

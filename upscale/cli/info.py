@@ -10,8 +10,8 @@ import click
 from ..export.summary import jsonable
 from ..io import read_field
 from ..parallel import compute_together
-from ..stats import scan_values
-from .options import field_options, read_options
+from ..stats import ValueScan, scan_values, where
+from .options import field_options, global_options, read_options
 from .progress import progress
 from .report import crs_text, dims, number, table
 
@@ -20,9 +20,14 @@ from .report import crs_text, dims, number, table
 @click.argument("field", type=click.Path(dir_okay=False))
 @field_options
 @click.option("--json", "as_json", is_flag=True, help="Print the description as JSON.")
+@global_options
 @click.pass_context
 def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> None:
     """Describe FIELD: grid, cell size, CRS, units, active cells and statistics of log k.
+
+    Flags negative, zero and infinite values and values that often mark cells
+    without data (-9999, 1e30, ...) with their counts and first cells, and
+    suggests the --nodata that would make them inactive.
 
     \b
     Example:
@@ -53,7 +58,9 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
         "problems": {
             "negative": kx.negative, "zero": kx.zero, "infinite": kx.infinite,
         },  # fmt: skip
+        "suspect_values": _suspects(scans, fine.properties()),
     }
+    description["suggested_nodata"] = _suggested(description["suspect_values"])
     if as_json:
         click.echo(json.dumps(jsonable(description), indent=2))
         return
@@ -68,6 +75,7 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     click.echo(f"CRS          {crs_text(grid.crs)}")
     click.echo(f"unit         {fine.unit}")
     click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
+    _print_problems(description["suspect_values"], scans.get("porosity"), description["suggested_nodata"])
     log10 = {key: number(value, ".3f") for key, value in description["log10_k"].items()}
     click.echo(f"log10 k      mean {log10['mean']}, std {log10['std']}, "
                f"min {log10['min']}, max {log10['max']} (over positive values)")  # fmt: skip
@@ -78,18 +86,60 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     ]  # fmt: skip
     click.echo("")
     click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
-    bad = []
-    arrays = fine.properties()
+
+
+def _suspects(scans: dict[str, ValueScan], arrays: dict[str, object]) -> list[dict]:
+    """Values of every property that may mark cells without data, as plain data.
+
+    Each is ``{"property", "kind", "value", "count", "first"}``: kind
+    ``sentinel`` (a value of `upscale.stats.SENTINELS`, given in ``value``),
+    ``negative`` (other negative values), ``zero`` or ``infinite``; ``first``
+    the first few cells as ``{"band", "row", "column"}`` (band from 1, row and
+    column from 0). ky or kz taken from the field repeat kx and are left out,
+    and so are zero porosities (a tight rock).
+    """
+    found = []
     for name, scan in scans.items():
         if name != "kx" and arrays[name] is arrays["kx"]:
-            continue  # ky or kz taken from the field: its problems are those of kx
-        counts = {"negative": scan.negative, "zero": 0 if name == "porosity" else scan.zero,
-                  "infinite": scan.infinite}  # fmt: skip
-        counts = {k: v for k, v in counts.items() if v}
-        if counts:
-            bad.append(", ".join(f"{v} {k}" for k, v in counts.items()) + f" value(s) in {name}")
-        if name == "porosity" and scan.maximum > 1:
-            bad.append(f"porosity up to {scan.maximum:g}, above 1")
-    if bad:
-        click.echo("")
-        click.echo("problems     " + "; ".join(bad) + "; 'upscale run' will refuse what a method cannot take")
+            continue
+        for kind, value, count, first in scan.suspects():
+            if not (kind == "zero" and name == "porosity"):
+                found.append({"property": name, "kind": kind, "value": value, "count": count,
+                              "first": [{"band": c[0] + 1, "row": c[1], "column": c[2]} for c in first]})
+    return found
+
+
+def _suggested(suspects: list[dict]) -> float | None:
+    """The sentinel held by the most cells, the value to give as ``--nodata`` (None if none)."""
+    sentinels = [s for s in suspects if s["kind"] == "sentinel"]
+    return max(sentinels, key=lambda s: s["count"])["value"] if sentinels else None
+
+
+def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: float | None) -> None:
+    """The suspect values one per line, porosity above 1, and one line of advice."""
+    lines = []
+    for s in suspects:
+        cells = where(tuple((c["band"] - 1, c["row"], c["column"]) for c in s["first"]))
+        if s["kind"] == "sentinel":
+            lines.append(f"{s['count']} cell(s) of {s['property']} hold {_shown(s['value'])}, a common "
+                         f"nodata marker; first at {cells}")  # fmt: skip
+        else:
+            lines.append(f"{s['count']} {s['kind']} value(s) in {s['property']}, first at {cells}")
+    if porosity is not None and porosity.maximum > 1:
+        lines.append(f"porosity up to {porosity.maximum:g}, above 1")
+    if not lines:
+        return
+    for label, line in zip(["problems", *[""] * len(lines)], lines):
+        click.echo(f"{label:<13}{line}")
+    if nodata is not None:
+        value = _shown(nodata)
+        click.echo(f"hint         if {value} marks cells without data, give --nodata {value}")
+    elif suspects:
+        click.echo("hint         if these values mark cells without data, give --nodata VALUE; "
+                   "'upscale run' refuses what a method cannot take")
+
+
+def _shown(value: float) -> str:
+    """A value as short as it reads back exactly: ``-9999``, ``1e+30``, ``3.4028234663852886e+38``."""
+    short = f"{value:g}"
+    return short if float(short) == value else repr(value)

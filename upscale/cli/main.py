@@ -4,6 +4,18 @@ Errors a user can fix (an `UpscaleError`, a bad option) print one line on
 stderr and exit with status 2 (input or usage) or 1 (other failures). Any
 other exception is a bug: it prints one line asking for a report, and its
 traceback with ``--debug``.
+
+A reader that stops reading (``upscale info F | head -3``, a pager quit
+early, a log reader that died) ends the command quietly with status 141,
+the 128 + SIGPIPE (13) a shell reports for a command a closed pipe ended —
+whether the pipe was stdout or the progress lines' stderr. Python ignores
+SIGPIPE and raises `BrokenPipeError` instead; letting the default signal
+action kill the process would skip the clean-up of a half-written output
+folder, so the error unwinds like Ctrl-C: what a run had finished is left
+as it was, what it was staging is removed. Before exiting, the console
+script points stdout and stderr at ``os.devnull``, so that the interpreter's
+final flush of what could not be written does not fail again (the advice of
+Python's documentation, "Note on SIGPIPE" in the `signal` module).
 """
 
 from __future__ import annotations
@@ -21,26 +33,24 @@ import click
 
 from ..caution import CAUTION
 from ..errors import UpscaleError
+from .options import global_options
 
 
 @click.group(
     context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
     epilog=f"Caution: {CAUTION}",
 )
-@click.option("-v", "--verbose", count=True,
-              help="More messages: progress lines even when stderr is not a terminal (a log); "
-              "repeat for debug messages.")
-@click.option("-q", "--quiet", is_flag=True, help="Only errors; no progress.")
-@click.option("--debug", is_flag=True, help="Show the traceback of an error.")
+@global_options
 @click.version_option(package_name="upscale", prog_name="upscale")
 @click.pass_context
-def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
+def cli(ctx: click.Context) -> None:
     """Upscale permeability maps and models to coarse simulation grids.
 
     Read a fine permeability raster (GeoTIFF or any raster GDAL reads; one band
     is a 2D map, several bands a 3D model), average it into coarse blocks, and
     write georeferenced coarse GeoTIFFs with a summary.json that records every
-    input, parameter and statistic.
+    input, parameter and statistic. The options -v, -q and --debug may also
+    follow the command.
 
     \b
     Start with:
@@ -48,12 +58,7 @@ def cli(ctx: click.Context, verbose: int, quiet: bool, debug: bool) -> None:
       upscale info demo-fields/marrowfen_lognormal.tif
       upscale run demo-fields/marrowfen_lognormal.tif --block 8x8 --method geometric --out out/
     """
-    level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
-    logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
-    # GDAL's own remarks (through rasterio) are for -vv; damage is reported as one error instead
-    logging.getLogger("rasterio").setLevel(logging.DEBUG if verbose >= 2 else logging.CRITICAL)
-    ctx.ensure_object(dict).update(quiet=quiet, verbose=verbose, debug=debug)
-    ctx.obj.setdefault("command", ["upscale", *sys.argv[1:]])
+    ctx.ensure_object(dict).setdefault("command", ["upscale", *sys.argv[1:]])
 
 
 def _register() -> None:
@@ -74,6 +79,10 @@ _register()
 #: a cache does not pay; GDAL's default (5 % of RAM) would grow with the raster.
 GDAL_CACHE_MB = "64"
 
+#: Exit status when the reader of stdout or stderr went away: 128 + SIGPIPE (13), the status a
+#: shell gives a command ended by SIGPIPE (POSIX, XCU 2.8.2 "Exit Status for Commands").
+CLOSED_PIPE = 141
+
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit status instead of raising.
@@ -85,9 +94,11 @@ def main(argv: list[str] | None = None) -> int:
     """
     os.environ.setdefault("GDAL_CACHEMAX", GDAL_CACHE_MB)  # a user's own setting wins
     args = sys.argv[1:] if argv is None else list(argv)
-    debug = "--debug" in args
     with _terminate_like_interrupt(), _warnings_to_log():
-        return _main(args, debug)
+        try:
+            return _main(args)
+        except BrokenPipeError:  # the reader went away, perhaps while an error was being told
+            return CLOSED_PIPE
 
 
 @contextlib.contextmanager
@@ -130,11 +141,14 @@ def _terminate_like_interrupt() -> Iterator[None]:
         signal.signal(signal.SIGTERM, previous)
 
 
-def _main(args: list[str], debug: bool) -> int:
+def _main(args: list[str]) -> int:
+    settings: dict[str, object] = {"command": ["upscale", *args]}  # -v, -q, --debug join as parsed
     try:
         # make_context and invoke, not cli.main: its handler writes a blank line on Ctrl-C
-        with cli.make_context("upscale", args, obj={"command": ["upscale", *args]}) as ctx:
+        with cli.make_context("upscale", args, obj=settings) as ctx:
             cli.invoke(ctx)
+    except BrokenPipeError:
+        raise  # not a bug: `main` ends quietly
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except click.ClickException as exc:
@@ -149,18 +163,18 @@ def _main(args: list[str], debug: bool) -> int:
         click.echo("upscale: interrupted; nothing was written", err=True)
         return 130
     except UpscaleError as exc:
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo(f"upscale: error: {exc}", err=True)
         return exc.exit_code
     except MemoryError:
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo("upscale: error: out of memory; nothing was written — give a smaller --chunk or "
                    "--check-limit, or --no-check, or run where more memory is free", err=True)  # fmt: skip
         return 1
     except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
-        if debug:
+        if settings.get("debug"):
             raise
         click.echo(
             f"upscale: internal error: {type(exc).__name__}: {exc} "
@@ -173,4 +187,18 @@ def _main(args: list[str], debug: bool) -> int:
 
 def entry_point() -> None:
     """Console-script entry: exit with the status of `main`."""
-    sys.exit(main())
+    status = main()
+    if status == CLOSED_PIPE:
+        _drop_standard_streams()
+    sys.exit(status)
+
+
+def _drop_standard_streams() -> None:
+    """Point stdout and stderr at ``os.devnull``: what is still buffered for a closed pipe goes nowhere."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            os.dup2(devnull, stream.fileno())
+        except (AttributeError, OSError, ValueError):  # not a file, or already closed
+            continue
+    os.close(devnull)

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import logging
 import re
+import sys
 from collections.abc import Callable
 from typing import Any
 
@@ -76,6 +78,47 @@ def parse_bytes(text: str | None) -> int | None:
                                  "such as 400blocks", param_hint="--chunk")  # fmt: skip
     unit = match.group(2).lower() if match.group(2) else None
     return int(float(match.group(1)) * _FACTORS[unit])
+
+
+def global_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """``-v``, ``-q`` and ``--debug``: on the group, before the command, and on every command, after it.
+
+    Either place means the same: the values go into the settings the group
+    and its command share (``ctx.obj``), not into the command's arguments.
+    Every ``-v`` counts wherever it stands (``upscale -v run ... -v`` is
+    ``-vv``); ``-q`` and ``--debug`` hold when given in either place.
+    Logging follows the settings as they are parsed.
+    """
+    options = [
+        click.option("-v", "--verbose", count=True, expose_value=False, callback=_setting,
+                     help="More messages: progress lines even when stderr is not a terminal (a "
+                     "log); repeat for debug messages."),
+        click.option("-q", "--quiet", is_flag=True, expose_value=False, callback=_setting,
+                     help="Only errors; no progress."),
+        click.option("--debug", is_flag=True, expose_value=False, callback=_setting,
+                     help="Show the traceback of an error."),
+    ]  # fmt: skip
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def _setting(ctx: click.Context, param: click.Parameter, value: int | bool) -> None:
+    """Add one global option's value (from the group or the command) to the shared settings."""
+    settings = ctx.ensure_object(dict)
+    if param.name == "verbose":
+        settings["verbose"] = settings.get("verbose", 0) + value
+    else:
+        settings[param.name] = settings.get(param.name, False) or value
+    _log_at(settings.get("verbose", 0), settings.get("quiet", False))
+
+
+def _log_at(verbose: int, quiet: bool) -> None:
+    """Send log messages to stderr: errors only when quiet, warnings, or more with each ``-v``."""
+    level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
+    logging.basicConfig(level=level, format="upscale: %(message)s", stream=sys.stderr, force=True)
+    # GDAL's own remarks (through rasterio) are for -vv; damage is reported as one error instead
+    logging.getLogger("rasterio").setLevel(logging.DEBUG if verbose >= 2 else logging.CRITICAL)
 
 
 def field_options(command: Callable[..., Any]) -> Callable[..., Any]:

@@ -13,7 +13,7 @@ from ..export.package import unit_factors
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..job import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from .options import check_options, field_options, parse_chunk, read_options, recorded
+from .options import check_options, field_options, global_options, parse_chunk, read_options, recorded
 from .progress import progress, teller
 from .report import print_ensemble, print_result
 
@@ -62,6 +62,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
               help="Output folder (created; must be empty unless --overwrite). For several fields, "
               "one sub-folder per field plus ensemble.json and ensemble.csv.")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
+@global_options
 @click.pass_context
 def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exponent: float | None,
         bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,

@@ -62,6 +62,9 @@ def staged_folder(
         If `folder` holds files and `overwrite` is False.
     OutputError
         If a file cannot be written; the destination is then left as it was.
+        A `BrokenPipeError` raised inside the block (the reader of the
+        progress lines went away) passes through as itself, with the same
+        clean-up.
     """
     folder = Path(folder)
     check_destination(folder, overwrite)
@@ -74,6 +77,8 @@ def staged_folder(
     try:
         try:
             yield stage
+        except BrokenPipeError:
+            raise  # the reader of the progress lines went away: not a failure to write here
         except OSError as exc:
             raise OutputError(
                 f"writing {folder} failed ({exc.strerror or exc}); nothing was changed there"
