@@ -230,7 +230,8 @@ def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(comp
     assert ensemble["command"] == compared["command"]
     assert ensemble["caution"] == CAUTION and ensemble["percentiles"] == PERCENTILE_NOTE
     assert ensemble["axes"] == AXES
-    assert ensemble["block"] == {"x": 8, "y": 8, "z": 1, "remainder": "stop", "min_active": 0.0}
+    assert ensemble["block"] == {"x": 8, "y": 8, "z": 1, "remainder": "stop", "min_active": 0.0,
+                                 "zero_k": "auto"}
     assert ensemble["realizations"] == [
         {"name": name, "path": str(realizations / f"{name}.tif"),
          "sha256": hashlib.sha256((realizations / f"{name}.tif").read_bytes()).hexdigest()}

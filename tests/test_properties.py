@@ -53,6 +53,7 @@ examples each time.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import dask
@@ -211,6 +212,7 @@ def test_cardwell_parsons_inner_chain_with_inactive_cells(case):
     # engine's common convention): 0 <= tubes <= sealed <= slabs; the averages skip inactive
     # cells, so the Wiener bounds do not apply here.
     field, spec = case.field, case.spec
+    spec = dataclasses.replace(spec, zero_k="keep")  # the methods' own zeros
     got = {name: coarsen(field, spec, name).coarse for name in ("tubes", "slabs", "flow",
                                                                  "renormalization")}  # fmt: skip
     for prop in _axes(field).values():
@@ -300,7 +302,8 @@ def test_periodic_block_cut_by_a_staircase_gets_exactly_zero():
     # column 1, row 1 at column 0, and the only vertical links are at columns 2 and 3).
     k = np.array([[20.0, np.nan, 20.0, 20.0], [np.nan, 20.0, 20.0, 20.0]])
     for cell in ((1.0, 1.0), (1.0, 2.0)):
-        result = coarsen(Field.from_arrays(k, cell_size=cell), "4x2", "flow", bc="periodic")
+        result = coarsen(Field.from_arrays(k, cell_size=cell), BlockSpec(4, 2, zero_k="keep"), "flow",
+                         bc="periodic")
         assert result.coarse.ky[0, 0, 0] == pytest.approx(10.0, rel=1e-12)
         assert result.coarse.kx[0, 0, 0] == 0.0  # was 5.6e-15 (1x1 cells), 1.7e-14 (k x 3, 1x2)
 
@@ -317,7 +320,8 @@ def test_dead_end_block_with_a_border_does_not_depend_on_rounding():
     N = np.nan
     k = np.array([[N, 20.0, 20.0, N, 20.0, 20.0], [N, 20.0, 20.0, 20.0, 20.0, 20.0],
                   [20.0, 20.0, 20.0, N, 20.0, 20.0], [20.0, N, 20.0, 20.0, N, 20.0]])  # fmt: skip
-    values = {(c, cell): coarsen(Field.from_arrays(c * k, cell_size=(cell, cell)), "2x1", "flow",
+    spec = BlockSpec(2, 1, zero_k="keep")
+    values = {(c, cell): coarsen(Field.from_arrays(c * k, cell_size=(cell, cell)), spec, "flow",
                                  border=2).coarse.kx[0, 3, 1] / c
               for c in (1.0, 1.5) for cell in (1.0, 50.0)}  # fmt: skip
     assert set(values.values()) == {0.0}, values  # was {20.0, 13.33, 0.0}

@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from .field import Field
+from .zeros import ZeroOutcome
 
 #: Off-diagonal size (relative to the diagonal) above which a run carries a warning:
 #: our choice, documented in docs/methods.md — a tenth of the diagonal changes fluxes
@@ -23,7 +24,7 @@ from .field import Field
 OFF_DIAGONAL_WARNING = 0.1
 
 
-def tensors(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> np.ndarray:
+def tensors(coarse: Field, off_diagonal: dict[str, np.ndarray], skip: np.ndarray | None = None) -> np.ndarray:
     """Full tensors of the active blocks, shape (B, d, d), axes in the order x, y (, z).
 
     Parameters
@@ -32,9 +33,11 @@ def tensors(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> np.ndarray:
         Coarse field (the diagonal terms kx, ky, kz).
     off_diagonal : dict of str to ndarray
         Off-diagonal terms by name (``kxy`` ...); missing ones are 0.
+    skip : ndarray of bool, optional
+        Blocks to leave out, shaped like the coarse grid.
     """
     axes = coarse.axes
-    active = np.isfinite(coarse.kx)
+    active = np.isfinite(coarse.kx) if skip is None else np.isfinite(coarse.kx) & ~skip
     K = np.zeros((int(active.sum()), len(axes), len(axes)))
     for i, b in enumerate(axes):
         for j, a in enumerate(axes):
@@ -45,8 +48,12 @@ def tensors(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> np.ndarray:
     return K
 
 
-def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> dict[str, Any]:
+def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray],
+                   zeros: ZeroOutcome | None = None) -> dict[str, Any]:  # fmt: skip
     """Anisotropy and off-diagonal statistics over the active blocks.
+
+    Blocks the zero-k rule floored are left out (their floor is no upscaled
+    value); ``blocks_without_path`` counts what the method found before the rule.
 
     Returns
     -------
@@ -66,10 +73,12 @@ def tensor_summary(coarse: Field, off_diagonal: dict[str, np.ndarray]) -> dict[s
     >>> round(s["off_diagonal_max"], 3), s["blocks_above_warning"]
     (0.5, 1)
     """
-    K = tensors(coarse, off_diagonal)
+    K = tensors(coarse, off_diagonal, None if zeros is None else zeros.touched)
     if K.shape[0] == 0:
         return {"blocks": 0}
     without = {axis: int((K[:, i, i] == 0).sum()) for i, axis in enumerate(coarse.axes)}
+    if zeros is not None and zeros.found:
+        without = {axis: zeros.found[f"k{axis}"] for axis in coarse.axes}
     eig = np.linalg.eigvalsh(0.5 * (K + np.swapaxes(K, 1, 2)))
     positive = eig[:, 0] > 0
     ratio = eig[positive, -1] / eig[positive, 0]

@@ -25,6 +25,7 @@ from .methods.flow_based import TENSOR
 from .methods.registry import Method, get_method
 from .parallel import apply_blocks, compute_together
 from .stats import ValueScan, scan_values, where
+from .zeros import ZeroOutcome, apply_zero_rule
 
 log = logging.getLogger(__name__)
 
@@ -57,6 +58,9 @@ class Upscaled:
         Fine cells dropped by cropping.
     lost_pore_volume : float
         Pore volume (m³) of blocks made inactive by ``min_active``; 0 without porosity.
+    zeros : ZeroOutcome
+        What the block partition's zero-k rule did to blocks with k = 0 along
+        some axis (`upscale.zeros`): made inactive, floored or kept.
     tensor : dict of str to ndarray
         Off-diagonal permeability terms (``kxy`` ... , unit of k) of full-tensor
         methods: ``kxy`` is the flux along x per unit gradient along y.
@@ -82,6 +86,7 @@ class Upscaled:
     fine_stats: dict[str, ValueScan] = field(default_factory=dict)
     dropped_cells: int = 0
     lost_pore_volume: float = 0.0
+    zeros: ZeroOutcome = field(default_factory=lambda: ZeroOutcome("keep"))
     tensor: dict[str, np.ndarray] = field(default_factory=dict)
     faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
     boundary: tuple[tuple[np.ndarray, np.ndarray], ...] | None = None
@@ -177,12 +182,13 @@ def coarsen(
     cell_area = fine.grid.dx[0] * fine.grid.dy[0]
     fraction = np.clip(computed.pop("_active") * cell_area / coarse_grid.cell_volumes(), 0.0, 1.0)
     inactive = (fraction == 0) | (fraction < spec.min_active * (1 - 1e-12))
-    lost = 0.0
-    if "porosity" in computed:
-        pore = computed["porosity"] * coarse_grid.cell_volumes()
-        lost = float(pore[inactive].sum())
+    pore = computed["porosity"] * coarse_grid.cell_volumes() if "porosity" in computed else None
+    lost = float(pore[inactive].sum()) if pore is not None else 0.0
     tensor = _tensor_terms(computed.pop("_tensor"), fine.ndim, computed) if chosen.local else {}
     faces = computed.pop("_faces", None)
+    names = [PERMEABILITY[a] for a in fine.axes]
+    floored, inactive, zeros = apply_zero_rule(spec, {name: computed[name] for name in names}, inactive, pore)
+    computed.update(floored)
     for values in (*computed.values(), *tensor.values()):
         values[inactive] = np.nan
 
@@ -199,7 +205,7 @@ def coarsen(
     if faces is not None:
         faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
-    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost,
+    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost, zeros,
                     tensor, faces, boundary, replaced)  # fmt: skip
 
 

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .errors import InputError
 from .grid import BlockSpec
 from .grid.blocks import RELATIVE_FLOOR
 
@@ -38,6 +39,10 @@ class ZeroOutcome:
         Per permeability, active blocks left with k = 0 (rule ``keep``).
     pore_volume_removed : float
         Pore volume (m³) of the blocks made inactive; 0 without porosity.
+    found : dict of str to int
+        Per permeability, the active blocks the method gave k = 0, before the rule.
+    touched : ndarray of bool or None
+        The blocks the rule made inactive or floored (shape of the coarse grid).
     """
 
     rule: str
@@ -46,6 +51,8 @@ class ZeroOutcome:
     floor: dict[str, float] = field(default_factory=dict)
     kept: dict[str, int] = field(default_factory=dict)
     pore_volume_removed: float = 0.0
+    found: dict[str, int] = field(default_factory=dict)
+    touched: np.ndarray | None = field(default=None, repr=False)
 
     def summary(self) -> dict:
         """As plain data for ``summary.json``."""
@@ -59,12 +66,12 @@ class ZeroOutcome:
         }
 
     def line(self, unit: str) -> str | None:
-        """One sentence on what the rule touched (None when it touched nothing).
+        """What the rule touched, in one line (None when it touched nothing).
 
         Examples
         --------
         >>> ZeroOutcome("auto", 2, {"kx": 1}, {"kx": 1e-4}, {}, 12.5).line("mD")
-        'zero k (rule auto): 2 blocks made inactive (pore volume 12.5 m³ taken out); 1 block floored at 0.0001 mD along x'
+        '2 blocks made inactive (pore volume 12.5 m³ taken out); 1 block floored at 0.0001 mD along x'
         """
         parts = []
         if self.inactive_blocks:
@@ -74,7 +81,7 @@ class ZeroOutcome:
         parts += [f"{_blocks(n)} floored at {self.floor[name]:.4g} {unit} along {name[1]}"
                   for name, n in self.floored.items() if n]  # fmt: skip
         parts += [f"{_blocks(n)} left at k = 0 along {name[1]}" for name, n in self.kept.items() if n]
-        return f"zero k (rule {self.rule}): " + "; ".join(parts) if parts else None
+        return "; ".join(parts) or None
 
 
 def _blocks(n: int) -> str:
@@ -85,7 +92,6 @@ def apply_zero_rule(
     spec: BlockSpec,
     permeabilities: dict[str, np.ndarray],
     inactive: np.ndarray,
-    fine_geometric_means: dict[str, float],
     pore_volume: np.ndarray | None,
 ) -> tuple[dict[str, np.ndarray], np.ndarray, ZeroOutcome]:
     """Apply the block partition's zero-k rule to the coarse permeabilities.
@@ -99,9 +105,6 @@ def apply_zero_rule(
         in 3D; unit of k), before inactive blocks are set to NaN.
     inactive : ndarray of bool, shape (L', M', N')
         Blocks already inactive (no active cell, or below ``min_active``).
-    fine_geometric_means : dict of str to float
-        Geometric mean of the fine values of each permeability (unit of k),
-        for the floor relative to the field.
     pore_volume : ndarray of shape (L', M', N') or None
         Pore volume of each block (m³), if porosity was given.
 
@@ -116,16 +119,21 @@ def apply_zero_rule(
     Examples
     --------
     >>> k = {"kx": np.array([[[0.0, 5.0, 0.0]]]), "ky": np.array([[[0.0, 0.0, 2.0]]])}
-    >>> new, off, outcome = apply_zero_rule(BlockSpec(2, 2), k, np.zeros((1, 1, 3), bool),
-    ...                                     {"kx": 2e6, "ky": 5e5}, None)
-    >>> off.tolist(), new["kx"].tolist(), new["ky"].tolist()
-    ([[[True, False, False]]], [[[0.0, 5.0, 2.0]]], [[[0.0, 0.5, 2.0]]])
+    >>> new, off, outcome = apply_zero_rule(BlockSpec(2, 2), k, np.zeros((1, 1, 3), bool), None)
+    >>> off.tolist(), new["kx"].tolist(), new["ky"].tolist()   # floors: 5 / 1000 and 2 / 1000
+    ([[[True, False, False]]], [[[0.0, 5.0, 0.005]]], [[[0.0, 0.002, 2.0]]])
+
+    Raises
+    ------
+    InputError
+        If a zero is to be raised to a floor relative to the coarse model
+        and no active block passes flow along any axis.
     """
     rule, floor = spec.zero_rule
     zero = {name: (values == 0) & ~inactive for name, values in permeabilities.items()}
+    found = {name: int(where.sum()) for name, where in zero.items()}
     if rule == "keep":
-        kept = {name: int(where.sum()) for name, where in zero.items()}
-        return dict(permeabilities), inactive, ZeroOutcome(spec.zero_k, kept=kept)
+        return dict(permeabilities), inactive, ZeroOutcome(spec.zero_k, kept=found, found=found)
     if rule == "auto":  # no flow along any axis: nothing to keep the block for
         dropped = np.logical_and.reduce(list(zero.values()))
     elif rule == "inactive":
@@ -133,11 +141,28 @@ def apply_zero_rule(
     else:
         dropped = np.zeros_like(inactive)
     raised = {name: where & ~dropped for name, where in zero.items()}
-    floors = {name: floor if floor is not None else RELATIVE_FLOOR * fine_geometric_means[name]
+    floors = {name: floor if floor is not None else RELATIVE_FLOOR * _tightest(permeabilities, name, inactive)
               for name, where in raised.items() if where.any()}  # fmt: skip
     floored = {name: np.where(raised[name], floors[name], values) if name in floors else values
                for name, values in permeabilities.items()}  # fmt: skip
     removed = float(pore_volume[dropped].sum()) if pore_volume is not None else 0.0
+    touched = np.logical_or.reduce([dropped, *raised.values()])
     outcome = ZeroOutcome(spec.zero_k, int(dropped.sum()), {n: int(raised[n].sum()) for n in floors}, floors,
-                          pore_volume_removed=removed)  # fmt: skip
+                          pore_volume_removed=removed, found=found, touched=touched)  # fmt: skip
     return floored, inactive | dropped, outcome
+
+
+def _tightest(permeabilities: dict[str, np.ndarray], name: str, inactive: np.ndarray) -> float:
+    """The smallest positive k of the active blocks along `name`'s axis, else along any axis.
+
+    A minimum does not depend on the order of summation, so the floor is the
+    same bit for bit however the field was chunked (a mean would not be).
+    """
+    for values in (permeabilities[name], *permeabilities.values()):
+        flowing = values[~inactive & (values > 0)]
+        if flowing.size:
+            return float(flowing.min())
+    raise InputError(
+        "no active block passes flow along any axis, so the zero-k rule has no floor to take; "
+        "give one (floor:VALUE) or keep the zeros (keep)"
+    )

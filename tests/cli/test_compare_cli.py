@@ -96,7 +96,8 @@ def test_compare_json_agrees_with_each_method_run_alone(lognormal_compare, run_c
     by_method = {m["method"]: m for m in found["methods"]}
     assert sorted(by_method) == sorted(AGREEMENT_METHODS)
     assert found["inputs"][0]["sha256"] == _sha256(field)
-    assert found["block"] == {"x": 16, "y": 16, "z": 1, "remainder": "stop", "min_active": 0.0}
+    assert found["block"] == {"x": 16, "y": 16, "z": 1, "remainder": "stop", "min_active": 0.0,
+                              "zero_k": "auto"}
     assert sorted(found["files"]) == sorted(
         [f"figures/{n}.{kind}" for n in FIGURES_2D for kind in ("png", "svg")] + ["report.html"]
     )

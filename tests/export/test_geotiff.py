@@ -200,7 +200,8 @@ def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_in
     ]
     assert summary["unit"] == "mD"
     assert summary["method"] == {"name": "power", "options": {"exponent": 0.5}}
-    assert summary["block"] == {"x": 8, "y": 4, "z": 1, "remainder": "crop", "min_active": 0.25}
+    assert summary["block"] == {"x": 8, "y": 4, "z": 1, "remainder": "crop", "min_active": 0.25,
+                                  "zero_k": "auto"}
     assert summary["dimensions"] == 2
     assert summary["fine"]["shape"] == {"layers": 1, "rows": 32, "columns": 48}
     assert summary["coarse"]["shape"] == {"layers": 1, "rows": 8, "columns": 6}

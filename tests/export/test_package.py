@@ -129,8 +129,12 @@ def package(inputs, tmp_path_factory):
         key = (dim, method, units, extra)
         if key not in folders:
             out = tmp_path_factory.mktemp("package") / f"{dim}-{method}-{units}"
+            # zeros kept, so the walled-in block stays active and isolated whatever the method
+            # (the border of the flow methods makes it a dead end: k = 0, which --zero-k auto
+            # would make inactive; the rule is tested in tests/test_zeros.py)
             args = ["-q", "run", *inputs.args[dim], "--method", method, *METHODS[method],
-                    "--units", units, "--solver", "direct", *extra, "--out", out]  # fmt: skip
+                    "--units", units, "--solver", "direct", "--zero-k", "keep", *extra,
+                    "--out", out]  # fmt: skip
             assert main([str(a) for a in args]) == 0
             folders[key] = out
         return folders[key]

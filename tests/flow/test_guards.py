@@ -504,8 +504,8 @@ def test_a_library_warning_mid_run_is_a_debug_line_not_terminal_noise(tmp_path):
               "logging.basicConfig(level=int(sys.argv[1]), format='upscale: %(message)s')\n"
               "with _warnings_to_log():\n"
               "    np.mean(np.array([]))\n")  # fmt: skip
-    quiet, debug = (subprocess.run([sys.executable, "-c", script, str(level)], capture_output=True,
-                                   text=True, timeout=60) for level in (logging.WARNING, logging.DEBUG))  # fmt: skip
+    quiet, debug = (subprocess.run([sys.executable, "-c", script, str(level)], capture_output=True, text=True,
+                                   timeout=60) for level in (logging.WARNING, logging.DEBUG))  # fmt: skip
     assert (quiet.returncode, quiet.stderr) == (0, "")
     lines = debug.stderr.splitlines()
     assert lines and all(line.startswith("upscale: RuntimeWarning from ") for line in lines), lines
@@ -523,7 +523,8 @@ def test_periodic_block_cut_by_nodata_passes_the_check(write_tif, run_cli, tmp_p
     code, _, err = run_cli("run", path, "--block", "6x1", "--method", "flow", "--bc", "periodic",
                            "--out", tmp_path / "out")  # fmt: skip
     assert (code, err) == (0, "")
-    coarse = coarsen(Field.from_arrays(np.where(k == ND, np.nan, k)), "6x1", "flow", bc="periodic")
+    coarse = coarsen(Field.from_arrays(np.where(k == ND, np.nan, k)), BlockSpec(6, 1, zero_k="keep"), "flow",
+                     bc="periodic")
     np.testing.assert_array_equal(coarse.coarse.kx, 0.0)
 
 

@@ -69,6 +69,9 @@ from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.local import PERIODIC
 from upscale.methods.flow_based import _tensor
 
+#: 4x4 blocks that keep the zeros the methods give (the zero-k rule is tested in tests/test_zeros.py)
+KEEP_ZEROS = BlockSpec(4, 4, zero_k="keep")
+
 CONDITIONS = ("sealed", "linear", "periodic")
 SETTINGS = settings(max_examples=30, deadline=None, database=None)
 N = np.nan
@@ -653,7 +656,7 @@ def test_block_cut_across_x_gets_zero_kx_when_sealed(barrier):
     k = np.exp(np.random.default_rng(0).normal(1.0, 1.0, (8, 16)))
     k[:, 5] = barrier  # cuts the blocks of columns 4-7 along x
     k[0:4, 8:12] = N  # a whole inactive block
-    result = coarsen(Field.from_arrays(k), "4x4", "flow", bc="sealed")
+    result = coarsen(Field.from_arrays(k), KEEP_ZEROS, "flow", bc="sealed")
     c = result.coarse
     assert np.all(c.kx[0, :, 1] == 0.0)
     assert np.all(c.ky[0, :, 1] > 0.0)
@@ -840,7 +843,7 @@ def test_no_negative_permeability_with_border_and_inactive_cells(bc):
 def test_periodic_block_cut_along_y_gets_exactly_zero():
     k = np.array([[0.41, 10.36, 40.54, 1.74], [N, N, N, N], [11.1, N, N, 0.95],
                   [6.01, 0.67, 6.89, 0.39], [1.16, 7.56, N, 24.28]])  # fmt: skip
-    result = coarsen(Field.from_arrays(k, ky=2.0 * k), "4x5", "flow", bc="periodic")
+    result = coarsen(Field.from_arrays(k, ky=2.0 * k), BlockSpec(4, 5, zero_k="keep"), "flow", bc="periodic")
     assert result.coarse.kx[0, 0, 0] > 0
     assert result.coarse.ky[0, 0, 0] == 0.0
     assert _term(result, "kxy")[0, 0, 0] == 0.0 and _term(result, "kyx")[0, 0, 0] == 0.0
@@ -857,8 +860,9 @@ def test_periodic_3d_block_cut_across_x_keeps_its_y_z_tensor():
     pattern = np.where((zz + yy) % 4 < 2, 100.0, 1.0)
     k = np.broadcast_to(pattern[:, :, None], (4, 4, 4)).copy()
     k[:, :, 0] = N
-    block = coarsen(Field.from_arrays(k, dz=np.ones(4)), "4x4x4", "flow", bc="periodic")
-    slice_ = coarsen(Field.from_arrays(pattern.T.copy()), "4x4", "flow", bc="periodic")
+    block = coarsen(Field.from_arrays(k, dz=np.ones(4)), BlockSpec(4, 4, 4, zero_k="keep"), "flow",
+                    bc="periodic")
+    slice_ = coarsen(Field.from_arrays(pattern.T.copy()), KEEP_ZEROS, "flow", bc="periodic")
     assert block.coarse.kx[0, 0, 0] == 0.0
     assert block.coarse.ky[0, 0, 0] == pytest.approx(0.75 * slice_.coarse.ky[0, 0, 0], rel=1e-12)
     assert block.coarse.kz[0, 0, 0] == pytest.approx(0.75 * slice_.coarse.kx[0, 0, 0], rel=1e-12)
@@ -899,7 +903,8 @@ def test_periodic_block_fed_and_drained_across_one_plane_has_no_net_flow():
     k = np.array([[0.692, 0.06, N, 2.62, N, N], [N, N, N, 1.863, 2.772, 0.028],
                   [N, 7.984, N, 0.348, 0.091, 29.03],
                   [0.331, 0.165, 4.821, 16.11, 3.538, 11.99]])  # fmt: skip
-    results = [coarsen(Field.from_arrays(c * k), "3x2", "flow", bc="periodic", border=2)
+    spec = BlockSpec(3, 2, zero_k="keep")
+    results = [coarsen(Field.from_arrays(c * k), spec, "flow", bc="periodic", border=2)
                for c in (1.0, 3.7, 1e-5, 1e5)]  # fmt: skip
     for c, result in zip((1.0, 3.7, 1e-5, 1e5), results):
         assert result.coarse.ky[0, 0, 0] == 0.0 and result.coarse.ky[0, 1, 0] == 0.0

@@ -14,13 +14,12 @@ from ..errors import InputError
 from ..export import check_destination
 from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
-from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import read_field
 from ..job import compare_ensemble, refuse_comparison
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
-from .options import (check_options, field_options, global_options, parse_chunk, read_options,
-                      recorded)
+from .options import (block_options, block_spec, check_options, field_options, global_options, parse_chunk,
+                      read_options, recorded)
 from .progress import teller
 from .report import number, print_spread, table
 
@@ -31,8 +30,7 @@ def _methods(text: str | None) -> list[str] | None:
 
 @click.command(epilog=f"Caution: {CAUTION}")
 @click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("--block", required=True, metavar="NXxNY[xNZ]",
-              help="Fine cells per coarse block, x (columns) first.")
+@block_options
 @click.option("--methods", default=None, metavar="A,B,...",
               help=f"Methods to compare (default: all): {', '.join(METHODS)}. 'flow' without --bc "
               "stands for its three boundary conditions.")
@@ -42,10 +40,6 @@ def _methods(text: str | None) -> list[str] | None:
               help="Boundary conditions of the flow methods [default: all three for flow].")
 @click.option("--border", type=int, default=None, metavar="CELLS",
               help="Border of the flow methods' local solves, in fine cells [default: 0].")
-@click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop", show_default=True,
-              help="When the grid does not divide into whole blocks: stop, crop or keep edge blocks.")
-@click.option("--min-active", type=click.FloatRange(0, 1), default=0.0, show_default=True,
-              help="Blocks whose active volume fraction is below this become inactive.")
 @click.option("--layer", type=click.IntRange(min=1), default=None,
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @field_options
@@ -59,10 +53,10 @@ def _methods(text: str | None) -> list[str] | None:
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @global_options
 @click.pass_context
-def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str | None,
-            exponent: float | None, bc: str | None, border: int | None, remainder: str, min_active: float,
-            layer: int | None, chunk: str | None, solver: str, tolerance: float, check_limit: int,
-            out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
+            bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
+            tolerance: float, check_limit: int, out: str, overwrite: bool,
+            **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
     Several FIELDs or a glob (an ensemble of realizations on one grid): the
@@ -84,7 +78,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], block: str, methods: str
     """
     check_destination(out, overwrite)
     chosen = candidates(_methods(methods), bc=bc, border=border, exponent=exponent)
-    spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
+    spec = block_spec(options)
     read = read_options(options)
     say = teller(ctx)
     paths = expand(list(field))
@@ -129,6 +123,13 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
     click.echo(table(header, rows))
     click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop)")
+    touched: dict[str, list[str]] = {}
+    for e in entries:
+        line = e.result.zeros.line(unit) if e.result is not None else None
+        if line:
+            touched.setdefault(f"{line} (--zero-k {e.result.zeros.rule})", []).append(e.candidate.label)
+    for line, labels in touched.items():
+        click.echo(f"zero k: {', '.join(labels)}: {line}")
     compiling = sum(e.compiling for e in entries)
     if compiling >= 0.5:
         click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "

@@ -12,6 +12,7 @@ import click
 
 from ..check import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
+from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
 from ..units import UNITS
 
@@ -149,6 +150,37 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
     for option in reversed(options):
         command = option(command)
     return command
+
+
+def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The block partition and its rules (shared by run and compare); see `block_spec`."""
+    options = [
+        click.option("--block", required=True, metavar="NXxNY[xNZ]",
+                     help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
+                     "8x8x2 adds 2 layers."),
+        click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop",
+                     show_default=True, help="When the grid does not divide into whole blocks: stop "
+                     "with an error, crop the last cells, or keep smaller edge blocks."),
+        click.option("--min-active", type=click.FloatRange(0, 1), default=0.0, show_default=True,
+                     help="Blocks whose active volume fraction is below this become inactive."),
+        click.option("--zero-k", default="auto", show_default=True,
+                     metavar="auto|inactive|floor[:K]|keep",
+                     help="Blocks upscaled to k = 0 along some axis (no path across them), which many "
+                     "simulators refuse: auto makes blocks with k = 0 along every axis inactive and "
+                     "raises a zero along some axes only to the floor; inactive makes every such "
+                     "block inactive; floor raises every zero to K (unit of k; default a thousandth "
+                     "of the smallest positive k of the blocks along that axis); keep leaves the "
+                     "zeros."),
+    ]  # fmt: skip
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def block_spec(options: dict[str, Any]) -> BlockSpec:
+    """Turn the values of `block_options` into the `BlockSpec` they describe."""
+    return BlockSpec.parse(options.pop("block"), remainder=options.pop("remainder"),
+                           min_active=options.pop("min_active"), zero_k=options.pop("zero_k"))  # fmt: skip
 
 
 def check_options(command: Callable[..., Any]) -> Callable[..., Any]:

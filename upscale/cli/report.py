@@ -58,6 +58,9 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
     if result.dropped_cells:
         click.echo(f"cropped      {result.dropped_cells} fine cells beyond the last whole block")
+    zeros = result.zeros.line(fine.unit)
+    if zeros:
+        click.echo(f"zero k       {zeros} (--zero-k {result.zeros.rule})")
     stats = summary["statistics"]
     rows = []
     for name in coarse.properties():
@@ -82,7 +85,7 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
             click.echo(f"warning: {tensor['warning']}")
         closed = {a: n for a, n in tensor["blocks_without_path"].items() if n}
         if closed:
-            click.echo("blocks with no flowing path (value 0): "
+            click.echo("blocks with no flowing path across: "
                        + ", ".join(f"{n} along {a}" for a, n in closed.items()))  # fmt: skip
     faces = summary.get("transmissibility")
     if faces and faces["rule"] != "harmonic half-block":

@@ -10,10 +10,10 @@ from ..ensemble import expand
 from ..errors import InputError
 from ..export import check_destination
 from ..export.package import unit_factors
-from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..job import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from .options import check_options, field_options, global_options, parse_chunk, read_options, recorded
+from .options import (block_options, block_spec, check_options, field_options, global_options, parse_chunk,
+                      read_options, recorded)
 from .progress import progress, teller
 from .report import print_ensemble, print_result
 
@@ -22,9 +22,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 
 @click.command(epilog=f"Caution: {CAUTION}")
 @click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("--block", required=True, metavar="NXxNY[xNZ]",
-              help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
-              "8x8x2 adds 2 layers.")
+@block_options
 @click.option("--method", required=True, type=click.Choice(list(METHODS)), help=_METHOD_HELP)
 @click.option("--exponent", type=float, default=None, help="Exponent ω of the power average.")
 @click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
@@ -32,11 +30,6 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--border", type=int, default=None, metavar="CELLS",
               help="Fine cells of surrounding rock added on every side of each block in the "
               "local solves of the flow methods [default: 0].")
-@click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop", show_default=True,
-              help="When the grid does not divide into whole blocks: stop with an error, crop "
-              "the last cells, or keep smaller edge blocks.")
-@click.option("--min-active", type=click.FloatRange(0, 1), default=0.0, show_default=True,
-              help="Blocks whose active volume fraction is below this become inactive.")
 @field_options
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks); bounds "
@@ -64,8 +57,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
 @global_options
 @click.pass_context
-def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exponent: float | None,
-        bc: str | None, border: int | None, remainder: str, min_active: float, chunk: str | None,
+def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float | None,
+        bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
         tolerance: float, check_limit: int, units: str, workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
@@ -90,7 +83,7 @@ def run(ctx: click.Context, field: tuple[str, ...], block: str, method: str, exp
     check_destination(out, overwrite)
     if (plot or html_report) and no_check:
         raise InputError("--plot and --report show the flow check; leave out --no-check")
-    spec = BlockSpec.parse(block, remainder=remainder, min_active=min_active)
+    spec = block_spec(options)
     unit_factors(str(options["unit"]), units)  # refuses field units for a conductivity, early
     read = read_options(options)
     settings = Settings(

@@ -25,8 +25,9 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
     Per method: ``name`` (label), ``method``, ``parameters``, ``rank`` (null if it
     failed), ``error`` (why it failed, or null), ``seconds`` (without compiling
     kernels), ``compile_seconds`` (compiling kernels on first use), ``coarse_mean`` (per
-    permeability, over active blocks) and ``check`` — per axis the same
-    structure as the ``check`` of ``summary.json``. ``best`` names the top method,
+    permeability, over active blocks), ``check`` — per axis the same
+    structure as the ``check`` of ``summary.json`` — and ``zero_k`` (what the
+    zero-k rule did, as ``active.zero_k`` of ``summary.json``). ``best`` names the top method,
     ``best_along`` the best one along each axis.
     """
     fine = comparison.fine
@@ -42,6 +43,7 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
             "compile_seconds": entry.compiling,
             "coarse_mean": None,
             "check": None,
+            "zero_k": None,
         }
         if entry.result is not None:
             coarse = entry.result.coarse
@@ -49,6 +51,7 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
                 PERMEABILITY[a]: float(np.nanmean(getattr(coarse, PERMEABILITY[a]))) for a in fine.axes
             }
             item["check"] = {axis: check.summary() for axis, check in entry.checks.items()}
+            item["zero_k"] = entry.result.zeros.summary()
         methods.append(item)
     spec = comparison.block
     return jsonable({
@@ -59,8 +62,7 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
                     "sha256": s.sha256} for s in fine.sources],
         "read": read,
         "unit": fine.unit,
-        "block": {"x": spec.nx, "y": spec.ny, "z": spec.nz, "remainder": spec.remainder,
-                  "min_active": spec.min_active},
+        "block": spec.summary(),
         "dimensions": fine.ndim,
         "fine": grid_summary(fine.grid),
         "ranking": "largest |rel_error| over the axes, smallest first",

@@ -114,13 +114,7 @@ def build_summary(
         "read": read,
         "unit": fine.unit,
         "method": {"name": result.method, "options": result.options},
-        "block": {
-            "x": spec.nx,
-            "y": spec.ny,
-            "z": spec.nz,
-            "remainder": spec.remainder,
-            "min_active": spec.min_active,
-        },
+        "block": spec.summary(),
         "dimensions": fine.ndim,
         "fine": grid_summary(fine.grid),
         "coarse": grid_summary(coarse.grid),
@@ -130,6 +124,7 @@ def build_summary(
             "coarse_blocks_inactive": int(coarse.kx.size - active_blocks),
             "dropped_cells": result.dropped_cells,
             "lost_pore_volume_m3": result.lost_pore_volume,
+            "zero_k": result.zeros.summary(),
         },
         "statistics": {
             "fine": {name: scan.summary() for name, scan in result.fine_stats.items()},
@@ -143,7 +138,7 @@ def build_summary(
         "caution": CAUTION,
     }
     if METHODS[result.method].local:
-        summary["tensor"] = tensor_summary(coarse, result.tensor)
+        summary["tensor"] = tensor_summary(coarse, result.tensor, result.zeros)
         summary["transmissibility"] = {
             "rule": "two-block flow solves" if result.faces is not None else "harmonic half-block",
             "replaced_faces": result.replaced_faces,

@@ -18,10 +18,10 @@ active cell with k = 0 (applied by `upscale.zeros`):
   along the others;
 * ``inactive``: a block with k = 0 along any axis becomes inactive;
 * ``floor`` or ``floor:VALUE``: every zero becomes VALUE (unit of k; positive
-  values are left as they are); without VALUE, 1e-6 times the geometric
-  mean of the fine values of that permeability — a contrast of a million,
-  far tighter than any block that carries flow, and a value that scales
-  with the unit of k (our choice);
+  values are left as they are); without VALUE, a thousandth of the
+  smallest positive k of the active blocks along that axis — tighter than
+  every block that carries flow, and a value that scales with the unit of k
+  and does not depend on how the field was chunked (our choice);
 * ``keep``: zeros stay (for simulators that accept them).
 """
 
@@ -40,8 +40,8 @@ from ..field import Grid
 
 REMAINDER_POLICIES = ("stop", "crop", "keep")
 ZERO_RULES = ("auto", "inactive", "floor", "keep")
-#: The floor of ``floor`` and ``auto`` without a value, relative to the fine geometric mean.
-RELATIVE_FLOOR = 1e-6
+#: The floor of ``floor`` and ``auto`` without a value, relative to the tightest flowing block.
+RELATIVE_FLOOR = 1e-3
 _SYNTAX = re.compile(r"^\s*(\d+)\s*x\s*(\d+)\s*(?:x\s*(\d+))?\s*$", re.IGNORECASE)
 
 
@@ -106,8 +106,8 @@ class BlockSpec:
         floor = _positive(value) if colon and name == "floor" else None
         if name not in ZERO_RULES or (colon and floor is None):
             raise InputError(
-                f"zero-k rule must be {', '.join(ZERO_RULES[:3])}, floor:VALUE (a permeability > 0 "
-                f"in the field's unit) or keep, got {self.zero_k!r}"
+                "zero-k rule must be auto, inactive, floor, floor:VALUE (a permeability > 0 in the "
+                f"field's unit) or keep, got {self.zero_k!r}"
             )
         return name, floor
 
@@ -123,6 +123,11 @@ class BlockSpec:
             )
         nx, ny, nz = (int(g) if g else 1 for g in match.groups())
         return cls(nx, ny, nz, remainder=remainder, min_active=min_active, zero_k=zero_k)
+
+    def summary(self) -> dict[str, int | float | str]:
+        """The partition as plain data, as outputs record it (x first, like the command line)."""
+        return {"x": self.nx, "y": self.ny, "z": self.nz, "remainder": self.remainder,
+                "min_active": self.min_active, "zero_k": self.zero_k}  # fmt: skip
 
     @property
     def cells(self) -> tuple[int, int, int]:

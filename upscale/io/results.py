@@ -58,6 +58,8 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
             raise InputError(f"{source}: the run's {role} input changed since the run (SHA-256 differs)")
     paths = {role: inputs[role]["resolved"] if role in inputs else None for role in ("ky", "kz")}
     fine = read_field(inputs["kx"]["resolved"], checksum=False, **paths, **read)
-    spec = BlockSpec(block["x"], block["y"], block["z"], block["remainder"], block["min_active"])
+    # runs recorded before the zero-k rule kept their zeros
+    spec = BlockSpec(block["x"], block["y"], block["z"], block["remainder"], block["min_active"],
+                     block.get("zero_k", "keep"))  # fmt: skip
     fine = fine.leading(spec.used_shape(fine.shape))
     return summary, fine
