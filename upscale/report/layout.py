@@ -39,7 +39,7 @@ def on_page_points(figure: Figure, size: float) -> float:
     """
     width_px = figure.get_figwidth() * DPI
     scale = min(1.0, PAGE_WIDTH_PX / width_px)
-    return size * DPI / 96 * scale
+    return float(size * DPI / 96 * scale)
 
 
 def panel_grid(count: int, *, width: float = 2.6, height: float | None = None, columns: int = 4,
