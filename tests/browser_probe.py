@@ -45,6 +45,20 @@ window.addEventListener("unhandledrejection", function (event) {
 </script>"""
 
 
+#: JavaScript: the text of every table cell (but those of class ``text``: paths, checksums) that the
+#: browser broke over more than one line; a test's verdict can hold ``wrappedCells()``.
+WRAPPED_CELLS = """function wrappedCells() {
+  return Array.prototype.filter.call(document.querySelectorAll("td:not(.text)"), function (td) {
+    var range = document.createRange();
+    range.selectNodeContents(td);
+    var line = range.getClientRects()[0];
+    return line !== undefined && range.getBoundingClientRect().height > 1.5 * line.height;
+  }).map(function (td) { return td.textContent; });
+}"""
+#: The window of every probe: the width at which the report is read (its figures at most 1100 px).
+WINDOW = "--window-size=1280,4000"
+
+
 def chromium_binary() -> str | None:
     """Path of a Chromium binary, or None."""
     for name in ("chromium", "chromium-browser"):
@@ -64,6 +78,7 @@ def browse(chromium: str, profile: Path, *args: str) -> subprocess.CompletedProc
 def _on_load(verdict: str) -> str:
     """A script that runs `verdict` on window load and writes its ``verdict`` object into the page."""
     return f"""<script>
+{WRAPPED_CELLS}
 window.addEventListener("load", function () {{
 {verdict}
   var pre = document.createElement("pre");
@@ -87,7 +102,7 @@ def probe(chromium: str, page: Path, folder: Path, verdict: str) -> dict[str, An
         An empty folder for the probed copy and the browser profile.
     verdict : str
         JavaScript statements, run on window load, that set ``var verdict`` to what the
-        test wants back (they can read ``window.__problems``).
+        test wants back (they can read ``window.__problems`` and call ``wrappedCells()``).
     """
     text = page.read_text(encoding="utf-8")
     assert text.count("<head>") == 1 and text.count("</body>") == 1
@@ -95,7 +110,8 @@ def probe(chromium: str, page: Path, folder: Path, verdict: str) -> dict[str, An
     probed = probed.replace("</body>", _on_load(verdict) + "\n</body>", 1)
     path = folder / f"{page.stem}-probed.html"
     path.write_text(probed, encoding="utf-8")
-    done = browse(chromium, folder / "profile", "--dump-dom", "--virtual-time-budget=10000", path.as_uri())
+    done = browse(chromium, folder / "profile", "--dump-dom", WINDOW, "--virtual-time-budget=10000",
+                  path.as_uri())  # fmt: skip
     found = re.search(r'<pre id="probe">(.*?)</pre>', done.stdout, re.DOTALL)
     assert found, f"no probe verdict in the dumped DOM (exit {done.returncode}): {done.stderr[-2000:]}"
     return json.loads(html.unescape(found.group(1)))

@@ -58,6 +58,7 @@ import hashlib
 import html
 import io
 import json
+import os
 import shlex
 import struct
 from contextlib import redirect_stderr, redirect_stdout
@@ -72,6 +73,7 @@ from PIL import Image
 from upscale.caution import CAUTION
 from upscale.cli.main import main
 from upscale.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
+from upscale.methods.registry import METHODS as REGISTRY
 
 SIZE = (32, 32)
 NAMES = ["r0", "r1", "r2", "r3"]
@@ -176,7 +178,9 @@ def _compare_rows(ensemble: dict) -> list[list[str]]:
     rows = []
     for m in ensemble["methods"]:
         w, mean_rank = m["worst_error"], m["rank_in_realizations"]["mean"]
-        rows.append([str(m["rank"]), m["name"], f"{m['ran']} / {m['ran'] + m['failed']}",
+        mark = REGISTRY[m["method"]].bound  # the means are the Wiener bounds (Wiener 1912)
+        rows.append([str(m["rank"]), m["name"] + (f" ({mark} bound)" if mark else ""),
+                     f"{m['ran']} / {m['ran'] + m['failed']}",
                      *(f"{100 * w[f'p{q}']:.2f} %" for q in PERCENTILES),
                      *(f"{100 * m['rel_error'][a]['p50']:+.2f} %" for a in AXES),
                      f"{mean_rank:.1f}", str(m["rank_in_realizations"]["first"])])  # fmt: skip
@@ -457,6 +461,7 @@ PROBE_VERDICT = """  function texts(nodes) {
     head: texts(document.querySelectorAll("#spread th")),
     rows: rows.map(function (tr) { return texts(tr.cells); }),
     caution: caution ? caution.textContent : null,
+    wrapped: wrappedCells(),
     code: texts(document.querySelectorAll("pre code")),
     title: document.title
   };
@@ -490,7 +495,8 @@ def test_page_loads_without_errors_and_its_figure_decodes(verdict, page):
 
 def test_spread_table_has_a_row_per_method_or_quantity(verdict, page):
     if page["kind"] == "compare":  # one row per method, best first
-        assert [row[1] for row in verdict["rows"]] == [m["name"] for m in page["ensemble"]["methods"]]
+        assert [row[1].split(" (")[0] for row in verdict["rows"]] == [
+            m["name"] for m in page["ensemble"]["methods"]]  # fmt: skip
         assert verdict["head"][:3] == ["rank", "method", "ran"]
     else:  # one row per quantity and axis
         assert [row[0] for row in verdict["rows"]] == [
@@ -498,14 +504,17 @@ def test_spread_table_has_a_row_per_method_or_quantity(verdict, page):
         assert verdict["head"] == ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
     assert verdict["rows"] == page["rows"]
     assert all(len(row) == len(verdict["head"]) for row in verdict["rows"])
+    assert verdict["wrapped"] == []  # at 1280 px no number breaks over two lines ("5 / 5")
 
 
 def test_page_has_the_caution_and_the_command_line(verdict, page):
     assert verdict["caution"] == CAUTION
-    assert verdict["code"] == [shlex.join(page["command"])]
+    reproduce = f"cd {shlex.quote(os.getcwd())} && {shlex.join(page['command'])}"  # the folder it ran in
+    assert verdict["code"] == [reproduce]
+    assert page["ensemble"]["working_folder"] == os.getcwd()
     text = page["path"].read_text(encoding="utf-8")
     assert f'<p class="caution">{html.escape(CAUTION)}</p>' in text
-    assert f"<pre><code>{html.escape(shlex.join(page['command']))}</code></pre>" in text
+    assert f"<pre><code>{html.escape(reproduce)}</code></pre>" in text
 
 
 def test_page_is_self_contained_and_embeds_the_figure_file(page):
@@ -522,9 +531,10 @@ def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on
     def comparison(flaky: float | None, steady: float) -> dict:
         def entry(name, error):
             if error is None:
-                return {"name": name, "error": "cannot run here", "rank": None, "check": None}
-            return {"name": name, "error": None, "rank": 1, "check": {"x": {"rel_error": error},
-                                                                       "y": {"rel_error": 0.0}}}
+                return {"name": name, "method": name, "error": "cannot run here", "rank": None,
+                        "check": None}
+            return {"name": name, "method": name, "error": None, "rank": 1,
+                    "check": {"x": {"rel_error": error}, "y": {"rel_error": 0.0}}}
         return {"dimensions": 2, "methods": [entry("flaky", flaky), entry("steady", steady)]}
 
     methods = method_spread(["r1", "r2", "r3"], [comparison(0.01, 0.05), comparison(None, 0.04),

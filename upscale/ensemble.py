@@ -171,7 +171,7 @@ def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[d
     Returns
     -------
     list of dict
-        One per method, best first: ``name``, ``rank``, ``ran`` and ``failed``
+        One per method, best first: ``name`` (label), ``method``, ``rank``, ``ran`` and ``failed``
         (realizations), ``worst_error`` (the spread of the largest
         ``|rel_error|`` over the axes, the quantity each comparison ranks
         by), ``rel_error`` (its spread per axis), ``rank_in_realizations``
@@ -185,7 +185,8 @@ def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[d
     Examples
     --------
     >>> def c(a, b): return {"dimensions": 2, "methods": [
-    ...     {"name": n, "error": None, "rank": 0, "check": {"x": {"rel_error": e}, "y": {"rel_error": 0.0}}}
+    ...     {"name": n, "method": n, "error": None, "rank": 0,
+    ...      "check": {"x": {"rel_error": e}, "y": {"rel_error": 0.0}}}
     ...     for n, e in (("one", a), ("two", b))]}
     >>> [(m["name"], m["worst_error"]["p50"]) for m in method_spread(["r1", "r2", "r3"],
     ...      [c(0.1, -0.05), c(0.3, 0.02), c(-0.2, 0.01)])]
@@ -199,7 +200,8 @@ def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[d
         ran = {name: e for name, e in entries.items() if e["error"] is None and e["check"]}
         worst = {name: _worst(e["check"], axes) for name, e in ran.items()}
         methods.append({
-            "name": label, "ran": len(ran), "failed": len(entries) - len(ran),
+            "name": label, "method": entries[names[0]]["method"], "ran": len(ran),
+            "failed": len(entries) - len(ran),
             "worst_error": spread(list(worst.values())),
             "rel_error": {a: spread([e["check"][a]["rel_error"] for e in ran.values()]) for a in axes},
             "rank_in_realizations": {

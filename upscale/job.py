@@ -20,6 +20,7 @@ from .export import write_result
 from .export.comparison import compare_summary, write_comparison
 from .export.ensemble import ENSEMBLE, write_ensemble, write_ranking
 from .export.staging import staged_folder
+from .export.summary import working_folder
 from .field import Field
 from .grid import BlockSpec
 from .io import read_field
@@ -196,7 +197,8 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
             summaries = list(pool.map(one, names, paths))
         ensemble = ensemble_summary(names, summaries)
         ensemble.update({"method": {"name": settings.method, "options": summaries[0]["method"]["options"]},
-                         "block": summaries[0]["block"], "command": settings.command})  # fmt: skip
+                         "block": summaries[0]["block"], "command": settings.command,
+                         "working_folder": working_folder(settings.command)})  # fmt: skip
         made = None
         if settings.plot or settings.report:
             with Steps(say)(None, "drawing the spread over the realizations"):
@@ -282,6 +284,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             "realizations": [{"name": name, **{k: s["inputs"][0][k] for k in ("path", "sha256")}}
                              for name, s in zip(names, summaries)],
             "axes": axes, "block": summaries[0]["block"], "command": command,
+            "working_folder": working_folder(command),
             "ranking": "P50 over the realizations of the largest |rel_error| over the axes, smallest first",
             "percentiles": PERCENTILE_NOTE, "methods": methods,
             "best": methods[0]["name"] if methods and methods[0]["rank"] else None,

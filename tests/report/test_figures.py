@@ -7,9 +7,11 @@ What is tested
   pressure), each with a title and a caption, and what each must show:
   one panel per method beside "fine" on one shared log colour scale with one
   colour bar stating the unit; check-error bars equal to the checks, with the
-  ±5 % band; the fine k_eff between the Wiener (1912) and Cardwell–Parsons
-  (1945) bounds on log axes; histograms on a log axis; mismatch maps centred
-  on 0 with their faces drawn where the faces are; pressures on [0, 1].
+  ±5 % band and ticks in percent; the fine k_eff between the Wiener (1912)
+  and Cardwell–Parsons (1945) bounds (log axes over a decade or more);
+  histograms on a log axis, one panel per method; maps drawn on the cells'
+  edges in map coordinates; mismatch maps centred on 0 with their faces
+  drawn from block centre to block centre; pressures on [0, 1].
 * Colour maps are the colour-blind-safe ones the style promises: cividis
   (Nuñez, Anderton & Renslow 2018, "Optimizing colormaps with consideration
   for color vision deficiency"), viridis, and ColorBrewer PuOr (Harrower &
@@ -36,6 +38,8 @@ import matplotlib
 import numpy as np
 import pytest
 from conftest import ORIGIN, lognormal, write_raster
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import QuadMesh
 from matplotlib.colors import LogNorm, TwoSlopeNorm
 
 import upscale
@@ -45,7 +49,7 @@ from upscale.compare import candidates, compare_methods
 from upscale.report.charts import BAND, domain_bounds, error_bars
 from upscale.report.figures import Plot, build_figures, rendered
 from upscale.report.flux import coarse_face_mismatch
-from upscale.report.style import MISSING, with_missing
+from upscale.report.style import MISSING_HATCH, missing_background, with_missing
 
 matplotlib.use("Agg")  # no display, ever
 
@@ -96,7 +100,14 @@ def _colorbars(figure):
 
 
 def _images(figure):
-    return [image for ax in _panels(figure) for image in ax.get_images()]
+    """The cells drawn in each panel (one QuadMesh per map panel)."""
+    return [mesh for ax in _panels(figure) for mesh in ax.collections if isinstance(mesh, QuadMesh)]
+
+
+def _edges(mesh):
+    """The x edges (west to east) and the y edges (first row first) of a mesh."""
+    corners = mesh.get_coordinates()
+    return corners[0, :, 0], corners[:, 0, 1]
 
 
 # --- the set of figures --------------------------------------------------------------------------
@@ -118,13 +129,14 @@ def test_3d_figures_add_a_section(plots_3d, comparison_3d):
     assert plots_3d["maps"].figure.get_suptitle() == "Fine and coarse kx, layer 3"  # layer=2 is the third
     section = plots_3d["section"].figure
     assert section.get_suptitle() == "Fine and coarse kx, section through row 8"  # the middle row
-    fine = _panels(section)[0]
-    assert fine.get_ylabel() == "depth below top (m)"
+    fine, coarse, _ = _images(section)
+    assert _panels(section)[0].get_ylabel() == "depth below top (m)"
     # x across the model, depth from the top (0) down to the total thickness (4 layers of 2 m)
-    assert fine.get_images()[0].get_extent() == [0.0, 80.0, -8.0, 0.0]
-    assert fine.get_images()[0].get_array().shape == (4, 16)
-    coarse = _panels(section)[1].get_images()[0].get_array()
-    assert coarse.shape == (2, 2)
+    x, depth = _edges(fine)
+    np.testing.assert_allclose(x, np.arange(17) * 5.0)
+    np.testing.assert_allclose(depth, [0.0, 2.0, 4.0, 6.0, 8.0])
+    assert fine.get_array().shape == (4, 16) and coarse.get_array().shape == (2, 2)
+    np.testing.assert_allclose(_edges(coarse)[1], [0.0, 4.0, 8.0])
 
 
 def test_figures_use_colour_blind_safe_maps(plots_2d, plots_3d):
@@ -159,16 +171,21 @@ def test_maps_one_panel_per_method_and_one_shared_log_scale(plots_2d, comparison
     np.testing.assert_array_equal(images[0].get_array(), np.asarray(comparison_2d.fine.kx)[0])
     for image, entry in zip(images[1:], ran):
         np.testing.assert_array_equal(image.get_array(), entry.result.coarse.kx[0])
-    # drawn in map coordinates of the raster (west, east, south, north)
+    # drawn in map coordinates of the raster: cell edges west to east, north to south
     west, north = ORIGIN
-    for image in images:
-        assert image.get_extent() == [west, west + 32 * CELL, north - 32 * CELL, north]
+    for image, cells in zip(images, [32] + [32 // BLOCK] * len(ran)):
+        x, y = _edges(image)
+        np.testing.assert_allclose(x, west + np.linspace(0.0, 32 * CELL, cells + 1))
+        np.testing.assert_allclose(y, north - np.linspace(0.0, 32 * CELL, cells + 1))
     assert _panels(figure)[0].get_xlabel() == "x (m)" and _panels(figure)[0].get_ylabel() == "y (m)"
 
 
 def test_error_bars_show_the_checks_and_the_five_percent_band(plots_2d, comparison_2d):
     (ax,) = _panels(plots_2d["errors"].figure)
-    assert "%" in ax.get_ylabel()
+    assert "k_coarse − k_fine" in ax.get_ylabel()
+    FigureCanvasAgg(ax.figure).draw()
+    assert all(t.get_text() == "0" or t.get_text().endswith(" %") for t in ax.get_yticklabels()
+               if t.get_text())  # fmt: skip
     band = [p for p in ax.patches if p.get_label() == f"±{BAND:g} %"]
     assert len(band) == 1 and BAND == 5.0
     corners = band[0].get_transform().transform(band[0].get_path().vertices)
@@ -192,7 +209,8 @@ def test_bounds_chart_log_scale_and_fine_k_eff_within_the_bounds(plots_2d, compa
     panels = _panels(figure)
     assert [ax.get_title() for ax in panels] == ["along x", "along y"]
     for ax, axis in zip(panels, ("x", "y")):
-        assert ax.get_yscale() == "log"
+        low, high = sorted(ax.dataLim.intervaly)  # log when the values span a decade or more
+        assert ax.get_yscale() == ("log" if high >= 10 * low else "linear")
         assert ax.get_ylabel() == f"effective k along {axis} (mD)"
         lines = {line.get_label(): line for line in ax.get_lines()}
         k_fine = comparison_2d.fine_flows[axis].k_eff
@@ -226,11 +244,15 @@ def test_domain_bounds_reference_values():
 
 
 def test_histograms_on_a_log_axis_with_the_unit(plots_2d, comparison_2d):
-    (ax,) = _panels(plots_2d["histograms"].figure)
-    assert ax.get_xscale() == "log"
-    assert "mD" in ax.get_xlabel() and "log" in ax.get_xlabel()
-    labels = [t.get_text() for t in ax.get_legend().get_texts()]
-    assert labels == ["fine cells"] + [e.candidate.label for e in comparison_2d.ranked]
+    figure = plots_2d["histograms"].figure
+    panels = _panels(figure)
+    ranked = [f"{e.rank}. {e.candidate.label}" for e in comparison_2d.ranked]
+    assert [ax.get_title() for ax in panels] == ranked
+    for ax in panels:
+        assert ax.get_xscale() == "log" and "mD" in ax.get_xlabel()
+    assert "log scale" in figure.get_suptitle()
+    (legend,) = figure.legends
+    assert [t.get_text() for t in legend.get_texts()] == ["fine cells", "coarse blocks"]
 
 
 @pytest.mark.parametrize("axis", ["x", "y"])
@@ -249,16 +271,17 @@ def test_mismatch_maps_centred_on_zero_where_the_faces_are(plots_2d, comparison_
     for image, entry in zip(images, ran):
         expected = 100 * coarse_face_mismatch(comparison_2d.fine_flows[axis], entry.checks[axis].coarse,
                                               comparison_2d.block.cells, a)[0]  # fmt: skip
-        np.testing.assert_array_equal(image.get_array(), expected)
+        np.testing.assert_allclose(image.get_array(), expected, rtol=1e-12, atol=1e-12)
         largest = max(largest, float(np.abs(expected).max()))
     assert norm.vmax == pytest.approx(largest)
-    # faces between blocks: half a block in from the outer edges, across the flow axis only
+    # faces between blocks: drawn from block centre to block centre across the flow axis
     west, north = ORIGIN
-    size, half = 32 * CELL, BLOCK * CELL / 2
-    expected_extent = ([west + half, west + size - half, north - size, north] if axis == "x"
-                       else [west, west + size, north - size + half, north - half])  # fmt: skip
+    centres = (np.arange(32 // BLOCK) + 0.5) * BLOCK * CELL
+    edges = np.arange(32 // BLOCK + 1) * BLOCK * CELL
     for image in images:
-        assert image.get_extent() == pytest.approx(expected_extent)
+        x, y = _edges(image)
+        np.testing.assert_allclose(x - west, centres if axis == "x" else edges)
+        np.testing.assert_allclose(north - y, edges if axis == "x" else centres)
 
 
 def test_pressure_maps_on_zero_to_one_best_and_worst(plots_2d, comparison_2d):
@@ -282,7 +305,7 @@ def test_a_comparison_of_one_method_draws_every_figure():
     plots = build_figures(found, "D")
     assert [p.name for p in plots] == FIGURES_2D
     pressure = {p.name: p for p in plots}["pressure"].figure
-    assert [ax.get_title() for ax in _panels(pressure)] == ["fine", "best: geometric"]
+    assert [ax.get_title() for ax in _panels(pressure)] == ["fine", "geometric"]  # one method: no "best"
     assert "D," in _colorbars({p.name: p for p in plots}["maps"].figure)[0].ax.get_ylabel()
 
 
@@ -311,12 +334,16 @@ def test_same_comparison_gives_the_same_svg_bytes(comparison_2d):
     assert first[1] == second[1]
 
 
-def test_missing_values_are_drawn_grey():
-    cmap = with_missing("cividis")
-    assert cmap.name == "cividis"
-    grey = matplotlib.colors.to_rgba(MISSING)
-    assert cmap.get_bad() == pytest.approx(grey) and cmap.get_under() == pytest.approx(grey)
-    assert matplotlib.colormaps["cividis"].get_bad() != pytest.approx(grey)  # the registered one is untouched
+def test_missing_values_show_the_hatched_background_and_values_beyond_the_scale_its_ends():
+    for name in SAFE_MAPS:
+        cmap = with_missing(name)
+        assert cmap.name == name
+        assert cmap.get_bad()[3] == 0.0  # transparent: the hatched background shows through
+        assert cmap.get_under() == pytest.approx(cmap(0.0)) and cmap.get_over() == pytest.approx(cmap(1.0))
+    figure = matplotlib.figure.Figure()
+    ax = figure.subplots()
+    missing_background(ax)
+    assert ax.patch.get_hatch() == MISSING_HATCH
 
 
 def test_colour_maps_use_no_pending_deprecated_api():

@@ -9,14 +9,17 @@ What is tested
   (records ``error`` events, including failed resources, and
   ``console.error``/``console.warn`` calls) and one at the end of ``<body>``
   that, on window load, writes a JSON verdict into ``<pre id="probe">``;
-  Chromium's ``--dump-dom`` gives the DOM back after loading.
+  Chromium's ``--dump-dom`` gives the DOM back after loading. At 1280 px
+  no number cell of the ranking breaks over two lines, the page is no
+  wider than the window and no figure wider than 1100 px; the bound in the
+  ranking (harmonic) carries its mark.
 * A screenshot of the original page (1280 x 4000) is kept as a test artifact
   in ``$UPSCALE_ARTIFACTS`` or ``<repo>/test-artifacts/``, and must be a
   non-empty PNG of that size.
 * The page is self-contained (no http(s) or protocol-relative references, no
   scripts, no stylesheet links; figures are the PNG files of figures/ as
-  data URIs) and carries the caution, the exact command line and the
-  SHA-256 of the input.
+  data URIs) and carries the caution, the exact command line (after a ``cd``
+  into the folder it ran in) and the SHA-256 of the input.
 
 Chromium is Debian's (``/usr/bin/chromium``; CI installs it, see
 ``.ci/run``): the browser tests are skipped, saying so, only where no
@@ -41,6 +44,8 @@ from browser_probe import assert_self_contained, browse, probe
 
 from upscale.caution import CAUTION
 from upscale.cli.main import main
+from upscale.ensemble import PERCENTILE_NOTE, method_spread
+from upscale.report.bundle import spread_bundle
 
 REPO = Path(__file__).resolve().parents[2]
 METHODS = "geometric,harmonic,flow"
@@ -75,7 +80,13 @@ PROBE_VERDICT = """  var images = Array.prototype.map.call(document.images, func
     ranking_rows: document.querySelectorAll("#ranking tr.method").length,
     best_rows: document.querySelectorAll("#ranking tr.method.best").length,
     labels: Array.prototype.map.call(document.querySelectorAll("#ranking tr.method td:first-child"),
-                                     function (td) { return td.textContent; }),
+                                     function (td) { return td.firstChild.textContent.trim(); }),
+    marks: Array.prototype.map.call(document.querySelectorAll("#ranking .bound"),
+                                    function (span) { return span.textContent; }),
+    wrapped: wrappedCells(),
+    overflow: document.documentElement.scrollWidth > window.innerWidth,
+    widest_image: Math.max.apply(null, Array.prototype.map.call(document.images,
+                                                               function (img) { return img.width; })),
     bold: document.querySelectorAll("b").length,
     title: document.title
   };
@@ -107,6 +118,14 @@ def test_one_ranking_row_per_method(verdict, report):
     assert verdict["best_rows"] == 1
     assert verdict["title"] == f"upscale — methods compared on {report['field']}"
     assert verdict["bold"] == 0  # no markup leaks in from text
+    assert verdict["marks"] == ["lower bound"]  # harmonic: the Wiener lower bound
+
+
+def test_number_cells_stay_on_one_line_and_the_page_fits_the_window(verdict):
+    # at 1280 px: "5 / 5" or "11.34 %" broken over two lines reads as two numbers
+    assert verdict["wrapped"] == []
+    assert not verdict["overflow"]
+    assert 0 < verdict["widest_image"] <= 1100  # the page's width for figures (report/layout.py)
 
 
 def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
@@ -119,6 +138,29 @@ def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
     assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
     width, height = struct.unpack(">II", data[16:24])  # the IHDR chunk
     assert (width, height) == (1280, 4000)
+
+
+def test_a_wide_ranking_keeps_its_numbers_on_one_line(chromium, tmp_path):
+    # the widest ranking: methods compared over an ensemble of a 3D model (11 columns), long labels
+    labels = ["flow-transmissibility (sealed, border 2)", "flow (periodic, border 2)", "power (ω=0.333)",
+              "renormalization", "arithmetic"]  # fmt: skip
+    names = [f"realization_{i:02d}" for i in range(5)]
+    compared = [{"dimensions": 3, "methods": [
+        {"name": label, "method": label.split(" ")[0], "error": None, "rank": j + 1,
+         "check": {a: {"rel_error": (-1) ** j * (0.05 + 0.03 * j + 0.002 * i + 0.01 * k)}
+                   for k, a in enumerate("xyz")}} for j, label in enumerate(labels)]}
+        for i in range(len(names))]  # fmt: skip
+    methods = method_spread(names, compared)
+    ensemble = {"realizations": [{"name": n, "path": f"/data/fields/{n}.tif", "sha256": "0" * 64}
+                                 for n in names],
+                "axes": "xyz", "block": {"x": 8, "y": 8, "z": 4}, "percentiles": PERCENTILE_NOTE}  # fmt: skip
+    made = spread_bundle(methods, ensemble, title="ensemble", command=["upscale", "compare", "r*.tif"])
+    page = tmp_path / "report.html"
+    page.write_text(made.page, encoding="utf-8")
+    seen = probe(chromium, page, tmp_path, """  var verdict = {wrapped: wrappedCells(),
+    cells: document.querySelectorAll("#spread td").length};""")
+    assert seen["cells"] == len(labels) * 11
+    assert seen["wrapped"] == []  # "5 / 5" and "11.34 %" broke over two lines before
 
 
 # --- the page itself -----------------------------------------------------------------------------
@@ -140,7 +182,8 @@ def test_page_has_the_caution_command_and_checksum(report):
     page = report["page"].read_text(encoding="utf-8")
     assert f'<p class="caution">{html.escape(CAUTION)}</p>' in page
     command = shlex.join(report["command"])
-    assert f"<pre><code>{html.escape(command)}</code></pre>" in page
+    reproduce = f"cd {shlex.quote(os.getcwd())} && {command}"  # the folder the command ran in
+    assert f"<pre><code>{html.escape(reproduce)}</code></pre>" in page
     assert "--methods geometric,harmonic,flow" in command
     sha256 = hashlib.sha256(report["field"].read_bytes()).hexdigest()
     assert f"<code>{sha256}</code>" in page

@@ -18,10 +18,11 @@ from ..io import read_field
 from ..job import compare_ensemble, refuse_comparison
 from ..methods.registry import METHODS
 from ..report.bundle import bundle
+from ..report.verdict import bound_note, one_method, outside_band
 from .options import (block_options, block_spec, check_options, field_options, global_options, parse_chunk,
                       read_options, recorded)
 from .progress import teller
-from .report import number, print_spread, table
+from .report import number, print_notes, print_spread, table
 
 
 def _methods(text: str | None) -> list[str] | None:
@@ -106,7 +107,12 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     write_comparison(out, summary, files.images, files.page, overwrite=overwrite)
     if not quiet:
         _print(result.entries, fine.axes, fine.unit)
-        click.echo(f"\nbest: {result.best.candidate.label}")
+        best = result.best
+        several = not one_method(result)
+        click.echo(f"\nbest: {best.candidate.label}" if several else
+                   f"\n{best.candidate.label}: largest check error {100 * best.worst_error:.2f} %")
+        print_notes(outside_band(best.candidate.label, best.worst_error, several=several),
+                    bound_note(best.candidate.method, best.candidate.label) if several else None)
         click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
 
 

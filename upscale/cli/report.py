@@ -9,6 +9,7 @@ import click
 
 from ..export.package import PACKAGE_FILES
 from ..field import PERMEABILITY
+from ..report.verdict import bound_note, outside_band
 from ..upscaled import Upscaled
 
 
@@ -163,6 +164,14 @@ def print_ensemble(ensemble: dict, out: str) -> None:
                f"ensemble.json to {Path(out)}")  # fmt: skip
 
 
+def print_notes(warning: str | None, note: str | None = None) -> None:
+    """A warning (the ±5 % band) and a note (a bound ranked first) under a ranking, when there are any."""
+    if warning:
+        click.echo(f"warning: {warning}")
+    if note:
+        click.echo(f"note: {note}")
+
+
 def print_spread(content: dict, out: str) -> None:
     """Print the methods compared over an ensemble: rank, P10/P50/P90 of the largest error, wins."""
     rows = []
@@ -176,7 +185,12 @@ def print_spread(content: dict, out: str) -> None:
     click.echo(table(["rank", "method", "P10 %", "P50 %", "P90 %", "ran", "first"], rows))
     click.echo("(largest |error| over the axes per realization, in %; P10 is exceeded by 90 % of the "
                "realizations)")  # fmt: skip
-    if content["best"]:
-        click.echo(f"\nbest over the ensemble: {content['best']}")
+    best = content["methods"][0] if content["best"] else None
+    if best:
+        several = len(content["methods"]) > 1
+        click.echo(f"\nbest over the ensemble: {best['name']}")
+        print_notes(outside_band(best["name"], best["worst_error"]["p50"], several=several,
+                                 measure="median largest check error", where="over these realizations"),
+                    bound_note(best["method"], best["name"]) if several else None)
     click.echo(f"wrote one comparison folder per realization, ranking.csv, figures, report.html and "
                f"ensemble.json to {Path(out)}")  # fmt: skip

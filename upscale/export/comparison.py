@@ -12,7 +12,7 @@ from ..caution import CAUTION
 from ..compare import Comparison, Entry
 from ..field import PERMEABILITY
 from .staging import staged_folder
-from .summary import grid_summary, jsonable, versions
+from .summary import grid_summary, jsonable, versions, working_folder
 
 #: Name of the comparison file; written last, it marks a complete comparison folder.
 COMPARE = "compare.json"
@@ -58,6 +58,7 @@ def compare_summary(comparison: Comparison, *, command: list[str] | None = None,
         "tool": "upscale",
         "versions": versions(),
         "command": command,
+        "working_folder": working_folder(command),
         "inputs": [{"role": s.role, "path": s.path, "resolved": str(Path(s.path).resolve()),
                     "sha256": s.sha256} for s in fine.sources],
         "read": read,

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 import platform
 from importlib import metadata
 from pathlib import Path
@@ -26,6 +27,17 @@ def versions() -> dict[str, str]:
     found = {"upscale": _version("upscale"), "python": platform.python_version()}
     found.update({name: _version(name) for name in _DEPENDENCIES})
     return found
+
+
+def working_folder(command: list[str] | None) -> str | None:
+    """The absolute folder a recorded `command` runs in (its relative paths start there); None without one.
+
+    Recorded beside ``command`` in ``summary.json``, ``compare.json`` and
+    ``ensemble.json``, and shown as ``cd FOLDER && COMMAND`` in the report.
+    The tool never changes its working folder, so it is the one the command
+    was started in.
+    """
+    return os.getcwd() if command else None
 
 
 def _version(name: str) -> str:
@@ -107,6 +119,7 @@ def build_summary(
         "tool": "upscale",
         "versions": versions(),
         "command": command,
+        "working_folder": working_folder(command),
         "inputs": [
             {"role": s.role, "path": s.path, "resolved": str(Path(s.path).resolve()), "sha256": s.sha256}
             for s in fine.sources

@@ -7,11 +7,12 @@ from typing import Any
 
 from ..caution import CAUTION
 from ..compare import Comparison
-from ..export.summary import versions
+from ..export.summary import versions, working_folder
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
 from .spread import ensemble_chart, method_spread_chart
+from .verdict import bound_mark, bound_note, outside_band
 
 
 @dataclass(frozen=True)
@@ -52,6 +53,7 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
     job = {
         "title": title,
         "command": command,
+        "working_folder": working_folder(command),
         "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in fine.sources],
         "unit": fine.unit,
         "grid": f"{_dims(fine.shape, fine.ndim)} cells of {grid.dx[0]:g} m × {grid.dy[0]:g} m"
@@ -100,12 +102,18 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
             values = [cell(s[k]) for k in ("p10", "p50", "p90", "mean", "min", "max")]
             rows.append([f"{name} along {axis}", *values, str(s["count"])])
-    errors = [abs(s["p50"]) for s in ensemble["statistics"]["rel_error"].values() if s]
+    errors = [s["p50"] for s in ensemble["statistics"]["rel_error"].values() if s]
+    name = ensemble["method"]["name"]
+    worst = max(errors, key=abs) if errors else None
     job = {
-        "title": title, "command": command, "caution": CAUTION, "versions": versions(),
-        "verdict": f"{ensemble['method']['name']} on {len(ensemble['realizations'])} realizations: "
-        + (f"median check error within {100 * max(errors):.2f} % on every axis." if errors else
+        "title": title, "command": command, "working_folder": working_folder(command),
+        "caution": CAUTION, "versions": versions(),
+        "verdict": f"{name} on {len(ensemble['realizations'])} realizations: "
+        + (f"median check error within {100 * abs(worst):.2f} % on every axis." if errors else
            "the check was not run."),
+        "warning": outside_band(name, worst, several=False, measure="median check error",
+                                where="over these realizations") if errors else None,
+        "note": None,
         "what": f"Effective permeability ({unit}) of the fine and the coarse model under the same "
         "pressure drop, and the check error, over the realizations.",
         "realizations": [{"name": r["name"], **(r["inputs"][0] if r["inputs"] else
@@ -146,27 +154,36 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
         worst = [f"{100 * w[k]:.2f} %" for k in ("p10", "p50", "p90")] if w else ["–"] * 3
         per_axis = [_percent(m["rel_error"][a]["p50"]) if m["rel_error"][a] else "–" for a in axes]
         mean_rank = m["rank_in_realizations"]["mean"]
-        rows.append([str(m["rank"] or "–"), m["name"], f"{m['ran']} / {m['ran'] + m['failed']}", *worst,
-                     *per_axis, "–" if mean_rank is None else f"{mean_rank:.1f}",
+        mark = bound_mark(m["method"])
+        rows.append([str(m["rank"] or "–"), m["name"] + (f" ({mark})" if mark else ""),
+                     f"{m['ran']} / {m['ran'] + m['failed']}", *worst, *per_axis,
+                     "–" if mean_rank is None else f"{mean_rank:.1f}",
                      str(m["rank_in_realizations"]["first"])])  # fmt: skip
     best = methods[0] if methods and methods[0]["rank"] else None
-    verdict = "No method ran on these realizations."
+    several = len(methods) > 1
+    verdict, warning, note = "No method ran on these realizations.", None, None
     if best:
         w = best["worst_error"]
-        verdict = (f"Best over {n} realizations: {best['name']}, median largest check error "
-                   f"{100 * w['p50']:.2f} % (P90 {100 * w['p90']:.2f} %).")  # fmt: skip
+        verdict = (f"{'Best over' if several else 'Over'} {n} realizations: {best['name']}, median largest "
+                   f"check error {100 * w['p50']:.2f} % (P90 {100 * w['p90']:.2f} %).")  # fmt: skip
+        warning = outside_band(best["name"], w["p50"], several=several, measure="median largest check error",
+                               where="over these realizations")  # fmt: skip
+        note = bound_note(best["method"], best["name"]) if several else None
     job = {
-        "title": title, "command": command, "caution": CAUTION, "versions": versions(),
-        "verdict": verdict,
-        "what": "Methods ranked by the P50 over the realizations of their largest check error over "
-        "the axes (methods that failed on some realizations after those that ran on all); the P10 "
-        "and P90 show how much that varies from one realization to the next — with few "
-        "realizations they are interpolated between the nearest ones.",
+        "title": title, "command": command, "working_folder": working_folder(command),
+        "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
+        "what": ("Methods ranked by the P50 over the realizations of their largest check error over "
+                 "the axes (methods that failed on some realizations after those that ran on all)"
+                 if several else "The method's largest check error over the axes, over the "
+                 "realizations") + "; the P10 and P90 show how much that varies from one realization "
+        "to the next — with few realizations they are interpolated between the nearest ones.",
         "realizations": ensemble["realizations"], "block": _block(ensemble["block"], axes),
         "percentiles": ensemble["percentiles"],
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
             *(f"P50 error along {a}" for a in axes), "mean rank", "times first"]  # fmt: skip
+    if not several:  # one method's check over the realizations: nothing was ranked
+        head, rows = head[1:-2], [row[1:-2] for row in rows]
     return Bundle(images, ensemble_page(job, head, rows, shown))
 
 

@@ -3,26 +3,86 @@
 from __future__ import annotations
 
 import numpy as np
+from matplotlib.axes import Axes
 from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, ScalarFormatter
 
 from ..compare import Comparison
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
+from .layout import LABEL, MAX_WIDTH, outer_labels, page_sizes, panel_grid, title
 from .style import PALETTE, style_of
+from .verdict import BAND, entry_name, one_method, outside_band
 
-#: The band of check errors drawn as acceptable (±5 %): a common engineering tolerance.
-BAND = 5.0
+#: Colour of warnings in figures (the page's colour for methods that failed).
+WARNING = "#8a1c1c"
+
+
+def percent(value: float, position: int | None = None) -> str:
+    """A tick label in plain percent: ``−100 %``, ``0``, ``12.5 %`` (never powers of ten).
+
+    Examples
+    --------
+    >>> [percent(v) for v in (-100.0, -10.0, 0.0, 2.5, 1e6)]
+    ['−100 %', '−10 %', '0', '2.5 %', '1000000 %']
+    """
+    if value == 0:
+        return "0"
+    return np.format_float_positional(value, precision=6, trim="-").replace("-", "−") + " %"
+
+
+def error_band(ax: Axes, largest: float) -> None:
+    """The ±`BAND` % band and the zero line behind check errors (in %); ticks in plain percent.
+
+    Errors beyond ten times the band get a symmetric-log axis, linear within
+    twice the band, so the band stays visible beside errors of 100 % or more.
+    """
+    ax.axhspan(-BAND, BAND, color="#d9d9d9", alpha=0.6, label=f"±{BAND:g} %", zorder=0)
+    ax.axhline(0.0, color="black", linewidth=0.6)
+    if largest > 10 * BAND:
+        ax.set_yscale("symlog", linthresh=2 * BAND)
+    ax.yaxis.set_major_formatter(FuncFormatter(percent))
+
+
+def readable_k_axis(ax: Axes) -> None:
+    """The y axis of effective permeabilities drawn on `ax`, with labelled ticks whatever their range.
+
+    Linear while the largest value is under ten times the smallest (a log
+    axis over less than a decade may carry no labelled tick at all); log
+    beyond, with the powers of ten labelled as numbers, and 2 and 5 between
+    them too over less than two decades.
+    """
+    low, high = sorted(ax.dataLim.intervaly)
+    if low > 0 and high < 10 * low:
+        ax.yaxis.set_major_locator(MaxNLocator(6))
+        numbers = ScalarFormatter(useOffset=False)
+        numbers.set_powerlimits((-4, 6))
+        ax.yaxis.set_major_formatter(numbers)
+        return
+    ax.set_yscale("log")
+    plain = FuncFormatter(lambda value, position: f"{value:g}")
+    ax.yaxis.set_major_formatter(plain)
+    if low > 0 and high < 100 * low:
+        ax.yaxis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
+        ax.yaxis.set_minor_formatter(plain)
+
+
+def warn_in(ax: Axes, text: str | None) -> None:
+    """`text` (a warning, if any) as the panel's title, in the warning colour."""
+    if text:
+        ax.set_title(text, color=WARNING, wrap=True)
 
 
 def error_bars(comparison: Comparison) -> Figure:
-    """Check error per method and axis (%), with the ±5 % band marked."""
+    """Check error per method and axis (%), with the ±5 % band marked, and a warning when none is within."""
     ran = comparison.ranked
     axes_names = list(comparison.fine.axes)
-    fig = Figure(figsize=(max(6.0, 0.9 * len(ran) + 2.5), 4.2), layout="constrained")
+    alone = one_method(comparison)
+    fig = Figure(figsize=(min(MAX_WIDTH, max(4.5 if alone else 6.0, 0.8 * len(ran) + 2.5)), 4.4),
+                 layout="constrained")  # fmt: skip
     ax = fig.subplots()
     width = 0.8 / len(axes_names)
     x = np.arange(len(ran))
-    ax.axhspan(-BAND, BAND, color="#d9d9d9", alpha=0.6, label=f"±{BAND:g} %")
     largest = 0.0
     for i, axis in enumerate(axes_names):
         errors = np.array([100 * e.checks[axis].rel_error for e in ran])
@@ -30,14 +90,16 @@ def error_bars(comparison: Comparison) -> Figure:
         offset = (i - (len(axes_names) - 1) / 2) * width
         ax.bar(x + offset, errors, width, color=PALETTE[i], hatch=("", "//", "..")[i],
                edgecolor="black", linewidth=0.4, label=f"along {axis}")  # fmt: skip
-    ax.axhline(0.0, color="black", linewidth=0.6)
-    if largest > 10 * BAND:
-        ax.set_yscale("symlog", linthresh=2 * BAND)
-    ax.set_xticks(x, [f"{e.rank}. {e.candidate.label}" for e in ran], rotation=30, ha="right",
-                  fontsize=8)  # fmt: skip
-    ax.set_ylabel("check error (k_coarse − k_fine) / k_fine (%)")
-    ax.set_title("Flow check error per method and axis")
-    ax.legend(fontsize=8, loc="best")
+    error_band(ax, largest)
+    ax.set_xticks(x, [entry_name(comparison, e) for e in ran], rotation=0 if alone else 30,
+                  ha="center" if alone else "right")  # fmt: skip
+    ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
+    best = comparison.best
+    warn_in(ax, best and outside_band(best.candidate.label, best.worst_error, several=not alone))
+    ax.legend(fontsize=LABEL, loc="best")
+    title(fig, f"Flow check error of {ran[0].candidate.label} per axis" if alone
+          else "Flow check error per method and axis")  # fmt: skip
+    page_sizes(fig)
     return fig
 
 
@@ -46,8 +108,9 @@ def bounds_chart(comparison: Comparison, unit: str) -> Figure:
     fine = comparison.fine
     ran = comparison.ranked
     axes_names = list(fine.axes)
-    fig = Figure(figsize=(4.2 * len(axes_names) + 1.5, 4.4), layout="constrained")
+    fig = Figure(figsize=(2.8 * len(axes_names) + 2.6, 4.6), layout="constrained")
     panels = fig.subplots(1, len(axes_names), squeeze=False)[0]
+    alone = one_method(comparison)
     for ax, axis in zip(panels, axes_names):
         limits = domain_bounds(fine, axis)
         for (label, value), style in zip(limits.items(), ("--", ":", "-.", (0, (5, 1)))):
@@ -60,14 +123,15 @@ def bounds_chart(comparison: Comparison, unit: str) -> Figure:
                 ax.plot([i], [k], marker="os^Dv<>"[(i + i // 7) % 7], color=style_of(i)["color"],
                         linestyle="none",
                         markersize=7, label=entry.candidate.label)  # fmt: skip
-        ax.set_yscale("log")
-        ax.set_xticks(range(len(ran)), [str(e.rank) for e in ran])
-        ax.set_xlabel("method (rank)")
+        readable_k_axis(ax)
+        ax.set_xticks(range(len(ran)), [e.candidate.label if alone else str(e.rank) for e in ran])
+        ax.set_xlabel("method" if alone else "method (rank)")
         ax.set_ylabel(f"effective k along {axis} ({unit})")
         ax.set_title(f"along {axis}")
     handles, labels = panels[0].get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside right center", fontsize=7)
-    fig.suptitle("Coarse effective permeability against the fine one and the bounds")
+    fig.legend(handles, labels, loc="outside right center", fontsize=LABEL)
+    title(fig, "Coarse effective permeability against the fine one and the bounds")
+    page_sizes(fig)
     return fig
 
 
@@ -91,24 +155,30 @@ def domain_bounds(fine, axis: str) -> dict[str, float]:
 
 
 def histograms(comparison: Comparison, unit: str) -> Figure:
-    """Distribution of kx: fine cells against the coarse blocks of each method (log scale)."""
+    """Distribution of kx: one panel per method, its coarse blocks over the fine cells (grey), log scale."""
     fine = np.asarray(comparison.fine.kx, dtype=float)
     fine = fine[np.isfinite(fine) & (fine > 0)]
     ran = comparison.ranked
     coarse = [e.result.coarse.kx[np.isfinite(e.result.coarse.kx) & (e.result.coarse.kx > 0)] for e in ran]
     everything = np.concatenate([fine, *coarse])
-    bins = np.logspace(np.log10(everything.min()), np.log10(everything.max()), 41)
-    fig = Figure(figsize=(7.5, 4.4), layout="constrained")
-    ax = fig.subplots()
-    ax.hist(fine, bins=bins, density=False, weights=np.full(fine.size, 1.0 / fine.size),
-            color="#bdbdbd", label="fine cells")  # fmt: skip
-    for i, (entry, values) in enumerate(zip(ran, coarse)):
+    low, high = everything.min(), everything.max()
+    if high <= low * (1 + 1e-9):  # one value everywhere: a narrow range around it
+        low, high = low / 1.5, high * 1.5
+    bins = np.geomspace(low, high, 41)  # exact ends: every value counted
+    fig, panels = panel_grid(len(ran), width=2.4, height=1.7, share=True, extra=(0.6, 1.1))
+    for ax, entry, values in zip(panels, ran, coarse):
+        ax.hist(fine, bins=bins, weights=np.full(fine.size, 1.0 / fine.size), color="#bdbdbd",
+                label="fine cells")  # fmt: skip
         if values.size:
             ax.hist(values, bins=bins, weights=np.full(values.size, 1.0 / values.size), histtype="step",
-                    linewidth=1.4, label=entry.candidate.label, **style_of(i))  # fmt: skip
-    ax.set_xscale("log")
-    ax.set_xlabel(f"kx ({unit}, log scale)")
-    ax.set_ylabel("fraction of cells or blocks per bin")
-    ax.set_title("Spread of kx: fine cells against coarse blocks")
-    ax.legend(fontsize=7, loc="best")
+                    linewidth=1.4, color=PALETTE[0], label="coarse blocks")  # fmt: skip
+        ax.set_xscale("log")
+        ax.set_title(entry_name(comparison, entry))
+        ax.set_xlabel(f"kx ({unit})")
+        ax.set_ylabel("fraction per bin")
+    outer_labels(panels)
+    handles, labels = panels[0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=LABEL, frameon=False)
+    title(fig, "Spread of kx (log scale): fine cells against coarse blocks")
+    page_sizes(fig)
     return fig

@@ -9,7 +9,7 @@ from __future__ import annotations
 from typing import Any
 
 from .figures import Plot
-from .html import _e, document, figures_html
+from .html import _e, document, figures_html, notices_html
 
 
 def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
@@ -19,8 +19,10 @@ def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
     Parameters
     ----------
     job : dict
-        ``title``, ``verdict`` (one sentence, plain text), ``what`` (what the
-        table shows, plain text), ``command`` (list of str), ``realizations``
+        ``title``, ``verdict`` (one sentence, plain text), ``warning`` and
+        ``note`` (plain text shown prominently under it, or None), ``what`` (what the
+        table shows, plain text), ``command`` (list of str),
+        ``working_folder``, ``realizations``
         (list of dicts with ``name``, ``path``, ``sha256``), ``block`` (one
         line), ``percentiles`` (how they are defined), ``caution``,
         ``versions`` (dict).
@@ -42,7 +44,7 @@ def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
         for r in job["realizations"]
     )
     return document(job["title"], f"""<p>{_e(job["verdict"])}</p>
-<h2>Spread over {len(job["realizations"])} realizations</h2>
+{notices_html(job["warning"], job["note"])}<h2>Spread over {len(job["realizations"])} realizations</h2>
 <p>{_e(job["what"])} Percentiles: {_e(job["percentiles"])}. Blocks: {_e(job["block"])}.</p>
 <table id="spread">
 <tr>{"".join(f"<th>{_e(h)}</th>" for h in head)}</tr>

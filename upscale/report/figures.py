@@ -10,7 +10,10 @@ from matplotlib.figure import Figure
 
 from ..compare import Comparison
 from .charts import bounds_chart, error_bars, histograms
+from .layout import DPI
 from .maps import field_maps, mismatch_maps, pressure_maps
+from .style import MISSING_LABEL
+from .verdict import BAND, one_method
 
 
 @dataclass(frozen=True, eq=False)
@@ -41,39 +44,50 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
     fine = comparison.fine
     if layer is None:
         layer = fine.shape[0] // 2
+    alone = one_method(comparison)
+    scale = (f"Values beyond the colour scale (and zero k) take its end colours, marked by the colour "
+             f"bar's triangles; hatched cells have {MISSING_LABEL}.")  # fmt: skip
     plots = [
         Plot("maps", field_maps(comparison, unit, layer=layer),
-             "Fine kx beside each method's coarse kx on one colour scale: look for channels and "
-             "barriers that vanish or smear in the coarse maps."),
+             f"Fine kx beside {'the' if alone else 'each'} method's coarse kx on one colour scale: look "
+             f"for channels and barriers that vanish or smear in the coarse map{'' if alone else 's'}. "
+             + scale),
     ]  # fmt: skip
     if fine.ndim == 3:
         row = fine.shape[1] // 2
         plots.append(Plot("section", field_maps(comparison, unit, row=row),
-                          f"Vertical section through fine row {row}: look for thin layers and "
-                          "shale breaks that the coarse layers lose."))  # fmt: skip
+                          f"Vertical section through fine row {row}, on the true layer thicknesses: "
+                          "look for thin layers and shale breaks that the coarse layers lose. "
+                          + scale))  # fmt: skip
     plots += [
         Plot("errors", error_bars(comparison),
-             "Check error per method and axis; bars inside the grey ±5 % band pass the fine "
-             "model's flow closely, long bars mark the methods to distrust on this field."),
+             f"Check error {'of the method' if alone else 'per method'} and axis; bars inside the grey "
+             f"±{BAND:g} % band pass the fine model's flow closely, long bars mark "
+             f"{'a coarse model' if alone else 'the methods'} to distrust on this field."),
         Plot("bounds", bounds_chart(comparison, unit),
-             "Coarse effective permeability of each method against the fine one (solid line) and "
-             "the bounds: a method outside the Cardwell–Parsons bounds is suspect."),
+             f"Coarse effective permeability of {'the' if alone else 'each'} method against the fine "
+             "one (solid line) and the bounds: a method outside the Cardwell–Parsons bounds is suspect."),
         Plot("histograms", histograms(comparison, unit),
-             "Spread of kx: coarse blocks always spread less than fine cells; a method that "
-             "narrows it much more than the others smooths away extremes that carry flow."),
+             "Spread of kx, one panel per method over the fine cells (grey): coarse blocks always "
+             "spread less than fine cells; a method that narrows it much more than the others "
+             "smooths away extremes that carry flow."),
     ]  # fmt: skip
     for axis in fine.axes[:2]:
         plots.append(Plot(f"mismatch_{axis}", mismatch_maps(comparison, axis=axis, layer=layer),
-                          f"Where each method errs under flow along {axis}: coarse-face flux minus "
-                          "the fine flux through the same face; strong colours sit on the paths "
-                          "a method misses (orange: too little flow, purple: too much)."))  # fmt: skip
+                          f"Where {'the' if alone else 'each'} method errs under flow along {axis}: "
+                          "coarse-face flux minus the fine flux through the same face; strong colours "
+                          "sit on the paths a method misses (orange: too little flow, purple: too "
+                          "much, white: none missed); hatched faces are beside inactive "
+                          "blocks."))  # fmt: skip
     plots.append(Plot("pressure", pressure_maps(comparison, layer=layer),
+                      "Fine pressure under a drop along x beside the coarse pressure of the method: it "
+                      "should follow the fine contours." if alone else
                       "Fine pressure under a drop along x beside the coarse pressures of the best "
                       "and the worst method: the best should follow the fine contours."))  # fmt: skip
     return plots
 
 
-def rendered(plot: Plot, dpi: int = 130) -> tuple[bytes, bytes]:
+def rendered(plot: Plot, dpi: int = DPI) -> tuple[bytes, bytes]:
     """The figure as PNG and as SVG bytes (for files and for embedding in a page)."""
     images = []
     for kind in ("png", "svg"):

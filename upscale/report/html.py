@@ -18,6 +18,7 @@ import numpy as np
 from ..compare import Comparison, Entry
 from ..field import PERMEABILITY
 from .figures import Plot
+from .verdict import bound_mark, bound_note, one_method, outside_band
 
 _STYLE = """
 body { font-family: system-ui, sans-serif; max-width: 1100px; margin: 2em auto; padding: 0 1em;
@@ -26,11 +27,15 @@ h1 { font-size: 1.6em; } h2 { font-size: 1.25em; margin-top: 1.8em; border-botto
 table { border-collapse: collapse; font-size: 0.92em; }
 th, td { padding: 0.3em 0.7em; border-bottom: 1px solid #e0e0e0; text-align: right; }
 th:first-child, td:first-child, td.text { text-align: left; }
+td { white-space: nowrap; } td.text { white-space: normal; }
 tr.best td { font-weight: bold; } tr.failed td { color: #8a1c1c; }
+.bound { font-size: 0.85em; font-weight: normal; color: #555; }
 figure { margin: 1.5em 0; } figure img { max-width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: 0.92em; color: #333; }
 pre { background: #f4f4f4; padding: 0.7em; overflow-x: auto; white-space: pre-wrap; }
 .caution { background: #fff6e0; border-left: 4px solid #e69f00; padding: 0.6em 1em; }
+.warning { background: #fbe9e9; border-left: 4px solid #8a1c1c; padding: 0.6em 1em; font-weight: bold; }
+.note { background: #eef4fb; border-left: 4px solid #0072b2; padding: 0.6em 1em; }
 """
 
 
@@ -56,10 +61,31 @@ def figures_html(images: list[tuple[Plot, bytes]]) -> str:
     )
 
 
+def reproduce(command: list[str], folder: str | None) -> str:
+    """The shell line that repeats a run: ``cd`` into the folder it ran in, then the command, quoted.
+
+    Examples
+    --------
+    >>> reproduce(["upscale", "run", "my map.tif", "--out", "o"], "/data/field A")
+    "cd '/data/field A' && upscale run 'my map.tif' --out o"
+    >>> reproduce(["upscale", "info", "m.tif"], None)
+    'upscale info m.tif'
+    """
+    line = shlex.join(command)
+    return line if folder is None else f"cd {shlex.quote(folder)} && {line}"
+
+
+def notices_html(warning: str | None, note: str | None) -> str:
+    """A warning (plain text) and a note as prominent paragraphs under the verdict; nothing for None."""
+    return "".join(f'<p class="{kind}">{_e(text)}</p>\n'
+                   for kind, text in (("warning", warning), ("note", note)) if text)  # fmt: skip
+
+
 def document(title: str, body: str, job: dict[str, Any]) -> str:
     """A whole page: `body` (HTML) after the title, then how to reproduce, the versions, the cautions.
 
-    `job` holds ``command`` (list of str), ``versions`` (dict) and ``caution``.
+    `job` holds ``command`` (list of str), ``working_folder`` (the folder the
+    command ran in, or None), ``versions`` (dict) and ``caution``.
     """
     versions = ", ".join(f"{_e(k)} {_e(v)}" for k, v in job["versions"].items())
     return f"""<!DOCTYPE html>
@@ -74,7 +100,7 @@ def document(title: str, body: str, job: dict[str, Any]) -> str:
 <h1>{_e(title)}</h1>
 {body}
 <h2>Reproduce</h2>
-<pre><code>{_e(shlex.join(job["command"]))}</code></pre>
+<pre><code>{_e(reproduce(job["command"], job.get("working_folder")))}</code></pre>
 <p>Versions: {versions}.</p>
 <h2>Cautions</h2>
 <p class="caution">{_e(job["caution"])}</p>
@@ -83,8 +109,11 @@ def document(title: str, body: str, job: dict[str, Any]) -> str:
 """
 
 
-def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None) -> str:
+def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None, ranked: bool) -> str:
     label = _e(entry.candidate.label)
+    mark = bound_mark(entry.candidate.method)
+    if mark:
+        label += f' <span class="bound">{_e(mark)}</span>'
     if entry.error is not None:
         reason = f'<td class="text" colspan="{2 * len(axes) + 1}">did not run: {_e(entry.error)}</td>'
         cells = [f"<td>{label}</td>", "<td>–</td>", reason]
@@ -92,7 +121,7 @@ def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None) -> str:
     coarse = entry.result.coarse
     means = [_number(float(_mean(getattr(coarse, PERMEABILITY[a])))) for a in axes]
     errors = [_percent(entry.checks[a].rel_error) for a in axes]
-    cells = [label, str(entry.rank), *means, *errors]
+    cells = [label, *([str(entry.rank)] if ranked else []), *means, *errors]
     kind = "method best" if entry is best else "method"
     return (f'<tr class="{kind}">' + "".join(f"<td>{c}</td>" for c in cells)
             + f'<td class="time">{entry.seconds:.2f}</td></tr>')  # the one cell that varies between runs
@@ -104,7 +133,7 @@ def _mean(values: np.ndarray) -> float:
 
 
 def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: dict[str, Any]) -> str:
-    """The HTML page of a comparison (or of one run).
+    """The HTML page of a comparison (or of one run: that method's check, nothing ranked).
 
     Parameters
     ----------
@@ -113,9 +142,9 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     images : list of (Plot, bytes)
         Each figure with its PNG bytes.
     job : dict
-        ``title``, ``command`` (list of str), ``inputs`` (list of dicts with
-        ``role``, ``path``, ``sha256``), ``unit``, ``grid`` (one line),
-        ``block`` (one line), ``caution``, ``versions`` (dict).
+        ``title``, ``command`` (list of str), ``working_folder``, ``inputs``
+        (list of dicts with ``role``, ``path``, ``sha256``), ``unit``,
+        ``grid`` (one line), ``block`` (one line), ``caution``, ``versions`` (dict).
 
     Returns
     -------
@@ -124,27 +153,26 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     """
     axes = comparison.fine.axes
     unit = _e(job["unit"])
-    head = ["method", "rank", *(f"{PERMEABILITY[a]} mean ({unit})" for a in axes),
+    ranked = not one_method(comparison)
+    head = ["method", *(["rank"] if ranked else []), *(f"{PERMEABILITY[a]} mean ({unit})" for a in axes),
             *(f"error along {a}" for a in axes), "time (s)"]  # fmt: skip
     best = comparison.best
-    rows = "\n".join(_row(e, axes, best) for e in comparison.entries)
+    rows = "\n".join(_row(e, axes, best if ranked else None, ranked) for e in comparison.entries)
     inputs = "\n".join(
         f"<tr><td>{_e(i['role'])}</td><td class='text'>{_e(i['path'])}</td>"
         f"<td class='text'><code>{_e(i['sha256'] or '–')}</code></td></tr>"
         for i in job["inputs"]
     )
-    verdict = "No method ran on this field."
-    if best:
-        verdict = (f"Best on this field: <strong>{_e(best.candidate.label)}</strong>, largest check "
-                   f"error {100 * best.worst_error:.2f} % over the axes.")  # fmt: skip
-    return document(job["title"], f"""<p>{verdict}</p>
+    heading = ("Methods, ranked by the largest check error over the axes" if ranked
+               else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
+    return document(job["title"], f"""{_verdict(comparison, ranked)}
 <h2>Job and inputs</h2>
 <table>
 <tr><th>role</th><th>file</th><th>SHA-256</th></tr>
 {inputs}
 </table>
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
-<h2>Methods, ranked by the largest check error over the axes</h2>
+<h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.</p>
 <table id="ranking">
@@ -154,3 +182,17 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
 <h2>Figures</h2>
 {figures_html(images)}
 """, job)
+
+
+def _verdict(comparison: Comparison, ranked: bool) -> str:
+    """The opening: the best method (or the one method's check), then warnings on the band and bounds."""
+    best = comparison.best
+    if best is None:
+        return "<p>No method ran on this field.</p>"
+    label = best.candidate.label
+    size = f"largest check error {100 * best.worst_error:.2f} % over the axes."
+    sentence = (f"Best on this field: <strong>{_e(label)}</strong>, {size}" if ranked
+                else f"<strong>{_e(label)}</strong> on this field: {size}")  # fmt: skip
+    warning = outside_band(label, best.worst_error, several=ranked)
+    note = bound_note(best.candidate.method, label) if ranked else None
+    return f"<p>{sentence}</p>\n" + notices_html(warning, note)

@@ -1,64 +1,63 @@
 """Map figures: fine and coarse fields, pressures, and flux mismatches on coarse faces.
 
-Every map is drawn in map coordinates (the raster's, or metres from the
-origin) with one colour bar per figure that states the property and unit.
-For a 3D model a map shows one layer; `sections` shows a vertical x–z
-section through one row.
+Every map is drawn cell by cell on the cells' true edges in map
+coordinates (the raster's, or metres from the origin; `coordinates`), with
+one colour bar per figure that states the property and unit. Cells with no
+value show a hatched background (`style.missing_background`). For a 3D
+model a map shows one layer; `field_maps` with a row shows a vertical
+x–z section through it, on the true layer thicknesses.
 """
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
-from affine import Affine
 from matplotlib.colors import Normalize, TwoSlopeNorm
 from matplotlib.figure import Figure
-from matplotlib.ticker import MaxNLocator
 
 from ..compare import Comparison, Entry
 from ..field import Grid
+from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch
+from .layout import outer_labels, page_sizes, panel_grid, title
 from .style import (
     MISMATCH_MAP,
     PERMEABILITY_MAP,
     PRESSURE_MAP,
+    extend_of,
     log_norm,
-    plan_extent,
-    section_extent,
+    missing_background,
+    missing_key,
+    on_log_scale,
     with_missing,
 )
+from .verdict import entry_name, one_method
 
 
-def _panels(count: int, width: float = 3.4) -> tuple[Figure, list]:
-    cols = min(count, 4)
-    rows = math.ceil(count / cols)
-    fig = Figure(figsize=(width * cols + 1.2, width * rows + 0.8), layout="constrained")
-    axes = fig.subplots(rows, cols, squeeze=False).ravel()
-    for ax in axes[count:]:
-        ax.set_visible(False)
-    return fig, list(axes[:count])
+def _draw(ax, values: np.ndarray, edges: tuple[np.ndarray, np.ndarray], **style):
+    """`values` (rows, columns) as cells between `edges` (x, y), over the hatched no-value background."""
+    missing_background(ax)
+    mesh = ax.pcolormesh(*edges, np.ma.masked_invalid(values), shading="flat", **style)
+    return mesh
 
 
-def _coords(ax, grid: Grid, section: bool) -> None:
-    unit = "m" if grid.crs is None else _crs_unit(grid)
-    ax.set_xlabel(f"x ({unit})")
-    ax.set_ylabel("depth below top (m)" if section else f"y ({unit})")
-    ax.tick_params(labelsize=7)
-    ax.xaxis.set_major_locator(MaxNLocator(4))
+def _edges(grid: Grid, section: bool) -> tuple[np.ndarray, np.ndarray]:
+    x, y = plan_edges(grid)
+    return (x, depth_edges(grid)) if section else (x, y)
 
 
-def _crs_unit(grid: Grid) -> str:
-    units = getattr(grid.crs, "linear_units", None) or "m"
-    return {"metre": "m", "meter": "m"}.get(units, units)
-
-
-def _draw(ax, values: np.ndarray, grid: Grid, section: bool, **style):
-    extent = section_extent(grid) if section else plan_extent(grid)
-    image = ax.imshow(values, extent=extent, interpolation="nearest", origin="upper", **style)
-    ax.set_aspect("auto" if section else "equal")
-    _coords(ax, grid, section)
-    return image
+def _finish(fig: Figure, axes: list, grid: Grid, section: bool, values: list[np.ndarray]) -> None:
+    """Axis labels on the outer panels, aspect, the no-value key when a panel has no-value cells."""
+    for ax in axes:
+        label_map(ax, grid, section)
+        if section:
+            ax.set_aspect("auto")
+            ax.set_ylim(float(depth_edges(grid)[-1]), 0.0)  # depth grows downwards
+        else:
+            ax.set_aspect("equal")
+    outer_labels(axes)
+    if any(np.isnan(np.asarray(v, dtype=float)).any() for v in values):
+        missing_key(fig)
+    page_sizes(fig)
 
 
 def _slice(array: np.ndarray, layer: int | None, row: int | None) -> np.ndarray:
@@ -67,6 +66,9 @@ def _slice(array: np.ndarray, layer: int | None, row: int | None) -> np.ndarray:
 
 def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | None = None) -> Figure:
     """The fine kx beside the coarse kx of every method, on one shared log colour scale.
+
+    Values beyond the scale (the 0.5th to 99.5th percentile) and zeros take
+    its end colours, marked by triangles on the colour bar.
 
     Parameters
     ----------
@@ -86,78 +88,80 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     fine_values = _slice(np.asarray(fine.kx, dtype=float), *where)
     coarse_values = [_slice(e.result.coarse.kx, *coarse_where) for e in ran]
     norm = log_norm(fine_values, *coarse_values)
-    fig, axes = _panels(1 + len(ran))
-    cmap = with_missing(PERMEABILITY_MAP)
     section = row is not None
-    image = _draw(axes[0], fine_values, fine.grid, section, cmap=cmap, norm=norm)
-    axes[0].set_title("fine", fontsize=9)
+    fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True)
+    cmap = with_missing(PERMEABILITY_MAP)
+    mesh = _draw(axes[0], on_log_scale(fine_values), _edges(fine.grid, section), cmap=cmap, norm=norm)
+    axes[0].set_title("fine")
     for ax, entry, values in zip(axes[1:], ran, coarse_values):
-        _draw(ax, values, entry.result.coarse.grid, section, cmap=cmap, norm=norm)
-        ax.set_title(f"{entry.rank}. {entry.candidate.label}", fontsize=9)
-    fig.colorbar(image, ax=axes, label=f"kx ({unit}, log scale)", shrink=0.8)
+        _draw(ax, on_log_scale(values), _edges(entry.result.coarse.grid, section), cmap=cmap, norm=norm)
+        ax.set_title(entry_name(comparison, entry))
+    fig.colorbar(mesh, ax=axes, label=f"kx ({unit}, log scale)", shrink=0.8,
+                 extend=extend_of(norm, fine_values, *coarse_values))  # fmt: skip
     where_text = f"section through row {row}" if section else f"layer {layer + 1}"
-    fig.suptitle(f"Fine and coarse kx, {where_text}" if fine.ndim == 3 else "Fine and coarse kx")
+    title(fig, f"Fine and coarse kx, {where_text}" if fine.ndim == 3 else "Fine and coarse kx")
+    _finish(fig, axes, fine.grid, section, [fine_values, *coarse_values])
     return fig
 
 
 def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
-    """Fine and coarse pressures of the check along `axis` for the best and the worst method."""
+    """Fine and coarse pressures of the check along `axis`: the best and the worst method, or the one."""
     ran = comparison.ranked
     chosen = [ran[0]] + ([ran[-1]] if len(ran) > 1 else [])
+    tags = [""] if one_method(comparison) else ["best: ", "worst: "]
     bz = comparison.block.cells[0]
     fine_flow = comparison.fine_flows[axis]
-    fig, axes = _panels(1 + len(chosen))
+    fig, axes = panel_grid(1 + len(chosen), width=3.0, share=True)
     norm = Normalize(0.0, 1.0)
     cmap = with_missing(PRESSURE_MAP)
-    image = _draw(axes[0], fine_flow.pressure[layer], fine_flow.trans.grid, False, cmap=cmap, norm=norm)
-    axes[0].set_title("fine", fontsize=9)
-    for ax, entry, tag in zip(axes[1:], chosen, ("best", "worst")):
+    shown = [fine_flow.pressure[layer]]
+    mesh = _draw(axes[0], shown[0], plan_edges(fine_flow.trans.grid), cmap=cmap, norm=norm)
+    axes[0].set_title("fine")
+    for ax, entry, tag in zip(axes[1:], chosen, tags):
         flow = entry.checks[axis].coarse
-        _draw(ax, flow.pressure[layer // bz], flow.trans.grid, False, cmap=cmap, norm=norm)
-        ax.set_title(f"{tag}: {entry.candidate.label}", fontsize=9)
-    fig.colorbar(image, ax=axes, label="pressure (fraction of the drop, inlet = 1)", shrink=0.8)
-    fig.suptitle(f"Pressure under a drop along {axis}")
+        shown.append(flow.pressure[layer // bz])
+        _draw(ax, shown[-1], plan_edges(flow.trans.grid), cmap=cmap, norm=norm)
+        ax.set_title(f"{tag}{entry.candidate.label}")
+    fig.colorbar(mesh, ax=axes, label="pressure (fraction of the drop, inlet = 1)", shrink=0.8)
+    title(fig, f"Pressure under a drop along {axis}")
+    _finish(fig, axes, fine_flow.trans.grid, False, shown)
     return fig
 
 
 def mismatch_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
-    """Coarse-face flux minus the fine flux through each coarse face, per method (flow along `axis`)."""
+    """Coarse-face flux minus the fine flux through each coarse face, per method (flow along `axis`).
+
+    A face beside an inactive block carries no flow in either model and has
+    no value: it is drawn hatched, unlike a face where the two models agree
+    (white, the centre of the scale).
+    """
     a = {"x": 2, "y": 1, "z": 0}[axis]
     ran = comparison.ranked
     block = comparison.block.cells
-    maps = [_mismatch(e, comparison, axis, a, block, layer) for e in ran]
-    largest = max([np.nanmax(np.abs(m)) for m in maps if m.size] + [1e-12])
-    norm = TwoSlopeNorm(0.0, -100 * largest, 100 * largest)
-    fig, axes = _panels(len(ran))
+    maps = [100 * _mismatch(e, comparison, axis, a, block, layer) for e in ran]
+    largest = max([np.nanmax(np.abs(m)) for m in maps if np.isfinite(m).any()] + [1e-10])
+    norm = TwoSlopeNorm(0.0, -largest, largest)
+    fig, axes = panel_grid(len(ran), width=3.0 if len(ran) == 1 else 2.6, share=True)
     cmap = with_missing(MISMATCH_MAP)
-    image = None
+    mesh = None
     for ax, entry, values in zip(axes, ran, maps):
-        grid = entry.result.coarse.grid
-        image = _draw(ax, 100 * values, _face_grid(grid, a), False, cmap=cmap, norm=norm)
-        ax.set_title(f"{entry.rank}. {entry.candidate.label}", fontsize=9)
-    if image is not None:
-        fig.colorbar(image, ax=axes, label="coarse − fine flux through the face (% of the total flow)",
+        mesh = _draw(ax, values, face_edges(entry.result.coarse.grid, a), cmap=cmap, norm=norm)
+        ax.set_title(entry_name(comparison, entry))
+    if mesh is not None:
+        fig.colorbar(mesh, ax=axes, label="coarse − fine flux through the face\n(% of the total flow)",
                      shrink=0.8)  # fmt: skip
-    fig.suptitle(f"Flux mismatch on the coarse faces normal to {axis}, flow along {axis}")
+    title(fig, f"Flux mismatch on the coarse faces normal to {axis}, flow along {axis}")
+    _finish(fig, axes, ran[0].result.coarse.grid, False, maps)
     return fig
 
 
 def _mismatch(entry: Entry, comparison: Comparison, axis: str, a: int, block, layer: int) -> np.ndarray:
+    """One layer of the mismatch on the coarse faces normal to array axis `a`; NaN beside inactive blocks."""
     check = entry.checks[axis]
     values = coarse_face_mismatch(comparison.fine_flows[axis], check.coarse, block, a)
+    k = np.asarray(entry.result.coarse.kx, dtype=float)
+    n = k.shape[a]
+    active = np.isfinite(k)
+    beside = np.take(active, np.arange(n - 1), axis=a) & np.take(active, np.arange(1, n), axis=a)
+    values = np.where(beside, values, np.nan)
     return values[min(layer // block[0], values.shape[0] - 1)]
-
-
-def _face_grid(grid: Grid, a: int) -> Grid:
-    """A grid whose cells sit on the inner faces normal to array axis `a` (for drawing)."""
-    if a == 0:
-        return grid
-    sizes = {"dz": grid.dz, "dy": grid.dy, "dx": grid.dx}
-    name = "dx" if a == 2 else "dy"
-    inner = sizes[name]
-    sizes[name] = 0.5 * (inner[:-1] + inner[1:])
-    transform = grid.transform
-    if transform is not None:
-        shift = (inner[0] / 2, 0) if a == 2 else (0, -inner[0] / 2)
-        transform = Affine.translation(*shift) @ transform
-    return Grid(**sizes, transform=transform, crs=grid.crs)

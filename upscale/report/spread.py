@@ -9,8 +9,10 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
 from ..ensemble import PERCENTILES
-from .charts import BAND
+from .charts import error_band, readable_k_axis, warn_in
+from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
+from .verdict import outside_band
 
 
 def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str | None,
@@ -26,13 +28,6 @@ def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str
     ax.plot([x - half, x + half], [p50, p50], color="black", linewidth=1.6)
 
 
-def _band(ax: Axes, largest: float) -> None:
-    ax.axhspan(-BAND, BAND, color="#d9d9d9", alpha=0.6, label=f"±{BAND:g} %")
-    ax.axhline(0.0, color="black", linewidth=0.6)
-    if largest > 10 * BAND:
-        ax.set_yscale("symlog", linthresh=2 * BAND)
-
-
 def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: int) -> Figure:
     """Check error of every method over the realizations, per axis, methods in ranked order.
 
@@ -46,7 +41,8 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
         How many realizations, for the title.
     """
     ran = [m for m in methods if m["rank"] is not None]
-    fig = Figure(figsize=(max(6.5, 1.1 * len(ran) + 2.5), 4.6), layout="constrained")
+    alone = len(methods) == 1
+    fig = Figure(figsize=(min(MAX_WIDTH, max(6.5, 0.9 * len(ran) + 2.5)), 4.6), layout="constrained")
     ax = fig.subplots()
     width = 0.8 / len(axes)
     largest = 0.0
@@ -59,12 +55,16 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
                 largest = max(largest, float(np.nanmax(np.abs(values))))
             _spread_marks(ax, j + offset, values, PALETTE[i], f"along {axis}" if j == 0 else None,
                           half=0.4 * width)  # fmt: skip
-    _band(ax, largest)
-    ax.set_xticks(range(len(ran)), [f"{m['rank']}. {m['name']}" for m in ran], rotation=30, ha="right",
-                  fontsize=8)  # fmt: skip
-    ax.set_ylabel("check error (k_coarse − k_fine) / k_fine (%)")
-    ax.set_title(f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
-    ax.legend(fontsize=8, loc="best")
+    error_band(ax, largest)
+    ax.set_xticks(range(len(ran)), [m["name"] if alone else f"{m['rank']}. {m['name']}" for m in ran],
+                  rotation=30, ha="right")  # fmt: skip
+    ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
+    if ran:
+        warn_in(ax, outside_band(ran[0]["name"], ran[0]["worst_error"]["p50"], several=not alone,
+                                 measure="median largest check error", where="over these realizations"))
+    ax.legend(fontsize=LABEL, loc="best")
+    title(fig, f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
+    page_sizes(fig)
     return fig
 
 
@@ -80,7 +80,7 @@ def ensemble_chart(ensemble: dict[str, Any], unit: str) -> Figure:
     """
     rows = ensemble["realizations"]
     axes = [a for a in "xyz" if a in ensemble["statistics"]["k_fine"]]
-    fig = Figure(figsize=(10.0, 4.4), layout="constrained")
+    fig = Figure(figsize=(9.0, 4.6), layout="constrained")
     left, right = fig.subplots(1, 2)
     for i, axis in enumerate(axes):
         for j, (quantity, name) in enumerate((("k_fine", "fine"), ("k_coarse", "coarse"))):
@@ -88,16 +88,21 @@ def ensemble_chart(ensemble: dict[str, Any], unit: str) -> Figure:
             _spread_marks(left, 2 * i + 0.8 * j, values, PALETTE[j], name if i == 0 else None)
         errors = np.array([r["rel_error"].get(axis) for r in rows], dtype=float) * 100
         _spread_marks(right, i, errors, PALETTE[i], None)
-    left.set_yscale("log")
+    readable_k_axis(left)
     left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [f"along {a}" for a in axes])
     left.set_ylabel(f"effective permeability ({unit})")
     left.set_title("k_eff of the fine and the coarse model")
-    left.legend(fontsize=8, loc="best")
+    left.legend(fontsize=LABEL, loc="best")
     errors = np.array([r["rel_error"].get(a) for r in rows for a in axes], dtype=float) * 100
-    _band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
+    error_band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
     right.set_xticks(range(len(axes)), [f"along {a}" for a in axes])
-    right.set_ylabel("check error (k_coarse − k_fine) / k_fine (%)")
+    right.set_ylabel("check error (k_coarse − k_fine) / k_fine")
+    medians = [s["p50"] for s in ensemble["statistics"]["rel_error"].values() if s]
     right.set_title("Check error")
-    right.legend(fontsize=8, loc="best")
-    fig.suptitle(f"Over {len(rows)} realizations: dots, P10–P90 bar, P50 tick")
+    if medians:
+        warn_in(right, outside_band(ensemble["method"]["name"], max(medians, key=abs), several=False,
+                                    measure="median check error", where="over these realizations"))
+    right.legend(fontsize=LABEL, loc="best")
+    title(fig, f"Over {len(rows)} realizations: dots, P10–P90 bar, P50 tick")
+    page_sizes(fig)
     return fig

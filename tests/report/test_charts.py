@@ -1,0 +1,139 @@
+"""Charts (`upscale.report.charts`, `upscale.report.spread`) as drawn: tick labels, panels, warnings.
+
+What is tested
+--------------
+* Check errors read in plain percent on every error axis — also the
+  symmetric-log one used when errors pass 50 %: tick labels such as
+  ``−100 %``, ``−10 %``, ``0``, ``10 %``, never powers of ten ("10¹"), in
+  the check-error chart of a comparison and in the spread chart of an
+  ensemble.
+* The effective permeabilities of an ensemble are read on labelled ticks
+  whatever their range: at least three labelled ticks inside the axis over
+  78–125 mD (less than a decade), and over 1–1000 mD.
+* Histograms as small multiples: one panel per method, each with the fine
+  cells' histogram (grey) behind that method's coarse blocks, readable with
+  eleven candidates.
+* When no method is within the ±5 % band, the check-error chart says so
+  (and does not when one is).
+
+Data come from real comparisons (`compare_methods`) or, for the ensemble
+charts, from hand-built summaries shaped like ``ensemble.json``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from conftest import lognormal
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+from upscale import Field
+from upscale.compare import candidates, compare_methods
+from upscale.ensemble import method_spread
+from upscale.report.charts import error_bars, histograms
+from upscale.report.spread import ensemble_chart, method_spread_chart
+
+#: Rows of 1 and 1000 mD: the means miss badly across the layers (errors far beyond 50 %).
+LAYERS = np.tile(np.array([1.0, 1000.0])[:, None], (8, 16))
+
+
+def _shown_labels(ax, which="major"):
+    """(tick value, label) of the labelled ticks inside the y axis after a draw."""
+    FigureCanvasAgg(ax.figure).draw()
+    low, high = sorted(ax.get_ylim())
+    ticks = ax.yaxis.get_major_ticks() if which == "major" else ax.yaxis.get_minor_ticks()
+    return [(t.get_loc(), t.label1.get_text()) for t in ticks
+            if low <= t.get_loc() <= high and t.label1.get_visible() and t.label1.get_text()]  # fmt: skip
+
+
+def _assert_plain_percent(labels):
+    assert len(labels) >= 3, labels
+    for value, text in labels:
+        assert "$" not in text and "^" not in text and "e" not in text, text
+        expected = "0" if value == 0 else f"{value:g} %".replace("-", "−")
+        assert text == expected, (value, text)
+
+
+def test_error_axis_reads_in_plain_percent_on_a_symmetric_log_scale():
+    comparison = compare_methods(Field.from_arrays(LAYERS), "4x4", candidates(["arithmetic", "harmonic"]))
+    assert max(e.worst_error for e in comparison.ranked) > 0.5  # the symmetric-log case
+    (ax,) = error_bars(comparison).axes
+    assert ax.get_yscale() == "symlog"
+    labels = _shown_labels(ax)
+    _assert_plain_percent(labels)
+    assert {"0", "10 %", "−10 %"} <= {text for _, text in labels}
+
+
+def _comparison_json(errors: dict[str, tuple[float, float]]) -> dict:
+    """The part of one realization's compare.json that `method_spread` reads."""
+    ranked = sorted(errors, key=lambda n: max(map(abs, errors[n])))
+    return {"dimensions": 2, "methods": [
+        {"name": n, "method": n, "error": None, "rank": ranked.index(n) + 1,
+         "check": {"x": {"rel_error": ex}, "y": {"rel_error": ey}}} for n, (ex, ey) in errors.items()]}
+
+
+def test_spread_error_axis_reads_in_plain_percent():
+    realizations = [_comparison_json({"geometric": (-0.08 - 0.01 * i, 0.02), "arithmetic": (0.4, 1.9 + i)})
+                    for i in range(4)]  # fmt: skip
+    methods = method_spread([f"r{i}" for i in range(4)], realizations)
+    (ax,) = [a for a in method_spread_chart(methods, "xy", 4).axes if a.get_visible()]
+    assert ax.get_yscale() == "symlog"
+    _assert_plain_percent(_shown_labels(ax))
+
+
+def _ensemble(k_fine: list[float], k_coarse: list[float]) -> dict:
+    """An ensemble.json of one method along x, with the check errors of its k."""
+    rows = [{"name": f"r{i}", "k_fine": {"x": f}, "k_coarse": {"x": c}, "rel_error": {"x": (c - f) / f}}
+            for i, (f, c) in enumerate(zip(k_fine, k_coarse))]  # fmt: skip
+    errors = [r["rel_error"]["x"] for r in rows]
+    spread = {"p10": min(errors), "p50": float(np.median(errors)), "p90": max(errors)}
+    return {"realizations": rows, "method": {"name": "flow"},
+            "statistics": {"k_fine": {"x": {}}, "k_coarse": {"x": {}}, "rel_error": {"x": spread}}}
+
+
+@pytest.mark.parametrize("k_fine, k_coarse", [
+    ([78.0, 96.0, 110.0, 125.0], [80.0, 95.0, 112.0, 121.0]),  # under a decade
+    ([1.0, 30.0, 400.0, 1000.0], [1.1, 28.0, 390.0, 980.0]),  # three decades
+])  # fmt: skip
+def test_ensemble_k_eff_axis_has_labelled_ticks_whatever_the_range(k_fine, k_coarse):
+    left = ensemble_chart(_ensemble(k_fine, k_coarse), "mD").axes[0]
+    labels = _shown_labels(left) + _shown_labels(left, "minor")
+    assert len(labels) >= 3, labels
+    for value, text in labels:
+        assert float(text.replace("−", "-")) == pytest.approx(value, rel=1e-6), (value, text)
+
+
+@pytest.fixture(scope="module")
+def eleven():
+    """All eleven candidates on a 32 x 32 lognormal map."""
+    field = Field.from_arrays(lognormal((32, 32), seed=8123), cell_size=(10.0, 10.0))
+    return compare_methods(field, "8x8", candidates())
+
+
+def test_histograms_are_small_multiples_with_the_fine_cells_behind(eleven):
+    ran = eleven.ranked
+    assert len(ran) == 11
+    figure = histograms(eleven, "mD")
+    panels = [ax for ax in figure.axes if ax.get_visible()]
+    assert len(panels) == len(ran)
+    fine = np.asarray(eleven.fine.kx, dtype=float).ravel()
+    for ax, entry in zip(panels, ran):
+        assert entry.candidate.label in ax.get_title()
+        assert ax.get_xscale() == "log"
+        steps = [p for p in ax.patches if p.get_fill() is False]
+        assert len(steps) == 1, "one method per panel"
+        grey = [p for p in ax.patches if p.get_fill()]
+        assert {p.get_facecolor() for p in grey} == {(0.7411764705882353, 0.7411764705882353,
+                                                      0.7411764705882353, 1.0)}  # #bdbdbd
+        assert sum(p.get_height() for p in grey) == pytest.approx(1.0)  # every fine cell, as fractions
+        assert len(grey) == 40 and fine.size == 32 * 32
+
+
+def test_error_chart_warns_when_no_method_is_within_the_band():
+    comparison = compare_methods(Field.from_arrays(LAYERS), "4x4", candidates(["arithmetic", "harmonic"]))
+    (ax,) = error_bars(comparison).axes
+    texts = [t.get_text() for t in (ax.title, *ax.texts, *ax.figure.texts)]
+    assert any("No method is within the ±5 % band" in t for t in texts), texts
+    good = compare_methods(Field.from_arrays(np.full((8, 8), 5.0)), "4x4", candidates(["geometric"]))
+    (ax,) = error_bars(good).axes
+    assert not any("band" in t.get_text() for t in (ax.title, *ax.texts, *ax.figure.texts))
