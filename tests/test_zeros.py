@@ -18,7 +18,8 @@ there: along both axes in block (0, 0), along y in block (0, 1).
 * ``inactive`` makes both inactive; ``floor`` and ``floor:VALUE`` raise every zero.
 * The relative floor scales with the unit of k (k x 1000 -> floor x 1000).
 * ``upscale run`` writes no active block with k = 0 into ``cells.csv`` by
-  default, prints what the rule did, records it in ``summary.json``; with
+  default, prints what the rule did, records it in ``summary.json`` and says
+  it in ``report.html``; with
   ``--zero-k keep`` the zeros are written. A bad rule is one line on stderr.
 """
 
@@ -122,9 +123,11 @@ def test_run_writes_no_active_block_with_zero_k(write_tif, run_cli, tmp_path):
     porosity = write_tif("phi.tif", np.where(k == nodata, nodata, PHI), nodata=nodata, cell_size=CELL)
     out, kept = tmp_path / "auto", tmp_path / "keep"
     code, stdout, err = run_cli("run", path, "--porosity", porosity, "--block", "4x4", "--method", "flow",
-                                "--out", out)  # fmt: skip
+                                "--report", "--out", out)  # fmt: skip
     assert (code, err) == (0, "")
-    assert "zero k       1 block made inactive (pore volume 80 m³ taken out); 1 block floored" in stdout
+    told = "1 block made inactive (pore volume 80 m³ taken out); 1 block floored"
+    assert f"zero k       {told}" in stdout
+    assert f"Blocks with k = 0: flow (sealed): {told}" in (out / "report.html").read_text()
     rows = [r for r in _cells(out) if r["active"] == "1"]
     assert len(rows) == 8 and all(float(r["kx"]) > 0 and float(r["ky"]) > 0 for r in rows)
     zero_k = json.loads((out / "summary.json").read_text())["active"]["zero_k"]

@@ -123,6 +123,15 @@ class Comparison:
         """The top-ranked entry (None if every method failed)."""
         return self.ranked[0] if self.ranked else None
 
+    def zero_k_notes(self) -> list[str]:
+        """What the zero-k rule did (`upscale.zeros`): one line per outcome, naming its methods."""
+        touched: dict[str, list[str]] = {}
+        for e in self.ranked:
+            line = e.result.zeros.line(self.fine.unit)
+            if line:
+                touched.setdefault(f"{line} (--zero-k {e.result.zeros.rule})", []).append(e.candidate.label)
+        return [f"{', '.join(labels)}: {line}" for line, labels in touched.items()]
+
     def best_along(self, axis: str) -> Entry | None:
         """The entry with the smallest ``|rel_error|`` along one axis (ties: candidate order)."""
         ran = [e for e in self.entries if e.error is None]

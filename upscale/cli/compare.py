@@ -107,6 +107,8 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     write_comparison(out, summary, files.images, files.page, overwrite=overwrite)
     if not quiet:
         _print(result.entries, fine.axes, fine.unit)
+        for line in result.zero_k_notes():
+            click.echo(f"zero k: {line}")
         best = result.best
         several = not one_method(result)
         click.echo(f"\nbest: {best.candidate.label}" if several else
@@ -129,13 +131,6 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
     click.echo(table(header, rows))
     click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop)")
-    touched: dict[str, list[str]] = {}
-    for e in entries:
-        line = e.result.zeros.line(unit) if e.result is not None else None
-        if line:
-            touched.setdefault(f"{line} (--zero-k {e.result.zeros.rule})", []).append(e.candidate.label)
-    for line, labels in touched.items():
-        click.echo(f"zero k: {', '.join(labels)}: {line}")
     compiling = sum(e.compiling for e in entries)
     if compiling >= 0.5:
         click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "

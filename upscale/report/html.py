@@ -179,6 +179,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
 <tr>{"".join(f"<th>{h}</th>" for h in head)}</tr>
 {rows}
 </table>
+{"".join(f'<p class="zero-k">Blocks with k = 0: {_e(line)}.</p>' for line in comparison.zero_k_notes())}
 <h2>Figures</h2>
 {figures_html(images)}
 """, job)
