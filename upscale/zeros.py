@@ -35,8 +35,6 @@ class ZeroOutcome:
         Per permeability, active blocks whose 0 became the floor.
     floor : dict of str to float
         Per permeability, the floor (unit of k); empty when the rule raises nothing.
-    kept : dict of str to int
-        Per permeability, active blocks left with k = 0 (rule ``keep``).
     pore_volume_removed : float
         Pore volume (m³) of the blocks made inactive; 0 without porosity.
     found : dict of str to int
@@ -49,7 +47,6 @@ class ZeroOutcome:
     inactive_blocks: int = 0
     floored: dict[str, int] = field(default_factory=dict)
     floor: dict[str, float] = field(default_factory=dict)
-    kept: dict[str, int] = field(default_factory=dict)
     pore_volume_removed: float = 0.0
     found: dict[str, int] = field(default_factory=dict)
     touched: np.ndarray | None = field(default=None, repr=False)
@@ -65,12 +62,17 @@ class ZeroOutcome:
             "blocks_left_at_zero": self.kept,
         }
 
+    @property
+    def kept(self) -> dict[str, int]:
+        """Per permeability, active blocks left with k = 0 (rule ``keep``; empty otherwise)."""
+        return self.found if self.rule == "keep" else {}
+
     def line(self, unit: str) -> str | None:
         """What the rule touched, in one line (None when it touched nothing).
 
         Examples
         --------
-        >>> ZeroOutcome("auto", 2, {"kx": 1}, {"kx": 1e-4}, {}, 12.5).line("mD")
+        >>> ZeroOutcome("auto", 2, {"kx": 1}, {"kx": 1e-4}, 12.5).line("mD")
         '2 blocks made inactive (pore volume 12.5 m³ taken out); 1 block floored at 0.0001 mD along x'
         """
         parts = []
@@ -133,7 +135,7 @@ def apply_zero_rule(
     zero = {name: (values == 0) & ~inactive for name, values in permeabilities.items()}
     found = {name: int(where.sum()) for name, where in zero.items()}
     if rule == "keep":
-        return dict(permeabilities), inactive, ZeroOutcome(spec.zero_k, kept=found, found=found)
+        return dict(permeabilities), inactive, ZeroOutcome(spec.zero_k, found=found)
     if rule == "auto":  # no flow along any axis: nothing to keep the block for
         dropped = np.logical_and.reduce(list(zero.values()))
     elif rule == "inactive":
