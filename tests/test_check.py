@@ -28,10 +28,11 @@ import numpy as np
 import pytest
 
 from upscale import BlockSpec, Field, Grid, coarsen
-from upscale.check import DEFAULT_LIMIT, AxisCheck, check_flow, check_summary
-from upscale.demo.fields import lognormal_field
+from upscale.check.axis import AxisCheck, check_flow, check_summary
+from upscale.check.limits import DEFAULT_LIMIT
 from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
+from upscale.gallery.fields import lognormal_field
 from upscale.methods.registry import METHODS
 
 # renormalization takes powers-of-two blocks only; it has its own tests (test_flow_based.py)

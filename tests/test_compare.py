@@ -1,4 +1,4 @@
-"""Tests of `upscale.compare`: several methods on one field, checked against one fine solve, ranked.
+"""Tests of `upscale.analysis.compare`: several methods on one field, checked against one fine solve, ranked.
 
 What is tested
 --------------
@@ -31,8 +31,8 @@ from conftest import lognormal
 
 import upscale
 from upscale import Field, coarsen
-from upscale.check import check_flow
-from upscale.compare import ALL_CONDITIONS, Candidate, candidates, compare_methods, single
+from upscale.analysis.compare import ALL_CONDITIONS, Candidate, candidates, compare_methods, single
+from upscale.check.axis import check_flow
 from upscale.errors import InputError
 from upscale.methods.registry import METHODS
 

@@ -27,8 +27,8 @@ import pytest
 import rasterio
 from conftest import lognormal, write_raster
 
-import upscale.cluster
-from upscale.ensemble import PERCENTILES, QUANTITIES
+import upscale.jobs.cluster
+from upscale.analysis.ensemble import PERCENTILES, QUANTITIES
 
 SIZE = (48, 40)
 
@@ -189,7 +189,7 @@ def test_two_realizations_with_one_name(run_cli, realizations, tmp_path):
 
 
 def test_unreachable_scheduler(run_cli, realizations, tmp_path, monkeypatch):
-    monkeypatch.setattr(upscale.cluster, "CONNECT_TIMEOUT", 1)
+    monkeypatch.setattr(upscale.jobs.cluster, "CONNECT_TIMEOUT", 1)
     out = tmp_path / "never"
     line = _one_error(*run_cli("run", str(realizations / "r0.tif"), "--block", "8x8", "--method",
                                "geometric", "--scheduler", "tcp://127.0.0.1:9", "--out", out))  # fmt: skip

@@ -70,9 +70,9 @@ from browser_probe import assert_self_contained, probe
 from conftest import lognormal, partial_leftovers, snapshot, write_raster
 from PIL import Image
 
+from upscale.analysis.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
 from upscale.caution import CAUTION
 from upscale.cli.main import main
-from upscale.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
 from upscale.methods.registry import METHODS as REGISTRY
 
 SIZE = (32, 32)

@@ -39,7 +39,8 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 RECORD = ROOT / "tests" / "data" / "reference_outputs.json"
 #: The libraries whose versions decide the last bits of the outputs.
-STACK = ("numpy", "scipy", "numba", "llvmlite", "pyamg", "dask", "rasterio", "matplotlib", "netCDF4", "pyarrow")
+STACK = ("numpy", "scipy", "numba", "llvmlite", "pyamg", "dask", "rasterio", "matplotlib", "netCDF4",
+         "pyarrow")
 #: Keys of the JSON outputs that differ from one run to the next, or from one folder to the next.
 VOLATILE = {"timings_s", "versions", "command", "working_folder", "seconds", "compile_seconds", "path",
             "resolved"}  # fmt: skip
@@ -64,7 +65,8 @@ def _array(values: np.ndarray) -> dict[str, Any]:
     values = np.ascontiguousarray(values, dtype=np.float64)
     finite = values[np.isfinite(values)]
     stats = [float(finite.mean()), float(finite.min()), float(finite.max())] if finite.size else [None] * 3
-    return {"sha256": _digest(repr(values.shape).encode() + values.tobytes()), "stats": [*stats, int(finite.size)]}
+    digest = _digest(repr(values.shape).encode() + values.tobytes())
+    return {"sha256": digest, "stats": [*stats, int(finite.size)]}
 
 
 def _numbers(column: list[str]) -> np.ndarray | None:
@@ -148,8 +150,8 @@ def test_outputs_match_the_recorded_reference(case, demo_dir, tmp_path):
         return
     for key, piece in expected.items():  # another stack: the statistics of the arrays
         if "stats" in piece:
-            np.testing.assert_allclose(np.array(found[key]["stats"], dtype=float),
-                                       np.array(piece["stats"], dtype=float), rtol=1e-9, err_msg=key)  # fmt: skip
+            got, want = (np.array(p["stats"], dtype=float) for p in (found[key], piece))
+            np.testing.assert_allclose(got, want, rtol=1e-9, err_msg=key)
 
 
 def record() -> None:
@@ -162,7 +164,8 @@ def record() -> None:
         demo = Path(folder) / "demo-fields"
         write_demo_fields(demo)
         cases = {case: canonical(_run_case(args, demo, Path(folder) / case)) for case, args in CASES.items()}
-    RECORD.write_text(json.dumps({"stack": _stack(), "cases": cases}, indent=1, sort_keys=True) + "\n")
+    content = {"stack": _stack(), "cases": cases}
+    RECORD.write_text(json.dumps(content, indent=1, sort_keys=True) + "\n")
     print(f"recorded {sum(map(len, cases.values()))} pieces of {len(cases)} cases in {RECORD}")
 
 

@@ -1,4 +1,4 @@
-"""The flow check on sub-domains (`upscale.subdomains`), used beyond --check-limit.
+"""The flow check on sub-domains (`upscale.check.subdomains`), used beyond --check-limit.
 
 What is tested
 --------------
@@ -24,8 +24,8 @@ import pytest
 from conftest import lognormal
 
 from upscale import BlockSpec, Field, coarsen
-from upscale.check import check_flow
-from upscale.subdomains import check_subdomains, plan_windows
+from upscale.check.axis import check_flow
+from upscale.check.subdomains import check_subdomains, plan_windows
 
 
 @pytest.mark.parametrize("shape, block, limit", [((1, 100, 100), (1, 10, 10), 900),

@@ -1,4 +1,4 @@
-"""Tests of the `upscale.coarsen` driver (`upscale.upscaled`).
+"""Tests of the `upscale.coarsen` driver (`upscale.methods.coarsen`).
 
 What is tested
 --------------

@@ -1,4 +1,4 @@
-"""Blocks upscaled to k = 0: the zero-k rule of the block partition (`upscale.zeros`).
+"""Blocks upscaled to k = 0: the zero-k rule of the block partition (`upscale.methods.zeros`).
 
 What is tested
 --------------
@@ -33,7 +33,7 @@ import pytest
 
 from upscale import Field, coarsen
 from upscale.grid import BlockSpec
-from upscale.zeros import apply_zero_rule
+from upscale.methods.zeros import apply_zero_rule
 
 CELL = 10.0  # m
 PHI = 0.2

@@ -1,17 +1,23 @@
 """Upscale heterogeneous permeability fields to coarse simulation grids.
 
-The package follows the data through numbered stages:
+The package follows the data through numbered stages, one folder each:
 
-1. ``io``       read rasters (GeoTIFF first) or ``.npy`` arrays into a `Field`
-2. ``grid``     partition the fine grid into coarse blocks (`BlockSpec`)
-3. ``methods``  coarse block properties: averages and bounds, one module per family;
-                ``coarsen`` applies a method to a whole field, chunk by chunk with dask
-5. ``check``    the same pressure drop on the fine and the coarse grid, per axis
-7. ``export``   write coarse GeoTIFFs and the run summary, staged so nothing is half-written
+1. ``io``        read rasters (GeoTIFF first) or ``.npy`` arrays into a `Field`; realizations
+2. ``grid``      partition the fine grid into coarse blocks (`BlockSpec`) and its activity rules
+3. ``methods``   coarse block properties, one module per family; ``coarsen`` applies one to a
+                 whole field, chunk by chunk with dask, and the zero-k rule to its blocks
+4. ``flow``      the two-point flux engine: transmissibilities by the harmonic half-cell rule
+                 (coarse ones too, through `Upscaled.transmissibilities`), solvers, local solves
+5. ``check``     the same pressure drop on the fine and the coarse model, per axis
+6. ``analysis``  methods compared and ranked, ensembles summarised, tensors described;
+   ``report``    figures and the HTML page, as bytes
+7. ``export``    coarse GeoTIFFs, the coarse-grid package and the summaries, staged
 
-Shared pieces: ``flow`` (two-point flux engine), ``field`` (arrays + grid),
-``units``, ``stats`` (value scans), ``parallel`` (NumPy/dask block mapping),
-``errors``, ``demo`` (synthetic fields), ``cli`` (the ``upscale`` command).
+``jobs`` turns files into finished folders for the command line (``cli``) and
+Python alike. Shared below the stages: ``parallel`` (NumPy/dask block
+mapping), ``stats`` (value scans), ``gallery`` (model fields), ``field``,
+``units``, ``errors``. ``tests/test_layers.py`` checks that imports only
+point down this list.
 
 Examples
 --------
@@ -25,14 +31,27 @@ Examples
 from importlib.metadata import PackageNotFoundError, version
 
 from .caution import CAUTION
-from .check import check_flow
+from .check.axis import check_flow
 from .errors import InputError, UpscaleError
-from .export import write_result
 from .field import Field, Grid
 from .grid import BlockSpec
 from .io import read_field
+from .methods.coarsen import Upscaled, coarsen
 from .methods.registry import METHODS
-from .upscaled import Upscaled, coarsen
+
+#: Names loaded on first use, so that ``import upscale`` stays light (no Parquet, NetCDF or VTK writers).
+_LAZY = {"write_result": ".export"}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        from importlib import import_module
+
+        value = getattr(import_module(_LAZY[name], __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 try:
     __version__ = version("upscale")

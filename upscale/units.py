@@ -13,7 +13,9 @@ as a permeability or the other way round.
 
 from __future__ import annotations
 
-from typing import Final
+from typing import Any, Final
+
+from .errors import InputError
 
 #: Standard atmosphere in pascal (exact by definition; 10th CGPM, 1954).
 ATMOSPHERE_PA: Final = 101_325.0
@@ -32,6 +34,10 @@ DARCY_M2: Final = (1e-6 * 1e-3 * 1e-2) / (1e-4 * ATMOSPHERE_PA)
 WATER_K_PER_PERMEABILITY: Final = WATER_DENSITY_20C * GRAVITY / WATER_VISCOSITY_20C
 
 _SECONDS_PER_DAY: Final = 86_400.0
+#: The international foot in m (exact; the 1959 international yard and pound agreement).
+FOOT_M: Final = 0.3048
+#: Unit systems of the coarse-grid package: ``si`` (m, m², m³) and ``field`` (ft, mD).
+UNIT_SYSTEMS: Final = ("si", "field")
 
 #: Unit name -> (kind, factor to the kind's SI unit: m² for permeability, m/s for conductivity).
 UNITS: Final[dict[str, tuple[str, float]]] = {
@@ -52,8 +58,6 @@ def check_unit(unit: str) -> str:
     'mD'
     """
     if unit not in UNITS:
-        from .errors import InputError
-
         raise InputError(f"unknown unit {unit!r}; use one of {', '.join(UNITS)}")
     return unit
 
@@ -90,3 +94,34 @@ def from_m2(value: float, unit: str) -> float:
     kind, factor = UNITS[check_unit(unit)]
     si = value * WATER_K_PER_PERMEABILITY if kind == "conductivity" else value
     return si / factor
+
+
+def unit_factors(unit: str, system: str) -> dict[str, Any]:
+    """Factors from internal values (k in `unit`, lengths in m) to the package's units.
+
+    Returns
+    -------
+    dict
+        ``length``, ``k`` (multiply internal values by these) and the unit
+        names ``length_unit``, ``k_unit``, ``transmissibility_unit``.
+
+    Examples
+    --------
+    >>> f = unit_factors("mD", "field")
+    >>> f["k"], round(f["length"], 6), f["transmissibility_unit"]
+    (1.0, 3.28084, 'mD·ft')
+    """
+    kind, to_si = UNITS[unit]
+    if system == "si":
+        if kind == "conductivity":
+            # K A / L is a hydraulic conductance in m²/s
+            return {"length": 1.0, "k": to_si, "length_unit": "m", "k_unit": "m/s",
+                    "transmissibility_unit": "m²/s"}  # fmt: skip
+        return {"length": 1.0, "k": to_si, "length_unit": "m", "k_unit": "m²",
+                "transmissibility_unit": "m³"}  # fmt: skip
+    if kind == "conductivity":
+        raise InputError("--units field is for permeability (mD, D, m2) inputs; this one is a "
+                         "hydraulic conductivity — use --units si")  # fmt: skip
+    return {"length": 1.0 / FOOT_M, "k": to_si / (1e-3 * DARCY_M2), "length_unit": "ft",
+            "k_unit": "mD", "transmissibility_unit": "mD·ft"}  # fmt: skip
+

@@ -27,9 +27,9 @@ import dask.array as da
 import numpy as np
 
 from upscale.field import Field
+from upscale.methods.coarsen import coarsen
 from upscale.methods.registry import METHODS
 from upscale.parallel import apply_blocks
-from upscale.upscaled import coarsen
 
 
 def best_of(func, repeat: int = 5) -> float:

@@ -44,7 +44,8 @@ def _timed(args: list, out: Path, cache: Path) -> tuple[float, float]:
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     if args[0] == "compare":
-        compiled = sum(m["compile_seconds"] for m in json.loads((out / "compare.json").read_text())["methods"])
+        methods = json.loads((out / "compare.json").read_text())["methods"]
+        compiled = sum(m["compile_seconds"] for m in methods)
     else:
         compiled = json.loads((out / "summary.json").read_text())["timings_s"]["compile_s"]
     return cpu, compiled

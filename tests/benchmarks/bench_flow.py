@@ -35,9 +35,9 @@ def one(case: str, solver: str) -> dict:
     """Build the case's field and time one solve (runs in the child process)."""
     import resource
 
-    from upscale.demo.fields import lognormal_field
     from upscale.field import Field
     from upscale.flow import pressure_drop, transmissibilities
+    from upscale.gallery.fields import lognormal_field
 
     shape, lengths = CASES[case]
     k = lognormal_field(shape, lengths, geometric_mean=100.0, sigma_ln=1.0, seed=33_018_457)

@@ -120,7 +120,7 @@ def flow_axes(case: str) -> list[int]:
 
 def make_field_file(case: str, workdir: Path) -> Path:
     """Generate the case's lognormal field and save it as ``(L, M, N)`` float64 ``.npy``."""
-    from upscale.demo.fields import lognormal_field
+    from upscale.gallery.fields import lognormal_field
 
     shape, lengths, _, _ = CASES[case]
     if shape[0] == 1:

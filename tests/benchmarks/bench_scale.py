@@ -154,7 +154,7 @@ def task_fields(spec: dict) -> dict:
     import numpy as np
     import rasterio
 
-    from upscale.demo.fields import lognormal_field
+    from upscale.gallery.fields import lognormal_field
 
     start = time.perf_counter()
     side = spec["side"]
@@ -167,10 +167,10 @@ def task_fields(spec: dict) -> dict:
 
 
 def _upscale(path: str, block: str, method: str, options: dict) -> Any:
-    """Read and upscale a raster as ``upscale run`` does (`upscale.job.upscale_file`), nothing written."""
+    """Read and upscale a raster as ``upscale run`` does (`upscale.jobs.run.upscale_file`), nothing written."""
     from upscale.grid import BlockSpec
     from upscale.io import read_field
-    from upscale.upscaled import coarsen
+    from upscale.methods.coarsen import coarsen
 
     spec = BlockSpec.parse(block)
     fine = read_field(path, chunk_bytes=None, block=spec.cells)

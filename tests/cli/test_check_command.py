@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 from upscale import Field, coarsen
-from upscale.check import check_flow
+from upscale.check.axis import check_flow
 
 
 def _summary(folder: Path) -> dict:

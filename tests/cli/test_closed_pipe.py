@@ -33,7 +33,6 @@ from __future__ import annotations
 import json
 import shutil
 import subprocess
-import sys
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path

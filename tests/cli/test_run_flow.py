@@ -25,7 +25,7 @@ import pytest
 import rasterio
 
 import upscale
-from upscale.check import check_flow
+from upscale.check.axis import check_flow
 from upscale.export.package import PACKAGE_FILES
 
 

@@ -1,4 +1,4 @@
-"""Tests of the synthetic field generators in `upscale.demo.fields`.
+"""Tests of the synthetic field generators in `upscale.gallery.fields`.
 
 What is tested
 --------------
@@ -32,13 +32,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from upscale.demo.fields import (
-    COVARIANCES,
-    channel_field,
-    gaussian_field,
-    layered_field,
-    lognormal_field,
-)
+from upscale.gallery.fields import COVARIANCES, channel_field, gaussian_field, layered_field, lognormal_field
 
 SEEDS = (730_118_245, 918_337_402, 264_905_771, 583_126_094)
 

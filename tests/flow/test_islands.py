@@ -26,10 +26,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from upscale.demo.fields import lognormal_field
 from upscale.field import Field
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.islands import anchored, regions
+from upscale.gallery.fields import lognormal_field
 
 
 def _flow(k, axis, **kwargs):

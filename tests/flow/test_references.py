@@ -29,9 +29,9 @@ import warnings
 import numpy as np
 import pytest
 
-from upscale.demo.fields import lognormal_field
 from upscale.field import Field, Grid
 from upscale.flow import pressure_drop, transmissibilities
+from upscale.gallery.fields import lognormal_field
 
 
 def _map(k, dy, dx):

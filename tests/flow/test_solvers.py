@@ -28,16 +28,16 @@ import dataclasses
 import warnings
 
 import numpy as np
-import pytest
 import pyamg
+import pytest
 from scipy import sparse
 from scipy.sparse import linalg
 
-from upscale.demo.fields import lognormal_field
 from upscale.errors import UpscaleError
 from upscale.field import Field
 from upscale.flow import ConvergenceError, make_solver, pressure_drop, transmissibilities
 from upscale.flow.solvers import DIRECT_LIMIT, SOLVERS, SolveInfo, Solver, conjugate_gradients
+from upscale.gallery.fields import lognormal_field
 
 
 def _tpfa_system(k, dx=1.0, dy=1.0):

@@ -26,9 +26,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from upscale.demo.fields import lognormal_field
 from upscale.field import Field
 from upscale.flow import AxisFlow, pressure_drop, transmissibilities
+from upscale.gallery.fields import lognormal_field
 
 SETTINGS = settings(max_examples=25, deadline=None, database=None)
 

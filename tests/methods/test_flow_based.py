@@ -62,11 +62,11 @@ from scipy import sparse
 from scipy.sparse.linalg import spsolve
 
 from upscale import BlockSpec, Field, coarsen
-from upscale.check import check_flow
-from upscale.demo.fields import lognormal_field
+from upscale.check.axis import check_flow
 from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.local import PERIODIC
+from upscale.gallery.fields import lognormal_field
 from upscale.methods.flow_based import _tensor
 
 #: 4x4 blocks that keep the zeros the methods give (the zero-k rule is tested in tests/test_zeros.py)

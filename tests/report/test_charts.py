@@ -28,8 +28,8 @@ from conftest import lognormal
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
-from upscale.compare import candidates, compare_methods
-from upscale.ensemble import method_spread
+from upscale.analysis.compare import candidates, compare_methods
+from upscale.analysis.ensemble import method_spread
 from upscale.report.charts import error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
 

@@ -44,8 +44,8 @@ from matplotlib.colors import LogNorm, TwoSlopeNorm
 
 import upscale
 from upscale import Field, coarsen
-from upscale.check import check_flow
-from upscale.compare import candidates, compare_methods
+from upscale.analysis.compare import candidates, compare_methods
+from upscale.check.axis import check_flow
 from upscale.report.charts import BAND, domain_bounds, error_bars
 from upscale.report.figures import Plot, build_figures, rendered
 from upscale.report.flux import coarse_face_mismatch

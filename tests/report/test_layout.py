@@ -28,7 +28,7 @@ from conftest import lognormal
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
-from upscale.compare import candidates, compare_methods
+from upscale.analysis.compare import candidates, compare_methods
 from upscale.report.figures import build_figures
 
 #: The report page's widest figure (CSS px) and the figures' resolution (dpi); see the module docstring.

@@ -32,7 +32,7 @@ from matplotlib.collections import QuadMesh
 
 import upscale
 from upscale import Field
-from upscale.compare import candidates, compare_methods
+from upscale.analysis.compare import candidates, compare_methods
 from upscale.grid import BlockSpec
 from upscale.report.maps import field_maps, mismatch_maps, pressure_maps
 

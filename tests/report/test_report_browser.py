@@ -42,9 +42,9 @@ from pathlib import Path
 import pytest
 from browser_probe import assert_self_contained, browse, probe
 
+from upscale.analysis.ensemble import PERCENTILE_NOTE, method_spread
 from upscale.caution import CAUTION
 from upscale.cli.main import main
-from upscale.ensemble import PERCENTILE_NOTE, method_spread
 from upscale.report.bundle import spread_bundle
 
 REPO = Path(__file__).resolve().parents[2]

@@ -35,9 +35,9 @@ import pytest
 from conftest import write_raster
 
 from upscale import Field, coarsen
-from upscale.check import check_flow
+from upscale.analysis.compare import candidates, compare_methods, single
+from upscale.check.axis import check_flow
 from upscale.cli.main import main
-from upscale.compare import candidates, compare_methods, single
 from upscale.report.bundle import bundle
 from upscale.report.figures import build_figures
 

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import click
 
-from ..check import check_summary
+from ..check.axis import check_summary
 from ..export import update_summary
 from ..io.package import read_package
 from ..io.results import read_run
-from ..upscaled import refuse_bad_values
+from ..methods.coarsen import refuse_bad_values
 from .options import check_options, global_options
 from .report import print_check
 

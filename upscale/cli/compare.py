@@ -7,20 +7,24 @@ import math
 import click
 import numpy as np
 
+from ..analysis.compare import Entry, candidates
 from ..caution import CAUTION
-from ..compare import Entry, candidates, compare_methods, progress_line
-from ..ensemble import expand
-from ..errors import InputError
 from ..export import check_destination
-from ..export.comparison import compare_summary, write_comparison
 from ..field import PERMEABILITY
-from ..io import read_field
-from ..job import compare_ensemble, refuse_comparison
+from ..io.realizations import expand
+from ..jobs.compare import compare_ensemble, compare_file
 from ..methods.registry import METHODS
-from ..report.bundle import bundle
 from ..report.verdict import bound_note, one_method, outside_band
-from .options import (block_options, block_spec, check_options, field_options, global_options, parse_chunk,
-                      read_options, recorded)
+from .options import (
+    block_options,
+    block_spec,
+    check_options,
+    field_options,
+    global_options,
+    parse_chunk,
+    read_options,
+    recorded,
+)
 from .progress import teller
 from .report import number, print_notes, print_spread, table
 
@@ -83,28 +87,18 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     read = read_options(options)
     say = teller(ctx)
     paths = expand(list(field))
+    jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.cells), "solver": solver,
+            "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
+            "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
+            "say": say}  # fmt: skip
     if len(paths) > 1:
-        content = compare_ensemble(
-            paths, spec, chosen, out, read=read, chunk_bytes=parse_chunk(chunk, spec.cells),
-            solver=solver, tolerance=tolerance, check_limit=check_limit,
-            layer=None if layer is None else layer - 1, recorded_read=recorded(read),
-            command=ctx.obj["command"], overwrite=overwrite, say=say)  # fmt: skip
+        content = compare_ensemble(paths, spec, chosen, out, **jobs)
         if not ctx.obj["quiet"]:
             print_spread(content, out)
         return
-    field = paths[0]
-    fine = read_field(field, chunk_bytes=parse_chunk(chunk, spec.cells), block=spec.cells, **read)
-    refuse_comparison(fine, check_limit, None if layer is None else layer - 1)
+    result, files = compare_file(paths[0], spec, chosen, out, **jobs)
     quiet = ctx.obj["quiet"]
-    result = compare_methods(fine, spec, chosen, solver=solver, tolerance=tolerance,
-                             report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
-    if result.best is None:
-        raise InputError("no method ran on this field: " + "; ".join(
-            f"{e.candidate.label}: {e.error}" for e in result.entries))  # fmt: skip
-    files = bundle(result, title=f"upscale — methods compared on {field}", command=ctx.obj["command"],
-                   layer=None if layer is None else layer - 1)  # fmt: skip
-    summary = compare_summary(result, command=ctx.obj["command"], read=recorded(read))
-    write_comparison(out, summary, files.images, files.page, overwrite=overwrite)
+    fine = result.fine
     if not quiet:
         _print(result.entries, fine.axes, fine.unit)
         for line in result.zero_k_notes():

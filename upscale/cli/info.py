@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import json
-import math
 
 import click
 
-from ..export.summary import jsonable
+from ..analysis.describe import describe_field
+from ..analysis.summary import jsonable
 from ..io import read_field
-from ..parallel import compute_together
-from ..stats import ValueScan, scan_values, where
+from ..stats import ValueScan, where
 from .options import field_options, global_options, read_options
 from .progress import progress
 from .report import crs_text, dims, number, table
@@ -35,32 +34,9 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     """
     fine = read_field(field, checksum=False, **read_options(options))
     with progress(ctx.obj["quiet"]):
-        scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+        description, scans = describe_field(fine, field)
     grid = fine.grid
-    layers, rows, cols = fine.shape
     kx = scans["kx"]
-    description = {
-        "path": field,
-        "dimensions": fine.ndim,
-        "shape": {"layers": layers, "rows": rows, "columns": cols},
-        "cell_size_m": {"dx": float(grid.dx[0]), "dy": float(grid.dy[0]), "dz": grid.dz.tolist()},
-        "crs": grid.crs.to_string() if grid.crs is not None else None,
-        "unit": fine.unit,
-        "active_cells": kx.active,
-        "active_fraction": kx.active / kx.cells,
-        "statistics": {name: scan.summary() for name, scan in scans.items()},
-        "log10_k": {
-            "min": math.log10(kx.minimum) if kx.minimum > 0 else None,
-            "max": math.log10(kx.maximum) if kx.maximum > 0 else None,
-            "mean": kx.log_sum / kx.positive / math.log(10) if kx.positive else None,
-            "std": kx.log10_std,
-        },
-        "problems": {
-            "negative": kx.negative, "zero": kx.zero, "infinite": kx.infinite,
-        },  # fmt: skip
-        "suspect_values": _suspects(scans, fine.properties()),
-    }
-    description["suggested_nodata"] = _suggested(description["suspect_values"])
     if as_json:
         click.echo(json.dumps(jsonable(description), indent=2))
         return
@@ -86,33 +62,6 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     ]  # fmt: skip
     click.echo("")
     click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
-
-
-def _suspects(scans: dict[str, ValueScan], arrays: dict[str, object]) -> list[dict]:
-    """Values of every property that may mark cells without data, as plain data.
-
-    Each is ``{"property", "kind", "value", "count", "first"}``: kind
-    ``sentinel`` (a value of `upscale.stats.SENTINELS`, given in ``value``),
-    ``negative`` (other negative values), ``zero`` or ``infinite``; ``first``
-    the first few cells as ``{"band", "row", "column"}`` (band from 1, row and
-    column from 0). ky or kz taken from the field repeat kx and are left out,
-    and so are zero porosities (a tight rock).
-    """
-    found = []
-    for name, scan in scans.items():
-        if name != "kx" and arrays[name] is arrays["kx"]:
-            continue
-        for kind, value, count, first in scan.suspects():
-            if not (kind == "zero" and name == "porosity"):
-                found.append({"property": name, "kind": kind, "value": value, "count": count,
-                              "first": [{"band": c[0] + 1, "row": c[1], "column": c[2]} for c in first]})
-    return found
-
-
-def _suggested(suspects: list[dict]) -> float | None:
-    """The sentinel held by the most cells, the value to give as ``--nodata`` (None if none)."""
-    sentinels = [s for s in suspects if s["kind"] == "sentinel"]
-    return max(sentinels, key=lambda s: s["count"])["value"] if sentinels else None
 
 
 def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: float | None) -> None:

@@ -10,7 +10,7 @@ from typing import Any
 
 import click
 
-from ..check import DEFAULT_LIMIT
+from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES

@@ -9,8 +9,8 @@ import click
 
 from ..export.package import PACKAGE_FILES
 from ..field import PERMEABILITY
+from ..methods.coarsen import Upscaled
 from ..report.verdict import bound_note, outside_band
-from ..upscaled import Upscaled
 
 
 def number(value: float | None, spec: str = ".4g") -> str:

@@ -5,15 +5,23 @@ from __future__ import annotations
 import click
 
 from ..caution import CAUTION
-from ..cluster import compute_on
-from ..ensemble import expand
 from ..errors import InputError
 from ..export import check_destination
-from ..export.package import unit_factors
-from ..job import Settings, run_ensemble, upscale_file
+from ..io.realizations import expand
+from ..jobs.cluster import compute_on
+from ..jobs.run import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from .options import (block_options, block_spec, check_options, field_options, global_options, parse_chunk,
-                      read_options, recorded)
+from ..units import unit_factors
+from .options import (
+    block_options,
+    block_spec,
+    check_options,
+    field_options,
+    global_options,
+    parse_chunk,
+    read_options,
+    recorded,
+)
 from .progress import progress, teller
 from .report import print_ensemble, print_result
 

@@ -17,7 +17,7 @@ from affine import Affine
 from ..export.geotiff import write_property
 from ..export.staging import staged_folder
 from ..field import Grid
-from .fields import channel_field, gaussian_field, layered_field, lognormal_field
+from ..gallery.fields import channel_field, gaussian_field, layered_field, lognormal_field
 
 #: Listing written last into the demo folder; marks it complete.
 LISTING = "fields.json"

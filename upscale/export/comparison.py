@@ -8,11 +8,11 @@ from typing import Any
 
 import numpy as np
 
+from ..analysis.compare import Comparison, Entry
+from ..analysis.summary import grid_summary, jsonable, versions, working_folder
 from ..caution import CAUTION
-from ..compare import Comparison, Entry
 from ..field import PERMEABILITY
 from .staging import staged_folder
-from .summary import grid_summary, jsonable, versions, working_folder
 
 #: Name of the comparison file; written last, it marks a complete comparison folder.
 COMPARE = "compare.json"

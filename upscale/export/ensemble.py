@@ -11,10 +11,10 @@ import json
 from pathlib import Path
 from typing import Any
 
+from ..analysis.ensemble import PERCENTILES, csv_rows
+from ..analysis.summary import jsonable
 from ..caution import CAUTION
-from ..ensemble import PERCENTILES, csv_rows
 from .comparison import write_figures
-from .summary import jsonable
 
 #: The ensemble's summary; written last, it marks the ensemble folder complete.
 ENSEMBLE = "ensemble.json"
@@ -57,7 +57,7 @@ def write_ranking(stage: Path, content: dict[str, Any], names: list[str], *,
     stage : Path
         The staged ensemble folder, holding one comparison folder per realization.
     content : dict
-        ``methods`` (from `upscale.ensemble.method_spread`), ``axes`` and the rest of ``ensemble.json``.
+        ``methods`` (from `upscale.analysis.ensemble.method_spread`), ``axes`` and the rest of ``ensemble.json``.
     names : list of str
         The realizations' folders.
     images, page

@@ -43,7 +43,7 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
         Per variable: its values in the package's units over a region (NaN =
         inactive; written slab by slab), its unit and long name.
     factors : dict
-        From `upscale.export.package.unit_factors`.
+        From `upscale.units.unit_factors`.
     attributes : dict of str to str
         Global attributes (title, source, history...).
     """

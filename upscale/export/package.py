@@ -29,10 +29,8 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
-from ..errors import InputError
 from ..field import Grid
 from ..flow import Transmissibilities
-from ..units import DARCY_M2, UNITS
 from .slabs import Region, slabs
 
 #: Name and version of the package format (ours).
@@ -41,41 +39,8 @@ TABLES = ("cells", "connections", "boundary")
 #: Every file of the package, in the order written.
 PACKAGE_FILES = (*(f"{t}.{x}" for t in TABLES for x in ("csv", "parquet")), "coarse.nc", "coarse.vtr",
                  "manifest.json")  # fmt: skip
-#: Output unit systems: ``si`` (m, m², m³) and ``field`` (ft, mD).
-UNIT_SYSTEMS = ("si", "field")
-FOOT_M = 0.3048  # international foot (exact, 1959 agreement)
 _AXES = "zyx"
 ALL: Region = (slice(None), slice(None), slice(None))
-
-
-def unit_factors(unit: str, system: str) -> dict[str, Any]:
-    """Factors from internal values (k in `unit`, lengths in m) to the package's units.
-
-    Returns
-    -------
-    dict
-        ``length``, ``k`` (multiply internal values by these) and the unit
-        names ``length_unit``, ``k_unit``, ``transmissibility_unit``.
-
-    Examples
-    --------
-    >>> f = unit_factors("mD", "field")
-    >>> f["k"], round(f["length"], 6), f["transmissibility_unit"]
-    (1.0, 3.28084, 'mD·ft')
-    """
-    kind, to_si = UNITS[unit]
-    if system == "si":
-        if kind == "conductivity":
-            # K A / L is a hydraulic conductance in m²/s
-            return {"length": 1.0, "k": to_si, "length_unit": "m", "k_unit": "m/s",
-                    "transmissibility_unit": "m²/s"}  # fmt: skip
-        return {"length": 1.0, "k": to_si, "length_unit": "m", "k_unit": "m²",
-                "transmissibility_unit": "m³"}  # fmt: skip
-    if kind == "conductivity":
-        raise InputError("--units field is for permeability (mD, D, m2) inputs; this one is a "
-                         "hydraulic conductivity — use --units si")  # fmt: skip
-    return {"length": 1.0 / FOOT_M, "k": to_si / (1e-3 * DARCY_M2), "length_unit": "ft",
-            "k_unit": "mD", "transmissibility_unit": "mD·ft"}  # fmt: skip
 
 
 def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -127,7 +92,7 @@ class PackageTables:
     trans : Transmissibilities
         The coarse model's transmissibilities, in (unit of k) · m.
     factors : dict
-        From `unit_factors`.
+        From `upscale.units.unit_factors`.
     source : str
         How the inner transmissibilities were made (``harmonic`` or ``flow``).
 

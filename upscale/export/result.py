@@ -10,16 +10,17 @@ from typing import Any
 import numpy as np
 from affine import Affine
 
+from ..analysis.summary import build_summary, jsonable
 from ..caution import CAUTION
 from ..flow import Transmissibilities
-from ..upscaled import Upscaled
+from ..methods.coarsen import Upscaled
+from ..units import unit_factors
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
 from .netcdf import crs_unit, write_netcdf
-from .package import FORMAT, PackageTables, bulk_volumes, column_units, unit_factors, write_tables
+from .package import FORMAT, PackageTables, bulk_volumes, column_units, write_tables
 from .slabs import Values
 from .staging import MARKER, staged_folder
-from .summary import build_summary, jsonable
 from .vtk import write_vtk
 
 #: File of the coarse face transmissibilities along each axis (direct upscaling only).
@@ -140,7 +141,7 @@ def write_result(
         Seconds per step recorded in the summary.
     check, read : dict, optional
         The flow check and the read options, recorded in the summary (see
-        `upscale.export.summary.build_summary`).
+        `upscale.analysis.summary.build_summary`).
     images : list of (str, bytes, bytes), optional
         Figures to write as ``figures/NAME.png`` and ``.svg``.
     page : str, optional

@@ -10,7 +10,7 @@ whose true sizes are used in every computation.
 Two rules decide which coarse blocks stay active: ``min_active`` (the
 smallest active volume fraction of a block) and the zero-k rule, for blocks
 whose upscaled permeability is 0 along some axis — many simulators refuse an
-active cell with k = 0 (applied by `upscale.zeros`):
+active cell with k = 0 (applied by `upscale.methods.zeros`):
 
 * ``auto`` (default): a block with k = 0 along every flow axis carries no
   flow in the coarse model at all and becomes inactive; a zero along some

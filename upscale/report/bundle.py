@@ -5,9 +5,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+from ..analysis.compare import Comparison
+from ..analysis.summary import versions, working_folder
 from ..caution import CAUTION
-from ..compare import Comparison
-from ..export.summary import versions, working_folder
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
@@ -81,7 +81,7 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
     Parameters
     ----------
     ensemble : dict
-        From `upscale.ensemble.ensemble_summary`, with ``method`` and ``block`` added.
+        From `upscale.analysis.ensemble.ensemble_summary`, with ``method`` and ``block`` added.
     unit : str
         Permeability unit.
     title : str
@@ -133,7 +133,7 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
     Parameters
     ----------
     methods : list of dict
-        From `upscale.ensemble.method_spread`.
+        From `upscale.analysis.ensemble.method_spread`.
     ensemble : dict
         ``realizations`` (name, inputs), ``axes``, ``block``, ``percentiles``.
     title : str

@@ -7,7 +7,7 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, ScalarFormatter
 
-from ..compare import Comparison
+from ..analysis.compare import Comparison
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
 from .layout import LABEL, MAX_WIDTH, outer_labels, page_sizes, panel_grid, title

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 from matplotlib import rc_context
 from matplotlib.figure import Figure
 
-from ..compare import Comparison
+from ..analysis.compare import Comparison
 from .charts import bounds_chart, error_bars, histograms
 from .layout import DPI
 from .maps import field_maps, mismatch_maps, pressure_maps

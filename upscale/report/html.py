@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from ..compare import Comparison, Entry
+from ..analysis.compare import Comparison, Entry
 from ..field import PERMEABILITY
 from .figures import Plot
 from .verdict import bound_mark, bound_note, one_method, outside_band

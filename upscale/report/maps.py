@@ -14,7 +14,7 @@ import numpy as np
 from matplotlib.colors import Normalize, TwoSlopeNorm
 from matplotlib.figure import Figure
 
-from ..compare import Comparison, Entry
+from ..analysis.compare import Comparison, Entry
 from ..field import Grid
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch

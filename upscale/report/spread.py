@@ -8,7 +8,7 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
-from ..ensemble import PERCENTILES
+from ..analysis.ensemble import PERCENTILES
 from .charts import error_band, readable_k_axis, warn_in
 from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
@@ -34,7 +34,7 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
     Parameters
     ----------
     methods : list of dict
-        From `upscale.ensemble.method_spread` (methods that ran somewhere are drawn).
+        From `upscale.analysis.ensemble.method_spread` (methods that ran somewhere are drawn).
     axes : str
         The flow axes, e.g. ``"xy"``.
     realizations : int
@@ -74,7 +74,7 @@ def ensemble_chart(ensemble: dict[str, Any], unit: str) -> Figure:
     Parameters
     ----------
     ensemble : dict
-        From `upscale.ensemble.ensemble_summary` (with the check run).
+        From `upscale.analysis.ensemble.ensemble_summary` (with the check run).
     unit : str
         Permeability unit for labels.
     """

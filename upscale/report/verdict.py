@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import math
 
-from ..compare import Comparison, Entry
+from ..analysis.compare import Comparison, Entry
 from ..methods.registry import METHODS
 
 #: The band of check errors drawn and judged as acceptable (±5 %): a common engineering tolerance.

@@ -18,15 +18,15 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from .check import AxisCheck, coarse_check, fine_solves
-from .compiling import compile_seconds
-from .errors import InputError
-from .field import Field
-from .flow import AxisFlow
-from .grid import BlockSpec
-from .methods.registry import METHODS, check_exponent
-from .steps import Say, Steps, silent
-from .upscaled import Upscaled, coarsen
+from ..check.axis import AxisCheck, coarse_check, fine_solves
+from ..compiling import compile_seconds
+from ..errors import InputError
+from ..field import Field
+from ..flow import AxisFlow
+from ..grid import BlockSpec
+from ..methods.coarsen import Upscaled, coarsen
+from ..methods.registry import METHODS, check_exponent
+from ..steps import Say, Steps, silent
 
 #: Boundary conditions a comparison tries for ``flow`` unless one is chosen.
 ALL_CONDITIONS = ("sealed", "linear", "periodic")
@@ -124,7 +124,7 @@ class Comparison:
         return self.ranked[0] if self.ranked else None
 
     def zero_k_notes(self) -> list[str]:
-        """What the zero-k rule did (`upscale.zeros`): one line per outcome, naming its methods."""
+        """What the zero-k rule did (`upscale.methods.zeros`): one line per outcome, naming its methods."""
         touched: dict[str, list[str]] = {}
         for e in self.ranked:
             line = e.result.zeros.line(self.fine.unit)

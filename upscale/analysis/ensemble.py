@@ -10,97 +10,15 @@ exceeded by 10 % of the cases, which is this P90.
 
 from __future__ import annotations
 
-import glob
 import math
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from .compare import TIE
-from .errors import InputError
-from .field import Field
 
 PERCENTILES = (10, 50, 90)
 QUANTITIES = ("k_fine", "k_coarse", "rel_error")
-
-
-def expand(patterns: list[str]) -> list[str]:
-    """Paths from file names and glob patterns, in order, each once.
-
-    Raises
-    ------
-    InputError
-        If a pattern matches nothing.
-    """
-    found: list[str] = []
-    for pattern in patterns:
-        if glob.has_magic(pattern):
-            matches = sorted(glob.glob(pattern))
-            if not matches:
-                raise InputError(f"{pattern!r} matches no file")
-            found += matches
-        else:
-            found.append(pattern)
-    return list(dict.fromkeys(found))
-
-
-def names_of(paths: list[str]) -> list[str]:
-    """Sub-folder name of each realization: its file name without the suffix.
-
-    Raises
-    ------
-    InputError
-        If two realizations would share a name.
-    """
-    names = [Path(p).stem for p in paths]
-    seen: dict[str, str] = {}
-    for name, path in zip(names, paths):
-        if name in seen:
-            raise InputError(f"{seen[name]} and {path} would both be written to {name}/; rename one")
-        seen[name] = path
-    return names
-
-
-#: What a grid is compared on, and the name of each part in a message.
-_GRID_PARTS = ("shape", "cell size", "layers", "transform", "CRS")
-
-
-def _grid(f: Field) -> tuple:
-    g = f.grid  # a raster's columns share one width, and its rows one height
-    return (f.shape, (tuple(np.unique(g.dx)), tuple(np.unique(g.dy))), tuple(g.dz), g.transform, g.crs)
-
-
-def check_same_grid(fields: dict[str, Field]) -> None:
-    """Refuse realizations that are not on one grid, naming the odd ones out.
-
-    The reference is the grid most realizations share; on a tie, the grid of
-    the first one among those most shared.
-
-    Raises
-    ------
-    InputError
-        Naming each realization off the reference grid with what differs
-        (shape, cell size, layers, transform or CRS), and the realizations
-        on it.
-    """
-    grids = {name: _grid(f) for name, f in fields.items()}
-    shared = list(grids.values())
-    reference = max(shared, key=shared.count)  # max keeps the first of equal counts
-    odd = [name for name, g in grids.items() if g != reference]
-    if not odd:
-        return
-    on_it = [name for name, g in grids.items() if g == reference]
-
-    def differs(name: str) -> str:
-        parts = [p for p, a, b in zip(_GRID_PARTS, grids[name], reference) if a != b]
-        return f"{name} ({', '.join(parts)})"
-
-    shown = ", ".join(on_it[:3]) + (f" and {len(on_it) - 3} more" if len(on_it) > 3 else "")
-    raise InputError(
-        f"the realizations must share one grid; not on the grid of {shown}: "
-        f"{', '.join(map(differs, odd))} — resample each onto that grid or leave it out"
-    )
 
 
 def ensemble_summary(names: list[str], summaries: list[dict[str, Any]]) -> dict[str, Any]:

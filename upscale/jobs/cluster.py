@@ -17,7 +17,7 @@ from collections.abc import Iterator
 from concurrent.futures import CancelledError
 from contextlib import contextmanager
 
-from .errors import ClusterError, InputError
+from ..errors import ClusterError, InputError
 
 #: Seconds to wait for a scheduler before giving up.
 CONNECT_TIMEOUT = 10

@@ -23,10 +23,10 @@ from typing import Any
 
 import numpy as np
 
-from .check import coarse_check, fine_solves
-from .field import Field
-from .flow import Transmissibilities, transmissibilities
-from .grid import BlockSpec
+from ..field import Field
+from ..flow import Transmissibilities, transmissibilities
+from ..grid import BlockSpec
+from .axis import coarse_check, fine_solves
 
 #: Windows per map axis (first, middle, last position).
 PER_AXIS = 3

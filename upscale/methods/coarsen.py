@@ -16,15 +16,15 @@ from typing import Any
 
 import numpy as np
 
-from .errors import InputError
-from .field import AXES, PERMEABILITY, Field
-from .flow import Transmissibilities, transmissibilities
-from .grid import BlockSpec
-from .methods import averages
-from .methods.flow_based import TENSOR
-from .methods.registry import Method, get_method
-from .parallel import apply_blocks, compute_together
-from .stats import ValueScan, scan_values, where
+from ..errors import InputError
+from ..field import AXES, PERMEABILITY, Field
+from ..flow import Transmissibilities, transmissibilities
+from ..grid import BlockSpec
+from ..parallel import apply_blocks, compute_together
+from ..stats import ValueScan, scan_values, where
+from . import averages
+from .flow_based import TENSOR
+from .registry import Method, get_method
 from .zeros import ZeroOutcome, apply_zero_rule
 
 log = logging.getLogger(__name__)
@@ -60,7 +60,7 @@ class Upscaled:
         Pore volume (m³) of blocks made inactive by ``min_active``; 0 without porosity.
     zeros : ZeroOutcome
         What the block partition's zero-k rule did to blocks with k = 0 along
-        some axis (`upscale.zeros`): made inactive, floored or kept.
+        some axis (`upscale.methods.zeros`): made inactive, floored or kept.
     tensor : dict of str to ndarray
         Off-diagonal permeability terms (``kxy`` ... , unit of k) of full-tensor
         methods: ``kxy`` is the flux along x per unit gradient along y.

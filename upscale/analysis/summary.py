@@ -11,12 +11,12 @@ from typing import Any
 
 import numpy as np
 
-from ..anisotropy import tensor_summary
 from ..caution import CAUTION
 from ..field import Grid
+from ..methods.coarsen import Upscaled
 from ..methods.registry import METHODS
 from ..stats import scan_values
-from ..upscaled import Upscaled
+from .anisotropy import tensor_summary
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
                  "pyarrow", "netCDF4", "pyproj")

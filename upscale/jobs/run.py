@@ -1,8 +1,8 @@
 """Jobs from files to finished output folders: read, upscale, check, plot, write.
 
 `upscale run` calls `upscale_file` once for a field, and `run_ensemble` for
-several (the same settings, each into its own folder, and their spread);
-`upscale compare` on several fields calls `compare_ensemble`.
+several (the same settings, each into its own folder, and their spread).
+The comparisons are in `upscale.jobs.compare`.
 """
 
 from __future__ import annotations
@@ -12,23 +12,23 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .check import check_flow, short_of_memory, too_large
-from .compare import Candidate, Entry, compare_methods, progress_line, single
-from .ensemble import PERCENTILE_NOTE, check_same_grid, ensemble_summary, method_spread, names_of
-from .errors import InputError
-from .export import write_result
-from .export.comparison import compare_summary, write_comparison
-from .export.ensemble import ENSEMBLE, write_ensemble, write_ranking
-from .export.staging import staged_folder
-from .export.summary import working_folder
-from .field import Field
-from .grid import BlockSpec
-from .io import read_field
-from .io.windows import available_memory
-from .report.bundle import bundle, ensemble_bundle, spread_bundle
-from .steps import Say, Steps, silent
-from .subdomains import check_subdomains
-from .upscaled import Upscaled, coarsen
+from ..analysis.compare import single
+from ..analysis.ensemble import ensemble_summary
+from ..analysis.summary import working_folder
+from ..check.axis import check_flow
+from ..check.limits import refuse_check_past_memory, too_large
+from ..check.subdomains import check_subdomains
+from ..errors import InputError
+from ..export import write_result
+from ..export.ensemble import ENSEMBLE, write_ensemble
+from ..export.staging import staged_folder
+from ..field import Field
+from ..grid import BlockSpec
+from ..io import read_field
+from ..io.realizations import read_realizations
+from ..methods.coarsen import Upscaled, coarsen
+from ..report.bundle import bundle, ensemble_bundle
+from ..steps import Say, Steps, silent
 
 
 @dataclass(frozen=True)
@@ -182,7 +182,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     InputError
         If two realizations share a name or the grids differ (checked before any work).
     """
-    names, fields = _realizations(paths, settings.chunk_bytes, settings.block, settings.read,
+    names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
     done = []
 
@@ -209,111 +209,6 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     return ensemble
 
 
-def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
-                     read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
-                     tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
-                     recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
-                     overwrite: bool = False, say: Say = silent) -> dict[str, Any]:  # fmt: skip
-    """Compare the same methods on every realization, and rank them by their spread.
-
-    Each realization gets the folder `upscale compare` writes for one field
-    (``compare.json``, figures, ``report.html``); the ensemble folder adds
-    ``ranking.csv``, ``figures/spread.*``, ``report.html`` and
-    ``ensemble.json`` (written last), ranking the methods by the P50 over the
-    realizations of their largest check error (`upscale.ensemble.method_spread`).
-
-    Parameters
-    ----------
-    paths : list of str
-        The realizations (on one grid).
-    block : BlockSpec
-    chosen : list of Candidate
-        From `upscale.compare.candidates`.
-    out : str or Path
-        The ensemble's folder.
-    read : dict
-        Keyword arguments of `upscale.read_field`.
-    chunk_bytes, solver, tolerance, check_limit, layer
-        As for one comparison; `layer` is zero-based.
-    recorded_read, command
-        Recorded in the outputs.
-    overwrite : bool
-        Replace the results in a folder that holds some.
-    say : callable, optional
-        Receives progress lines (silent by default).
-
-    Returns
-    -------
-    dict
-        The content of ``ensemble.json``.
-
-    Raises
-    ------
-    InputError
-        Realizations sharing a name or on different grids, a field past
-        `check_limit`, a `layer` the model does not have (all before any work).
-    """
-    command = command or []
-    names, fields = _realizations(paths, chunk_bytes, block, read)
-    first = next(iter(fields.values()))
-    refuse_comparison(first, check_limit, layer)
-    summaries = []
-    with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
-        for i, (name, fine) in enumerate(fields.items(), start=1):
-            def told(line: str, name: str = name) -> None:
-                say(f"{name}: {line}")
-
-            def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
-                told(progress_line(j, n, candidate, entry))
-
-            result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
-                                     report=report, say=told)  # fmt: skip
-            if result.best is None:
-                raise InputError(f"no method ran on {paths[i - 1]}: " + "; ".join(
-                    f"{e.candidate.label}: {e.error}" for e in result.entries))  # fmt: skip
-            with Steps(told)(None, "drawing the figures and writing"):
-                made = bundle(result, title=f"upscale — methods compared on {paths[i - 1]}",
-                              command=command, layer=layer)  # fmt: skip
-                summary = compare_summary(result, command=command, read=recorded_read)
-                write_comparison(stage / name, summary, made.images, made.page)
-            summaries.append(summary)
-            say(f"[{i}/{len(fields)}] realizations done ({name})")
-        methods = method_spread(names, summaries)
-        axes = "xyz"[: first.ndim]
-        content = {
-            "realizations": [{"name": name, **{k: s["inputs"][0][k] for k in ("path", "sha256")}}
-                             for name, s in zip(names, summaries)],
-            "axes": axes, "block": summaries[0]["block"], "command": command,
-            "working_folder": working_folder(command),
-            "ranking": "P50 over the realizations of the largest |rel_error| over the axes, smallest first",
-            "percentiles": PERCENTILE_NOTE, "methods": methods,
-            "best": methods[0]["name"] if methods and methods[0]["rank"] else None,
-        }  # fmt: skip
-        made = spread_bundle(methods, content, command=command,
-                             title=f"upscale — methods compared on {len(names)} realizations")  # fmt: skip
-        write_ranking(stage, content, names, images=made.images, page=made.page)
-    return content
-
-
-def _realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpec, read: dict[str, Any],
-                  checksum: bool = True) -> tuple[list[str], dict[str, Field]]:  # fmt: skip
-    """Open every realization (lazily) under its name, refusing clashing names and differing grids."""
-    names = names_of(paths)
-    fields = {name: read_field(path, chunk_bytes=chunk_bytes, block=block.cells, checksum=checksum, **read)
-              for name, path in zip(names, paths)}  # fmt: skip
-    check_same_grid(fields)
-    return names, fields
-
-
-def refuse_comparison(fine: Field, max_cells: int, layer: int | None) -> None:
-    """Refuse, before any work, a comparison the flow check cannot rank or a `layer` it cannot draw."""
-    reason = too_large(fine.shape, max_cells)
-    if reason:
-        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
-    refuse_check_past_memory(fine, max_cells)
-    refuse_layer(layer, fine)
-
-
 def refuse_layer(layer: int | None, fine: Field) -> None:
     """Refuse, before any work, a zero-based `layer` to draw that the field does not have."""
     if layer is None:
@@ -325,15 +220,3 @@ def refuse_layer(layer: int | None, fine: Field) -> None:
         raise InputError(f"--layer {layer + 1}: the field has {fine.shape[0]} layer(s)")
 
 
-def refuse_check_past_memory(fine: Field, max_cells: int) -> None:
-    """Refuse, before any work, a flow check whose largest solve would not fit in memory.
-
-    Raises
-    ------
-    InputError
-        Saying how much the check would need and which ``--check-limit`` fits.
-    """
-    available = available_memory()
-    reason = None if available is None else short_of_memory(fine.shape, fine.ndim, max_cells, available)
-    if reason:
-        raise InputError(reason)

@@ -16,9 +16,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import InputError
-from .grid import BlockSpec
-from .grid.blocks import RELATIVE_FLOOR
+from ..errors import InputError
+from ..grid import BlockSpec
+from ..grid.blocks import RELATIVE_FLOOR
 
 
 @dataclass(frozen=True)

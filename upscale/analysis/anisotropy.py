@@ -15,8 +15,8 @@ from typing import Any
 
 import numpy as np
 
-from .field import Field
-from .zeros import ZeroOutcome
+from ..field import Field
+from ..methods.zeros import ZeroOutcome
 
 #: Off-diagonal size (relative to the diagonal) above which a run carries a warning:
 #: our choice, documented in docs/methods.md — a tenth of the diagonal changes fluxes

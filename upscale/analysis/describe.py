@@ -1,0 +1,83 @@
+"""What a fine field holds before it is upscaled: grid, units, activity, statistics, suspect values.
+
+`describe_field` scans every property once and returns the description
+``upscale info`` prints (and writes with ``--json``).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from ..field import Field
+from ..parallel import compute_together
+from ..stats import ValueScan, scan_values
+
+
+def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, ValueScan]]:
+    """The description of `fine` (read from `path`) as plain data, and the scans it came from.
+
+    Returns
+    -------
+    description : dict
+        ``path``, ``dimensions``, ``shape``, ``cell_size_m``, ``crs``, ``unit``,
+        ``active_cells``, ``active_fraction``, ``statistics`` (per property),
+        ``log10_k``, ``problems``, ``suspect_values`` and ``suggested_nodata``.
+    scans : dict of str to ValueScan
+        Per property.
+    """
+    scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+    grid = fine.grid
+    layers, rows, cols = fine.shape
+    kx = scans["kx"]
+    description = {
+        "path": path,
+        "dimensions": fine.ndim,
+        "shape": {"layers": layers, "rows": rows, "columns": cols},
+        "cell_size_m": {"dx": float(grid.dx[0]), "dy": float(grid.dy[0]), "dz": grid.dz.tolist()},
+        "crs": grid.crs.to_string() if grid.crs is not None else None,
+        "unit": fine.unit,
+        "active_cells": kx.active,
+        "active_fraction": kx.active / kx.cells,
+        "statistics": {name: scan.summary() for name, scan in scans.items()},
+        "log10_k": {
+            "min": math.log10(kx.minimum) if kx.minimum > 0 else None,
+            "max": math.log10(kx.maximum) if kx.maximum > 0 else None,
+            "mean": kx.log_sum / kx.positive / math.log(10) if kx.positive else None,
+            "std": kx.log10_std,
+        },
+        "problems": {
+            "negative": kx.negative, "zero": kx.zero, "infinite": kx.infinite,
+        },  # fmt: skip
+        "suspect_values": _suspects(scans, fine.properties()),
+    }
+    description["suggested_nodata"] = _suggested(description["suspect_values"])
+    description["suggested_nodata"] = _suggested(description["suspect_values"])
+    return description, scans
+
+
+def _suspects(scans: dict[str, ValueScan], arrays: dict[str, object]) -> list[dict]:
+    """Values of every property that may mark cells without data, as plain data.
+
+    Each is ``{"property", "kind", "value", "count", "first"}``: kind
+    ``sentinel`` (a value of `upscale.stats.SENTINELS`, given in ``value``),
+    ``negative`` (other negative values), ``zero`` or ``infinite``; ``first``
+    the first few cells as ``{"band", "row", "column"}`` (band from 1, row and
+    column from 0). ky or kz taken from the field repeat kx and are left out,
+    and so are zero porosities (a tight rock).
+    """
+    found = []
+    for name, scan in scans.items():
+        if name != "kx" and arrays[name] is arrays["kx"]:
+            continue
+        for kind, value, count, first in scan.suspects():
+            if not (kind == "zero" and name == "porosity"):
+                found.append({"property": name, "kind": kind, "value": value, "count": count,
+                              "first": [{"band": c[0] + 1, "row": c[1], "column": c[2]} for c in first]})
+    return found
+
+
+def _suggested(suspects: list[dict]) -> float | None:
+    """The sentinel held by the most cells, the value to give as ``--nodata`` (None if none)."""
+    sentinels = [s for s in suspects if s["kind"] == "sentinel"]
+    return max(sentinels, key=lambda s: s["count"])["value"] if sentinels else None

@@ -1,0 +1,70 @@
+"""How large a flow check may be: the cell limit, the memory it needs, and the refusals before any work.
+
+A check solves the whole fine grid at once; beyond `DEFAULT_LIMIT` cells (or
+``--check-limit``) it runs on sub-domain windows instead (`upscale.check.subdomains`),
+and a check that would not fit in the memory available is refused before
+anything is read or upscaled.
+"""
+
+from __future__ import annotations
+
+import math
+
+from ..errors import InputError
+from ..field import Field
+from ..io.windows import available_memory
+
+#: Fine cells solved at once by the check at most, by default (about 13 GB of solver data in 2D).
+DEFAULT_LIMIT = 20_000_000
+#: Peak memory of the check per fine cell solved at once (multigrid set-up, pressures and fluxes
+#: of every axis), measured on lognormal fields of 1-2 M cells: 2D 600-620 B, 3D 960 B, rounded up.
+BYTES_PER_CELL = {2: 650, 3: 1000}
+
+
+def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
+    """Why a fine grid of `shape` is not solved whole under the limit, or None if it is."""
+    cells = math.prod(shape)
+    if cells <= max_cells:
+        return None
+    return (
+        f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
+        "raise --check-limit if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
+    )
+
+
+def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, available: int) -> str | None:
+    """Why the check's largest solve would not fit in `available` bytes, or None if it would.
+
+    The check solves at most `max_cells` fine cells at once (the whole grid,
+    or each sub-domain window); it needs about `BYTES_PER_CELL` per cell.
+
+    Examples
+    --------
+    >>> short_of_memory((1, 1000, 1000), 2, 20_000_000, 2**30) is None   # 0.65 GB of 1 GiB
+    True
+    >>> short_of_memory((1, 10_000, 10_000), 2, 20_000_000, 2**30)[:40]
+    'the flow check would solve 20000000 fine'
+    """
+    cells = min(math.prod(shape), max_cells)
+    need = cells * BYTES_PER_CELL[ndim]
+    if need <= available:
+        return None
+    fits = available // BYTES_PER_CELL[ndim]
+    return (f"the flow check would solve {cells} fine cells at once, about {need / 2**30:.1f} GiB, "
+            f"more than the {available / 2**30:.1f} GiB available; give --check-limit {fits} or less "
+            "(beyond it the check runs on sub-domains of that size), or --no-check")
+
+
+def refuse_check_past_memory(fine: Field, max_cells: int) -> None:
+    """Refuse, before any work, a flow check whose largest solve would not fit in memory.
+
+    Raises
+    ------
+    InputError
+        Saying how much the check would need and which ``--check-limit`` fits.
+    """
+    available = available_memory()
+    reason = None if available is None else short_of_memory(fine.shape, fine.ndim, max_cells, available)
+    if reason:
+        raise InputError(reason)
+

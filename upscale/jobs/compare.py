@@ -1,0 +1,175 @@
+"""The comparison jobs: methods compared on one field or on an ensemble, written to a folder.
+
+`compare_file` is ``upscale compare`` on one field, `compare_ensemble` on
+several; both compare each field the same way (`upscale.analysis.compare`),
+draw its figures and page, and write its folder.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line
+from ..analysis.ensemble import PERCENTILE_NOTE, method_spread
+from ..analysis.summary import working_folder
+from ..check.limits import refuse_check_past_memory, too_large
+from ..errors import InputError
+from ..export.comparison import compare_summary, write_comparison
+from ..export.ensemble import ENSEMBLE, write_ranking
+from ..export.staging import staged_folder
+from ..field import Field
+from ..grid import BlockSpec
+from ..io import read_field
+from ..io.realizations import read_realizations
+from ..report.bundle import Bundle, bundle, spread_bundle
+from ..steps import Say, Steps, silent
+from .run import refuse_layer
+
+
+def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
+                 read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
+                 tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
+                 recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
+                 overwrite: bool = False, say: Say = silent) -> tuple[Comparison, Bundle]:  # fmt: skip
+    """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
+
+    Parameters
+    ----------
+    path : str
+        The fine field.
+    block, chosen, out, read, chunk_bytes, solver, tolerance, check_limit, layer
+        As in `compare_ensemble`, for one field (`out` is the comparison's folder).
+    recorded_read, command, overwrite, say
+        As in `compare_ensemble`.
+
+    Returns
+    -------
+    (Comparison, Bundle)
+        The ranked methods, and the figures and page written.
+
+    Raises
+    ------
+    InputError
+        A field past `check_limit` or the memory, a `layer` the model does not
+        have (before any work), or no method that ran.
+    """
+    fine = read_field(path, chunk_bytes=chunk_bytes, block=block.cells, **read)
+    refuse_comparison(fine, check_limit, layer)
+    result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
+                             report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
+    _refuse_if_none_ran(result)
+    summary, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
+    write_comparison(out, summary, made.images, made.page, overwrite=overwrite)
+    return result, made
+
+
+def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
+                     read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
+                     tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
+                     recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
+                     overwrite: bool = False, say: Say = silent) -> dict[str, Any]:  # fmt: skip
+    """Compare the same methods on every realization, and rank them by their spread.
+
+    Each realization gets the folder `upscale compare` writes for one field
+    (``compare.json``, figures, ``report.html``); the ensemble folder adds
+    ``ranking.csv``, ``figures/spread.*``, ``report.html`` and
+    ``ensemble.json`` (written last), ranking the methods by the P50 over the
+    realizations of their largest check error (`upscale.analysis.ensemble.method_spread`).
+
+    Parameters
+    ----------
+    paths : list of str
+        The realizations (on one grid).
+    block : BlockSpec
+    chosen : list of Candidate
+        From `upscale.analysis.compare.candidates`.
+    out : str or Path
+        The ensemble's folder.
+    read : dict
+        Keyword arguments of `upscale.read_field`.
+    chunk_bytes, solver, tolerance, check_limit, layer
+        As for one comparison; `layer` is zero-based.
+    recorded_read, command
+        Recorded in the outputs.
+    overwrite : bool
+        Replace the results in a folder that holds some.
+    say : callable, optional
+        Receives progress lines (silent by default).
+
+    Returns
+    -------
+    dict
+        The content of ``ensemble.json``.
+
+    Raises
+    ------
+    InputError
+        Realizations sharing a name or on different grids, a field past
+        `check_limit`, a `layer` the model does not have (all before any work).
+    """
+    command = command or []
+    names, fields = read_realizations(paths, chunk_bytes, block, read)
+    first = next(iter(fields.values()))
+    refuse_comparison(first, check_limit, layer)
+    summaries = []
+    with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
+        for i, (name, fine) in enumerate(fields.items(), start=1):
+            def told(line: str, name: str = name) -> None:
+                say(f"{name}: {line}")
+
+            def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
+                told(progress_line(j, n, candidate, entry))
+
+            result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
+                                     report=report, say=told)  # fmt: skip
+            _refuse_if_none_ran(result, paths[i - 1])
+            with Steps(told)(None, "drawing the figures and writing"):
+                summary, made = _drawn(result, paths[i - 1], layer=layer, command=command,
+                                       recorded_read=recorded_read)  # fmt: skip
+                write_comparison(stage / name, summary, made.images, made.page)
+            summaries.append(summary)
+            say(f"[{i}/{len(fields)}] realizations done ({name})")
+        methods = method_spread(names, summaries)
+        axes = "xyz"[: first.ndim]
+        content = {
+            "realizations": [{"name": name, **{k: s["inputs"][0][k] for k in ("path", "sha256")}}
+                             for name, s in zip(names, summaries)],
+            "axes": axes, "block": summaries[0]["block"], "command": command,
+            "working_folder": working_folder(command),
+            "ranking": "P50 over the realizations of the largest |rel_error| over the axes, smallest first",
+            "percentiles": PERCENTILE_NOTE, "methods": methods,
+            "best": methods[0]["name"] if methods and methods[0]["rank"] else None,
+        }  # fmt: skip
+        made = spread_bundle(methods, content, command=command,
+                             title=f"upscale — methods compared on {len(names)} realizations")  # fmt: skip
+        write_ranking(stage, content, names, images=made.images, page=made.page)
+    return content
+
+
+
+def refuse_comparison(fine: Field, max_cells: int, layer: int | None) -> None:
+    """Refuse, before any work, a comparison the flow check cannot rank or a `layer` it cannot draw."""
+    reason = too_large(fine.shape, max_cells)
+    if reason:
+        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+    refuse_check_past_memory(fine, max_cells)
+    refuse_layer(layer, fine)
+
+
+
+def _refuse_if_none_ran(result: Comparison, path: str | None = None) -> None:
+    """Refuse a comparison where every method failed, with each one's reason (`path`: a realization)."""
+    if result.best is not None:
+        return
+    reasons = "; ".join(f"{e.candidate.label}: {e.error}" for e in result.entries)
+    if path is None:
+        raise InputError("no method ran on this field: " + reasons)
+    raise InputError(f"no method ran on {path}: " + reasons)
+
+
+def _drawn(result: Comparison, path: str, *, layer: int | None, command: list[str],
+           recorded_read: dict[str, Any] | None) -> tuple[dict[str, Any], Bundle]:  # fmt: skip
+    """The content of ``compare.json``, and the figures and page, of one field's comparison."""
+    made = bundle(result, title=f"upscale — methods compared on {path}", command=command, layer=layer)
+    return compare_summary(result, command=command, read=recorded_read), made
