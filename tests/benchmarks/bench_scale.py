@@ -167,7 +167,7 @@ def task_fields(spec: dict) -> dict:
 
 
 def _upscale(path: str, block: str, method: str, options: dict) -> Any:
-    """Read and upscale a raster as ``upscale run`` does (`upscale.jobs.run.upscale_file`), nothing written."""
+    """Read and upscale a raster as ``upscale run`` does (`jobs.run.upscale_file`), nothing written."""
     from upscale.grid import BlockSpec
     from upscale.io import read_field
     from upscale.methods.coarsen import coarsen

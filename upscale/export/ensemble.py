@@ -57,7 +57,8 @@ def write_ranking(stage: Path, content: dict[str, Any], names: list[str], *,
     stage : Path
         The staged ensemble folder, holding one comparison folder per realization.
     content : dict
-        ``methods`` (from `upscale.analysis.ensemble.method_spread`), ``axes`` and the rest of ``ensemble.json``.
+        ``methods`` (from `upscale.analysis.ensemble.method_spread`), ``axes`` and the rest of
+        ``ensemble.json``.
     names : list of str
         The realizations' folders.
     images, page
