@@ -22,6 +22,7 @@ import click
 import pytest
 
 import upscale.cli.main  # noqa: F401 - imports every module, so every error class is defined
+from upscale.cli.options import command_line
 from upscale.errors import UpscaleError
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -64,8 +65,15 @@ def _normal(text: str) -> str:
     return " ".join(text.split())
 
 
+def _text(node: ast.AST) -> str:
+    """A string literal as the command line prints it; an f-string's values become ``{}``."""
+    if isinstance(node, ast.JoinedStr):
+        return command_line("".join(v.value if isinstance(v, ast.Constant) else "{}" for v in node.values))
+    return command_line(node.value)
+
+
 def _literals(folder: Path) -> list[str]:
-    """Every string literal but docstrings under `folder`; an f-string's values become ``{}``."""
+    """Every string literal but docstrings under `folder`, with its Python parameters as options."""
     found = []
     for path in sorted(folder.rglob("*.py")):
         tree = ast.parse(path.read_text())
@@ -73,10 +81,10 @@ def _literals(folder: Path) -> list[str]:
         skip |= {id(v) for n in ast.walk(tree) if isinstance(n, ast.JoinedStr) for v in n.values}
         for node in ast.walk(tree):
             # the parser has already joined adjacent literals ("abc " "def") into one node
-            if isinstance(node, ast.JoinedStr):
-                found.append("".join(v.value if isinstance(v, ast.Constant) else "{}" for v in node.values))
-            elif isinstance(node, ast.Constant) and isinstance(node.value, str) and id(node) not in skip:
-                found.append(node.value)
+            if isinstance(node, ast.JoinedStr) or (
+                isinstance(node, ast.Constant) and isinstance(node.value, str) and id(node) not in skip
+            ):
+                found.append(_text(node))
     return [_normal(text) for text in found]
 
 
@@ -133,8 +141,9 @@ def _raised() -> list[tuple[str, str]]:
             call = node.exc if isinstance(node, ast.Raise) else None
             if isinstance(call, ast.Call) and call.args and getattr(call.func, "id", None) in errors:
                 # a message built elsewhere (raise InputError(reason)) has no literal here
-                pieces = [_normal(n.value).strip(" ,.:;'\"(") for n in ast.walk(call.args[0])
-                          if isinstance(n, ast.Constant) and isinstance(n.value, str)]  # fmt: skip
+                strings = [n for n in ast.walk(call.args[0]) if isinstance(n, ast.JoinedStr)
+                           or (isinstance(n, ast.Constant) and isinstance(n.value, str))]  # fmt: skip
+                pieces = [_normal(p).strip(" ,.:;'\"(") for n in strings for p in _text(n).split("{}")]
                 long = [p for p in pieces if len(p) >= 12]
                 found += [(f"{path.relative_to(ROOT)}:{node.lineno}", long[0])] if long else []
     return found

@@ -301,7 +301,7 @@ def test_unknown_method_and_bad_block_text_refused():
         coarsen(fine, "2x2", "mean")
     with pytest.raises(InputError, match=r"is not of the form NXxNY"):
         coarsen(fine, "2by2", "arithmetic")
-    with pytest.raises(InputError, match=r"needs --exponent"):
+    with pytest.raises(InputError, match=r"needs `exponent`"):
         coarsen(fine, "2x2", "power")
 
 

@@ -4,6 +4,11 @@ Every error the tool raises on purpose derives from `UpscaleError`, and most
 also derive from the builtin a caller would expect, so ``except ValueError``
 keeps working for library users. The command line prints the message of an
 `UpscaleError` as one line; any other exception is a bug.
+
+Messages name Python parameters in backticks, as a caller of the library
+passes them (`` `border` must be 0 or more``, `` `solver=direct` ``); the
+command line writes them as its options (``--border``, ``--solver direct``,
+`upscale.cli.options.command_line`).
 """
 
 from __future__ import annotations

@@ -120,8 +120,8 @@ def unit_factors(unit: str, system: str) -> dict[str, Any]:
         return {"length": 1.0, "k": to_si, "length_unit": "m", "k_unit": "m²",
                 "transmissibility_unit": "m³"}  # fmt: skip
     if kind == "conductivity":
-        raise InputError("--units field is for permeability (mD, D, m2) inputs; this one is a "
-                         "hydraulic conductivity — use --units si")  # fmt: skip
+        raise InputError("`units=field` is for permeability (mD, D, m2) inputs; this one is a "
+                         "hydraulic conductivity — use `units=si`")  # fmt: skip
     return {"length": 1.0 / FOOT_M, "k": to_si / (1e-3 * DARCY_M2), "length_unit": "ft",
             "k_unit": "mD", "transmissibility_unit": "mD·ft"}  # fmt: skip
 

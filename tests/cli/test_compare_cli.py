@@ -254,7 +254,7 @@ def test_layer_beyond_the_model_is_refused(run_cli, write_tif, tmp_path):
         code, stdout, err = run_cli(command[0], field, "--dz", "1", "--block", "8x8x2", *command[1:],
                                     "--layer", "5", "--out", out)  # fmt: skip
         assert (code, stdout) == (2, ""), command
-        assert err == "upscale: error: --layer 5: the field has 4 layer(s)\n"
+        assert err == "upscale: error: --layer is past the field's 4 layer(s)\n"
         assert not out.exists()
 
 

@@ -67,7 +67,7 @@ def test_existing_empty_folder_is_used(tmp_path):
 def test_non_empty_folder_is_refused_without_overwrite(previous):
     before = snapshot(previous)
     entered = False
-    with pytest.raises(OutputExistsError, match=r"already holds files .*--overwrite") as info:
+    with pytest.raises(OutputExistsError, match=r"already holds files .*`overwrite=True`") as info:
         with staged_folder(previous) as stage:
             entered = True
             _write_result(stage, {"kx.tif": "new"})

@@ -144,7 +144,7 @@ def test_amg_that_cannot_converge_raises():
         solver.solve(b)
     assert isinstance(caught.value, UpscaleError) and isinstance(caught.value, RuntimeError)
     assert caught.value.exit_code == 1
-    assert "--solver direct" in str(caught.value)
+    assert "`solver=direct`" in str(caught.value)
 
 
 @pytest.mark.parametrize("method", ["direct", "amg"])

@@ -76,7 +76,7 @@ def test_one_dz_value_applies_to_every_layer(write_tif, k3d):
 
 def test_several_bands_without_dz_are_refused(write_tif, k3d):
     path = write_tif("model.tif", k3d)
-    with pytest.raises(InputError, match=r"3 bands make a 3D model.*--dz") as info:
+    with pytest.raises(InputError, match=r"3 bands make a 3D model.*`dz=2.5`") as info:
         upscale.read_field(path)
     assert str(path) in str(info.value)
 
@@ -84,7 +84,7 @@ def test_several_bands_without_dz_are_refused(write_tif, k3d):
 @pytest.mark.parametrize("dz", [[1.0, 2.0], [1.0, 1.0, 1.0, 1.0]])
 def test_wrong_number_of_dz_values_is_refused(write_tif, k3d, dz):
     path = write_tif("model.tif", k3d)
-    with pytest.raises(InputError, match=rf"--dz has {len(dz)} values but .* has 3 layers"):
+    with pytest.raises(InputError, match=rf"`dz` has {len(dz)} values but .* has 3 layers"):
         upscale.read_field(path, dz=dz)
 
 
@@ -151,7 +151,7 @@ def test_inactive_cells_are_shared_by_every_property(write_tif, k2d):
 
 def test_geographic_crs_is_refused_without_cell_size(write_tif, k2d):
     path = write_tif("lonlat.tif", k2d, crs="EPSG:4326", cell_size=0.0005)
-    with pytest.raises(InputError, match=r"geographic CRS \(EPSG:4326\).*degrees.*--cell-size"):
+    with pytest.raises(InputError, match=r"geographic CRS \(EPSG:4326\).*degrees.*`cell_size=DX"):
         upscale.read_field(path)
     field = upscale.read_field(path, cell_size=(30.0, 20.0))
     np.testing.assert_array_equal(field.grid.dx, np.full(48, 30.0))
@@ -183,7 +183,7 @@ def test_cell_size_in_metres_agrees_with_a_raster_in_feet(write_tif, k2d):
 @pytest.mark.filterwarnings("ignore::rasterio.errors.NotGeoreferencedWarning")
 def test_raster_without_georeference_needs_cell_size(write_tif, k2d):
     path = write_tif("plain.tif", k2d, georeferenced=False)
-    with pytest.raises(InputError, match=r"no georeference.*--cell-size"):
+    with pytest.raises(InputError, match=r"no georeference.*`cell_size=DX\[xDY\]`"):
         upscale.read_field(path)
     field = upscale.read_field(path, cell_size=(5.0, 7.0))
     assert field.grid.crs is None
@@ -234,7 +234,7 @@ def test_companion_on_another_grid_is_refused(tmp_path, k3d, role, kind, problem
     with pytest.raises(InputError, match=problem) as info:
         upscale.read_field(main, dz=1.0, **{role: other})
     message = str(info.value)
-    assert message.startswith(f"--{role} {other}: not on the grid of {main}")
+    assert message.startswith(f"`{role}` {other}: not on the grid of {main}")
 
 
 def test_companion_rasters_on_the_same_grid_are_used(write_tif, k3d):
@@ -260,14 +260,14 @@ def test_kv_kh_gives_kz_as_a_fraction_of_kx(write_tif, k3d):
 def test_vertical_permeability_on_a_2d_map_is_refused(write_tif, k2d, option):
     path = write_tif("map.tif", k2d)
     value = write_tif("kz.tif", k2d) if option == "kz" else 0.1
-    flag = "--" + option.replace("_", "-")
+    flag = f"`{option}`"
     with pytest.raises(InputError, match=rf"{flag} was given but .*one-band 2D map"):
         upscale.read_field(path, **{option: value})
 
 
 def test_kz_and_kv_kh_together_are_refused(write_tif, k3d):
     kx = write_tif("kx.tif", k3d)
-    with pytest.raises(InputError, match="either --kz or --kv-kh"):
+    with pytest.raises(InputError, match="either `kz` or `kv_kh`"):
         upscale.read_field(kx, dz=1.0, kz=write_tif("kz.tif", k3d), kv_kh=0.1)
 
 
@@ -332,7 +332,7 @@ def test_npy_2d_array_needs_and_uses_cell_size(tmp_path, k2d):
     values[1, 2] = np.nan
     path = tmp_path / "map.npy"
     np.save(path, values)
-    with pytest.raises(InputError, match="no georeference.*--cell-size"):
+    with pytest.raises(InputError, match=r"no georeference.*`cell_size=DX\[xDY\]`"):
         upscale.read_field(path)
     field = upscale.read_field(path, cell_size=(5.0, 7.0))
     assert field.shape == (1, 32, 48) and field.ndim == 2

@@ -732,7 +732,7 @@ def test_border_as_large_as_the_grid_is_refused():
 def test_negative_border_and_unknown_condition_are_refused():
     field = Field.from_arrays(np.ones((8, 8)))
     for method in ("flow", "flow-transmissibility"):
-        with pytest.raises(InputError, match="border must be 0 or more fine cells, not -1"):
+        with pytest.raises(InputError, match="`border` must be 0 or more fine cells, not -1"):
             coarsen(field, "4x4", method, border=-1)
         with pytest.raises(InputError, match="unknown boundary condition 'dirichlet'; choose one of "
                                              "sealed, linear, periodic"):  # fmt: skip

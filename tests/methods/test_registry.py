@@ -106,9 +106,9 @@ def test_get_method_refuses_options_it_does_not_take():
 
 
 def test_get_method_needs_required_options():
-    with pytest.raises(InputError, match=r"method 'power' needs --exponent"):
+    with pytest.raises(InputError, match=r"method 'power' needs `exponent`"):
         get_method("power")
-    with pytest.raises(InputError, match=r"needs --exponent"):
+    with pytest.raises(InputError, match=r"needs `exponent`"):
         get_method("power", {"exponent": None})
 
 

@@ -28,7 +28,7 @@ def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
         return None
     return (
         f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
-        "raise --check-limit if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
+        "raise the check limit if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
     )
 
 
@@ -51,8 +51,8 @@ def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, avai
         return None
     fits = available // BYTES_PER_CELL[ndim]
     return (f"the flow check would solve {cells} fine cells at once, about {need / 2**30:.1f} GiB, "
-            f"more than the {available / 2**30:.1f} GiB available; give --check-limit {fits} or less "
-            "(beyond it the check runs on sub-domains of that size), or --no-check")
+            f"more than the {available / 2**30:.1f} GiB available; give `check_limit={fits}` or less "
+            "(beyond it the check runs on sub-domains of that size), or `check=False`")
 
 
 def refuse_check_past_memory(fine: Field, max_cells: int) -> None:

@@ -33,7 +33,7 @@ import click
 
 from ..caution import CAUTION
 from ..errors import UpscaleError
-from .options import global_options
+from .options import command_line, global_options
 
 
 @click.group(
@@ -165,7 +165,7 @@ def _main(args: list[str]) -> int:
     except UpscaleError as exc:
         if settings.get("debug"):
             raise
-        click.echo(f"upscale: error: {exc}", err=True)
+        click.echo(f"upscale: error: {command_line(str(exc))}", err=True)
         return exc.exit_code
     except MemoryError:
         if settings.get("debug"):

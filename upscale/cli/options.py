@@ -81,6 +81,36 @@ def parse_bytes(text: str | None) -> int | None:
     return int(float(match.group(1)) * _FACTORS[unit])
 
 
+#: Python names and settings whose option is not ``--`` and the name with dashes.
+_OPTIONS = {"check=False": "--no-check", "overwrite=True": "--overwrite", "max_cells": "--check-limit",
+            "chunk_bytes": "--chunk"}  # fmt: skip
+#: A Python parameter in a library message: `name` or `name=value` in backticks.
+_PARAMETER = re.compile(r"`([A-Za-z_]\w*)(?:=([^`]*))?`")
+
+
+def command_line(message: str) -> str:
+    """A library message with its Python parameters written as the command line's options.
+
+    The library names its parameters in backticks (`upscale.errors`); the
+    option of ``name`` is ``--name`` with dashes for underscores, unless
+    `_OPTIONS` says otherwise, and ``name=value`` becomes ``--name value``.
+
+    Examples
+    --------
+    >>> command_line("`kv_kh` must be > 0; try `solver=direct`, or `check=False`")
+    '--kv-kh must be > 0; try --solver direct, or --no-check'
+    """
+
+    def option(match: re.Match) -> str:
+        if match.group(0)[1:-1] in _OPTIONS:
+            return _OPTIONS[match.group(0)[1:-1]]
+        name, value = match.groups()
+        flag = _OPTIONS.get(name, "--" + name.replace("_", "-"))
+        return flag if value is None else f"{flag} {value}"
+
+    return _PARAMETER.sub(option, message)
+
+
 def global_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """``-v``, ``-q`` and ``--debug``: on the group, before the command, and on every command, after it.
 

@@ -16,6 +16,7 @@ from .options import (
     block_options,
     block_spec,
     check_options,
+    command_line,
     field_options,
     global_options,
     parse_chunk,
@@ -25,7 +26,7 @@ from .options import (
 from .progress import progress, teller
 from .report import print_ensemble, print_result
 
-_METHOD_HELP = "; ".join(f"{m.name}: {m.summary}" for m in METHODS.values())
+_METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS.values())
 
 
 @click.command(epilog=f"Caution: {CAUTION}")

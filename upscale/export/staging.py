@@ -36,7 +36,7 @@ def check_destination(folder: str | Path, overwrite: bool) -> None:
         if present:
             shown = ", ".join(present[:4]) + (", ..." if len(present) > 4 else "")
             raise OutputExistsError(
-                f"{folder} already holds files ({shown}); choose another folder or pass --overwrite"
+                f"{folder} already holds files ({shown}); choose another folder or pass `overwrite=True`"
             )
 
 

@@ -159,7 +159,7 @@ class Solver:
             raise ConvergenceError(
                 f"the {self.method} pressure solve stopped at a scaled residual of {residual:.2e} "
                 f"after {iterations} iterations (asked for {self.tolerance:.0e}); the field may hold "
-                "extreme contrasts — try --solver direct on a smaller grid, or a looser --tolerance"
+                "extreme contrasts — try `solver=direct` on a smaller grid, or a looser `tolerance`"
             )
         return x, SolveInfo(self.method, iterations, residual)
 

@@ -127,13 +127,13 @@ def _cell_size(first: _Layout, cell_size: Sequence[float] | None) -> tuple[float
     if t is None:
         raise InputError(
             f"{first.path}: no georeference, so the cell size is unknown; give it in metres "
-            "(--cell-size DX[xDY])"
+            "(`cell_size=DX[xDY]`)"
         )
     if first.crs is not None and first.crs.is_geographic:
         raise InputError(
             f"{first.path}: the raster is in a geographic CRS ({first.crs.to_string()}), its cells "
             "are in degrees; reproject it to a projected CRS or give the cell size in metres "
-            "(--cell-size DX[xDY])"
+            "(`cell_size=DX[xDY]`)"
         )
     if first.crs is None:
         log.info("%s: no CRS; cell sizes from the geotransform are taken as metres", first.path)
@@ -148,14 +148,14 @@ def _layer_thickness(layers: int, dz: float | Sequence[float] | None, path: str)
         if layers > 1:
             raise InputError(
                 f"{path}: {layers} bands make a 3D model; give the layer thickness in metres "
-                "(--dz 2.5, or one value per layer: --dz 2,3,1.5,...)"
+                "(`dz=2.5`, or one value per layer: `dz=2,3,1.5,...`)"
             )
         return np.ones(1)
     values = np.atleast_1d(np.asarray(dz, dtype=float))
     if values.size == 1:
         values = np.full(layers, values[0])
     if values.size != layers:
-        raise InputError(f"--dz has {values.size} values but {path} has {layers} layers")
+        raise InputError(f"`dz` has {values.size} values but {path} has {layers} layers")
     return values
 
 
@@ -236,13 +236,13 @@ def read_field(
     if not three_d:
         for name in ("kz",):
             if extras[name] is not None:
-                raise InputError(f"--{name} was given but {path} is a one-band 2D map")
+                raise InputError(f"`{name}` was given but {path} is a one-band 2D map")
         if kv_kh is not None:
-            raise InputError(f"--kv-kh was given but {path} is a one-band 2D map")
+            raise InputError(f"`kv_kh` was given but {path} is a one-band 2D map")
     if kz is not None and kv_kh is not None:
-        raise InputError("give either --kz or --kv-kh, not both")
+        raise InputError("give either `kz` or `kv_kh`, not both")
     if kv_kh is not None and not (kv_kh > 0 and math.isfinite(kv_kh)):
-        raise InputError(f"--kv-kh must be > 0 and finite (kz = kv_kh x kx), got {kv_kh}")
+        raise InputError(f"`kv_kh` must be > 0 and finite (kz = kv_kh x kx), got {kv_kh}")
 
     arrays = {"kx": main.lazy}
     sources = [Source("kx", str(path), sha256(path) if checksum else "")]
@@ -288,5 +288,5 @@ def _check_same_grid(main: _Layout, other: _Layout, name: str) -> None:
         problem = f"its CRS ({other.crs}) differs from {main.crs}"
     if problem:
         raise InputError(
-            f"--{name.replace('_', '-')} {other.path}: not on the grid of {main.path}: {problem}"
+            f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
         )

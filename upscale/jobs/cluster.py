@@ -39,17 +39,17 @@ def compute_on(workers: int | None = None, address: str | None = None) -> Iterat
         If both are given, or the scheduler cannot be reached within `CONNECT_TIMEOUT` s.
     """
     if workers is not None and address is not None:
-        raise InputError("give --workers (a local cluster) or --scheduler (an existing one), not both")
+        raise InputError("give `workers` (a local cluster) or `scheduler` (an existing one), not both")
     if workers is None and address is None:
         yield 1
         return
     try:
         from dask.distributed import Client, LocalCluster
     except ImportError:  # pragma: no cover - distributed is a dependency
-        raise InputError("--workers and --scheduler need dask.distributed") from None
+        raise InputError("`workers` and `scheduler` need dask.distributed") from None
     if workers is not None:
         if workers < 1:
-            raise InputError(f"--workers must be 1 or more, not {workers}")
+            raise InputError(f"`workers` must be 1 or more, not {workers}")
         logging.getLogger("distributed").setLevel(logging.ERROR)  # its start-up chatter
         # no dashboard; the scheduler's HTTP server on any free port (a taken 8787 would warn)
         with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,

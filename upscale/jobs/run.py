@@ -122,7 +122,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     if settings.check:
         reason = too_large(result.fine.shape, settings.check_limit)
         if reason and drawing:
-            raise InputError(f"--plot and --report show the flow check, and {reason}")
+            raise InputError(f"`plot` and `report` show the flow check, and {reason}")
         if reason:
             # never silently: the global solve is skipped, windows are checked instead
             with steps("check_s", f"checking the flow on sub-domains ({reason})"):
@@ -214,9 +214,9 @@ def refuse_layer(layer: int | None, fine: Field) -> None:
     if layer is None:
         return
     if fine.ndim != 3:
-        raise InputError(f"--layer {layer + 1}: the field is a 2D map; --layer chooses the layer "
-                         "drawn of a 3D model — leave it out")  # fmt: skip
+        raise InputError("`layer`: the field is a 2D map; `layer` chooses the layer drawn of a 3D model "
+                         "— leave it out")  # fmt: skip
     if layer >= fine.shape[0]:
-        raise InputError(f"--layer {layer + 1}: the field has {fine.shape[0]} layer(s)")
+        raise InputError(f"`layer` is past the field's {fine.shape[0]} layer(s)")
 
 

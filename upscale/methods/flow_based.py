@@ -306,9 +306,9 @@ def options_for(field_grid: Grid, ndim: int) -> dict[str, Any]:
 
 def _check_border(field: Field, border: int) -> None:
     if isinstance(border, bool) or not isinstance(border, (int, np.integer)):
-        raise InputError(f"--border must be a whole number of fine cells, not {border!r}")
+        raise InputError(f"`border` must be a whole number of fine cells, not {border!r}")
     if border < 0:
-        raise InputError(f"--border must be 0 or more fine cells, not {border}")
+        raise InputError(f"`border` must be 0 or more fine cells, not {border}")
     largest = max(field.shape[a] for a in range(3) if field.ndim == 3 or a > 0)
     if border >= largest:
         raise InputError(

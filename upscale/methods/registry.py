@@ -77,7 +77,7 @@ METHODS: Mapping[str, Method] = {
         Method(
             "power",
             averages.power_mean,
-            "volume-weighted power average with exponent ω (--exponent)",
+            "volume-weighted power average with exponent ω (`exponent`)",
             options=("exponent",),
             takes_zeros=lambda options: options["exponent"] > 0,
         ),
@@ -98,7 +98,7 @@ METHODS: Mapping[str, Method] = {
         Method(
             "flow",
             flow_properties,
-            "local pressure solve in each block (--bc sealed|linear|periodic, --border N)",
+            "local pressure solve in each block (`bc=sealed|linear|periodic`, `border=N`)",
             options=("bc", "border"),
             defaults={"bc": "sealed", "border": 0},
             local=True,
@@ -106,7 +106,7 @@ METHODS: Mapping[str, Method] = {
         Method(
             "flow-transmissibility",
             direct_properties,
-            "flow-based blocks, and coarse transmissibilities from two-block solves (--border N)",
+            "flow-based blocks, and coarse transmissibilities from two-block solves (`border=N`)",
             options=("bc", "border"),
             defaults={"bc": "sealed", "border": 0},
             local=True,
@@ -124,7 +124,7 @@ METHODS: Mapping[str, Method] = {
 def check_exponent(exponent: float | None) -> None:
     """Refuse an exponent of the power average that is not a finite number (nan, inf)."""
     if exponent is not None and not math.isfinite(exponent):
-        raise InputError(f"--exponent must be a finite number such as 0.5 or -1, got {exponent}")
+        raise InputError(f"`exponent` must be a finite number such as 0.5 or -1, got {exponent}")
 
 
 def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Method, dict]:
@@ -158,6 +158,6 @@ def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Met
         raise InputError(f"method {name!r} takes no option {', '.join(extra)}")
     missing = [o for o in method.options if o not in given]
     if missing:
-        raise InputError(f"method {name!r} needs --{missing[0]}")
+        raise InputError(f"method {name!r} needs `{missing[0]}`")
     check_exponent(given.get("exponent"))
     return method, {o: given[o] for o in method.options}

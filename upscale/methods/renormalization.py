@@ -93,12 +93,12 @@ def renormalized_properties(field: Field, cells: tuple[int, int, int]) -> dict[s
         block = "x".join(map(str, cells[::-1][: field.ndim]))
         raise InputError(
             f"renormalization coarsens by 2 at each step, so every block size must be a power of "
-            f"two; {block} is not (use e.g. 4, 8, 16 or 32 cells, or --method flow)"
+            f"two; {block} is not (use e.g. 4, 8, 16 or 32 cells, or `method=flow`)"
         )
     if any(n % b for n, b in zip(field.shape, cells)):
         raise InputError(
             "renormalization needs whole blocks; the grid does not divide into them — use "
-            "--remainder crop"
+            "`remainder=crop`"
         )
     arrays = [field.kz if field.kz is not None else field.kx, field.ky, field.kx]
     tensor = apply_regions(renormalized_chunk, arrays, field.grid.dz, cells, (0, 0, 0), 9,
