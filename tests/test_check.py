@@ -218,6 +218,6 @@ def test_summary_skips_grids_above_the_limit():
     skipped = check_summary(fine, coarse, max_cells=639)
     assert list(skipped) == ["skipped"]
     assert "640 cells" in skipped["skipped"] and "limit of 639" in skipped["skipped"]
-    assert "raise the check limit" in skipped["skipped"]
+    assert "more than the check limit of" in skipped["skipped"]
     assert set(check_summary(fine, coarse, max_cells=640)) == {"x", "y", "z"}
     assert DEFAULT_LIMIT == 20_000_000

@@ -21,15 +21,16 @@ DEFAULT_LIMIT = 20_000_000
 BYTES_PER_CELL = {2: 650, 3: 1000}
 
 
+#: What to do about a refusal by `too_large`.
+RAISE_LIMIT = "raise `check_limit` if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
+
+
 def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
     """Why a fine grid of `shape` is not solved whole under the limit, or None if it is."""
     cells = math.prod(shape)
     if cells <= max_cells:
         return None
-    return (
-        f"the fine grid has {cells} cells, more than the check limit of {max_cells}; "
-        "raise the check limit if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
-    )
+    return f"the fine grid has {cells} cells, more than the check limit of {max_cells}"
 
 
 def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, available: int) -> str | None:

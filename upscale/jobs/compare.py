@@ -13,7 +13,7 @@ from typing import Any
 from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line
 from ..analysis.ensemble import PERCENTILE_NOTE, method_spread
 from ..analysis.summary import working_folder
-from ..check.limits import refuse_check_past_memory, too_large
+from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..errors import InputError
 from ..export.comparison import compare_summary, write_comparison
 from ..export.ensemble import ENSEMBLE, write_ranking
@@ -152,7 +152,7 @@ def refuse_comparison(fine: Field, max_cells: int, layer: int | None) -> None:
     """Refuse, before any work, a comparison the flow check cannot rank or a `layer` it cannot draw."""
     reason = too_large(fine.shape, max_cells)
     if reason:
-        raise InputError(f"a comparison ranks methods by the flow check, and {reason}")
+        raise InputError(f"a comparison ranks methods by the flow check, and {reason}; {RAISE_LIMIT}")
     refuse_check_past_memory(fine, max_cells)
     refuse_layer(layer, fine)
 

@@ -16,7 +16,7 @@ from ..analysis.compare import single
 from ..analysis.ensemble import ensemble_summary
 from ..analysis.summary import working_folder
 from ..check.axis import check_flow
-from ..check.limits import refuse_check_past_memory, too_large
+from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.subdomains import check_subdomains
 from ..errors import InputError
 from ..export import write_result
@@ -122,7 +122,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     if settings.check:
         reason = too_large(result.fine.shape, settings.check_limit)
         if reason and drawing:
-            raise InputError(f"`plot` and `report` show the flow check, and {reason}")
+            raise InputError(f"`plot` and `report` show the flow check, and {reason}; {RAISE_LIMIT}")
         if reason:
             # never silently: the global solve is skipped, windows are checked instead
             with steps("check_s", f"checking the flow on sub-domains ({reason})"):
