@@ -165,7 +165,7 @@ _AS_IN_A_CONTAINER = 'mount --bind "$0" "$1" && shift && exec "$@"'
 
 @pytest.fixture
 def container():
-    """``run(limit_bytes, args)``: a command line in a new cgroup with that memory limit, seen as a container's."""
+    """``run(limit_bytes, args)``: a command line in a new cgroup with that memory limit, as a container."""
     groups: list[Path] = []
 
     def run(limit: int, args: list) -> subprocess.CompletedProcess:
@@ -184,9 +184,10 @@ def container():
         else:
             pytest.skip("no cgroup memory controller to make a group in")
         enter = (group / "cgroup.procs").write_text  # the child, before it runs the command
-        return subprocess.run(["unshare", "--mount", "--propagation", "private", "sh", "-c", _AS_IN_A_CONTAINER,
-                               str(group), str(top), *map(str, args)], capture_output=True, text=True,
-                              timeout=300, preexec_fn=lambda: enter(str(os.getpid())))  # fmt: skip
+        command = ["unshare", "--mount", "--propagation", "private", "sh", "-c", _AS_IN_A_CONTAINER,
+                   str(group), str(top), *map(str, args)]  # fmt: skip
+        return subprocess.run(command, capture_output=True, text=True, timeout=300,
+                              preexec_fn=lambda: enter(str(os.getpid())))  # fmt: skip
 
     yield run
     for group in groups:

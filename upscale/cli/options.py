@@ -16,6 +16,7 @@ from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
 from ..units import UNITS
 
+
 def parse_numbers(text: str | None, name: str) -> list[float] | None:
     """``"2"`` or ``"2,3,1.5"`` -> list of floats; a clear error otherwise."""
     if text is None:

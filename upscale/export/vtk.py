@@ -8,19 +8,20 @@ northward and VTK z is the height above the top of the model in m
 scale in a viewer. The cell array ``id`` holds each cell's package id, so a value
 picked in a viewer leads back to ``cells.csv``.
 
-The arrays are raw little- or big-endian float64 (the machine's order, which
-the file declares) in the file's appended section, each after its size in
-bytes (UInt64): no text to format or parse. Written with pyevtk (MIT, pure
-Python on NumPy alone, a 20 kB wheel) and its lower-level `VtkFile`: the
-header declares every array and its offset from the sizes alone
-(``addHeader``), and ``appendHeader`` writes the size of an array whose bytes
-follow, which we write slab by slab (`upscale.export.slabs`) as the ASCII
-writer before did — the file never holds more than one slab in memory.
+The arrays are raw float64 in the machine's byte order, which the file
+declares, in its appended section, each after its size in bytes (UInt64):
+no text to format or parse. Written with pyevtk (MIT, pure Python on NumPy
+alone, a 20 kB wheel; maintained, 1.7.0 in 2026) and its lower-level
+`VtkFile`: the header declares every array and its offset from the sizes
+alone (``addHeader``), and ``appendHeader`` writes the size of an array
+whose bytes follow, which we write slab by slab (`upscale.export.slabs`)
+as the text writer before did: the writer never holds more than one slab.
 Not pyevtk's ``rectilinearToVTK``: it takes every array whole and packs them
 value by value with ``struct`` (26 times slower than ``ndarray.tobytes`` on a
-slab of 2¹⁸ cells, same bytes). Not meshio (5.3.5): it writes VTK files only
-as unstructured grids (eight points and a connectivity row per cell, not a
-rectilinear grid) from whole arrays. Measured in docs/performance.md.
+slab of 2¹⁸ cells, same bytes). Not meshio (5.3.5, January 2024; a 166 kB
+wheel that also needs rich): it writes VTK files only as unstructured grids
+(eight points and a connectivity row per cell, not a rectilinear grid) from
+whole arrays. Sizes and times before and after: docs/performance.md.
 """
 
 from __future__ import annotations
