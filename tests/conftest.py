@@ -125,6 +125,36 @@ def read_raster(path: str | Path) -> np.ndarray:
     return np.where(valid, data, np.nan)
 
 
+def read_vtr(path: str | Path) -> tuple[tuple[int, ...], dict[str, np.ndarray], dict[str, np.ndarray]]:
+    """A VTK XML rectilinear grid opened by VTK's own reader (the ``vtk`` wheel).
+
+    Returns
+    -------
+    extent : tuple of int
+        ``(0, N, 0, M, 0, L)``: points along x, y and z, minus one.
+    cells : dict of str to ndarray
+        Each cell array as float64 of shape (cells,), in the file's order (x fastest).
+    coordinates : dict of str to ndarray
+        The x, y and z point coordinates by their names in the file.
+    """
+    from vtkmodules.util.numpy_support import vtk_to_numpy
+    from vtkmodules.vtkIOXML import vtkXMLRectilinearGridReader
+
+    reader = vtkXMLRectilinearGridReader()
+    reader.SetFileName(str(path))
+    reader.Update()
+    assert reader.GetErrorCode() == 0, f"VTK could not read {path}"
+    grid = reader.GetOutput()
+    data = grid.GetCellData()
+    arrays = [data.GetArray(i) for i in range(data.GetNumberOfArrays())]
+    axes = [grid.GetXCoordinates(), grid.GetYCoordinates(), grid.GetZCoordinates()]
+
+    def copied(found: list[Any]) -> dict[str, np.ndarray]:  # copies: VTK owns the arrays it read
+        return {a.GetName(): vtk_to_numpy(a).astype(np.float64) for a in found}
+
+    return grid.GetExtent(), copied(arrays), copied(axes)
+
+
 def lognormal(shape: tuple[int, ...], seed: int, mean_ln: float = 3.0, sigma_ln: float = 1.0):
     """Uncorrelated lognormal permeabilities (mD) of `shape`."""
     return np.random.default_rng(seed).lognormal(mean_ln, sigma_ln, size=shape)

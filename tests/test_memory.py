@@ -22,6 +22,15 @@ What is tested
   exit 2, one line naming the memory and a ``--check-limit`` that fits, no
   output folder; with a small ``--check-limit`` the same run completes and
   checks on sub-domains.
+* In a container's memory limit — a cgroup of its own (v1, or v2 where its
+  memory controller is delegated) that the command sees at the top of
+  ``/sys/fs/cgroup``, as in Docker or Kubernetes: a private mount namespace
+  with the cgroup bind-mounted there; the kernel enforces the limit — the
+  memory the tool finds is within the limit, and so is the default chunk (a
+  64th of it, not the 128 MiB the machine's 24 GiB would give); a run whose
+  check would need more than the container holds is refused before any
+  work, as above, and the same run without the check completes in it.
+  Needs root (as CI runs) and ``unshare``; skipped otherwise.
 """
 
 from __future__ import annotations
@@ -30,13 +39,16 @@ import json
 import os
 import re
 import resource
+import shutil
 import subprocess
 import sys
+import time
+from pathlib import Path
 
 import numpy as np
 import pytest
 import rasterio
-from conftest import UPSCALE_EXE, north_up
+from conftest import UPSCALE_EXE, lognormal, north_up, write_raster
 from rasterio.windows import Window
 
 SIDE = 16384
@@ -143,3 +155,73 @@ def test_a_check_that_would_not_fit_in_memory_is_refused_before_any_work(rasters
     assert code == 0, stderr
     check = json.loads((done / "summary.json").read_text())["check"]
     assert "300000" in check["skipped"] and len(check["windows"]) == 9
+
+
+#: Where a memory controller's hierarchy is mounted and the name of a cgroup's limit there: v1, v2.
+_CGROUPS = ((Path("/sys/fs/cgroup/memory"), "memory.limit_in_bytes"), (Path("/sys/fs/cgroup"), "memory.max"))
+#: Runs a command with the cgroup given first mounted where the hierarchy's top is (given second).
+_AS_IN_A_CONTAINER = 'mount --bind "$0" "$1" && shift && exec "$@"'
+
+
+@pytest.fixture
+def container():
+    """``run(limit_bytes, args)``: a command line in a new cgroup with that memory limit, as a container."""
+    groups: list[Path] = []
+
+    def run(limit: int, args: list) -> subprocess.CompletedProcess:
+        if os.geteuid() != 0 or shutil.which("unshare") is None:
+            pytest.skip("a cgroup of its own needs root and unshare")
+        for top, limit_file in _CGROUPS:
+            group = top / f"upscale-test-{os.getpid()}-{len(groups)}"
+            try:
+                group.mkdir()
+            except OSError:
+                continue
+            groups.append(group)
+            if (group / limit_file).exists():  # v2: only where the memory controller is delegated
+                (group / limit_file).write_text(str(limit))
+                break
+        else:
+            pytest.skip("no cgroup memory controller to make a group in")
+        enter = (group / "cgroup.procs").write_text  # the child, before it runs the command
+        command = ["unshare", "--mount", "--propagation", "private", "sh", "-c", _AS_IN_A_CONTAINER,
+                   str(group), str(top), *map(str, args)]  # fmt: skip
+        return subprocess.run(command, capture_output=True, text=True, timeout=300,
+                              preexec_fn=lambda: enter(str(os.getpid())))  # fmt: skip
+
+    yield run
+    for group in groups:
+        for _ in range(50):  # the group is removable once its last process has been reaped
+            try:
+                group.rmdir()
+                break
+            except OSError:
+                time.sleep(0.1)
+
+
+def test_the_memory_found_and_the_default_chunk_follow_a_containers_limit(container):
+    limit = 1536 * 2**20
+    probe = ("from upscale.io.windows import available_memory, default_chunk_bytes; "
+             "print(available_memory(), default_chunk_bytes())")  # fmt: skip
+    done = container(limit, [sys.executable, "-c", probe])
+    assert done.returncode == 0, done.stderr
+    available, chunk = map(int, done.stdout.split())
+    assert 0 < available < limit  # less what the interpreter holds
+    assert 16 * 2**20 <= chunk <= limit // 64  # the machine's memory would give 128 MiB
+
+
+def test_a_check_that_would_not_fit_in_a_container_is_refused_before_any_work(container, tmp_path):
+    raster = write_raster(tmp_path / "k.tif", lognormal((1024, 1024), 2_906_117_473))
+    limit = 640 * 2**20  # a whole check of 1024² cells needs about 0.65 GB; the machine has 24 GiB
+    args = ["run", raster, "--block", "16x16", "--method", "geometric"]
+    out = tmp_path / "refused"
+    done = container(limit, [UPSCALE_EXE, *args, "--out", out])
+    assert done.returncode == 2, done.stderr
+    assert done.stderr.count("\n") == 1 and "Traceback" not in done.stderr, done.stderr
+    assert "the flow check would solve 1048576 fine cells at once" in done.stderr
+    available = float(re.search(r"more than the ([\d.]+) GiB available", done.stderr).group(1))
+    assert available <= limit / 2**30
+    assert not out.exists()
+    done = container(limit, [UPSCALE_EXE, "-q", *args, "--no-check", "--out", tmp_path / "unchecked"])
+    assert done.returncode == 0, done.stderr
+    assert (tmp_path / "unchecked" / "summary.json").exists()

@@ -5,7 +5,8 @@ What is tested
 Four commands on the demo fields (a geometric run with porosity, a 3D
 flow-transmissibility run, a periodic flow run with figures, a comparison)
 write every output file; each file is reduced to canonical content —
-GeoTIFF bands, table and NetCDF columns and VTK arrays as float64 arrays,
+GeoTIFF bands, table and NetCDF columns and VTK arrays (decoded by VTK's
+own reader, whatever the file's encoding) as float64 arrays,
 JSON without the keys that differ between runs (times, versions, paths),
 figures as bytes — and each piece's SHA-256 is compared with the digest
 recorded in ``tests/data/reference_outputs.json``. A reorganisation of the
@@ -28,13 +29,13 @@ import csv
 import hashlib
 import json
 import sys
-import xml.etree.ElementTree as ElementTree
 from importlib import metadata
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pytest
+from conftest import read_vtr
 
 ROOT = Path(__file__).resolve().parents[1]
 RECORD = ROOT / "tests" / "data" / "reference_outputs.json"
@@ -114,9 +115,9 @@ def canonical(folder: Path) -> dict[str, dict[str, Any]]:
                     values = np.ma.filled(np.ma.asarray(variable[:], dtype=np.float64), np.nan)
                     pieces[f"{name}:{head}"] = _array(values)
         elif path.suffix == ".vtr":
-            for array in ElementTree.parse(path).iter("DataArray"):
-                values = np.array((array.text or "").split(), dtype=np.float64)
-                pieces[f"{name}:{array.get('Name')}"] = _array(values)
+            _, cells, coordinates = read_vtr(path)  # decoded by VTK's reader: the encoding does not count
+            for head, values in {**cells, **coordinates}.items():
+                pieces[f"{name}:{head}"] = _array(values)
         elif path.suffix == ".json":
             content = json.dumps(_strip(json.loads(path.read_text())), sort_keys=True)
             pieces[name] = {"sha256": _digest(content.encode())}

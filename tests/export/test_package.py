@@ -25,17 +25,21 @@ the package carries its diagonal) and direct transmissibilities
   outer faces of active cells only; Parquet equal to CSV.
 * NetCDF: CF-1.8 attributes, (layer, row, column) dimensions, coordinate
   variables, the CRS as WKT, values equal to cells.csv.
-* VTK: extents, increasing coordinates, and the ``id`` array leading back to
-  cells.csv's values and centres with rows and layers reversed.
+* VTK, opened by VTK's own reader (``vtkXMLRectilinearGridReader``): extents,
+  increasing coordinates, and the ``id`` array leading back to cells.csv's
+  values and centres with rows and layers reversed; every array equal to
+  the run's GeoTIFF of that property (times the unit factor) and the
+  coordinates at the raster's corners; the values raw float64 in the
+  appended section, nothing else.
 * Slabs: the tables, NetCDF and VTK written a slab at a time (one cell, part
-  of a layer, several layers) hold what one slab of the whole grid holds.
+  of a layer, several layers) are the same bytes as in one slab of the whole grid.
 """
 
 from __future__ import annotations
 
 import csv
 import json
-import xml.etree.ElementTree as ET
+import re
 from pathlib import Path
 from types import SimpleNamespace
 
@@ -45,7 +49,7 @@ import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 import pytest
 import rasterio
-from conftest import lognormal, write_raster
+from conftest import lognormal, read_raster, read_vtr, write_raster
 from rasterio.crs import CRS
 from scipy import sparse
 from scipy.sparse.csgraph import connected_components
@@ -586,14 +590,13 @@ def test_netcdf_grid_mapping_variable_names_its_mapping(package):
 # 6. VTK
 
 
-def _vtk(folder: Path) -> tuple[ET.Element, dict[str, np.ndarray], dict[str, np.ndarray]]:
-    root = ET.parse(folder / "coarse.vtr").getroot()
-    grid = root.find("RectilinearGrid")
+def _vtk(folder: Path) -> tuple[tuple[int, ...], dict[str, np.ndarray], dict[str, np.ndarray]]:
+    return read_vtr(folder / "coarse.vtr")  # VTK's own reader
 
-    def arrays(path: str) -> dict[str, np.ndarray]:
-        return {a.get("Name"): np.array([float(v) for v in a.text.split()]) for a in grid.findall(path)}
 
-    return grid, arrays("Piece/CellData/DataArray"), arrays("Piece/Coordinates/DataArray")
+def _in_array_order(values: np.ndarray, shape: tuple[int, int, int]) -> np.ndarray:
+    """A VTK cell array (x fastest, y northward, z upward) as an (L, M, N) array: rows, layers reversed."""
+    return values.reshape(shape)[::-1, ::-1, :]
 
 
 @pytest.mark.parametrize(("dim", "units"), [("2d", "si"), ("3d", "si"), ("3d", "field")])
@@ -601,9 +604,8 @@ def test_vtk_ids_lead_back_to_the_cells(package, dim, units):
     # Kitware, "VTK File Formats", XML RectilinearGrid: increasing coordinates, x fastest
     folder = package(dim, "geometric", units)
     L, M, N = _shape(_manifest(folder))
-    grid, data, coords = _vtk(folder)
-    assert grid.get("WholeExtent") == f"0 {N} 0 {M} 0 {L}"
-    assert grid.find("Piece").get("Extent") == f"0 {N} 0 {M} 0 {L}"
+    extent, data, coords = _vtk(folder)
+    assert extent == (0, N, 0, M, 0, L)
     for name, count in (("x", N), ("y", M), ("z", L)):
         assert coords[name].size == count + 1
         assert np.all(np.diff(coords[name]) > 0), name
@@ -629,6 +631,43 @@ def test_vtk_ids_lead_back_to_the_cells(package, dim, units):
     assert top == 0.0
 
 
+@pytest.mark.parametrize(("dim", "method", "units"), [("2d", "flow", "si"), ("3d", "geometric", "field"),
+                                                      ("3d", "flow-transmissibility", "si")])  # fmt: skip
+def test_vtk_arrays_are_the_geotiffs_values_and_georeference(package, dim, method, units):
+    # every property the run wrote as a GeoTIFF, read back by VTK: the same float64 values times the
+    # package's unit factor (NaN where the GeoTIFF has no data), and the raster's corners
+    folder = package(dim, method, units)
+    manifest = _manifest(folder)
+    shape = _shape(manifest)
+    _, data, coords = _vtk(folder)
+    rasters = {p.stem: p for p in folder.glob("*.tif") if not p.stem.startswith("transmissibility_")}
+    assert set(rasters) == data.keys() - {"id", "bulk_volume", "pore_volume"}
+    factors = manifest["units"]["factors"]
+    for name, path in rasters.items():
+        factor = 1.0 if name == "porosity" else factors["k"]
+        np.testing.assert_array_equal(_in_array_order(data[name], shape), read_raster(path) * factor, name)
+    with rasterio.open(rasters["kx"]) as src:
+        west, south, east, north = src.bounds
+    assert (coords["x"][0], coords["x"][-1], coords["y"][0], coords["y"][-1]) == (west, east, south, north)
+
+
+def test_vtk_values_are_raw_binary_in_the_appended_section(package):
+    # Kitware, "VTK File Formats", XML: format="appended" arrays at their offset after the "_" of
+    # <AppendedData encoding="raw">, each a header_type size in bytes followed by the values
+    folder = package("3d", "geometric", "si")
+    L, M, N = _shape(_manifest(folder))
+    head, marker, tail = (folder / "coarse.vtr").read_bytes().partition(b'<AppendedData encoding="raw">')
+    assert marker and b'header_type="UInt64"' in head
+    arrays = re.findall(rb"<DataArray [^>]*>", head)
+    assert arrays and all(b'format="appended"' in a and b'type="Float64"' in a for a in arrays)
+    _, data, coords = _vtk(folder)
+    sizes = [L * M * N] * len(data) + [N + 1, M + 1, L + 1]
+    offsets = [int(re.search(rb'offset="(\d+)"', a).group(1)) for a in arrays]
+    assert offsets == np.cumsum([0] + [8 + 8 * n for n in sizes[:-1]]).tolist()
+    raw = tail.split(b"_", 1)[1].rsplit(b"</AppendedData>", 1)[0].rstrip(b"\n")
+    assert len(raw) == sum(8 + 8 * n for n in sizes)  # nothing but sizes and values: no text
+
+
 # ---------------------------------------------------------------------------------------------
 # 7. Written slab by slab
 
@@ -643,10 +682,7 @@ def test_tables_netcdf_and_vtk_do_not_depend_on_the_slab_size(inputs, tmp_path, 
     monkeypatch.setattr("upscale.export.slabs.SLAB_CELLS", cells)
     upscale.write_result(result, cut, units="si")
     for name in ("cells.csv", "connections.csv", "boundary.csv", "coarse.vtr"):
-        a, b = (whole / name).read_text(), (cut / name).read_text()
-        assert a.split() == b.split(), name  # the same tokens; vtk separates slabs by a space
-        if name.endswith(".csv"):
-            assert a == b, name
+        assert (whole / name).read_bytes() == (cut / name).read_bytes(), name
     for table in TABLES:
         assert pq.read_table(whole / f"{table}.parquet").equals(pq.read_table(cut / f"{table}.parquet"))
     with netCDF4.Dataset(whole / "coarse.nc") as a, netCDF4.Dataset(cut / "coarse.nc") as b:

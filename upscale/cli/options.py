@@ -9,17 +9,13 @@ from collections.abc import Callable
 from typing import Any
 
 import click
+import dask.utils
 
 from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
 from ..units import UNITS
-
-_BYTES = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*(b|kb|mb|gb|kib|mib|gib)?\s*$", re.IGNORECASE)
-_FACTORS = {
-    None: 1, "b": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "kib": 2**10, "mib": 2**20, "gib": 2**30,
-}  # fmt: skip
 
 
 def parse_numbers(text: str | None, name: str) -> list[float] | None:
@@ -70,15 +66,29 @@ def parse_chunk(text: str | None, block: tuple[int, int, int]) -> int | None:
 
 
 def parse_bytes(text: str | None) -> int | None:
-    """``"64MB"``, ``"1GiB"``, ``"500000"`` -> bytes."""
+    """A size -> bytes, as dask reads it (`dask.utils.parse_bytes`); a number is required.
+
+    Units, in any case, spaces allowed: B; kB, MB, GB, TB, PB (powers of
+    1000) and KiB, MiB, GiB, TiB, PiB (powers of 1024); dask also takes the
+    short forms K, M, G, T, P — powers of 1000 like kB, not 1024 — and Ki,
+    Mi, Gi, Ti, Pi, and numbers such as ``1e6``. A size that comes to zero
+    bytes or less is refused.
+
+    Examples
+    --------
+    >>> parse_bytes("64MB"), parse_bytes("64M"), parse_bytes("64MiB"), parse_bytes("64Mi")
+    (64000000, 64000000, 67108864, 67108864)
+    """
     if text is None:
         return None
-    match = _BYTES.match(text)
-    if not match or float(match.group(1)) <= 0:
+    try:
+        size = dask.utils.parse_bytes(text) if any(c.isdigit() for c in text) else 0
+    except (ValueError, OverflowError):  # an unknown unit or number; inf
+        size = 0
+    if size <= 0:
         raise click.BadParameter(f"{text!r} is not a size such as 64MB or 1GiB, or a number of blocks "
                                  "such as 400blocks", param_hint="--chunk")  # fmt: skip
-    unit = match.group(2).lower() if match.group(2) else None
-    return int(float(match.group(1)) * _FACTORS[unit])
+    return size
 
 
 #: Python names and settings whose option is not ``--`` and the name with dashes.

@@ -42,7 +42,7 @@ def default_chunk_bytes() -> int:
     True
     """
     available = available_memory()
-    if available is None:  # pragma: no cover - psutil comes with distributed
+    if available is None:  # pragma: no cover - distributed (and psutil with it) is a dependency
         return DEFAULT_CHUNK_BYTES
     return int(min(MAX_CHUNK_BYTES, max(16 * 2**20, available // 64)))
 
@@ -50,23 +50,43 @@ def default_chunk_bytes() -> int:
 def available_memory() -> int | None:
     """Bytes this process can still allocate, or None if unknown.
 
-    The system's available memory, within any address-space limit set on the
-    process (``ulimit -v``).
+    The least of three rooms:
+
+    * the machine's available memory (psutil's ``virtual_memory().available``:
+      free memory plus what the kernel can reclaim);
+    * the memory limit dask finds (`distributed.system.memory_limit`) less
+      this process's resident memory. Dask takes the least of the machine's
+      total memory, the cgroup limits it reads at the top of
+      ``/sys/fs/cgroup`` — v1 ``memory/memory.limit_in_bytes`` and
+      ``memory.soft_limit_in_bytes``, v2 ``memory.max``, ``memory.high`` and
+      ``memory.low`` — and the hard ``RLIMIT_RSS``. The top of
+      ``/sys/fs/cgroup`` is a container's own cgroup (Docker, Podman,
+      Kubernetes): its limit counts. A cgroup deeper in the host's tree,
+      seen without a cgroup namespace (a batch scheduler's job cgroup on
+      the host), is not read. What other processes of the same container
+      hold is not counted: this process is taken as the one that fills it;
+    * an address-space limit (``RLIMIT_AS``, ``ulimit -v``), which dask does
+      not read, less this process's virtual size.
+
+    A free amount, not a total, because both callers need what is left now:
+    the default chunk size (`default_chunk_bytes`) and the refusal of a flow
+    check whose largest solve would not fit.
     """
     try:
         import psutil
-
-        available = psutil.virtual_memory().available
-    except (ImportError, OSError):  # pragma: no cover - psutil comes with distributed
+        from distributed.system import memory_limit
+    except ImportError:  # pragma: no cover - distributed (and psutil with it) is a dependency
         return None
+    held = psutil.Process().memory_info()
+    rooms = [psutil.virtual_memory().available, memory_limit() - held.rss]
     try:
         import resource
     except ImportError:  # pragma: no cover - Windows has no address-space limits
-        return int(available)
+        return max(0, int(min(rooms)))
     soft, _ = resource.getrlimit(resource.RLIMIT_AS)
     if soft != resource.RLIM_INFINITY:
-        available = min(available, soft - psutil.Process().memory_info().vms)
-    return max(0, int(available))
+        rooms.append(soft - held.vms)
+    return max(0, int(min(rooms)))
 
 
 _reading = threading.local()
