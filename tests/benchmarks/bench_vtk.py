@@ -41,7 +41,6 @@ DEMO = Path(__file__).resolve().parents[2] / "demo-fields"
 def _lognormal_map(path: Path, side: int) -> Path:
     import rasterio
     from affine import Affine
-
     from upscale.demo.fields import lognormal_field
 
     k = lognormal_field((side, side), (8, 8), geometric_mean=100.0, sigma_ln=1.0, seed=2_718_281_828)
