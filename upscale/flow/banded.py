@@ -15,14 +15,13 @@ from __future__ import annotations
 import numba as nb
 import numpy as np
 
-# Several threads (dask's, or an ensemble's) may launch the compiled parallel loops at
-# once; numba's default "workqueue" threading layer does not allow that (numba
-# documentation, "The Threading Layers"), the OpenMP or TBB layers do.
-nb.config.THREADING_LAYER = "threadsafe"
-
 #: Compiler options of the local solver. No fast-math: a result must not depend
-#: on memory alignment, so chunked and whole-array runs agree to the bit.
-EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy")
+#: on memory alignment, so chunked and whole-array runs agree to the bit. No C
+#: function wrapper (nothing takes the kernels' addresses): less to compile.
+EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy", no_cfunc_wrapper=True)
+#: The same for kernels called only from other kernels: no entry point for Python either
+#: (together about 1 s less compiling on the first flow run; tests/benchmarks/bench_compile.py).
+INNER_JIT = dict(EXACT_JIT, no_cpython_wrapper=True)
 
 
 @nb.njit(**EXACT_JIT)

@@ -45,10 +45,13 @@ so flux densities come out in the unit of k.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+
 import numba as nb
 import numpy as np
 
-from .banded import EXACT_JIT, factor, solve
+from .banded import EXACT_JIT, INNER_JIT, factor, solve
 from .paths import live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
@@ -61,13 +64,13 @@ _SEALED = np.int64(SEALED)
 _SIDES = (np.int64(0), np.int64(1))
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(inline="always", **INNER_JIT)
 def _series(ti, tj):
     s = ti + tj
     return ti * tj / s if s > 0.0 else 0.0
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _root(parent, i):
     while parent[i] != i:
         parent[i] = parent[parent[i]]
@@ -75,12 +78,12 @@ def _root(parent, i):
     return i
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(inline="always", **INNER_JIT)
 def _fixed(bc, fixed_axis, b):
     return bc == LINEAR or (bc == SEALED and b == fixed_axis)
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(inline="always", **INNER_JIT)
 def _combine(pi, ti, fi, pj, tj, fj):
     """Flux-continuous pressure of a face; (value, defined)."""
     wi = ti if (ti > 0.0 and not fi) else 0.0
@@ -90,7 +93,7 @@ def _combine(pi, ti, fi, pj, tj, fj):
     return 0.0, False
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     """Matrix of one box into `ab`; pins the level of groups without fixed pressure.
 
@@ -159,7 +162,7 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     return pinned
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _geometry(h, shape):
     """Cell-centre coordinates (3, max) and box lengths (3,) in m."""
     centre = np.zeros_like(h)
@@ -173,7 +176,7 @@ def _geometry(h, shape):
     return centre, length
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(inline="always", **INNER_JIT)
 def _boundary_pressure(pos_a, b, side, a, centre, length):
     """Pressure -x_a on the outer face `side` (0 first, 1 last) normal to b."""
     if b == a:
@@ -181,7 +184,7 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
     return -centre[a, pos_a]
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
     """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
     n = t.shape[1]
@@ -223,7 +226,7 @@ REFINEMENTS = 10
 BALANCED = 1e-13
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, through):
     """Net inflow of every cell (matrix order) into `r`, summed from face fluxes ``T (p_i - p_j)``.
 
@@ -266,7 +269,7 @@ def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, throug
     return worst
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
     """Iterative refinement of `p` in place, against the residual written in face fluxes.
 
@@ -303,7 +306,7 @@ def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
         last_change = change
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer):
     """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
 
@@ -348,13 +351,13 @@ def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer
 NET_ROUNDING = 1e-10
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(inline="always", **INNER_JIT)
 def _net(total, magnitude):
     """`total`, or 0 when it lies within the rounding of the sum of magnitudes that made it."""
     return 0.0 if abs(total) <= NET_ROUNDING * magnitude else total
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                     U, G):  # fmt: skip
     """``<u_b>`` into ``U[a, b]`` and ``<∂p/∂x_b>`` into ``G[a, b]`` over the sub-box [lo, hi)."""
@@ -396,7 +399,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
             G[a, b] = (p_hi / a_hi - p_lo / a_lo) / h[b, lo[b] : hi[b]].sum()
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _live(t, shape, bc, axes, a):
     """Faces of the box that can carry flow under the gradient along `a` (`upscale.flow.paths`)."""
     fixed = np.zeros(3, np.bool_)
@@ -405,7 +408,7 @@ def _live(t, shape, bc, axes, a):
     return live_faces(t, shape, fixed, bc == PERIODIC, axes, a)
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(**INNER_JIT)
 def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
     n = t.shape[1]
     ab = np.empty((n, width + 1))
@@ -424,8 +427,31 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
                         U, G)  # fmt: skip
 
 
-@nb.njit(parallel=True, **EXACT_JIT)
-def block_tensors(t, h, shape, lo, hi, order, width, bc, axes):
+@nb.njit(**EXACT_JIT)
+def _tensors(t, h, shape, lo, hi, order, width, bc, axes, U, G):
+    for q in range(t.shape[0]):
+        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+
+
+def _in_threads(count: int, run: Callable[[slice], None]) -> None:
+    """Call ``run`` on consecutive parts of ``range(count)``, one per thread (numba's thread count).
+
+    The compiled loops release the GIL, so the parts run in parallel; each
+    box is solved alone, so how the boxes are split changes no result.
+    """
+    parts = min(nb.get_num_threads(), count)
+    bounds = [count * i // parts for i in range(parts + 1)] if parts > 1 else [0, count]
+    pieces = [slice(b0, b1) for b0, b1 in zip(bounds[:-1], bounds[1:])]
+    if len(pieces) == 1:
+        run(pieces[0])
+        return
+    with ThreadPoolExecutor(len(pieces)) as pool:
+        for done in [pool.submit(run, piece) for piece in pieces]:
+            done.result()
+
+
+def block_tensors(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                  order: np.ndarray, width: int, bc: int, axes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Average flux densities and pressure gradients of many boxes of one shape.
 
     Parameters
@@ -458,50 +484,52 @@ def block_tensors(t, h, shape, lo, hi, order, width, bc, axes):
     P = t.shape[0]
     U = np.full((P, 3, 3), np.nan)
     G = np.full((P, 3, 3), np.nan)
-    for q in nb.prange(P):
-        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+    _in_threads(P, lambda s: _tensors(t[s], h[s], shape, lo[s], hi[s], order, width, bc, axes, U[s], G[s]))
     return U, G
 
 
 @nb.njit(**EXACT_JIT)
-def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
-    n = t.shape[1]
+def _pairs(t, h, shape, lo, mid, hi, a, order, width, axes, out):
+    """`pair_fluxes` of the boxes `t` into `out`, one box after the other."""
+    n = t.shape[2]
     ab = np.empty((n, width + 1))
     floating = np.empty(n, np.bool_)
-    centre, length = _geometry(h, shape)
     bc, (near, far) = _SEALED, _SIDES
-    pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
-    factor(ab)
-    p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
-    inner, outer = _live(t, shape, bc, axes, a)
-    flux = magnitude = 0.0
-    sums = np.zeros(4)
-    for iz in range(lo[0], hi[0]):
-        for iy in range(lo[1], hi[1]):
-            for ix in range(lo[2], hi[2]):
-                c = (iz * shape[1] + iy) * shape[2] + ix
-                pos = (iz, iy, ix)[a]
-                q = 0.0
-                if pos == mid:
-                    q = _face(t, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
-                elif mid == shape[a] and pos == mid - 1:  # the box's last face: the domain's
-                    q = _face(t, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
-                flux += q
-                magnitude += abs(q)
-                conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
-                if conducting and not floating[c]:
-                    v = h[0, iz] * h[1, iy] * h[2, ix]
-                    side = 0 if pos < mid else 2
-                    sums[side] += v * p[c]
-                    sums[side + 1] += v
-    out[0] = _net(flux, magnitude)
-    # without a first (second) block the face is the domain's own, at its fixed pressure
-    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if mid == 0 else np.nan)
-    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if mid == shape[a] else np.nan)
+    for q in range(t.shape[0]):
+        tq, hq, m = t[q], h[q], mid[q]
+        centre, length = _geometry(hq, shape)
+        pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
+        factor(ab)
+        p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
+        inner, outer = _live(tq, shape, bc, axes, a)
+        flux = magnitude = 0.0
+        sums = np.zeros(4)
+        for iz in range(lo[q, 0], hi[q, 0]):
+            for iy in range(lo[q, 1], hi[q, 1]):
+                for ix in range(lo[q, 2], hi[q, 2]):
+                    c = (iz * shape[1] + iy) * shape[2] + ix
+                    pos = (iz, iy, ix)[a]
+                    f = 0.0
+                    if pos == m:
+                        f = _face(tq, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
+                    elif m == shape[a] and pos == m - 1:  # the box's last face: the domain's
+                        f = _face(tq, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
+                    flux += f
+                    magnitude += abs(f)
+                    conducting = tq[0, c] + tq[1, c] + tq[2, c] > 0.0
+                    if conducting and not floating[c]:
+                        v = hq[0, iz] * hq[1, iy] * hq[2, ix]
+                        side = 0 if pos < m else 2
+                        sums[side] += v * p[c]
+                        sums[side + 1] += v
+        out[q, 0] = _net(flux, magnitude)
+        # without a first (second) block the face is the domain's own, at its fixed pressure
+        out[q, 1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if m == 0 else np.nan)
+        out[q, 2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if m == shape[a] else np.nan)
 
 
-@nb.njit(parallel=True, **EXACT_JIT)
-def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
+def pair_fluxes(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray, mid: np.ndarray,
+                hi: np.ndarray, a: int, order: np.ndarray, width: int, axes: np.ndarray) -> np.ndarray:
     """Flux through the shared face of two blocks, and their mean pressures.
 
     Each box holds two neighbouring blocks along axis `a` (``[lo, mid)`` and
@@ -530,10 +558,9 @@ def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
         the volume-averaged pressure (m) of the first and of the second block
         over its active cells (NaN when none has a defined pressure).
     """
-    P = t.shape[0]
-    out = np.empty((P, 3))
-    for q in nb.prange(P):
-        _one_pair(t[q], h[q], shape, lo[q], mid[q], hi[q], a, order, width, axes, out[q])
+    out = np.empty((t.shape[0], 3))
+    _in_threads(len(out), lambda s: _pairs(t[s], h[s], shape, lo[s], mid[s], hi[s], a, order, width, axes,
+                                           out[s]))  # fmt: skip
     return out
 
 
