@@ -9,15 +9,19 @@ numba cache of its own (``NUMBA_CACHE_DIR``, set before numba is imported),
 and listens to numba's compile events (``numba:compile``, one per dispatcher
 and signature, nested when a kernel types a kernel it calls) and to its
 compiler passes (``numba:run_pass``). Times are CPU seconds of this process
-(``time.process_time``: a shared machine's other loads do not count),
+(``time.process_time``: a shared machine's other loads count less than in wall time),
 *exclusive*: a kernel's time leaves out the kernels compiled inside it, a
 pass's time the passes nested in it. Reported: the whole process, the
-compiling, every kernel compiled (with its signature count) and the passes.
+compiling, the run's own record of it (``timings_s.compile_s`` of
+``summary.json``, wall seconds), every kernel compiled (with its signature
+count) and the passes.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
+import math
 import os
 import sys
 import tempfile
@@ -82,8 +86,10 @@ def main() -> None:
     except SystemExit:
         pass
     total = time.process_time() - start
+    summary = FOLDER / "out" / "summary.json"
+    recorded = json.loads(summary.read_text())["timings_s"]["compile_s"] if summary.exists() else math.nan
     print(f"{name}: process {total:.1f} CPU s (imports included), compiling {kernels.outer:.1f} CPU s, "
-          f"{sum(kernels.calls.values())} compilations")
+          f"{sum(kernels.calls.values())} compilations; compile_s recorded by the run {recorded:.1f} s (wall)")
     print("\n| kernel | compilations | exclusive CPU s |\n|---|---|---|")
     for kernel, seconds in sorted(kernels.seconds.items(), key=lambda kv: -kv[1])[: args.top]:
         print(f"| {kernel} | {kernels.calls[kernel]} | {seconds:.2f} |")

@@ -17,11 +17,15 @@ import numpy as np
 
 #: Compiler options of the local solver. No fast-math: a result must not depend
 #: on memory alignment, so chunked and whole-array runs agree to the bit. No C
-#: function wrapper (nothing takes the kernels' addresses): less to compile.
+#: function wrapper (nothing takes the kernels' addresses): less to compile. One
+#: set for every kernel of the solver, inner ones included: numba compiles its own
+#: helpers (``np.empty``, ``min``, ...) once per caller option set, so kernels
+#: without a Python entry point (``no_cpython_wrapper``) made it compile each of
+#: them twice (tests/benchmarks/bench_compile.py).
+#: Kernels that only pass work on (``_one_box``, ``_live``, ...) are inlined by numba
+#: (``inline="always"``): it links a called kernel's whole call tree into each caller's
+#: code and optimises it there again, so every level of calls repeats the work below it.
 EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy", no_cfunc_wrapper=True)
-#: The same for kernels called only from other kernels: no entry point for Python either
-#: (together about 1 s less compiling on the first flow run; tests/benchmarks/bench_compile.py).
-INNER_JIT = dict(EXACT_JIT, no_cpython_wrapper=True)
 
 
 @nb.njit(**EXACT_JIT)

@@ -51,7 +51,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numba as nb
 import numpy as np
 
-from .banded import EXACT_JIT, INNER_JIT, factor, solve
+from .banded import EXACT_JIT, factor, solve
 from .paths import live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
@@ -64,13 +64,13 @@ _SEALED = np.int64(SEALED)
 _SIDES = (np.int64(0), np.int64(1))
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _series(ti, tj):
     s = ti + tj
     return ti * tj / s if s > 0.0 else 0.0
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _root(parent, i):
     while parent[i] != i:
         parent[i] = parent[parent[i]]
@@ -78,12 +78,12 @@ def _root(parent, i):
     return i
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _fixed(bc, fixed_axis, b):
     return bc == LINEAR or (bc == SEALED and b == fixed_axis)
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _combine(pi, ti, fi, pj, tj, fj):
     """Flux-continuous pressure of a face; (value, defined)."""
     wi = ti if (ti > 0.0 and not fi) else 0.0
@@ -93,7 +93,7 @@ def _combine(pi, ti, fi, pj, tj, fj):
     return 0.0, False
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     """Matrix of one box into `ab`; pins the level of groups without fixed pressure.
 
@@ -162,7 +162,7 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     return pinned
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _geometry(h, shape):
     """Cell-centre coordinates (3, max) and box lengths (3,) in m."""
     centre = np.zeros_like(h)
@@ -176,7 +176,7 @@ def _geometry(h, shape):
     return centre, length
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _boundary_pressure(pos_a, b, side, a, centre, length):
     """Pressure -x_a on the outer face `side` (0 first, 1 last) normal to b."""
     if b == a:
@@ -184,7 +184,7 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
     return -centre[a, pos_a]
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
     """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
     n = t.shape[1]
@@ -226,7 +226,7 @@ REFINEMENTS = 10
 BALANCED = 1e-13
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, through):
     """Net inflow of every cell (matrix order) into `r`, summed from face fluxes ``T (p_i - p_j)``.
 
@@ -269,7 +269,7 @@ def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, throug
     return worst
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
     """Iterative refinement of `p` in place, against the residual written in face fluxes.
 
@@ -306,7 +306,7 @@ def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
         last_change = change
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer):
     """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
 
@@ -351,13 +351,13 @@ def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer
 NET_ROUNDING = 1e-10
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _net(total, magnitude):
     """`total`, or 0 when it lies within the rounding of the sum of magnitudes that made it."""
     return 0.0 if abs(total) <= NET_ROUNDING * magnitude else total
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                     U, G):  # fmt: skip
     """``<u_b>`` into ``U[a, b]`` and ``<∂p/∂x_b>`` into ``G[a, b]`` over the sub-box [lo, hi)."""
@@ -399,7 +399,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
             G[a, b] = (p_hi / a_hi - p_lo / a_lo) / h[b, lo[b] : hi[b]].sum()
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _live(t, shape, bc, axes, a):
     """Faces of the box that can carry flow under the gradient along `a` (`upscale.flow.paths`)."""
     fixed = np.zeros(3, np.bool_)
@@ -408,7 +408,7 @@ def _live(t, shape, bc, axes, a):
     return live_faces(t, shape, fixed, bc == PERIODIC, axes, a)
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
     n = t.shape[1]
     ab = np.empty((n, width + 1))
@@ -438,6 +438,12 @@ def _in_threads(count: int, run: Callable[[slice], None]) -> None:
 
     The compiled loops release the GIL, so the parts run in parallel; each
     box is solved alone, so how the boxes are split changes no result.
+    Plain threads rather than numba's ``parallel=True``: its parallel loops,
+    launched from several threads at once (dask's, an ensemble's), need the
+    OpenMP or TBB threading layer, and only the process-wide
+    ``numba.config.THREADING_LAYER`` selects one (numba documentation, "The
+    Threading Layers"), which this package set for every importer; and they
+    cost about 4 s of compiling each on first use (docs/performance.md).
     """
     parts = min(nb.get_num_threads(), count)
     bounds = [count * i // parts for i in range(parts + 1)] if parts > 1 else [0, count]

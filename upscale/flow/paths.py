@@ -28,10 +28,10 @@ from __future__ import annotations
 import numba as nb
 import numpy as np
 
-from .banded import EXACT_JIT, INNER_JIT
+from .banded import EXACT_JIT
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def next_cell(c, b, shape, periodic):
     """Position of cell `c` along `b`, and its next cell along b (-1 if none).
 
@@ -45,7 +45,7 @@ def next_cell(c, b, shape, periodic):
     return pos, c - pos * s if periodic else -1
 
 
-@nb.njit(inline="always", **INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _face_level(pos_a, b, side, a, extent_a):
     """An integer ordering like the fixed pressure -x_a of an outer face normal to b."""
     if b == a:
@@ -53,7 +53,7 @@ def _face_level(pos_a, b, side, a, extent_a):
     return -(2 * pos_a + 1)  # the face's centre lies at the cell centre along a
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _edges(t, shape, fixed, periodic, axes, a):
     """The box's graph: edge ends, sources and the edge of every cell face.
 
@@ -99,7 +99,7 @@ def _edges(t, shape, fixed, periodic, axes, a):
     return u, v, source, count, inner, outer, looped
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(**EXACT_JIT)
 def _charged_edges(u, v, source, count, nodes):
     """Flag the edges of biconnected components holding a cycle with a net source."""
     degree = np.zeros(nodes + 1, np.int64)
@@ -174,7 +174,7 @@ def _charged_edges(u, v, source, count, nodes):
     return live
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _whole(t, shape, axes):
     """Whether every cell conducts along every flow axis, at least two cells long.
 
@@ -192,7 +192,7 @@ def _whole(t, shape, axes):
     return True
 
 
-@nb.njit(**INNER_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _every_face(shape, fixed, periodic, axes):
     """`live_faces` of a box whose every face carries flow: the faces it has."""
     n = shape[0] * shape[1] * shape[2]
