@@ -89,7 +89,8 @@ def main() -> None:
     summary = FOLDER / "out" / "summary.json"
     recorded = json.loads(summary.read_text())["timings_s"]["compile_s"] if summary.exists() else math.nan
     print(f"{name}: process {total:.1f} CPU s (imports included), compiling {kernels.outer:.1f} CPU s, "
-          f"{sum(kernels.calls.values())} compilations; compile_s recorded by the run {recorded:.1f} s (wall)")
+          f"{sum(kernels.calls.values())} compilations; compile_s recorded by the run {recorded:.1f} s "
+          "(wall)")  # fmt: skip
     print("\n| kernel | compilations | exclusive CPU s |\n|---|---|---|")
     for kernel, seconds in sorted(kernels.seconds.items(), key=lambda kv: -kv[1])[: args.top]:
         print(f"| {kernel} | {kernels.calls[kernel]} | {seconds:.2f} |")
