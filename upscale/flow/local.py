@@ -429,6 +429,7 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
 
 @nb.njit(**EXACT_JIT)
 def _tensors(t, h, shape, lo, hi, order, width, bc, axes, U, G):
+    """`block_tensors` of the boxes `t` into `U` and `G`, one box after the other."""
     for q in range(t.shape[0]):
         _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
 
