@@ -15,11 +15,13 @@ from pathlib import Path
 from typing import Any, BinaryIO
 
 import numpy as np
-import pyarrow as pa
-import pyarrow.csv as pacsv
 
 from ..field import Grid
+from ..optional import lazy
 from .slabs import Region, Values, slabs
+
+pa = lazy("pyarrow", "formats")
+pacsv = lazy("pyarrow.csv", "formats")
 
 
 def _edges(sizes: np.ndarray, start: float, sign: float) -> np.ndarray:

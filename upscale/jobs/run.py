@@ -27,7 +27,7 @@ from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
 from ..methods.coarsen import Upscaled, coarsen
-from ..report.bundle import bundle, ensemble_bundle
+from ..optional import require_extra
 from ..steps import Say, Steps, silent
 
 
@@ -76,6 +76,19 @@ class Settings:
     layer: int | None = None
     command: list[str] = field(default_factory=list)
 
+    def require_libraries(self) -> None:
+        """Import, before any work, the optional libraries the outputs need (`upscale.optional`).
+
+        Raises
+        ------
+        MissingLibraryError
+            Without the ``formats`` extra (every run writes the package), or the
+            ``figures`` extra when figures or a report are asked for.
+        """
+        require_extra("formats")
+        if self.plot or self.report:
+            require_extra("figures")
+
 
 def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,
                  say: Say = silent, prefix: str = "") -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
@@ -107,6 +120,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     InputError
         For bad input, including ``--plot``/``--report`` without a check.
     """
+    settings.require_libraries()
     steps = Steps(say, prefix)
     with steps("read_s", f"reading {path}"):
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
@@ -137,6 +151,8 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                 check = {axis: c.summary() for axis, c in checks.items()}
     made = None
     if checks and drawing:
+        from ..report.bundle import bundle  # matplotlib: the figures extra
+
         layer = settings.layer
         with steps(None, "drawing the figures"):
             made = bundle(single(result, checks, steps.timings["upscale_s"]),
@@ -182,6 +198,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     InputError
         If two realizations share a name or the grids differ (checked before any work).
     """
+    settings.require_libraries()
     names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
     done = []
@@ -201,6 +218,8 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                          "working_folder": working_folder(settings.command)})  # fmt: skip
         made = None
         if settings.plot or settings.report:
+            from ..report.bundle import ensemble_bundle  # matplotlib: the figures extra
+
             with Steps(say)(None, "drawing the spread over the realizations"):
                 made = ensemble_bundle(ensemble, unit=summaries[0]["unit"], command=settings.command,
                                        title=f"upscale — {settings.method} on {len(names)} realizations")
