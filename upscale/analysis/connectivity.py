@@ -9,7 +9,7 @@ Definitions (``docs/methods.md``, "Connected high-k bodies"):
   marks the same cells as kx.
 * **Bodies**: high-k cells joined through shared faces (4 neighbours in 2D,
   6 in 3D), the faces through which the two-point scheme passes flow; a
-  corner passes none. Labelled by `scipy.ndimage.label`.
+  corner passes none. Labelled by `skimage.measure.label` (``connectivity=1``).
 * A body **spans** an axis when it holds cells of the first and of the last
   slice of the field across that axis (the inlet and outlet faces of the
   flow check). Its **cross-section** is its cells divided by the field's
@@ -35,7 +35,7 @@ import numpy as np
 from ..field import AXES, PERMEABILITY, Field
 from ..grid import BlockSpec
 
-#: Fine cells labelled at most (the flow check's default limit: a field it solves whole).
+#: Fine cells labelled at most by default (the flow check's default limit: a field it solves whole).
 MAX_CELLS = 20_000_000
 #: What the high-k cells are, as the outputs say it.
 HIGH_K = "cells with k above its geometric mean, joined through faces"
@@ -102,13 +102,13 @@ def span(k: np.ndarray, axis: str) -> Span:
     >>> along.spans, along.spanning_fraction, along.cross_section, across.spans
     (True, 1.0, 1.0, False)
     """
-    from scipy import ndimage
+    from skimage.measure import label
 
     k = np.asarray(k, dtype=np.float64)
     positive = np.isfinite(k) & (k > 0)
     cut = float(np.exp(np.log(k[positive]).mean())) if positive.any() else math.nan
     high = positive & (k > cut)
-    labels, _ = ndimage.label(high, structure=ndimage.generate_binary_structure(3, 1))
+    labels = label(high, connectivity=1)
     a = AXES[axis]
     ends = np.intersect1d(np.unique(labels.take(0, axis=a)), np.unique(labels.take(-1, axis=a)))
     spanning = ends[ends > 0]
@@ -119,13 +119,19 @@ def span(k: np.ndarray, axis: str) -> Span:
                 cross_section=float(sizes.max()) / k.shape[a] if spanning.size else None)  # fmt: skip
 
 
-def connectivity(fine: Field) -> dict[str, Span] | None:
-    """The spans of `fine` along each of its axes; None past `MAX_CELLS` cells.
+def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | None:
+    """The spans of `fine` along each of its axes; None past `max_cells` cells.
 
-    Each property is read whole (one byte and four for the labels per cell
+    Each property is read whole (one byte and eight for the labels per cell
     besides it); ky or kz that repeat kx, or a multiple of it, mark the same cells.
+
+    Examples
+    --------
+    >>> fine = Field.from_arrays(np.array([[1.0, 1.0, 1.0], [9.0, 9.0, 9.0]]), cell_size=(1.0, 1.0))
+    >>> {axis: s.spans for axis, s in connectivity(fine).items()}
+    {'x': True, 'y': False}
     """
-    if math.prod(fine.shape) > MAX_CELLS:
+    if math.prod(fine.shape) > max_cells:
         return None
     return {axis: span(getattr(fine, PERMEABILITY[axis]), axis) for axis in fine.axes}
 
@@ -155,4 +161,4 @@ def struggle(spans: dict[str, Span] | None, block: BlockSpec) -> str | None:
         return None
     return ("local methods will struggle: a connected high-k body spans the field " + " and ".join(thin)
             + "; each block mixes it with the rock beside it, so the coarse model may lose its flow path "
-            "— look at the check errors, or try --border or flow-transmissibility")  # fmt: skip
+            "— look at the check errors, or try a border or the flow-transmissibility method")  # fmt: skip

@@ -7,12 +7,14 @@ The comparisons are in `upscale.jobs.compare`.
 
 from __future__ import annotations
 
+import logging
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..analysis.compare import single
+from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import ensemble_summary
 from ..analysis.summary import working_folder
 from ..check.axis import check_flow
@@ -29,6 +31,8 @@ from ..io.realizations import read_realizations
 from ..methods.coarsen import Upscaled, coarsen
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
+
+log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -128,6 +132,9 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     if settings.check:
         refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
+    warning = struggle(connectivity(fine, settings.check_limit), settings.block)
+    if warning:
+        log.warning("%s: %s", path, warning)
     cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
     with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
         result = coarsen(fine, settings.block, settings.method, **settings.options)
