@@ -35,7 +35,9 @@ import subprocess
 from pathlib import Path
 
 import pytest
-from conftest import UPSCALE_EXE, lognormal, write_raster
+from conftest import UPSCALE_EXE, write_raster
+
+from upscale.gallery.problems import uncorrelated_lognormal
 
 #: Files whose bytes hold the numbers of a run (not the command line that made them).
 NUMERIC = ("kx.tif", "ky.tif", "cells.csv", "connections.csv", "boundary.csv", "cells.parquet",
@@ -125,7 +127,7 @@ def test_the_folder_a_command_ran_in_is_recorded_and_shown(run_cli, tmp_path, mo
     folder = tmp_path / "field work's"  # a space and a quote: the cd line must be shell-quoted
     (folder / "in").mkdir(parents=True)
     for seed, name in ((7741, "map.tif"), (7742, "r1.tif"), (7743, "r2.tif")):  # r1, r2: an ensemble
-        write_raster(folder / "in" / name, lognormal((16, 16), seed=seed))
+        write_raster(folder / "in" / name, uncorrelated_lognormal((16, 16), seed=seed))
     monkeypatch.chdir(folder)
     runs = {
         "summary.json": ["run", "in/map.tif", "--block", "8x8", "--method", "geometric",

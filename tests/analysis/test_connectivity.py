@@ -9,10 +9,13 @@ What is tested
   the cells; the same lenses joined by a thread of sand along x span x only.
 * Labelling is by faces: two sand cells meeting at a corner do not connect.
 * In 3D a channel in every layer spans x and z (stacked, the layers join).
+* The warning: the gallery's staircase channels (seed 0: one channel joins
+  both faces through the overlaps of its shifted segments, 4.4 cells across
+  on average) are winding and thinner than 8 x 8 blocks; the straight
+  channel and the lenses are not warned of, nor blocks thinner than the body.
 * ``upscale info`` on real GeoTIFFs of those maps reports the spans, as text
-  and in ``--json``; ``upscale run`` warns on stderr when a spanning body is
-  thinner than the blocks, and not on the lenses nor with blocks thinner
-  than the channel.
+  and in ``--json``; ``upscale run`` writes the warning on stderr for the
+  staircase channels and nothing for the others.
 """
 
 from __future__ import annotations
@@ -24,7 +27,7 @@ import pytest
 
 from upscale.analysis.connectivity import connectivity, span, struggle
 from upscale.field import Field
-from upscale.gallery.problems import lenses, straight_channel
+from upscale.gallery.problems import lenses, staircase_channels, straight_channel
 from upscale.grid import BlockSpec
 
 SHAPE = (40, 64)
@@ -41,7 +44,7 @@ def _lenses():
 
 def test_a_straight_channel_spans_along_not_across():
     along, across = span(_channel()[None], "x"), span(_channel()[None], "y")
-    assert (along.spans, along.bodies, along.spanning_fraction) == (True, 1, 1.0)
+    assert (along.spans, along.bodies, along.spanning_fraction, along.straight) == (True, 1, 1.0, True)
     assert along.cross_section == 3.0  # the channel's width in cells
     assert along.high_fraction == pytest.approx(3 / SHAPE[0])
     assert (across.spans, across.spanning_fraction, across.cross_section) == (False, 0.0, None)
@@ -76,17 +79,27 @@ def test_a_channel_in_every_layer_spans_x_and_z():
     assert connectivity(fine, max_cells=k.size - 1) is None
 
 
-def test_the_warning_compares_the_body_with_the_blocks():
-    spans = connectivity(Field.from_arrays(_channel(), cell_size=(5.0, 5.0)))
-    assert struggle(spans, BlockSpec(8, 8)).startswith("local methods will struggle")
-    assert "along x (3 fine cells" in struggle(spans, BlockSpec(8, 8))
-    assert struggle(spans, BlockSpec(8, 2)) is None  # blocks two rows tall: thinner than the channel
-    assert struggle(connectivity(Field.from_arrays(_lenses(), cell_size=(5.0, 5.0))), BlockSpec(8, 8)) is None
+def _spans(k):
+    return connectivity(Field.from_arrays(k, cell_size=(5.0, 5.0)))
+
+
+def test_the_warning_is_for_a_winding_body_thinner_than_the_blocks():
+    stairs = _spans(staircase_channels(0))
+    assert not stairs["x"].straight and stairs["x"].cross_section == pytest.approx(4.375)
+    told = struggle(stairs, BlockSpec(8, 8))
+    assert told.startswith("local methods will struggle: a connected high-k body spans the field along x "
+                           "(4.38 fine cells in its cross-section on average, 8 in a block's)")  # fmt: skip
+    assert struggle(stairs, BlockSpec(8, 4)) is None  # blocks 4 rows tall: thinner than the body
+    assert not _spans(staircase_channels(2))["x"].spans  # a shift past the width breaks every channel
+    assert struggle(_spans(staircase_channels(2)), BlockSpec(8, 8)) is None
+    assert struggle(_spans(_channel()), BlockSpec(8, 8)) is None  # straight: averages along it are exact
+    assert struggle(_spans(_lenses()), BlockSpec(8, 8)) is None
 
 
 @pytest.fixture
 def maps(write_tif):
-    return {"channel": write_tif("channel.tif", _channel()), "lenses": write_tif("lenses.tif", _lenses())}
+    return {"channel": write_tif("channel.tif", _channel()), "lenses": write_tif("lenses.tif", _lenses()),
+            "stairs": write_tif("stairs.tif", staircase_channels(0))}  # fmt: skip
 
 
 def test_info_tells_the_spans(run_cli, maps):
@@ -101,13 +114,21 @@ def test_info_tells_the_spans(run_cli, maps):
     assert found["axes"]["x"]["high_fraction"] == pytest.approx(1000 / 2560)
 
 
-def test_run_warns_of_a_spanning_body_thinner_than_the_blocks(run_cli, maps, tmp_path):
-    code, _, err = run_cli("run", maps["channel"], "--block", "8x8", "--method", "geometric",
+def test_run_warns_of_a_winding_body_thinner_than_the_blocks(run_cli, maps, tmp_path):
+    code, _, err = run_cli("run", maps["stairs"], "--block", "8x8", "--method", "geometric",
                            "--out", tmp_path / "a", "--no-check")  # fmt: skip
     assert code == 0
-    assert err.startswith(f"upscale: {maps['channel']}: local methods will struggle: a connected high-k "
-                          "body spans the field along x (3 fine cells")  # fmt: skip
-    for field, block in (("lenses", "8x8"), ("channel", "8x2")):
+    assert err.startswith(f"upscale: {maps['stairs']}: local methods will struggle: a connected high-k "
+                          "body spans the field along x (4.38 fine cells")  # fmt: skip
+    for field, block in (("lenses", "8x8"), ("channel", "8x8"), ("stairs", "8x4")):
         code, _, err = run_cli("run", maps[field], "--block", block, "--method", "geometric",
                                "--out", tmp_path / f"{field}{block}", "--no-check")  # fmt: skip
         assert (code, "struggle" in err) == (0, False)
+
+
+def test_a_uniform_field_has_no_high_cells():
+    k = np.full((1, 2, 6), 20.0)  # exp(mean(ln 20)) rounds below 20: every cell was high
+    k[0, 0, 1:3] = k[0, 1, [1, 4, 5]] = np.nan
+    assert float(np.exp(np.log(k[~np.isnan(k)]).mean())) < 20.0
+    found = span(k, "x")
+    assert (found.high_fraction, found.spans) == (0.0, False)

@@ -38,11 +38,12 @@ from upscale import Field, coarsen
 from upscale.analysis.compare import candidates, compare_methods, single
 from upscale.check.axis import check_flow
 from upscale.cli.main import main
+from upscale.gallery.problems import Layers
 from upscale.report.bundle import bundle
 from upscale.report.figures import build_figures
 
 #: Rows of 1 and 4 mD (layers along x), 16 x 16 cells.
-LAYERS = np.tile(np.array([1.0, 1.0, 4.0, 4.0])[:, None], (4, 16))
+LAYERS = Layers(np.tile([1.0, 1.0, 4.0, 4.0], 4), np.ones(16)).rows(16)
 WARNING = re.compile(r'<p class="warning">([^<]*)</p>')
 NOTE = re.compile(r'<p class="note">([^<]*)</p>')
 

@@ -19,9 +19,10 @@ An uncorrelated field spans when its share of high-k cells passes the site
 percolation threshold, 0.593 on a square lattice and 0.312 on a cubic one
 (Stauffer & Aharony 1994, "Introduction to Percolation Theory", Table 2):
 half the cells high is below it in 2D and above it in 3D. A spanning body
-narrower than the blocks is what local methods handle worst: each block
-mixes it with the rock beside it, and the coarse model may lose the path
-the fine one has (`struggle`).
+narrower than the blocks, and winding (not a layer nor a straight channel
+along the axis, which block averages capture exactly), is what local
+methods handle worst: each block mixes it with the rock beside it, and the
+coarse model may lose the path the fine one has (`struggle`).
 """
 
 from __future__ import annotations
@@ -37,6 +38,9 @@ from ..grid import BlockSpec
 
 #: Fine cells labelled at most by default (the flow check's default limit: a field it solves whole).
 MAX_CELLS = 20_000_000
+#: Relative margin above the geometric mean for a cell to be high: the mean's rounding
+#: (a few 1e-14 for 20 million cells) must not make every cell of a uniform field high.
+ROUNDING = 1e-9
 #: What the high-k cells are, as the outputs say it.
 HIGH_K = "cells with k above its geometric mean, joined through faces"
 
@@ -60,6 +64,10 @@ class Span:
     cross_section : float or None
         Cells in a cross-section of the largest spanning body, on average;
         None when no body spans.
+    straight : bool
+        Whether the largest spanning body holds the same cells in every slice
+        across `axis`: a layer or a straight channel along it, which a block
+        average along `axis` captures exactly (False when none spans).
     """
 
     axis: str
@@ -68,6 +76,7 @@ class Span:
     bodies: int
     spanning_fraction: float
     cross_section: float | None
+    straight: bool = False
 
     @property
     def spans(self) -> bool:
@@ -78,7 +87,7 @@ class Span:
         """The span as plain data (``upscale info --json``)."""
         return {"cut": self.cut, "high_fraction": self.high_fraction, "spans": self.spans,
                 "spanning_bodies": self.bodies, "spanning_fraction": self.spanning_fraction,
-                "cross_section_cells": self.cross_section}  # fmt: skip
+                "cross_section_cells": self.cross_section, "straight": self.straight}  # fmt: skip
 
 
 def span(k: np.ndarray, axis: str) -> Span:
@@ -99,24 +108,29 @@ def span(k: np.ndarray, axis: str) -> Span:
     >>> k = np.ones((1, 4, 6))
     >>> k[0, 1] = 100.0                       # one row of sand along x
     >>> along, across = span(k, "x"), span(k, "y")
-    >>> along.spans, along.spanning_fraction, along.cross_section, across.spans
-    (True, 1.0, 1.0, False)
+    >>> along.spans, along.spanning_fraction, along.cross_section, along.straight, across.spans
+    (True, 1.0, 1.0, True, False)
     """
     from skimage.measure import label
 
     k = np.asarray(k, dtype=np.float64)
     positive = np.isfinite(k) & (k > 0)
     cut = float(np.exp(np.log(k[positive]).mean())) if positive.any() else math.nan
-    high = positive & (k > cut)
+    high = positive & (k > cut * (1.0 + ROUNDING))
     labels = label(high, connectivity=1)
     a = AXES[axis]
     ends = np.intersect1d(np.unique(labels.take(0, axis=a)), np.unique(labels.take(-1, axis=a)))
     spanning = ends[ends > 0]
     sizes = np.bincount(labels.ravel())[spanning]
     count = int(high.sum())
+    straight = False
+    if spanning.size:
+        largest = labels == spanning[np.argmax(sizes)]
+        straight = int(sizes.max()) == int(largest.any(axis=a).sum()) * k.shape[a]
     return Span(axis=axis, cut=cut, high_fraction=count / max(1, int((~np.isnan(k)).sum())),
                 bodies=int(spanning.size), spanning_fraction=int(sizes.sum()) / count if count else 0.0,
-                cross_section=float(sizes.max()) / k.shape[a] if spanning.size else None)  # fmt: skip
+                cross_section=float(sizes.max()) / k.shape[a] if spanning.size else None,
+                straight=straight)  # fmt: skip
 
 
 def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | None:
@@ -137,24 +151,28 @@ def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | N
 
 
 def struggle(spans: dict[str, Span] | None, block: BlockSpec) -> str | None:
-    """The warning when a spanning high-k body is thinner than the blocks, else None.
+    """The warning when a winding high-k body spans the field thinner than the blocks, else None.
 
     The largest body spanning an axis is compared with a block's cross-section
-    across that axis, in fine cells.
+    across that axis, in fine cells. A straight one (a layer, or a channel
+    along the axis) is left out: block averages along it are exact.
 
     Examples
     --------
     >>> k = np.ones((1, 16, 32))
-    >>> k[0, 5:7] = 50.0                      # a channel two cells wide along x
+    >>> k[0, 5:7, :16] = k[0, 6:8, 16:] = 50.0   # a channel two cells wide along x, one step down
     >>> struggle({"x": span(k, "x")}, BlockSpec(8, 8))[:68]
     'local methods will struggle: a connected high-k body spans the field'
     >>> struggle({"x": span(k, "x")}, BlockSpec(8, 2)) is None
+    True
+    >>> k[0, 5, 16:], k[0, 7, 16:] = 50.0, 1.0    # straight again: a layer, averaged exactly along it
+    >>> struggle({"x": span(k, "x")}, BlockSpec(8, 8)) is None
     True
     """
     thin = []
     for axis, s in (spans or {}).items():
         across = math.prod(n for i, n in enumerate(block.cells) if i != AXES[axis])
-        if s.cross_section is not None and s.cross_section < across:
+        if s.cross_section is not None and s.cross_section < across and not s.straight:
             thin.append(f"along {axis} ({s.cross_section:.3g} fine cells in its cross-section on average, "
                         f"{across} in a block's)")  # fmt: skip
     if not thin:
