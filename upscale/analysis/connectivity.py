@@ -113,7 +113,8 @@ def span(k: np.ndarray, axis: str) -> Span:
     """
     from skimage.measure import label
 
-    k = np.asarray(k, dtype=np.float64)
+    with np.errstate(invalid="ignore"):  # a damaged raster's signalling NaNs flag their cast; NaN all the same
+        k = np.asarray(k, dtype=np.float64)
     positive = np.isfinite(k) & (k > 0)
     cut = float(np.exp(np.log(k[positive]).mean())) if positive.any() else math.nan
     high = positive & (k > cut * (1.0 + ROUNDING))
