@@ -126,6 +126,7 @@ def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_pat
     assert a == b
 
 
+@pytest.mark.slow
 def test_workers_option_gives_the_threaded_arrays(realizations, threaded, tmp_path, run_cli):
     out = tmp_path / "workers"
     code, _, stderr = run_cli("run", str(realizations / "r*.tif"), "--block", "8x8", "--method",

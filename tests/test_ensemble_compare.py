@@ -207,6 +207,7 @@ def _html_row(cells: list[str]) -> str:
 # --- compare on an ensemble: the folder ------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(compared, realizations):
     out, ensemble = compared["out"], compared["ensemble"]
     assert sorted(p.name for p in out.iterdir()) == sorted(
@@ -244,6 +245,7 @@ def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(comp
     ]  # fmt: skip
 
 
+@pytest.mark.slow
 def test_each_realization_folder_is_its_standalone_comparison(compared, standalone):
     out = compared["out"]
     for name, inner in _comparisons(out).items():
@@ -368,6 +370,7 @@ def test_compare_page_shows_the_ranking(compared):
 # --- run on an ensemble with --plot --report -------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_run_ensemble_plot_and_report(ran):
     out, ensemble = ran["out"], ran["ensemble"]
     assert ensemble["files"] == [*NAMES, "ensemble.csv", "figures/ensemble.png", "figures/ensemble.svg",

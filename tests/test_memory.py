@@ -85,6 +85,7 @@ def rasters(tmp_path_factory):
             _write(folder / "small.tif", 256))  # fmt: skip
 
 
+@pytest.mark.slow
 def test_peak_memory_follows_the_chunk_not_the_raster(rasters, tmp_path):
     method = ["--method", "geometric"]
     big, medium, small = rasters
@@ -125,6 +126,7 @@ def _capped(args, limit_bytes):
     return done.returncode, done.stdout, done.stderr
 
 
+@pytest.mark.slow
 def test_a_check_that_would_not_fit_in_memory_is_refused_before_any_work(rasters, tmp_path):
     _, medium, _ = rasters  # 8192² cells: a whole check would need about 44 GB
     out = tmp_path / "refused"

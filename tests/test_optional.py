@@ -66,6 +66,7 @@ def test_check_of_a_package_without_pyarrow_names_the_formats_extra(demo_dir, tm
     _one_error_line(stderr, "pyarrow", "formats")
 
 
+@pytest.mark.slow
 def test_figures_without_matplotlib_name_the_figures_extra(demo_dir, tmp_path):
     field = demo_dir / "marrowfen_lognormal.tif"
     code, _, stderr = _without(["matplotlib"], "run", field, "--block", "16x16", "--method", "geometric",

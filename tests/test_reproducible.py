@@ -67,6 +67,7 @@ def _files(folder: Path) -> dict[str, bytes]:
             if p.is_file()}  # fmt: skip
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case", list(CASES))
 def test_the_same_command_twice_writes_the_same_bytes(case, demo_dir, tmp_path):
     first, second = (tmp_path / "a", tmp_path / "b")
@@ -88,6 +89,7 @@ def test_the_same_command_twice_writes_the_same_bytes(case, demo_dir, tmp_path):
     assert summaries[0] == summaries[1]
 
 
+@pytest.mark.slow
 def test_numeric_outputs_do_not_depend_on_chunks_or_workers(demo_dir, tmp_path):
     args = ["@marrowfen_lognormal.tif", "--block", "8x8", "--method", "flow", "--bc", "periodic",
             "--border", "3", "--no-check"]  # fmt: skip
@@ -122,6 +124,7 @@ def test_the_summary_traces_versions_command_checksums_and_times(demo_dir, tmp_p
     assert all(seconds >= 0 for seconds in summary["timings_s"].values())
 
 
+@pytest.mark.slow
 def test_the_folder_a_command_ran_in_is_recorded_and_shown(run_cli, tmp_path, monkeypatch):
     # relative paths in the command only mean something from the folder it ran in
     folder = tmp_path / "field work's"  # a space and a quote: the cd line must be shell-quoted

@@ -132,6 +132,7 @@ def _read(path):
         return src.read()
 
 
+@pytest.mark.slow
 def test_killed_worker_is_replaced_and_the_result_is_unchanged(slow_field, tmp_path):
     from dask.distributed import Client
 
@@ -162,6 +163,7 @@ def test_killed_worker_is_replaced_and_the_result_is_unchanged(slow_field, tmp_p
     assert partial_leftovers(tmp_path) == []
 
 
+@pytest.mark.slow
 def test_workers_lost_too_often_stop_the_run_and_keep_the_previous_result(slow_field, tmp_path):
     from dask.distributed import Client
 

@@ -103,6 +103,7 @@ def test_run_into_a_closed_pipe_leaves_its_folder_complete(folder, tmp_path):
     assert {"kx.tif", "ky.tif", "cells.csv"} <= set(json.loads((out / "summary.json").read_text())["files"])
 
 
+@pytest.mark.slow
 def test_compare_into_a_closed_pipe_leaves_its_folder_complete(folder, tmp_path):
     out = tmp_path / "cmp"
     args = ["compare", folder / "r0.tif", "--block", "16x16", "--methods", "geometric,harmonic",

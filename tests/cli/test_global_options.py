@@ -70,6 +70,7 @@ def test_help_lists_the_global_options(run_cli, command):
         assert option in stdout, (command, option)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("command", COMMANDS)
 def test_quiet_after_the_command_is_quiet_before_it(run_cli, field, finished, tmp_path, command):
     before = run_cli("-q", *_commands(field, finished, tmp_path / "before")[command])

@@ -63,6 +63,7 @@ def _page(out) -> str:
 # --- one method: its check, not a contest --------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_a_run_report_is_the_check_of_its_method(run_cli, layered, tmp_path):
     out = tmp_path / "run"
     code, _, err = run_cli("-q", "run", layered / "r1.tif", "--block", "4x4", "--method", "harmonic",
@@ -156,6 +157,7 @@ def test_the_error_figure_of_a_comparison_says_no_method_is_within_the_band():
 # --- ensembles -----------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_ensemble_pages_warn_and_note_too(run_cli, layered, tmp_path):
     code, stdout, err = run_cli("compare", layered / "r*.tif", "--block", "4x4", "--methods",
                                 "arithmetic,harmonic", "--out", tmp_path / "ce")  # fmt: skip
