@@ -8,6 +8,12 @@ script in a subprocess, see `UPSCALE_EXE`).
 
 Notes
 -----
+The session fixture `compiled_kernels` runs every method once on small 2D
+and 3D fields before the first test, so the numba kernels are compiled (after
+an installation, about a minute) or loaded from their cache (about 3 s) in
+one place, not inside whichever test happens to use them first — whose
+duration and hypothesis deadlines would otherwise carry that cost.
+
 ``write_raster`` silences rasterio's ``NotGeoreferencedWarning`` only while
 *writing* a raster that deliberately has no georeference; whatever the
 package under test emits is left to the warning filters of the tests.
@@ -28,8 +34,11 @@ from affine import Affine
 from browser_probe import chromium_binary
 from rasterio.errors import NotGeoreferencedWarning
 
+from upscale import Field, check_flow, coarsen
 from upscale.cli.main import main
 from upscale.demo.scenario import write_demo_fields
+from upscale.gallery.problems import uncorrelated_lognormal
+from upscale.methods.registry import METHODS
 
 #: A projected CRS in metres used by default for test rasters.
 PROJECTED = "EPSG:32633"
@@ -155,11 +164,6 @@ def read_vtr(path: str | Path) -> tuple[tuple[int, ...], dict[str, np.ndarray], 
     return grid.GetExtent(), copied(arrays), copied(axes)
 
 
-def lognormal(shape: tuple[int, ...], seed: int, mean_ln: float = 3.0, sigma_ln: float = 1.0):
-    """Uncorrelated lognormal permeabilities (mD) of `shape`."""
-    return np.random.default_rng(seed).lognormal(mean_ln, sigma_ln, size=shape)
-
-
 def snapshot(path: Path) -> Any:
     """Contents of a file or folder (name -> bytes, recursively), or None if missing."""
     if not path.exists():
@@ -173,6 +177,32 @@ def snapshot(path: Path) -> Any:
 def partial_leftovers(parent: Path) -> list[str]:
     """Names of staging folders ('.<name>.partial-...') left in `parent`."""
     return sorted(p.name for p in parent.iterdir() if ".partial-" in p.name)
+
+
+#: Options that take different compiled paths, per method (every method runs once without any).
+WARM_OPTIONS: dict[str, list[dict[str, Any]]] = {
+    "power": [{"exponent": 0.5}],
+    "flow": [{"bc": bc} for bc in ("sealed", "periodic", "linear")],
+    "flow-transmissibility": [{}, {"border": 2}],
+}
+
+
+@pytest.fixture(scope="session", autouse=True)
+def compiled_kernels() -> None:
+    """Every method's kernels and both solvers of the flow check, compiled once per session.
+
+    Methods run on a 16 x 16 map in 4 x 4 blocks and a 4-layer model in
+    4 x 4 x 2 blocks (float64); the check solves the last result with the
+    direct and the multigrid solver.
+    """
+    fields = {"4x4": Field.from_arrays(uncorrelated_lognormal((16, 16), seed=1)),
+              "4x4x2": Field.from_arrays(uncorrelated_lognormal((4, 16, 16), seed=2), dz=1.0)}  # fmt: skip
+    for block, field in fields.items():
+        for name in METHODS:
+            for options in WARM_OPTIONS.get(name, [{}]):
+                result = coarsen(field, block, name, **options)
+        for solver in ("direct", "amg"):
+            check_flow(result.fine, result.transmissibilities(), solver=solver)
 
 
 @pytest.fixture

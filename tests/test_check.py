@@ -33,6 +33,7 @@ from upscale.check.limits import DEFAULT_LIMIT
 from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.gallery.fields import lognormal_field
+from upscale.gallery.problems import Layers, random_layers
 from upscale.methods.registry import METHODS
 
 # renormalization takes powers-of-two blocks only; it has its own tests (test_flow_based.py)
@@ -42,8 +43,7 @@ OPTIONS = {"power": {"exponent": 0.37}}
 
 
 def _rows_as_layers(rows, columns, seed):
-    k_row = np.exp(np.random.default_rng(seed).normal(1.0, 1.5, rows))
-    return np.broadcast_to(k_row[:, None], (rows, columns)).copy()
+    return random_layers(rows, seed=seed, mean_ln=1.0, sigma_ln=1.5).rows(columns)
 
 
 # --------------------------------------------------------------------------------------
@@ -70,8 +70,7 @@ def test_layered_2d_arithmetic_along_harmonic_across():
 
 def test_layered_3d_unequal_thickness():
     dz = np.array([0.4, 2.5, 1.0, 3.0, 0.7, 1.8, 2.2, 0.9])
-    k_layer = np.exp(np.random.default_rng(882_041_573).normal(0.5, 2.0, 8))
-    k = np.broadcast_to(k_layer[:, None, None], (8, 6, 9)).copy()
+    k = Layers(random_layers(8, seed=882_041_573, mean_ln=0.5).k, dz).stack(6, 9)
     fine = Field.from_arrays(k, dz=dz, cell_size=(25.0, 25.0))
     a = check_flow(fine, coarsen(fine, "3x2x4", "arithmetic").coarse)
     h = check_flow(fine, coarsen(fine, "3x2x4", "harmonic").coarse)

@@ -27,25 +27,24 @@ import math
 
 import numpy as np
 import pytest
-from conftest import lognormal
 
 import upscale
 from upscale import Field, coarsen
 from upscale.analysis.compare import ALL_CONDITIONS, Candidate, candidates, compare_methods, single
 from upscale.check.axis import check_flow
 from upscale.errors import InputError
+from upscale.gallery.problems import Layers, uncorrelated_lognormal
 from upscale.methods.registry import METHODS
 
 #: Permeabilities (mD) and thicknesses (m) of an exactly layered model: strong contrasts, unequal dz.
-LAYER_K = np.array([1.0, 1000.0, 10.0, 0.1, 300.0, 3.0, 50.0, 0.5])
-LAYER_DZ = np.array([1.0, 2.0, 0.5, 1.5, 1.0, 3.0, 0.5, 2.0])
+LAYERS = Layers(np.array([1.0, 1000.0, 10.0, 0.1, 300.0, 3.0, 50.0, 0.5]),
+                np.array([1.0, 2.0, 0.5, 1.5, 1.0, 3.0, 0.5, 2.0]))  # fmt: skip
 #: Methods exact on a layered medium whose layer boundaries lie on block boundaries (every axis).
 EXACT_ON_LAYERS = ("tubes", "slabs", "flow (sealed)", "flow (periodic)", "renormalization")
 
 
 def _layered_3d() -> Field:
-    k = np.broadcast_to(LAYER_K[:, None, None], (8, 32, 32)).copy()
-    return Field.from_arrays(k, dz=LAYER_DZ, cell_size=(10.0, 10.0))
+    return Field.from_arrays(LAYERS.stack(32, 32), dz=LAYERS.thickness, cell_size=(10.0, 10.0))
 
 
 @pytest.fixture(scope="module")
@@ -95,8 +94,7 @@ def test_layered_model_best_overall_is_the_first_method_exact_on_every_axis(laye
 
 def test_layered_model_checks_match_the_analytic_means(layered):
     # k_eff of the whole model: arithmetic (along) and harmonic (across) of the layers, weighted by dz
-    arithmetic = float((LAYER_K * LAYER_DZ).sum() / LAYER_DZ.sum())
-    harmonic = float(LAYER_DZ.sum() / (LAYER_DZ / LAYER_K).sum())
+    arithmetic, harmonic = float(LAYERS.along), float(LAYERS.across)
     assert math.isclose(layered.fine_flows["x"].k_eff, arithmetic, rel_tol=1e-9)
     assert math.isclose(layered.fine_flows["y"].k_eff, arithmetic, rel_tol=1e-9)
     assert math.isclose(layered.fine_flows["z"].k_eff, harmonic, rel_tol=1e-9)
@@ -140,7 +138,7 @@ def test_2d_rows_of_1_and_4():
 @pytest.fixture(scope="module")
 def mixed():
     """Six methods on a 48x48 lognormal map with 12x12 blocks: renormalization cannot run."""
-    field = Field.from_arrays(lognormal((48, 48), seed=11), cell_size=(5.0, 5.0))
+    field = Field.from_arrays(uncorrelated_lognormal((48, 48), seed=11), cell_size=(5.0, 5.0))
     names = ["geometric", "renormalization", "arithmetic", "harmonic", "tubes", "slabs"]
     return compare_methods(field, "12x12", candidates(names))
 
@@ -188,7 +186,7 @@ def test_ties_keep_the_candidate_order():
 
 
 def test_nothing_runs_gives_no_best():
-    field = Field.from_arrays(lognormal((24, 24), seed=2))
+    field = Field.from_arrays(uncorrelated_lognormal((24, 24), seed=2))
     found = compare_methods(field, "12x12", candidates(["renormalization"]))
     assert found.best is None and found.ranked == []
     assert found.best_along("x") is None
@@ -196,7 +194,7 @@ def test_nothing_runs_gives_no_best():
 
 
 def test_cropped_comparison_uses_the_cropped_fine_field():
-    field = Field.from_arrays(lognormal((50, 50), seed=3))
+    field = Field.from_arrays(uncorrelated_lognormal((50, 50), seed=3))
     found = compare_methods(field, upscale.BlockSpec.parse("12x12", remainder="crop"),
                             candidates(["geometric"]))  # fmt: skip
     assert found.fine.shape == (1, 48, 48)
@@ -205,7 +203,7 @@ def test_cropped_comparison_uses_the_cropped_fine_field():
 
 
 def test_report_is_called_before_and_after_each_candidate():
-    field = Field.from_arrays(lognormal((16, 16), seed=4))
+    field = Field.from_arrays(uncorrelated_lognormal((16, 16), seed=4))
     calls = []
     chosen = candidates(["arithmetic", "renormalization", "harmonic"])
     found = compare_methods(field, "8x8", chosen,
@@ -254,7 +252,7 @@ def test_unknown_method_lists_the_valid_ones():
 
 
 def test_single_run_is_a_comparison_of_one():
-    field = Field.from_arrays(lognormal((16, 16), seed=5))
+    field = Field.from_arrays(uncorrelated_lognormal((16, 16), seed=5))
     result = coarsen(field, "8x8", "flow", bc="periodic", border=1)
     checks = check_flow(result.fine, result.transmissibilities())
     one = single(result, checks, seconds=1.5)

@@ -28,6 +28,7 @@ import time
 
 import numba as nb
 import numpy as np
+import pytest
 from conftest import UPSCALE_EXE, write_raster
 
 from upscale.steps import Steps
@@ -55,6 +56,7 @@ def test_a_step_leaves_first_use_compilation_out():
     assert steps.timings["compile_s"] == timings["compile_s"]
 
 
+@pytest.mark.slow
 def test_compare_records_first_use_compilation_apart_and_only_once(tmp_path):
     k = np.random.default_rng(760_413).lognormal(3.0, 1.0, (24, 24))
     field = write_raster(tmp_path / "k.tif", k)
@@ -71,6 +73,7 @@ def test_compare_records_first_use_compilation_apart_and_only_once(tmp_path):
     assert set(compiled[1].values()) == {0}  # and were loaded from the cache the second time
 
 
+@pytest.mark.slow
 def test_local_solves_compile_one_copy_of_each_kernel(tmp_path):
     script = textwrap.dedent("""
         import numpy as np

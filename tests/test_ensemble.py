@@ -25,10 +25,11 @@ import json
 import numpy as np
 import pytest
 import rasterio
-from conftest import lognormal, write_raster
+from conftest import write_raster
 
 import upscale.jobs.cluster
 from upscale.analysis.ensemble import PERCENTILES, QUANTITIES
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SIZE = (48, 40)
 
@@ -37,7 +38,7 @@ SIZE = (48, 40)
 def realizations(tmp_path_factory):
     folder = tmp_path_factory.mktemp("realizations")
     for r in range(5):
-        write_raster(folder / f"r{r}.tif", lognormal(SIZE, seed=9_100 + r), cell_size=10.0)
+        write_raster(folder / f"r{r}.tif", uncorrelated_lognormal(SIZE, seed=9_100 + r), cell_size=10.0)
     return folder
 
 
@@ -125,6 +126,7 @@ def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_pat
     assert a == b
 
 
+@pytest.mark.slow
 def test_workers_option_gives_the_threaded_arrays(realizations, threaded, tmp_path, run_cli):
     out = tmp_path / "workers"
     code, _, stderr = run_cli("run", str(realizations / "r*.tif"), "--block", "8x8", "--method",
@@ -144,7 +146,7 @@ def test_pattern_matching_nothing(run_cli, tmp_path):
 
 def test_realizations_on_different_grids_are_refused(run_cli, realizations, tmp_path):
     odd = tmp_path / "odd.tif"
-    write_raster(odd, lognormal((SIZE[0], SIZE[1] + 8), seed=5), cell_size=10.0)
+    write_raster(odd, uncorrelated_lognormal((SIZE[0], SIZE[1] + 8), seed=5), cell_size=10.0)
     out = tmp_path / "never"
     paths = [str(realizations / "r0.tif"), str(realizations / "r1.tif"), str(odd)]
     line = _one_error(*run_cli("run", *paths, "--block", "8x8", "--method", "geometric", "--out", out))
@@ -159,7 +161,7 @@ def test_the_file_on_another_grid_is_named_even_when_it_comes_first(run_cli, rea
                                                                    command):  # fmt: skip
     # the majority's grid is the reference, not the first file's: two realizations on one grid
     # after a file on another named the two as odd ("r0, r1 differ from K_ms")
-    odd = write_raster(tmp_path / "K_ms.tif", lognormal(SIZE, seed=5), cell_size=12.5)
+    odd = write_raster(tmp_path / "K_ms.tif", uncorrelated_lognormal(SIZE, seed=5), cell_size=12.5)
     out = tmp_path / "never"
     paths = [odd, realizations / "r0.tif", realizations / "r1.tif"]
     line = _one_error(*run_cli(command, *paths, "--block", "8x8", *_ARGS[command], "--out", out))
@@ -170,7 +172,7 @@ def test_the_file_on_another_grid_is_named_even_when_it_comes_first(run_cli, rea
 
 def test_on_a_tie_the_first_file_s_grid_is_the_reference(run_cli, realizations, tmp_path):
     # two files on each of two grids: the grid of the first file wins; the odd ones are both named
-    wide = [write_raster(tmp_path / f"w{i}.tif", lognormal((SIZE[0], SIZE[1] + 8), seed=7 + i))
+    wide = [write_raster(tmp_path / f"w{i}.tif", uncorrelated_lognormal((SIZE[0], SIZE[1] + 8), seed=7 + i))
             for i in range(2)]  # fmt: skip
     paths = [realizations / "r0.tif", *wide, realizations / "r1.tif"]
     line = _one_error(*run_cli("run", *paths, "--block", "8x8", "--method", "geometric", "--out",

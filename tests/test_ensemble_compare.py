@@ -67,12 +67,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 from browser_probe import assert_self_contained, probe
-from conftest import lognormal, partial_leftovers, snapshot, write_raster
+from conftest import partial_leftovers, snapshot, write_raster
 from PIL import Image
 
 from upscale.analysis.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
 from upscale.caution import CAUTION
 from upscale.cli.main import main
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.methods.registry import METHODS as REGISTRY
 
 SIZE = (32, 32)
@@ -120,11 +121,11 @@ def realizations(tmp_path_factory):
     """
     folder = tmp_path_factory.mktemp("realizations")
     fields = [
-        lognormal(SIZE, seed=9_300),
-        lognormal(SIZE, seed=9_301),
+        uncorrelated_lognormal(SIZE, seed=9_300),
+        uncorrelated_lognormal(SIZE, seed=9_301),
         np.where(np.random.default_rng(9_302).random(SIZE) < 0.1, 1000.0, 1.0),
-        np.kron(lognormal((4, 4), seed=9_303, sigma_ln=1.5), np.ones((8, 8)))
-        * lognormal(SIZE, seed=9_304, mean_ln=0.0, sigma_ln=0.1),
+        np.kron(uncorrelated_lognormal((4, 4), seed=9_303, sigma_ln=1.5), np.ones((8, 8)))
+        * uncorrelated_lognormal(SIZE, seed=9_304, mean_ln=0.0, sigma_ln=0.1),
     ]
     for name, values in zip(NAMES, fields):
         write_raster(folder / f"{name}.tif", values, cell_size=10.0)
@@ -206,6 +207,7 @@ def _html_row(cells: list[str]) -> str:
 # --- compare on an ensemble: the folder ------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(compared, realizations):
     out, ensemble = compared["out"], compared["ensemble"]
     assert sorted(p.name for p in out.iterdir()) == sorted(
@@ -243,6 +245,7 @@ def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(comp
     ]  # fmt: skip
 
 
+@pytest.mark.slow
 def test_each_realization_folder_is_its_standalone_comparison(compared, standalone):
     out = compared["out"]
     for name, inner in _comparisons(out).items():
@@ -367,6 +370,7 @@ def test_compare_page_shows_the_ranking(compared):
 # --- run on an ensemble with --plot --report -------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_run_ensemble_plot_and_report(ran):
     out, ensemble = ran["out"], ran["ensemble"]
     assert ensemble["files"] == [*NAMES, "ensemble.csv", "figures/ensemble.png", "figures/ensemble.svg",
@@ -412,7 +416,7 @@ def test_compare_glob_matching_nothing(run_cli, tmp_path):
 @pytest.mark.parametrize("odd", ["shape", "cell size"])
 def test_compare_realizations_on_different_grids(run_cli, realizations, tmp_path, odd):
     shape, cell = ((SIZE[0], SIZE[1] + 8), 10.0) if odd == "shape" else (SIZE, 12.5)
-    write_raster(tmp_path / "odd.tif", lognormal(shape, seed=5), cell_size=cell)
+    write_raster(tmp_path / "odd.tif", uncorrelated_lognormal(shape, seed=5), cell_size=cell)
     paths = [realizations / "r0.tif", realizations / "r1.tif", tmp_path / "odd.tif", realizations / "r2.tif"]
     out = tmp_path / "never"
     line = _one_error(*run_cli("compare", *paths, "--block", "8x8", "--methods", METHODS, "--out", out))
@@ -433,7 +437,7 @@ def test_compare_ensemble_over_the_check_limit(run_cli, realizations, tmp_path):
 
 def test_compare_ensemble_with_a_realization_no_method_runs_on(run_cli, realizations, tmp_path):
     # zeros: no harmonic nor geometric mean of the top-left block (a standalone compare says so, exit 2)
-    values = lognormal(SIZE, seed=6)
+    values = uncorrelated_lognormal(SIZE, seed=6)
     values[:8, :8] = 0.0
     holes = write_raster(tmp_path / "holes.tif", values, cell_size=10.0)
     out = tmp_path / "never"

@@ -45,9 +45,10 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from conftest import UPSCALE_EXE, lognormal, partial_leftovers, snapshot, write_raster
+from conftest import UPSCALE_EXE, partial_leftovers, snapshot, write_raster
 
 from upscale.cli.main import main
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 6_120_447_391
 #: Fine cells of the field: 2x2 blocks make a coarse grid of about 1 M cells, a few seconds of writing.
@@ -67,14 +68,14 @@ SIGNALS = [signal.SIGINT, signal.SIGTERM, signal.SIGKILL]
 
 @pytest.fixture(scope="module")
 def field(tmp_path_factory) -> Path:
-    return write_raster(tmp_path_factory.mktemp("big") / "field.tif", lognormal(SIZE, SEED))
+    return write_raster(tmp_path_factory.mktemp("big") / "field.tif", uncorrelated_lognormal(SIZE, SEED))
 
 
 @pytest.fixture(scope="module")
 def earlier(tmp_path_factory) -> Path:
     """A complete result of an earlier run (of a small field), copied into DIR by each case."""
     folder = tmp_path_factory.mktemp("earlier")
-    small = write_raster(folder / "small.tif", lognormal((64, 64), SEED + 1))
+    small = write_raster(folder / "small.tif", uncorrelated_lognormal((64, 64), SEED + 1))
     assert main(["-q", "run", str(small), "--block", "8x8", "--method", "geometric", "--out",
                  str(folder / "result")]) == 0  # fmt: skip
     assert (folder / "result" / "summary.json").is_file()

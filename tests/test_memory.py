@@ -48,8 +48,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 import rasterio
-from conftest import UPSCALE_EXE, lognormal, north_up, write_raster
+from conftest import UPSCALE_EXE, north_up, write_raster
 from rasterio.windows import Window
+
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SIDE = 16384
 
@@ -97,6 +99,7 @@ def rasters(tmp_path_factory):
             _write(folder / "small.tif", 256))  # fmt: skip
 
 
+@pytest.mark.slow
 def test_peak_memory_follows_the_chunk_not_the_raster(rasters, tmp_path):
     method = ["--method", "geometric"]
     big, medium, small = rasters
@@ -137,6 +140,7 @@ def _capped(args, limit_bytes):
     return done.returncode, done.stdout, done.stderr
 
 
+@pytest.mark.slow
 def test_a_check_that_would_not_fit_in_memory_is_refused_before_any_work(rasters, tmp_path):
     _, medium, _ = rasters  # 8192² cells: a whole check would need about 44 GB
     out = tmp_path / "refused"
@@ -211,7 +215,7 @@ def test_the_memory_found_and_the_default_chunk_follow_a_containers_limit(contai
 
 
 def test_a_check_that_would_not_fit_in_a_container_is_refused_before_any_work(container, tmp_path):
-    raster = write_raster(tmp_path / "k.tif", lognormal((1024, 1024), 2_906_117_473))
+    raster = write_raster(tmp_path / "k.tif", uncorrelated_lognormal((1024, 1024), 2_906_117_473))
     limit = 640 * 2**20  # a whole check of 1024² cells needs about 0.65 GB; the machine has 24 GiB
     args = ["run", raster, "--block", "16x16", "--method", "geometric"]
     out = tmp_path / "refused"

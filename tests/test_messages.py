@@ -12,10 +12,11 @@ import re
 from pathlib import Path
 
 import pytest
-from conftest import lognormal, write_raster
+from conftest import write_raster
 
 import upscale
 from upscale.errors import InputError
+from upscale.gallery.problems import uncorrelated_lognormal
 
 PACKAGE = Path(upscale.__file__).parent
 #: An option of the command line: two dashes then a letter, not inside a word.
@@ -23,7 +24,7 @@ OPTION = re.compile(r"(?<![\w-])--[a-z]")
 
 
 def test_library_message_names_the_parameter() -> None:
-    field = upscale.Field.from_arrays(lognormal((16, 16), 5), cell_size=(1.0, 1.0))
+    field = upscale.Field.from_arrays(uncorrelated_lognormal((16, 16), 5), cell_size=(1.0, 1.0))
     with pytest.raises(InputError) as raised:
         upscale.coarsen(field, "8x8", "flow", border=-1)
     message = str(raised.value)
@@ -32,7 +33,7 @@ def test_library_message_names_the_parameter() -> None:
 
 
 def test_command_line_names_the_option(tmp_path: Path, run_cli) -> None:
-    path = write_raster(tmp_path / "k.tif", lognormal((16, 16), 5))
+    path = write_raster(tmp_path / "k.tif", uncorrelated_lognormal((16, 16), 5))
     code, _, err = run_cli("run", path, "--block", "8x8", "--method", "flow", "--border", "-1",
                            "--out", tmp_path / "out")  # fmt: skip
     assert code == 2

@@ -35,7 +35,9 @@ import subprocess
 from pathlib import Path
 
 import pytest
-from conftest import UPSCALE_EXE, lognormal, write_raster
+from conftest import UPSCALE_EXE, write_raster
+
+from upscale.gallery.problems import uncorrelated_lognormal
 
 #: Files whose bytes hold the numbers of a run (not the command line that made them).
 NUMERIC = ("kx.tif", "ky.tif", "cells.csv", "connections.csv", "boundary.csv", "cells.parquet",
@@ -65,6 +67,7 @@ def _files(folder: Path) -> dict[str, bytes]:
             if p.is_file()}  # fmt: skip
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case", list(CASES))
 def test_the_same_command_twice_writes_the_same_bytes(case, demo_dir, tmp_path):
     first, second = (tmp_path / "a", tmp_path / "b")
@@ -86,6 +89,7 @@ def test_the_same_command_twice_writes_the_same_bytes(case, demo_dir, tmp_path):
     assert summaries[0] == summaries[1]
 
 
+@pytest.mark.slow
 def test_numeric_outputs_do_not_depend_on_chunks_or_workers(demo_dir, tmp_path):
     args = ["@marrowfen_lognormal.tif", "--block", "8x8", "--method", "flow", "--bc", "periodic",
             "--border", "3", "--no-check"]  # fmt: skip
@@ -120,12 +124,13 @@ def test_the_summary_traces_versions_command_checksums_and_times(demo_dir, tmp_p
     assert all(seconds >= 0 for seconds in summary["timings_s"].values())
 
 
+@pytest.mark.slow
 def test_the_folder_a_command_ran_in_is_recorded_and_shown(run_cli, tmp_path, monkeypatch):
     # relative paths in the command only mean something from the folder it ran in
     folder = tmp_path / "field work's"  # a space and a quote: the cd line must be shell-quoted
     (folder / "in").mkdir(parents=True)
     for seed, name in ((7741, "map.tif"), (7742, "r1.tif"), (7743, "r2.tif")):  # r1, r2: an ensemble
-        write_raster(folder / "in" / name, lognormal((16, 16), seed=seed))
+        write_raster(folder / "in" / name, uncorrelated_lognormal((16, 16), seed=seed))
     monkeypatch.chdir(folder)
     runs = {
         "summary.json": ["run", "in/map.tif", "--block", "8x8", "--method", "geometric",

@@ -21,11 +21,11 @@ import math
 
 import numpy as np
 import pytest
-from conftest import lognormal
 
 from upscale import BlockSpec, Field, coarsen
 from upscale.check.axis import check_flow
 from upscale.check.subdomains import check_subdomains, plan_windows
+from upscale.gallery.problems import uncorrelated_lognormal
 
 
 @pytest.mark.parametrize("shape, block, limit", [((1, 100, 100), (1, 10, 10), 900),
@@ -49,7 +49,7 @@ CASES = [("geometric", {}), ("flow", {"bc": "periodic"}), ("flow-transmissibilit
 @pytest.mark.parametrize("method, options", CASES)
 @pytest.mark.parametrize("dims", [2, 3])
 def test_whole_domain_window_is_the_global_check(method, options, dims):
-    k = lognormal((3, 24, 32) if dims == 3 else (24, 32), seed=4_410 + dims)
+    k = uncorrelated_lognormal((3, 24, 32) if dims == 3 else (24, 32), seed=4_410 + dims)
     k[..., 5, 7] = np.nan
     field = Field.from_arrays(k, dz=1.5 if dims == 3 else None, cell_size=(10.0, 8.0))
     block = BlockSpec(8, 6, 3 if dims == 3 else 1)

@@ -31,6 +31,7 @@ from hypothesis import strategies as st
 
 import upscale
 from upscale import BlockSpec, Field, Grid, InputError, coarsen
+from upscale.gallery.problems import Layers, uncorrelated_lognormal
 from upscale.methods.registry import METHODS
 
 # renormalization takes powers-of-two blocks only; it has its own tests (test_flow_based.py)
@@ -40,11 +41,8 @@ OPTIONS = {"power": {"exponent": 0.57}}
 SETTINGS = settings(max_examples=50, deadline=None, database=None)
 
 
-def _lognormal(shape, seed, sigma=1.5, nan_fraction=0.0):
-    rng = np.random.default_rng(seed)
-    k = np.exp(rng.normal(2.0, sigma, shape))
-    k[rng.random(shape) < nan_fraction] = np.nan
-    return k
+def _lognormal(shape, seed, sigma=1.5, nan_fraction=None):
+    return uncorrelated_lognormal(shape, seed, mean_ln=2.0, sigma_ln=sigma, inactive=nan_fraction)
 
 
 # --------------------------------------------------------------------------------------
@@ -87,13 +85,12 @@ def test_layered_3d_averages_per_axis_are_axis_free():
 
 def test_layered_2d_rows_as_layers_through_coarsen():
     # Bear 1972: equal rows as layers -> kx arithmetic, ky harmonic (both bounds exact).
-    rows = np.array([10.0, 1000.0, 0.5, 30.0])
-    k = np.broadcast_to(rows[:, None], (4, 6)).copy()
+    rows = Layers(np.array([10.0, 1000.0, 0.5, 30.0]), np.ones(4))
     for method in ("tubes", "slabs"):
-        coarse = coarsen(Field.from_arrays(k), "6x4", method).coarse
+        coarse = coarsen(Field.from_arrays(rows.rows(6)), "6x4", method).coarse
         assert coarse.kz is None
-        assert coarse.kx[0, 0, 0] == pytest.approx(rows.mean(), rel=1e-14)
-        assert coarse.ky[0, 0, 0] == pytest.approx(4.0 / np.sum(1.0 / rows), rel=1e-14)
+        assert coarse.kx[0, 0, 0] == pytest.approx(rows.along, rel=1e-14)
+        assert coarse.ky[0, 0, 0] == pytest.approx(rows.across, rel=1e-14)
 
 
 def test_docstring_example_and_result_record():

@@ -38,9 +38,10 @@ import dask
 import numpy as np
 import pytest
 import rasterio
-from conftest import UPSCALE_EXE, lognormal, partial_leftovers, snapshot, write_raster
+from conftest import UPSCALE_EXE, partial_leftovers, snapshot, write_raster
 
 import upscale
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.parallel import _run_region_chunk
 
 #: Fine cells of the slow field: big enough that the run on two single-threaded
@@ -57,7 +58,8 @@ DEADLINE = 60
 @pytest.fixture(scope="module")
 def slow_field(tmp_path_factory):
     """The 1024 x 1024 field and its flow upscaling on dask's threaded scheduler."""
-    path = write_raster(tmp_path_factory.mktemp("slow") / "field.tif", lognormal(SIZE, seed=4_711))
+    path = write_raster(tmp_path_factory.mktemp("slow") / "field.tif",
+                        uncorrelated_lognormal(SIZE, seed=4_711))
     with dask.config.set(scheduler="threads"):  # not a cluster: the reference is computed here
         expected = upscale.coarsen(upscale.read_field(path), "8x8", "flow", border=2)
     return path, expected
@@ -130,6 +132,7 @@ def _read(path):
         return src.read()
 
 
+@pytest.mark.slow
 def test_killed_worker_is_replaced_and_the_result_is_unchanged(slow_field, tmp_path):
     from dask.distributed import Client
 
@@ -160,12 +163,13 @@ def test_killed_worker_is_replaced_and_the_result_is_unchanged(slow_field, tmp_p
     assert partial_leftovers(tmp_path) == []
 
 
+@pytest.mark.slow
 def test_workers_lost_too_often_stop_the_run_and_keep_the_previous_result(slow_field, tmp_path):
     from dask.distributed import Client
 
     field, _ = slow_field
     out = tmp_path / "coarse"
-    small = write_raster(tmp_path / "small.tif", lognormal((64, 48), seed=12))
+    small = write_raster(tmp_path / "small.tif", uncorrelated_lognormal((64, 48), seed=12))
     done = subprocess.run([str(UPSCALE_EXE), "run", str(small), "--block", "8x8", "--method", "geometric",
                            "--out", str(out)], capture_output=True, text=True, timeout=DEADLINE)  # fmt: skip
     assert done.returncode == 0, done.stderr

@@ -24,9 +24,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import lognormal, snapshot, write_raster
+from conftest import snapshot, write_raster
 
 from upscale.flow import pressure_drop
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.io.package import read_package
 
 SEED = 2_604_117_835
@@ -36,7 +37,7 @@ NODATA = -9999.0
 @pytest.fixture(scope="module")
 def field(tmp_path_factory) -> Path:
     """A 24 x 36 map with an inactive corner, written once."""
-    k = lognormal((24, 36), SEED)
+    k = uncorrelated_lognormal((24, 36), SEED)
     k[:4, :6] = NODATA
     return write_raster(tmp_path_factory.mktemp("check-package") / "k.tif", k, cell_size=(12.5, 7.5),
                         nodata=NODATA)  # fmt: skip

@@ -39,9 +39,10 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from conftest import UPSCALE_EXE, lognormal, partial_leftovers, snapshot, write_raster
+from conftest import UPSCALE_EXE, partial_leftovers, snapshot, write_raster
 
 from upscale.cli.main import CLOSED_PIPE, main
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 5_502_871_936
 #: Seconds a command may take.
@@ -53,7 +54,7 @@ def folder(tmp_path_factory) -> Path:
     """Two small realizations and a finished run of the first one."""
     folder = tmp_path_factory.mktemp("pipes")
     for r in range(2):
-        write_raster(folder / f"r{r}.tif", lognormal((128, 128), SEED + r))
+        write_raster(folder / f"r{r}.tif", uncorrelated_lognormal((128, 128), SEED + r))
     assert main(["-q", "run", str(folder / "r0.tif"), "--block", "8x8", "--method", "geometric",
                  "--out", str(folder / "finished")]) == 0  # fmt: skip
     return folder
@@ -102,6 +103,7 @@ def test_run_into_a_closed_pipe_leaves_its_folder_complete(folder, tmp_path):
     assert {"kx.tif", "ky.tif", "cells.csv"} <= set(json.loads((out / "summary.json").read_text())["files"])
 
 
+@pytest.mark.slow
 def test_compare_into_a_closed_pipe_leaves_its_folder_complete(folder, tmp_path):
     out = tmp_path / "cmp"
     args = ["compare", folder / "r0.tif", "--block", "16x16", "--methods", "geometric,harmonic",

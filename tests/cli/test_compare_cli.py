@@ -37,9 +37,10 @@ from contextlib import redirect_stderr, redirect_stdout
 
 import numpy as np
 import pytest
-from conftest import lognormal, write_raster
+from conftest import write_raster
 
 from upscale.cli.main import main
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.methods.registry import METHODS
 
 LOGNORMAL = "marrowfen_lognormal.tif"
@@ -143,9 +144,9 @@ def cropped(tmp_path_factory):
     """
     folder = tmp_path_factory.mktemp("cropped")
     try:
-        field = write_raster(folder / ODD_NAME, lognormal((50, 50), seed=7))
+        field = write_raster(folder / ODD_NAME, uncorrelated_lognormal((50, 50), seed=7))
     except OSError:  # pragma: no cover - a file system that refuses these characters
-        field = write_raster(folder / "field.tif", lognormal((50, 50), seed=7))
+        field = write_raster(folder / "field.tif", uncorrelated_lognormal((50, 50), seed=7))
     out = folder / "cmp"
     code, stdout, stderr = _run("-v", "compare", field, "--block", "12x12", "--remainder", "crop",
                                 "--methods", ",".join(CROPPED_METHODS), "--out", out)  # fmt: skip
@@ -212,7 +213,7 @@ def test_progress_lines_on_stderr_per_method(cropped):
 
 
 def test_unknown_method_is_a_one_line_error_listing_the_valid_ones(run_cli, write_tif, tmp_path):
-    field = write_tif("field.tif", lognormal((16, 16), seed=1))
+    field = write_tif("field.tif", uncorrelated_lognormal((16, 16), seed=1))
     out = tmp_path / "cmp"
     code, stdout, err = run_cli("compare", field, "--block", "8x8", "--methods", "geometric,bogus",
                                 "--out", out)  # fmt: skip
@@ -224,7 +225,7 @@ def test_unknown_method_is_a_one_line_error_listing_the_valid_ones(run_cli, writ
 
 
 def test_field_over_the_check_limit_is_refused_clearly(run_cli, write_tif, tmp_path):
-    field = write_tif("field.tif", lognormal((16, 16), seed=1))
+    field = write_tif("field.tif", uncorrelated_lognormal((16, 16), seed=1))
     out = tmp_path / "cmp"
     code, stdout, err = run_cli("compare", field, "--block", "8x8", "--methods", "geometric",
                                 "--check-limit", "100", "--out", out)  # fmt: skip
@@ -237,7 +238,7 @@ def test_field_over_the_check_limit_is_refused_clearly(run_cli, write_tif, tmp_p
 
 
 def test_run_plot_without_check_is_a_one_line_error(run_cli, write_tif, tmp_path):
-    field = write_tif("field.tif", lognormal((16, 16), seed=1))
+    field = write_tif("field.tif", uncorrelated_lognormal((16, 16), seed=1))
     out = tmp_path / "run"
     for flags in (["--plot"], ["--report"], ["--plot", "--report"]):
         code, stdout, err = run_cli("run", field, "--block", "8x8", "--method", "geometric", *flags,
@@ -248,7 +249,7 @@ def test_run_plot_without_check_is_a_one_line_error(run_cli, write_tif, tmp_path
 
 
 def test_layer_beyond_the_model_is_refused(run_cli, write_tif, tmp_path):
-    field = write_tif("model.tif", lognormal((4, 16, 16), seed=2))
+    field = write_tif("model.tif", uncorrelated_lognormal((4, 16, 16), seed=2))
     for command in (["run", "--method", "geometric", "--plot"], ["compare", "--methods", "geometric"]):
         out = tmp_path / command[0]
         code, stdout, err = run_cli(command[0], field, "--dz", "1", "--block", "8x8x2", *command[1:],
@@ -281,7 +282,8 @@ def test_file_names_are_escaped_in_the_report(cropped):
 
 
 def test_run_plot_report_on_a_3d_model_writes_figures_and_page(run_cli, write_tif, tmp_path):
-    values = np.concatenate([lognormal((2, 32, 32), seed=s, mean_ln=m) for s, m in ((4, 2.0), (5, 5.0))])
+    values = np.concatenate([uncorrelated_lognormal((2, 32, 32), seed=s, mean_ln=m)
+                             for s, m in ((4, 2.0), (5, 5.0))])
     field = write_tif("model.tif", values)
     out = tmp_path / "run"
     code, stdout, err = run_cli("run", field, "--dz", "2", "--block", "8x8x2", "--method", "geometric",
@@ -312,7 +314,7 @@ def test_run_plot_report_on_a_3d_model_writes_figures_and_page(run_cli, write_ti
 
 
 def test_run_without_plot_or_report_writes_no_figures(run_cli, write_tif, tmp_path):
-    field = write_tif("field.tif", lognormal((16, 16), seed=1))
+    field = write_tif("field.tif", uncorrelated_lognormal((16, 16), seed=1))
     out = tmp_path / "run"
     code, _, err = run_cli("-q", "run", field, "--block", "8x8", "--method", "geometric", "--out", out)
     assert (code, err) == (0, "")

@@ -29,9 +29,10 @@ import numpy as np
 import pytest
 import rasterio
 from affine import Affine
-from conftest import ORIGIN, UPSCALE_EXE, lognormal, north_up, partial_leftovers, snapshot, write_raster
+from conftest import ORIGIN, UPSCALE_EXE, north_up, partial_leftovers, snapshot, write_raster
 
 import upscale
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 8_830_194_657
 SHAPE = (32, 48)
@@ -41,7 +42,7 @@ SHAPE = (32, 48)
 def inputs(tmp_path_factory) -> SimpleNamespace:
     """Every input of the battery, written once for the module."""
     folder = tmp_path_factory.mktemp("bad-inputs")
-    k = lognormal(SHAPE, SEED)
+    k = uncorrelated_lognormal(SHAPE, SEED)
 
     def tif(name, values, **kwargs):
         return write_raster(folder / name, values, **kwargs)
@@ -54,7 +55,7 @@ def inputs(tmp_path_factory) -> SimpleNamespace:
     porosity_big = np.full(SHAPE, 0.2)
     porosity_big[2, 3] = 1.5
     good = tif("good.tif", k)
-    full = tif("model_full.tif", lognormal((3, *SHAPE), SEED + 1))
+    full = tif("model_full.tif", uncorrelated_lognormal((3, *SHAPE), SEED + 1))
     garbage = folder / "garbage.tif"
     garbage.write_bytes(np.random.default_rng(SEED + 2).bytes(4096))
     truncated = folder / "truncated.tif"
@@ -70,7 +71,7 @@ def inputs(tmp_path_factory) -> SimpleNamespace:
     plus_inf[6, 11] = np.inf
     minus_inf = k.copy()
     minus_inf[7, 12] = -np.inf
-    kz = lognormal((3, *SHAPE), SEED + 3)
+    kz = uncorrelated_lognormal((3, *SHAPE), SEED + 3)
     notes = folder / "notes.txt"
     notes.write_text("kx in mD, see the report\n")
     empty_file = folder / "empty_file.tif"
@@ -699,7 +700,7 @@ def test_geographic_raster_runs_with_cell_size_in_metres(run_cli, inputs, tmp_pa
 
 
 def test_nan_and_nodata_cells_are_inactive_not_errors(run_cli, write_tif, tmp_path):
-    k = lognormal(SHAPE, SEED + 5)
+    k = uncorrelated_lognormal(SHAPE, SEED + 5)
     k[0, 0], k[1, 2] = np.nan, -9999.0
     k[8:16, 8:16] = -9999.0  # a whole block without an active cell
     field_path = write_tif("holes.tif", k, nodata=-9999.0)

@@ -24,10 +24,11 @@ from __future__ import annotations
 import subprocess
 
 import pytest
-from conftest import UPSCALE_EXE, lognormal, write_raster
+from conftest import UPSCALE_EXE, write_raster
 
 from upscale.cli.main import main
 from upscale.errors import UpscaleError
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 3_318_409_752
 SHAPE = (32, 32)
@@ -36,7 +37,7 @@ GLOBAL = ("-v, --verbose", "-q, --quiet", "--debug")
 
 @pytest.fixture(scope="module")
 def field(tmp_path_factory):
-    return write_raster(tmp_path_factory.mktemp("global") / "field.tif", lognormal(SHAPE, SEED))
+    return write_raster(tmp_path_factory.mktemp("global") / "field.tif", uncorrelated_lognormal(SHAPE, SEED))
 
 
 @pytest.fixture(scope="module")
@@ -69,6 +70,7 @@ def test_help_lists_the_global_options(run_cli, command):
         assert option in stdout, (command, option)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("command", COMMANDS)
 def test_quiet_after_the_command_is_quiet_before_it(run_cli, field, finished, tmp_path, command):
     before = run_cli("-q", *_commands(field, finished, tmp_path / "before")[command])

@@ -14,7 +14,9 @@ import math
 
 import numpy as np
 import pytest
-from conftest import lognormal, read_raster
+from conftest import read_raster
+
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 6_042_917_385
 SHAPE = (32, 48)
@@ -23,7 +25,7 @@ SHAPE = (32, 48)
 @pytest.fixture
 def map_path(write_tif):
     """A 2D map with nodata and NaN cells, cells of 12.5 m by 7.5 m."""
-    k = lognormal(SHAPE, SEED)
+    k = uncorrelated_lognormal(SHAPE, SEED)
     k[:3, :10] = -9999.0
     k[20, 5] = np.nan
     return write_tif("map.tif", k, cell_size=(12.5, 7.5), nodata=-9999.0)
@@ -98,7 +100,7 @@ def test_json_of_a_3d_demo_model_matches_numpy(run_cli, demo_dir):
 
 
 def test_per_layer_dz_and_unit_are_shown(run_cli, write_tif):
-    path = write_tif("model.tif", lognormal((4, *SHAPE), SEED + 1))
+    path = write_tif("model.tif", uncorrelated_lognormal((4, *SHAPE), SEED + 1))
     code, stdout, err = run_cli("info", path, "--dz", "1,2,3,4", "--unit", "D")
     assert (code, err) == (0, "")
     assert "grid         48 x 32 x 4 cells (3D model)" in stdout
@@ -123,7 +125,7 @@ def test_all_inactive_field_is_described_without_invalid_json(run_cli, write_tif
 
 
 def test_problem_values_are_counted_in_json(run_cli, write_tif):
-    k = lognormal(SHAPE, SEED + 2)
+    k = uncorrelated_lognormal(SHAPE, SEED + 2)
     k[1, 2] = k[3, 4] = 0.0
     k[5, 6] = -3.0
     description = _info_json(run_cli, write_tif("bad.tif", k))
@@ -134,7 +136,7 @@ def test_problem_values_are_counted_in_json(run_cli, write_tif):
 
 
 def _problem_field(write_tif, bad):
-    k = lognormal(SHAPE, SEED + 3)
+    k = uncorrelated_lognormal(SHAPE, SEED + 3)
     k[7, 8] = bad
     return write_tif("bad.tif", k)
 
@@ -153,7 +155,7 @@ def test_text_description_of_a_field_with_a_zero_value(run_cli, write_tif):
 
 @pytest.mark.filterwarnings("ignore::rasterio.errors.NotGeoreferencedWarning")
 def test_raster_without_georeference_with_cell_size(run_cli, write_tif):
-    path = write_tif("plain.tif", lognormal(SHAPE, SEED + 4), georeferenced=False)
+    path = write_tif("plain.tif", uncorrelated_lognormal(SHAPE, SEED + 4), georeferenced=False)
     code, stdout, _ = run_cli("info", path, "--cell-size", "5x4")
     assert code == 0
     assert "cell size    dx 5 m, dy 4 m" in stdout
@@ -161,7 +163,7 @@ def test_raster_without_georeference_with_cell_size(run_cli, write_tif):
 
 
 def test_raster_without_georeference_gives_a_clean_stderr(run_cli, write_tif):
-    path = write_tif("plain.tif", lognormal(SHAPE, SEED + 4), georeferenced=False)
+    path = write_tif("plain.tif", uncorrelated_lognormal(SHAPE, SEED + 4), georeferenced=False)
     code, stdout, err = run_cli("info", path, "--cell-size", "5")
     assert (code, err) == (0, "")
     assert "CRS          none" in stdout
@@ -181,7 +183,7 @@ def _cells(firsts):
 @pytest.fixture(params=[np.float64, np.float32])
 def marked(request, write_tif):
     """A map without a nodata tag: 60 cells of -9999, 7 of 1e30, 2 zeros, 1 other negative value."""
-    k = lognormal(SHAPE, SEED + 6)
+    k = uncorrelated_lognormal(SHAPE, SEED + 6)
     k[2:5, 10:30] = -9999.0
     k[31, 40:47] = 1e30
     k[6, 3] = k[9, 1] = 0.0
@@ -234,7 +236,7 @@ def test_the_suggested_nodata_makes_the_sentinel_cells_inactive(run_cli, marked)
 @pytest.mark.parametrize("value", [-999.0, -99999.0, 9999.0, -1e30, 3.4e38, -3.4e38,
                                    float(np.finfo(np.float32).max)])  # fmt: skip
 def test_every_sentinel_of_the_list_is_flagged_in_a_float32_raster(run_cli, write_tif, value):
-    k = lognormal(SHAPE, SEED + 7).astype(np.float32)
+    k = uncorrelated_lognormal(SHAPE, SEED + 7).astype(np.float32)
     k[20:22, 30:35] = value
     description = _info_json(run_cli, write_tif("one.tif", k))
     (found,) = description["suspect_values"]
@@ -244,7 +246,7 @@ def test_every_sentinel_of_the_list_is_flagged_in_a_float32_raster(run_cli, writ
 
 
 def test_a_clean_field_shows_no_flag(run_cli, write_tif):
-    k = lognormal(SHAPE, SEED + 8)
+    k = uncorrelated_lognormal(SHAPE, SEED + 8)
     k[0, :4] = [9998.0, 9999.5, 12_000.0, 2.5e30]  # large, but no sentinel
     path = write_tif("clean.tif", k)
     code, stdout, err = run_cli("info", path)

@@ -86,6 +86,7 @@ def test_run_with_porosity_writes_porosity(run_cli, demo_dir, tmp_path):
     assert "porosity" in stdout
 
 
+@pytest.mark.slow
 def test_run_3d_model_writes_kz_with_one_band_per_coarse_layer(run_cli, demo_dir, tmp_path):
     out = tmp_path / "coarse"
     code, stdout, err = run_cli(
@@ -180,6 +181,7 @@ def test_verbose_run_tells_every_step_and_quiet_silences_them(run_cli, demo_dir,
     assert run_cli("-q", "-v", *args, "--out", tmp_path / "q")[1:] == ("", "")
 
 
+@pytest.mark.slow
 def test_chunk_option_does_not_change_the_result(run_cli, demo_dir, tmp_path):
     results = []
     for chunk in ("64MB", "20kB"):

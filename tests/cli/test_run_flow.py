@@ -102,6 +102,7 @@ def test_flow_transmissibility_faces_written_used_and_read_back(run_cli, demo_di
         assert again[axis]["k_coarse"] == pytest.approx(k, rel=1e-12)
 
 
+@pytest.mark.slow
 def test_renormalization_3d(run_cli, demo_dir, tmp_path):
     out = tmp_path / "renorm"
     code, _, err = run_cli("run", demo_dir / "marrowfen_3d.tif", "--dz", "2", "--block", "8x8x4",

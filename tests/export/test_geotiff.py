@@ -18,11 +18,12 @@ import numpy as np
 import pytest
 import rasterio
 from affine import Affine
-from conftest import lognormal, north_up, write_raster
+from conftest import north_up, write_raster
 
 import upscale
 from upscale.errors import OutputExistsError
 from upscale.export.package import PACKAGE_FILES
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.grid import BlockSpec
 
 
@@ -48,7 +49,7 @@ def _strict_json(text: str):
 @pytest.fixture
 def map_inputs(tmp_path):
     """A 2D map with an inactive corner block (nodata) and its porosity, non-square cells."""
-    k = lognormal(SHAPE, SEED)
+    k = uncorrelated_lognormal(SHAPE, SEED)
     k[:4, :8] = -9999.0  # exactly coarse block (0, 0, 0) of 8x4 blocks
     k[10, 20] = np.nan
     por = np.clip(0.2 + 0.02 * np.log(np.where(k > 0, k, 1.0)), 0.05, 0.35)
@@ -60,7 +61,7 @@ def map_inputs(tmp_path):
 @pytest.fixture
 def model_inputs(tmp_path):
     """A 4-layer 3D model with its own ky and kz rasters."""
-    k = lognormal((4, *SHAPE), SEED + 1)
+    k = uncorrelated_lognormal((4, *SHAPE), SEED + 1)
     paths = {}
     for name, factor in (("kx", 1.0), ("ky", 0.7), ("kz", 0.05)):
         paths[name] = write_raster(tmp_path / f"{name}_in.tif", k * factor, cell_size=10.0)
@@ -240,7 +241,7 @@ def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_in
 
 def test_summary_is_valid_json_when_a_statistic_is_undefined(tmp_path):
     # porosity 0 everywhere: its geometric mean and log std are undefined (NaN in Python)
-    k = lognormal((1, 16, 16), SEED + 2)
+    k = uncorrelated_lognormal((1, 16, 16), SEED + 2)
     kx = write_raster(tmp_path / "k.tif", k, cell_size=10.0)
     por = write_raster(tmp_path / "p.tif", np.zeros((16, 16)), cell_size=10.0)
     result = upscale.coarsen(upscale.read_field(kx, porosity=por), "8x8", "arithmetic")

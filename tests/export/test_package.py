@@ -49,7 +49,7 @@ import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 import pytest
 import rasterio
-from conftest import lognormal, read_raster, read_vtr, write_raster
+from conftest import read_raster, read_vtr, write_raster
 from rasterio.crs import CRS
 from scipy import sparse
 from scipy.sparse.csgraph import connected_components
@@ -58,6 +58,7 @@ from scipy.sparse.linalg import spsolve
 import upscale
 from upscale.cli.main import main
 from upscale.flow import pressure_drop
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.io.package import read_package
 
 SEED = 4_170_332_981
@@ -95,14 +96,14 @@ def _block_mask(shape, bi, bj, block):
 def inputs(tmp_path_factory) -> SimpleNamespace:
     """The 2D map and the 3D model, each with porosity, written once for the module."""
     folder = tmp_path_factory.mktemp("package-inputs")
-    k2 = lognormal((24, 36), SEED)
+    k2 = uncorrelated_lognormal((24, 36), SEED)
     k2[_block_mask(k2.shape, 0, 0, MAP_BLOCK)] = NODATA  # a whole inactive corner block
     i, j = WALLED
     for bi, bj in ((i - 1, j), (i + 1, j), (i, j - 1), (i, j + 1)):
         k2[_block_mask(k2.shape, bi, bj, MAP_BLOCK)] = NODATA
     k2[13, 8] = NODATA  # one inactive fine cell inside an active block
     por2 = np.clip(0.2 + 0.02 * np.log(np.abs(k2)), 0.05, 0.35)
-    k3 = lognormal((4, 16, 24), SEED + 1)
+    k3 = uncorrelated_lognormal((4, 16, 24), SEED + 1)
     k3[:, :4, :4] = NODATA  # a column of inactive blocks
     k3[1, 9, 13] = NODATA
     por3 = np.clip(0.15 + 0.02 * np.log(np.abs(k3)), 0.05, 0.3)

@@ -65,6 +65,7 @@ import pytest
 from upscale import BlockSpec, Field, check_flow, coarsen
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.solvers import ConvergenceError
+from upscale.gallery.problems import Layers, checkerboard
 from upscale.methods.registry import METHODS
 
 N = np.nan
@@ -78,14 +79,13 @@ def _alternating(n, contrast):
 
 
 def _layers(contrast, n=32):
-    """Rows as layers (layers along x, across y), 10 m cells."""
-    row = _alternating(n, contrast)
-    return np.broadcast_to(row[:, None], (n, n)).copy(), row
+    """Rows as layers (layers along x, across y), and the layers with their exact k_eff."""
+    layers = Layers(_alternating(n, contrast), np.ones(n))
+    return layers.rows(n), layers
 
 
 def _checkerboard(n, contrast):
-    hi, lo = np.sqrt(contrast), 1.0 / np.sqrt(contrast)
-    return np.where((np.arange(n)[:, None] + np.arange(n)[None, :]) % 2 == 0, hi, lo)
+    return checkerboard(n, np.sqrt(contrast), 1.0 / np.sqrt(contrast))
 
 
 def _one_line_error(code, out, err):
@@ -112,18 +112,18 @@ def test_alternating_layers_at_high_contrast(contrast, solver):
     # Bear 1972, Dynamics of Fluids in Porous Media: flow along layers sees the (thickness-
     # weighted) arithmetic mean, flow across them the harmonic mean; the two-point scheme
     # is exact for layers, so what is left is the solver and float64.
-    k, row = _layers(contrast)
+    k, layers = _layers(contrast)
     field = Field.from_arrays(k, cell_size=(10.0, 10.0))
-    along, across = row.mean(), 1.0 / np.mean(1.0 / row)
+    along, across = layers.along, layers.across
     tol_k, tol_balance, tol_flow = LAYER_TOLERANCE[contrast]
     harmonic = coarsen(field, "4x4", "harmonic")
     arithmetic = coarsen(field, "4x4", "arithmetic")
     # the coarse blocks: exact closed forms of 4 layers
-    block_across = 1.0 / np.mean(1.0 / row[:4])
+    block_across = 1.0 / np.mean(1.0 / layers.k[:4])
     np.testing.assert_allclose(harmonic.coarse.ky, block_across, rtol=1e-14)
-    np.testing.assert_allclose(arithmetic.coarse.kx, row[:4].mean(), rtol=1e-14)
+    np.testing.assert_allclose(arithmetic.coarse.kx, layers.k[:4].mean(), rtol=1e-14)
     flow = coarsen(field, "4x4", "flow")
-    np.testing.assert_allclose(flow.coarse.kx, row[:4].mean(), rtol=1e-14)
+    np.testing.assert_allclose(flow.coarse.kx, layers.k[:4].mean(), rtol=1e-14)
     np.testing.assert_allclose(flow.coarse.ky, block_across, rtol=tol_flow)
     try:
         checks = check_flow(field, harmonic.coarse, solver=solver)
@@ -155,7 +155,7 @@ def test_alternating_layers_at_1e12_fail_loudly_or_hold(write_tif, run_cli, tmp_
     # exit 0. Cause: the diagonal of each permeable cell (2e6) holds its share of the tight
     # faces (4e-6) to 1e-4 only, so each permeable row leaks ~1e-9 per cell. Iterative
     # refinement on the face-flux residual brings the outflow to 8e-9 (see the report).
-    k, row = _layers(1e12, n=64)
+    k, layers = _layers(1e12, n=64)
     path = write_tif("layers_1e12.tif", k)
     out = tmp_path / "out"
     code, _, err = run_cli("run", path, "--block", "4x4", "--method", "harmonic", "--solver", "direct",
@@ -167,7 +167,7 @@ def test_alternating_layers_at_1e12_fail_loudly_or_hold(write_tif, run_cli, tmp_
     check = json.loads((out / "summary.json").read_text())["check"]["y"]
     # (the mass balance itself is limited by the inflow t (1 - p) at permeable inlet cells,
     # p within 1e-12 of 1, whatever the solve: it is not asserted here)
-    assert check["k_fine"] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-6)
+    assert check["k_fine"] == pytest.approx(layers.across, rel=1e-6)
 
 
 @pytest.mark.parametrize("contrast", [1e8, 1e10, 1e12, 1e14])
@@ -177,10 +177,10 @@ def test_flow_blocks_across_layers_are_exact(contrast, bc):
     # (Bear 1972, Dynamics of Fluids in Porous Media, §5.10). Before the local solves were
     # refined against the face-flux residual, sealed blocks across the layers were off by
     # -7.0e-9 (1e8), -2.0e-7 (1e10), 4.6e-6 (1e12) and -6.5e-3 (1e14), silently.
-    k, row = _layers(contrast, n=8)
+    k, layers = _layers(contrast, n=8)
     flow = coarsen(Field.from_arrays(k), "8x8", "flow", bc=bc).coarse
-    assert flow.ky[0, 0, 0] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-13)
-    assert flow.kx[0, 0, 0] == pytest.approx(np.mean(row), rel=1e-13)
+    assert flow.ky[0, 0, 0] == pytest.approx(layers.across, rel=1e-13)
+    assert flow.kx[0, 0, 0] == pytest.approx(layers.along, rel=1e-13)
 
 
 # --------------------------------------------------------------------------------------
@@ -432,7 +432,7 @@ def test_unreachable_tolerance_stops_the_run(write_tif, run_cli, tmp_path):
 
 def test_the_same_field_passes_with_the_direct_solver(write_tif, run_cli, tmp_path):
     # the way out the message suggests works, and records the solve
-    k, row = _layers(1e10, n=64)
+    k, layers = _layers(1e10, n=64)
     path = write_tif("layers.tif", k)
     out = tmp_path / "out"
     code, stdout, err = run_cli("run", path, "--block", "4x4", "--method", "flow", "--solver", "direct",
@@ -442,8 +442,8 @@ def test_the_same_field_passes_with_the_direct_solver(write_tif, run_cli, tmp_pa
     for axis in "xy":
         solve = check[axis]["fine"]
         assert solve["solver"] == "direct" and solve["iterations"] == 0 and solve["residual"] <= 1e-15
-    assert check["x"]["k_fine"] == pytest.approx(row.mean(), rel=1e-12)
-    assert check["y"]["k_fine"] == pytest.approx(1.0 / np.mean(1.0 / row), rel=1e-3)  # measured 1.9e-4
+    assert check["x"]["k_fine"] == pytest.approx(layers.along, rel=1e-12)
+    assert check["y"]["k_fine"] == pytest.approx(layers.across, rel=1e-3)  # measured 1.9e-4
 
 
 def test_multigrid_iterations_are_recorded(write_tif, run_cli, tmp_path):

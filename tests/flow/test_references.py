@@ -32,6 +32,12 @@ import pytest
 from upscale.field import Field, Grid
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.gallery.fields import lognormal_field
+from upscale.gallery.problems import (
+    checkerboard,
+    checkerboard_k_eff,
+    lognormal_k_eff,
+    random_layers,
+)
 
 
 def _map(k, dy, dx):
@@ -56,50 +62,45 @@ ROW_SEED = 918_273_645
 
 
 def _rows_as_layers(rows, columns):
-    rng = np.random.default_rng(ROW_SEED)
-    dy = rng.uniform(0.2, 3.0, rows)
-    k_row = np.exp(rng.normal(0.0, 2.0, rows))
-    dx = np.full(columns, 2.0)
-    return _map(np.broadcast_to(k_row[:, None], (rows, columns)), dy, dx), dy, k_row
+    """Rows of random heights as layers (`upscale.gallery.problems.random_layers`), 2 m columns."""
+    layers = random_layers(rows, seed=ROW_SEED, thickness=(0.2, 3.0))
+    return _map(layers.rows(columns), layers.thickness, np.full(columns, 2.0)), layers
 
 
 @pytest.mark.parametrize("solver, tolerance", [("direct", 1e-10), ("amg", 1e-12)])
 def test_layered_2d_rows_with_unequal_heights(solver, tolerance):
-    field, dy, k_row = _rows_as_layers(37, 50)
+    field, layers = _rows_as_layers(37, 50)
     trans = transmissibilities(field)
     along = pressure_drop(trans, "x", solver=solver, tolerance=tolerance)
     across = pressure_drop(trans, "y", solver=solver, tolerance=tolerance)
     # Bear 1972, Dynamics of Fluids in Porous Media: thickness-weighted arithmetic mean
     # along layers, weighted harmonic mean across; the two-point scheme is exact here
-    assert along.k_eff == pytest.approx(np.sum(k_row * dy) / dy.sum(), rel=1e-10)
-    assert across.k_eff == pytest.approx(dy.sum() / np.sum(dy / k_row), rel=1e-10)
+    assert along.k_eff == pytest.approx(layers.along, rel=1e-10)
+    assert across.k_eff == pytest.approx(layers.across, rel=1e-10)
     assert along.method == across.method == solver
     assert along.mass_balance < 1e-8 and across.mass_balance < 1e-8
 
 
 def test_layered_2d_auto_chooses_amg_above_the_direct_limit():
-    field, dy, k_row = _rows_as_layers(101, 200)  # 20 200 unknowns > 20 000
+    field, layers = _rows_as_layers(101, 200)  # 20 200 unknowns > 20 000
     trans = transmissibilities(field)
     along = pressure_drop(trans, "x", tolerance=1e-12)
     across = pressure_drop(trans, "y", tolerance=1e-12)
     assert along.method == across.method == "amg" and along.unknowns == 20_200
     assert along.iterations > 0
     # Bear 1972, Dynamics of Fluids in Porous Media (layers: arithmetic along, harmonic across)
-    assert along.k_eff == pytest.approx(np.sum(k_row * dy) / dy.sum(), rel=1e-10)
-    assert across.k_eff == pytest.approx(dy.sum() / np.sum(dy / k_row), rel=1e-10)
+    assert along.k_eff == pytest.approx(layers.along, rel=1e-10)
+    assert across.k_eff == pytest.approx(layers.across, rel=1e-10)
 
 
 @pytest.mark.parametrize("solver, tolerance", [("direct", 1e-10), ("amg", 1e-12)])
 def test_layered_3d_unequal_thickness_anisotropic(solver, tolerance):
-    rng = np.random.default_rng(552_019_377)
-    L, M, N = 7, 9, 11
-    dz = rng.uniform(0.3, 4.0, L)
-    k_layer = np.exp(rng.normal(1.0, 1.5, L))
-    kx = np.broadcast_to(k_layer[:, None, None], (L, M, N)).copy()
-    field = Field.from_arrays(kx, ky=2.0 * kx, kz=kx / 7.0, dz=dz, cell_size=(3.0, 5.0))
+    layers = random_layers(7, seed=552_019_377, mean_ln=1.0, sigma_ln=1.5, thickness=(0.3, 4.0))
+    kx = layers.stack(9, 11)
+    field = Field.from_arrays(kx, ky=2.0 * kx, kz=kx / 7.0, dz=layers.thickness, cell_size=(3.0, 5.0))
     trans = transmissibilities(field)
-    arithmetic = np.sum(k_layer * dz) / dz.sum()
-    harmonic = dz.sum() / np.sum(dz / (k_layer / 7.0))
+    arithmetic = layers.along
+    harmonic = layers.across / 7.0
     # Bear 1972, Dynamics of Fluids in Porous Media: weighted arithmetic along, harmonic across
     for axis, expected in (("x", arithmetic), ("y", 2.0 * arithmetic), ("z", harmonic)):
         flow = pressure_drop(trans, axis, solver=solver, tolerance=tolerance)
@@ -109,13 +110,11 @@ def test_layered_3d_unequal_thickness_anisotropic(solver, tolerance):
 
 
 def test_columns_of_unequal_width_in_series():
-    rng = np.random.default_rng(664_301_853)
-    dx = rng.uniform(0.1, 5.0, 23)
-    k_col = np.exp(rng.normal(0.0, 2.5, 23))
-    field = _map(np.broadcast_to(k_col, (6, 23)), np.full(6, 1.5), dx)
+    columns = random_layers(23, seed=664_301_853, sigma_ln=2.5, thickness=(0.1, 5.0))
+    field = _map(columns.rows(6).T, np.full(6, 1.5), columns.thickness)
     # Bear 1972, Dynamics of Fluids in Porous Media: width-weighted harmonic mean in series
-    assert _flow(field, "x").k_eff == pytest.approx(dx.sum() / np.sum(dx / k_col), rel=1e-10)
-    assert _flow(field, "y").k_eff == pytest.approx(np.sum(k_col * dx) / dx.sum(), rel=1e-10)
+    assert _flow(field, "x").k_eff == pytest.approx(columns.across, rel=1e-10)
+    assert _flow(field, "y").k_eff == pytest.approx(columns.along, rel=1e-10)
 
 
 # --------------------------------------------------------------------------------------
@@ -143,7 +142,7 @@ def test_lognormal_2d_tends_to_the_geometric_mean():
     for seed in LOGNORMAL_2D_SEEDS:
         k = lognormal_field((256, 256), (8.0, 8.0), geometric_mean=50.0, sigma_ln=1.0, seed=seed)
         assert 0.9 < np.log(k).std() < 1.1
-        k_g = _sample_geometric_mean(k)
+        k_g = lognormal_k_eff(_sample_geometric_mean(k), np.log(k).std(), 2)  # k_G itself in 2D
         trans = transmissibilities(Field.from_arrays(k, cell_size=(5.0, 5.0)))
         for axis in ("x", "y"):
             flow = pressure_drop(trans, axis)
@@ -162,11 +161,6 @@ K1, K2 = 2.0, 10.0  # contrast 5
 SQUARES = 16  # squares per side: an even number, so the board is symmetric (see below)
 
 
-def _checkerboard(cells_per_square):
-    i = np.arange(SQUARES * cells_per_square) // cells_per_square
-    return np.where((i[:, None] + i[None, :]) % 2 == 0, K1, K2)
-
-
 def test_checkerboard_converges_to_the_square_root():
     # Dykhne 1970, Conductivity of a two-dimensional two-phase system; Keller 1964, A theorem
     # on the conductivity of a composite medium: a 2D checkerboard has k_eff = √(k1 k2).
@@ -177,10 +171,10 @@ def test_checkerboard_converges_to_the_square_root():
     # the original, while the transpose gives kx = ky (our derivation from Keller 1964).
     # What remains is the discretisation error: the two-point scheme resolves the flow
     # around the squares' corners poorly and converges slowly, from below.
-    exact = np.sqrt(K1 * K2)
+    exact = checkerboard_k_eff(K1, K2)
     errors = {}
     for n in (2, 4, 8, 16):
-        trans = transmissibilities(Field.from_arrays(_checkerboard(n)))
+        trans = transmissibilities(Field.from_arrays(checkerboard(SQUARES, K1, K2, cells_per_square=n)))
         fx = pressure_drop(trans, "x", solver="direct")
         fy = pressure_drop(trans, "y", solver="direct")
         assert fx.k_eff == pytest.approx(fy.k_eff, rel=1e-12)  # the board's symmetry
@@ -217,7 +211,7 @@ def test_lognormal_3d_landau_lifshitz_matheron():
     log_k = np.log(k)
     sigma = log_k.std()
     assert 0.9 < sigma < 1.1
-    expected = np.exp(log_k.mean()) * np.exp(sigma**2 / 6)
+    expected = lognormal_k_eff(np.exp(log_k.mean()), sigma, 3)
     trans = transmissibilities(Field.from_arrays(k, dz=1.0))
     ratios = []
     for axis in ("x", "y", "z"):

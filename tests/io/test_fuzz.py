@@ -79,7 +79,9 @@ from typing import Any
 import numpy as np
 import pytest
 import rasterio
-from conftest import PROJECTED, lognormal, north_up, partial_leftovers, read_raster
+from conftest import PROJECTED, north_up, partial_leftovers, read_raster
+
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 5_204_117_963
 #: Mutated files made from the valid ones (about 0.05 s each for ``run`` + ``info``).
@@ -119,7 +121,7 @@ HUGE_TILES = (0, 65_535, 1 << 20, 1 << 24, (1 << 31) - 1, (1 << 32) - 1)
 
 def _values(shape: tuple[int, ...], dtype: str, seed: int) -> np.ndarray:
     """Lognormal values, every 7th cell and the top-left 2 x 2 cells of each band nodata, as `dtype`."""
-    k = lognormal(shape, seed)
+    k = uncorrelated_lognormal(shape, seed)
     nodata = NODATA_FLOAT if dtype == "float32" else NODATA_INT
     if dtype == "int16":
         k = np.clip(np.rint(k), 1, 30_000)

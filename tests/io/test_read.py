@@ -17,10 +17,11 @@ import numpy as np
 import pytest
 import rasterio
 from affine import Affine
-from conftest import ORIGIN, lognormal, north_up, read_raster, write_raster
+from conftest import ORIGIN, north_up, read_raster, write_raster
 
 import upscale
 from upscale.errors import InputError
+from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 7_301_552_918
 SHAPE = (32, 48)
@@ -29,13 +30,13 @@ SHAPE = (32, 48)
 @pytest.fixture
 def k2d() -> np.ndarray:
     """Fine 2D permeabilities (mD), shape (M, N)."""
-    return lognormal(SHAPE, SEED)
+    return uncorrelated_lognormal(SHAPE, SEED)
 
 
 @pytest.fixture
 def k3d() -> np.ndarray:
     """Fine 3D permeabilities (mD), shape (L, M, N); layer l is offset so layers differ."""
-    k = lognormal((3, *SHAPE), SEED + 11)
+    k = uncorrelated_lognormal((3, *SHAPE), SEED + 11)
     return k * np.array([1.0, 10.0, 100.0])[:, None, None]
 
 

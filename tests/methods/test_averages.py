@@ -27,6 +27,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from skimage.measure import block_reduce
 
+from upscale.gallery.problems import Layers, uncorrelated_lognormal
 from upscale.methods import _kernels as kern
 from upscale.methods.averages import (
     active_volume,
@@ -102,8 +103,7 @@ def gm(v, w):
 
 def random_field(seed, shape, sigma=1.5, nan_fraction=0.15, dtype=np.float64):
     rng = np.random.default_rng(seed)
-    k = np.exp(rng.normal(2.0, sigma, shape))
-    k[rng.random(shape) < nan_fraction] = np.nan
+    k = uncorrelated_lognormal(shape, rng, mean_ln=2.0, sigma_ln=sigma, inactive=nan_fraction)
     dz = rng.uniform(0.2, 5.0, shape[0])
     return k.astype(dtype), dz
 
@@ -300,19 +300,15 @@ def test_harmonic_mean_with_a_zero_cell_is_zero():
 # --------------------------------------------------------------------------------------
 
 
-def layered_3d():
-    dz = np.array([0.5, 2.0, 1.0, 3.5])
-    layer_k = np.array([120.0, 3.0, 45.0, 0.8])
-    k = np.broadcast_to(layer_k[:, None, None], (4, 3, 5)).copy()
-    return k, dz, layer_k
+#: Four layers of unequal thickness (m) and their permeabilities.
+LAYERS = Layers(np.array([120.0, 3.0, 45.0, 0.8]), np.array([0.5, 2.0, 1.0, 3.5]))
 
 
 def test_layered_3d_unequal_thickness_arithmetic_along_harmonic_across():
     # Bear 1972, Dynamics of Fluids in Porous Media: flow parallel to layers ->
     # thickness-weighted arithmetic mean; flow normal to layers -> weighted harmonic.
-    k, dz, layer_k = layered_3d()
-    along = np.sum(dz * layer_k) / dz.sum()
-    across = dz.sum() / np.sum(dz / layer_k)
+    k, dz, layer_k = LAYERS.stack(3, 5), LAYERS.thickness, LAYERS.k
+    along, across = LAYERS.along, LAYERS.across
     assert along == pytest.approx((60.0 + 6.0 + 45.0 + 2.8) / 7.0, rel=1e-15)
     block = (4, 3, 5)
     np.testing.assert_allclose(arithmetic_mean(k, dz, block, axis=2), along, rtol=1e-14)
@@ -325,13 +321,10 @@ def test_layered_3d_unequal_thickness_arithmetic_along_harmonic_across():
 
 def test_layered_2d_rows_as_layers():
     # Bear 1972: rows of equal height as layers; along x arithmetic, along y harmonic.
-    row_k = np.array([10.0, 1000.0, 0.5, 30.0, 7.0])
-    k = np.broadcast_to(row_k[None, :, None], (1, 5, 6)).copy()
-    dz = np.ones(1)
-    assert arithmetic_mean(k, dz, (1, 5, 6))[0, 0, 0] == pytest.approx(row_k.mean(), rel=1e-14)
-    assert harmonic_mean(k, dz, (1, 5, 6))[0, 0, 0] == pytest.approx(
-        5.0 / np.sum(1.0 / row_k), rel=1e-14
-    )
+    rows = Layers(np.array([10.0, 1000.0, 0.5, 30.0, 7.0]), np.ones(5))
+    k, dz = rows.rows(6)[None], np.ones(1)
+    assert arithmetic_mean(k, dz, (1, 5, 6))[0, 0, 0] == pytest.approx(rows.along, rel=1e-14)
+    assert harmonic_mean(k, dz, (1, 5, 6))[0, 0, 0] == pytest.approx(rows.across, rel=1e-14)
 
 
 # --------------------------------------------------------------------------------------

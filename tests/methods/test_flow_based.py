@@ -72,6 +72,7 @@ from upscale.errors import InputError
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.local import PERIODIC
 from upscale.gallery.fields import lognormal_field
+from upscale.gallery.problems import Layers, random_layers, staircase_channels
 from upscale.methods.flow_based import _tensor
 
 #: 4x4 blocks that keep the zeros the methods give (the zero-k rule is tested in tests/test_zeros.py)
@@ -139,9 +140,8 @@ LAYER_SEED = 551_208_734
 
 
 def _rows_as_layers(rows=18, columns=20):
-    rng = np.random.default_rng(LAYER_SEED)
-    k_row = np.exp(rng.normal(0.0, 2.0, rows))
-    return np.broadcast_to(k_row[:, None], (rows, columns)).copy(), k_row
+    layers = random_layers(rows, seed=LAYER_SEED)
+    return layers.rows(columns), layers.k
 
 
 @pytest.mark.parametrize("bc", ["sealed", "periodic"])
@@ -172,12 +172,11 @@ def test_layered_2d_exact_for_sealed_and_periodic(bc, transpose):
 
 def _layers_3d():
     rng = np.random.default_rng(LAYER_SEED + 1)
-    dz = rng.uniform(0.2, 3.0, 7)
-    k_layer = np.exp(rng.normal(0.0, 2.0, 7))
+    layers = random_layers(7, seed=rng, thickness=(0.2, 3.0))
+    dz, k_layer = layers.thickness, layers.k
     kz_layer = k_layer * rng.uniform(0.05, 0.5, 7)
-    shape = (7, 6, 8)
-    kx = np.broadcast_to(k_layer[:, None, None], shape).copy()
-    kz = np.broadcast_to(kz_layer[:, None, None], shape).copy()
+    kx = layers.stack(6, 8)
+    kz = Layers(kz_layer, dz).stack(6, 8)
     field = Field.from_arrays(kx, kz=kz, dz=dz, cell_size=(4.0, 3.0))
     along, _ = _block_means(k_layer, dz, 3)
     _, across = _block_means(kz_layer, dz, 3)
@@ -514,23 +513,6 @@ def test_boundary_condition_ordering_on_a_correlated_field():
 # --------------------------------------------------------------------------------------
 
 
-def _staircase_channels(seed, rows=32, columns=64, block=8, width=3, channels=3, step=5):
-    """Sand channels (1000) in shale (1) along x, shifted by up to `step` rows at each block face.
-
-    A shift larger than the width disconnects the channel at that face; a smaller one
-    leaves a narrow overlap. Block by block each segment is straight, so the block
-    values see a through-going channel whether or not the next segment connects.
-    """
-    rng = np.random.default_rng(seed)
-    k = np.ones((rows, columns))
-    for _ in range(channels):
-        y = int(rng.integers(0, rows - width))
-        for j in range(columns // block):
-            k[y : y + width, j * block : (j + 1) * block] = 1000.0
-            y = int(np.clip(y + rng.integers(-step, step + 1), 0, rows - width))
-    return k
-
-
 def test_direct_transmissibilities_beat_the_harmonic_rule_on_staircase_channels():
     # Romeu & Noetinger 1995, Calculation of internodal transmissivities in finite difference
     # models of flow in heterogeneous porous media; Chen, Durlofsky et al. 2003, A coupled
@@ -541,7 +523,7 @@ def test_direct_transmissibilities_beat_the_harmonic_rule_on_staircase_channels(
     # across the channels (y) both under-estimate about equally (-7 % to -20 %).
     errors = []
     for seed in range(8):
-        field = Field.from_arrays(_staircase_channels(seed))
+        field = Field.from_arrays(staircase_channels(seed))
         harmonic = coarsen(field, "8x8", "flow", bc="sealed")
         direct = coarsen(field, "8x8", "flow-transmissibility")
         assert direct.replaced_faces == 0

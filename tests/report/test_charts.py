@@ -24,12 +24,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import lognormal
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
 from upscale.analysis.ensemble import method_spread
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.report.charts import error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
 
@@ -106,7 +106,7 @@ def test_ensemble_k_eff_axis_has_labelled_ticks_whatever_the_range(k_fine, k_coa
 @pytest.fixture(scope="module")
 def eleven():
     """All eleven candidates on a 32 x 32 lognormal map."""
-    field = Field.from_arrays(lognormal((32, 32), seed=8123), cell_size=(10.0, 10.0))
+    field = Field.from_arrays(uncorrelated_lognormal((32, 32), seed=8123), cell_size=(10.0, 10.0))
     return compare_methods(field, "8x8", candidates())
 
 

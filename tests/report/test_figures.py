@@ -37,7 +37,7 @@ import warnings
 import matplotlib
 import numpy as np
 import pytest
-from conftest import ORIGIN, lognormal, write_raster
+from conftest import ORIGIN, write_raster
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.collections import QuadMesh
 from matplotlib.colors import LogNorm, TwoSlopeNorm
@@ -46,6 +46,7 @@ import upscale
 from upscale import Field, coarsen
 from upscale.analysis.compare import candidates, compare_methods
 from upscale.check.axis import check_flow
+from upscale.gallery.problems import Layers, uncorrelated_lognormal
 from upscale.report.charts import BAND, domain_bounds, error_bars
 from upscale.report.figures import Plot, build_figures, rendered
 from upscale.report.flux import coarse_face_mismatch
@@ -64,7 +65,7 @@ BLOCK = 8  # cells
 @pytest.fixture(scope="module")
 def comparison_2d(tmp_path_factory):
     """Three methods on a georeferenced 32x32 lognormal map (10 m cells), 8x8 blocks."""
-    path = write_raster(tmp_path_factory.mktemp("fig") / "map.tif", lognormal((32, 32), seed=21),
+    path = write_raster(tmp_path_factory.mktemp("fig") / "map.tif", uncorrelated_lognormal((32, 32), seed=21),
                         cell_size=CELL)  # fmt: skip
     field = upscale.read_field(path)
     return compare_methods(
@@ -75,7 +76,8 @@ def comparison_2d(tmp_path_factory):
 @pytest.fixture(scope="module")
 def comparison_3d():
     """Two methods on a 4 x 16 x 16 model without georeference (dz 2 m), 8x8x2 blocks."""
-    k = np.concatenate([lognormal((2, 16, 16), seed=22, mean_ln=1.0), lognormal((2, 16, 16), seed=23)])
+    k = np.concatenate([uncorrelated_lognormal((2, 16, 16), seed=22, mean_ln=1.0),
+                        uncorrelated_lognormal((2, 16, 16), seed=23)])
     field = Field.from_arrays(k, dz=2.0, cell_size=(5.0, 5.0))
     return compare_methods(field, "8x8x2", candidates(["arithmetic", "harmonic"]))
 
@@ -300,7 +302,7 @@ def test_pressure_maps_on_zero_to_one_best_and_worst(plots_2d, comparison_2d):
 
 
 def test_a_comparison_of_one_method_draws_every_figure():
-    field = Field.from_arrays(lognormal((16, 16), seed=24))
+    field = Field.from_arrays(uncorrelated_lognormal((16, 16), seed=24))
     found = compare_methods(field, "8x8", candidates(["geometric"]))
     plots = build_figures(found, "D")
     assert [p.name for p in plots] == FIGURES_2D
@@ -369,7 +371,7 @@ def test_mismatch_is_zero_on_a_homogeneous_field():
 
 def _layered_rows():
     """12 x 16 cells: rows of 1, 50 and 5 mD repeating (layers along x), not aligned with 2-row blocks."""
-    return Field.from_arrays(np.tile(np.array([1.0, 50.0, 5.0])[:, None], (4, 16)))
+    return Field.from_arrays(Layers(np.tile([1.0, 50.0, 5.0], 4), np.ones(12)).rows(16))
 
 
 def test_mismatch_on_layers_is_negative_where_the_coarse_model_passes_too_little():

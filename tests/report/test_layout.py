@@ -24,11 +24,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import lognormal
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.report.figures import build_figures
 
 #: The report page's widest figure (CSS px) and the figures' resolution (dpi); see the module docstring.
@@ -37,7 +37,7 @@ SMALLEST = 8.0  # points on the page
 
 
 def _comparison(methods: list[str] | None, seed: int, shape=(32, 32), block="8x8", dz=None, **options):
-    k = lognormal(shape, seed=seed)
+    k = uncorrelated_lognormal(shape, seed=seed)
     field = Field.from_arrays(k, cell_size=(10.0, 10.0), **({"dz": dz} if dz is not None else {}))
     return compare_methods(field, block, candidates(methods, **options))
 
@@ -85,6 +85,7 @@ def _drawn_texts(figure):
     return found, figure.bbox
 
 
+@pytest.mark.slow
 def test_every_text_lies_inside_the_canvas(plots):
     for plot in plots:
         texts, canvas = _drawn_texts(plot.figure)
@@ -95,6 +96,7 @@ def test_every_text_lies_inside_the_canvas(plots):
             assert inside, (plot.name, text.get_text(), box.bounds, canvas.bounds)
 
 
+@pytest.mark.slow
 def test_every_text_is_readable_at_the_page_width(plots):
     for plot in plots:
         figure = plot.figure

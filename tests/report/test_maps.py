@@ -26,13 +26,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import lognormal, north_up, write_raster
+from conftest import north_up, write_raster
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.collections import QuadMesh
 
 import upscale
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.grid import BlockSpec
 from upscale.report.maps import field_maps, mismatch_maps, pressure_maps
 
@@ -76,7 +77,7 @@ def _rgb(colour) -> np.ndarray:
 @pytest.fixture(scope="module")
 def holed():
     """A 24 x 24 lognormal map (mD) with two shale cells 1000 times below the rest, a zero and a hole."""
-    k = lognormal((24, 24), seed=4091, mean_ln=4.0, sigma_ln=0.5)
+    k = uncorrelated_lognormal((24, 24), seed=4091, mean_ln=4.0, sigma_ln=0.5)
     k[20, 3] = k[21, 3] = 1e-3 * k.min()  # far below the 0.5th percentile of the scale
     k[2, 20] = 0.0  # a value: no flow through this cell
     k[8:16, 8:16] = np.nan  # a hole of no value (a whole block, so the coarse block is inactive too)
@@ -121,7 +122,7 @@ def test_the_colour_bar_marks_the_clipped_ends_and_zero_is_the_lowest_colour(hol
 
 def test_section_depths_are_the_cumulative_layer_thicknesses():
     dz = np.array([1.0, 1.0, 2.0, 0.5, 2.0, 3.0, 1.0, 2.0])  # m, as with --dz 1,1,2,0.5,2,3,1,2
-    k = lognormal((8, 16, 16), seed=5713)
+    k = uncorrelated_lognormal((8, 16, 16), seed=5713)
     k[3] = 0.01  # a 0.5 m shale from 4.0 to 4.5 m below the top
     field = Field.from_arrays(k, dz=dz, cell_size=(5.0, 5.0))
     comparison = compare_methods(field, "8x8x2", candidates(["harmonic"]))
@@ -140,7 +141,8 @@ def test_section_depths_are_the_cumulative_layer_thicknesses():
 @pytest.fixture(scope="module")
 def far_north(tmp_path_factory):
     """A 36 x 20 map of 10 m cells whose north-west corner is at a northing of 6.5e6 m, 8x8 keep."""
-    path = write_raster(tmp_path_factory.mktemp("north") / "north.tif", lognormal((20, 36), seed=6277),
+    path = write_raster(tmp_path_factory.mktemp("north") / "north.tif",
+                        uncorrelated_lognormal((20, 36), seed=6277),
                         transform=north_up(CELL, FAR_NORTH))  # fmt: skip
     field = upscale.read_field(path)
     spec = BlockSpec.parse("8x8", remainder="keep")
@@ -209,7 +211,7 @@ def test_maps_in_svg_hold_their_cells_as_one_image_per_panel():
     # the cells are rasterized into the vector file, axes and text stay vectors.
     import io
 
-    k = lognormal((128, 128), seed=6029, mean_ln=4.0, sigma_ln=1.0)
+    k = uncorrelated_lognormal((128, 128), seed=6029, mean_ln=4.0, sigma_ln=1.0)
     comparison = compare_methods(Field.from_arrays(k, cell_size=(CELL, CELL)), "8x8",
                                  candidates(["geometric"]))  # fmt: skip
     figure = field_maps(comparison, "mD")

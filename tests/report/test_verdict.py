@@ -38,11 +38,12 @@ from upscale import Field, coarsen
 from upscale.analysis.compare import candidates, compare_methods, single
 from upscale.check.axis import check_flow
 from upscale.cli.main import main
+from upscale.gallery.problems import Layers
 from upscale.report.bundle import bundle
 from upscale.report.figures import build_figures
 
 #: Rows of 1 and 4 mD (layers along x), 16 x 16 cells.
-LAYERS = np.tile(np.array([1.0, 1.0, 4.0, 4.0])[:, None], (4, 16))
+LAYERS = Layers(np.tile([1.0, 1.0, 4.0, 4.0], 4), np.ones(16)).rows(16)
 WARNING = re.compile(r'<p class="warning">([^<]*)</p>')
 NOTE = re.compile(r'<p class="note">([^<]*)</p>')
 
@@ -62,6 +63,7 @@ def _page(out) -> str:
 # --- one method: its check, not a contest --------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_a_run_report_is_the_check_of_its_method(run_cli, layered, tmp_path):
     out = tmp_path / "run"
     code, _, err = run_cli("-q", "run", layered / "r1.tif", "--block", "4x4", "--method", "harmonic",
@@ -155,6 +157,7 @@ def test_the_error_figure_of_a_comparison_says_no_method_is_within_the_band():
 # --- ensembles -----------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_ensemble_pages_warn_and_note_too(run_cli, layered, tmp_path):
     code, stdout, err = run_cli("compare", layered / "r*.tif", "--block", "4x4", "--methods",
                                 "arithmetic,harmonic", "--out", tmp_path / "ce")  # fmt: skip

@@ -12,6 +12,7 @@ from typing import Any
 from ..field import Field
 from ..parallel import compute_together
 from ..stats import ValueScan, scan_values
+from .connectivity import HIGH_K, connectivity
 
 
 def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, ValueScan]]:
@@ -22,7 +23,9 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
     description : dict
         ``path``, ``dimensions``, ``shape``, ``cell_size_m``, ``crs``, ``unit``,
         ``active_cells``, ``active_fraction``, ``statistics`` (per property),
-        ``log10_k``, ``problems``, ``suspect_values`` and ``suggested_nodata``.
+        ``log10_k``, ``problems``, ``suspect_values``, ``suggested_nodata`` and
+        ``connectivity`` (the high-k bodies per axis, `upscale.analysis.connectivity`;
+        None past its cell limit).
     scans : dict of str to ValueScan
         Per property.
     """
@@ -52,7 +55,9 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
         "suspect_values": _suspects(scans, fine.properties()),
     }
     description["suggested_nodata"] = _suggested(description["suspect_values"])
-    description["suggested_nodata"] = _suggested(description["suspect_values"])
+    spans = connectivity(fine)
+    description["connectivity"] = None if spans is None else {
+        "high_k": HIGH_K, "axes": {axis: s.summary() for axis, s in spans.items()}}  # fmt: skip
     return description, scans
 
 

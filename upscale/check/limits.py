@@ -64,8 +64,7 @@ def refuse_check_past_memory(fine: Field, max_cells: int) -> None:
     InputError
         Saying how much the check would need and which ``--check-limit`` fits.
     """
-    available = available_memory()
-    reason = None if available is None else short_of_memory(fine.shape, fine.ndim, max_cells, available)
+    reason = short_of_memory(fine.shape, fine.ndim, max_cells, available_memory())
     if reason:
         raise InputError(reason)
 

@@ -52,6 +52,7 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     click.echo(f"unit         {fine.unit}")
     click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
     _print_problems(description["suspect_values"], scans.get("porosity"), description["suggested_nodata"])
+    _print_connectivity(description["connectivity"])
     log10 = {key: number(value, ".3f") for key, value in description["log10_k"].items()}
     click.echo(f"log10 k      mean {log10['mean']}, std {log10['std']}, "
                f"min {log10['min']}, max {log10['max']} (over positive values)")  # fmt: skip
@@ -86,6 +87,23 @@ def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: fl
     elif suspects:
         click.echo("hint         if these values mark cells without data, give --nodata VALUE; "
                    "'upscale run' refuses what a method cannot take")
+
+
+def _print_connectivity(found: dict | None) -> None:
+    """Per axis, the share of high-k cells and the bodies of them that join its two faces."""
+    if found is None:
+        return
+    click.echo(f"high k       {found['high_k']}")
+    for axis, s in found["axes"].items():
+        line = f"{100 * s['high_fraction']:.1f} % of the active cells; "
+        if s["spans"]:
+            bodies = "1 body spans" if s["spanning_bodies"] == 1 else f"{s['spanning_bodies']} bodies span"
+            line += (f"{bodies} the field, holding "
+                     f"{100 * s['spanning_fraction']:.1f} % of them, {s['cross_section_cells']:.3g} "
+                     "cells across on average")  # fmt: skip
+        else:
+            line += "no body spans the field"
+        click.echo(f"  along {axis}    {line}")
 
 
 def _shown(value: float) -> str:

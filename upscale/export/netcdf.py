@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 
 from ..field import Grid
+from ..optional import require
 from .package import _centres
 from .slabs import Values, slabs
 
@@ -47,8 +48,7 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
     attributes : dict of str to str
         Global attributes (title, source, history...).
     """
-    import netCDF4
-
+    netCDF4 = require("netCDF4", "formats")
     length = factors["length"]
     x, y, z = _centres(grid)
     with _HDF5, netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
@@ -56,10 +56,9 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
         for name, size in zip(("layer", "row", "column"), grid.shape):
             nc.createDimension(name, size)
         if grid.crs is not None:
-            from pyproj import CRS
-
             crs = nc.createVariable("crs", "i4")
-            crs.setncatts(CRS.from_wkt(grid.crs.to_wkt()).to_cf())  # grid_mapping_name, crs_wkt...
+            pyproj = require("pyproj", "formats")
+            crs.setncatts(pyproj.CRS.from_wkt(grid.crs.to_wkt()).to_cf())  # grid_mapping_name, crs_wkt...
         for name, dim, values, standard in (("x", "column", x, "projection_x_coordinate"),
                                             ("y", "row", y, "projection_y_coordinate")):  # fmt: skip
             var = nc.createVariable(name, "f8", (dim,))

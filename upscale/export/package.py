@@ -25,13 +25,15 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pyarrow as pa
-import pyarrow.csv as pacsv
-import pyarrow.parquet as pq
 
 from ..field import Grid
 from ..flow import Transmissibilities
+from ..optional import lazy
 from .slabs import Region, slabs
+
+pa = lazy("pyarrow", "formats")
+pacsv = lazy("pyarrow.csv", "formats")
+pq = lazy("pyarrow.parquet", "formats")
 
 #: Name and version of the package format (ours).
 FORMAT = {"name": "upscale-coarse-grid", "version": "1.0"}
@@ -52,11 +54,16 @@ def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return x, y, z
 
 
-#: Arrow's default pool (mimalloc) keeps what the tables allocated, about 1 kB per coarse cell
-#: written; the system allocator gives it back after every slab.
-_POOL = pa.system_memory_pool()
 _INTEGER = {"id", "i", "j", "k", "id1", "id2"}
 _TEXT = {"axis", "source", "face"}
+
+
+def _pool() -> pa.MemoryPool:
+    """Arrow's system allocator, which gives the memory of the tables back after every slab.
+
+    Arrow's default pool (mimalloc) keeps what they allocated, about 1 kB per coarse cell written.
+    """
+    return pa.system_memory_pool()
 
 
 def _schema(names: list[str]) -> pa.Schema:
@@ -77,7 +84,7 @@ def _batch(columns: dict[str, Any], schema: pa.Schema) -> pa.Table:
     for field in schema:
         values = np.asarray(columns[field.name]).ravel()
         mask = ~np.isfinite(values) if values.dtype.kind == "f" else None
-        arrays.append(pa.array(values, mask=mask, type=field.type, memory_pool=_POOL))
+        arrays.append(pa.array(values, mask=mask, type=field.type, memory_pool=_pool()))
     return pa.Table.from_arrays(arrays, schema=schema)
 
 
@@ -256,8 +263,8 @@ def write_tables(stage: Path, tables: PackageTables) -> dict[str, dict[str, Any]
         schema = _schema(tables.columns(name))
         csv, parquet = stage / f"{name}.csv", stage / f"{name}.parquet"
         rows = 0
-        with pacsv.CSVWriter(csv, schema, memory_pool=_POOL) as text, \
-                pq.ParquetWriter(parquet, schema, memory_pool=_POOL) as columnar:  # fmt: skip
+        with pacsv.CSVWriter(csv, schema, memory_pool=_pool()) as text, \
+                pq.ParquetWriter(parquet, schema, memory_pool=_pool()) as columnar:  # fmt: skip
             for batch in tables.batches(name):
                 text.write_table(batch)
                 columnar.write_table(batch)

@@ -30,13 +30,15 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from pyevtk.vtk import VtkFile, VtkRectilinearGrid
 
 from ..field import Grid
+from ..optional import lazy
 from .slabs import Region, Values, slabs
 
 #: Type of every array in the file: float64, so that coarse values keep every bit.
 DTYPE = "float64"
+
+evtk = lazy("pyevtk.vtk", "formats")
 
 
 def _edges(sizes: np.ndarray, start: float, sign: float) -> np.ndarray:
@@ -72,7 +74,7 @@ def write_vtk(path: Path, grid: Grid, properties: dict[str, Values], factors: di
 
     cells = {"id": ids, **properties}
     count = L * M * N
-    vtk = VtkFile(str(path.with_suffix("")), VtkRectilinearGrid)  # pyevtk adds the .vtr
+    vtk = evtk.VtkFile(str(path.with_suffix("")), evtk.VtkRectilinearGrid)  # pyevtk adds the .vtr
     extent = {"start": (0, 0, 0), "end": (N, M, L)}
     vtk.openGrid(**extent)
     vtk.openPiece(**extent)

@@ -1,4 +1,7 @@
 """Model problems: random fields (FFT-MA Gaussian, lognormal), channels and layers, from fixed seeds.
 
-Shared by the demo (`upscale.demo`), the tests and the benchmarks.
+``fields`` generates correlated random fields; ``problems`` holds the model
+problems with a known answer (layers, checkerboards, uncorrelated lognormal
+fields, channels, lenses) and that answer. Shared by the demo
+(`upscale.demo`), the tests and the benchmarks.
 """

@@ -14,13 +14,15 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pyarrow as pa
-import pyarrow.csv as pacsv
 
 from ..errors import InputError
 from ..field import Grid
 from ..flow import Transmissibilities
+from ..optional import lazy
 from .read import sha256
+
+pa = lazy("pyarrow", "formats")
+pacsv = lazy("pyarrow.csv", "formats")
 
 MANIFEST = "manifest.json"
 _AXIS = {"z": 0, "y": 1, "x": 2}

@@ -20,8 +20,6 @@ import numpy as np
 
 from ..errors import InputError
 
-#: Bytes of float64 per chunk when the caller does not choose and the memory is unknown.
-DEFAULT_CHUNK_BYTES = 64 * 2**20
 #: Largest default chunk: beyond it chunks only add memory (docs/performance.md).
 MAX_CHUNK_BYTES = 128 * 2**20
 
@@ -41,14 +39,11 @@ def default_chunk_bytes() -> int:
     >>> 16 * 2**20 <= default_chunk_bytes() <= 128 * 2**20
     True
     """
-    available = available_memory()
-    if available is None:  # pragma: no cover - distributed (and psutil with it) is a dependency
-        return DEFAULT_CHUNK_BYTES
-    return int(min(MAX_CHUNK_BYTES, max(16 * 2**20, available // 64)))
+    return int(min(MAX_CHUNK_BYTES, max(16 * 2**20, available_memory() // 64)))
 
 
-def available_memory() -> int | None:
-    """Bytes this process can still allocate, or None if unknown.
+def available_memory() -> int:
+    """Bytes this process can still allocate.
 
     The least of three rooms:
 
@@ -64,7 +59,8 @@ def available_memory() -> int | None:
       Kubernetes): its limit counts. A cgroup deeper in the host's tree,
       seen without a cgroup namespace (a batch scheduler's job cgroup on
       the host), is not read. What other processes of the same container
-      hold is not counted: this process is taken as the one that fills it;
+      hold is not counted: this process is taken as the one that fills it.
+      Without the ``cluster`` extra (distributed) this room is not known;
     * an address-space limit (``RLIMIT_AS``, ``ulimit -v``), which dask does
       not read, less this process's virtual size.
 
@@ -72,13 +68,16 @@ def available_memory() -> int | None:
     the default chunk size (`default_chunk_bytes`) and the refusal of a flow
     check whose largest solve would not fit.
     """
-    try:
-        import psutil
-        from distributed.system import memory_limit
-    except ImportError:  # pragma: no cover - distributed (and psutil with it) is a dependency
-        return None
+    import psutil
+
     held = psutil.Process().memory_info()
-    rooms = [psutil.virtual_memory().available, memory_limit() - held.rss]
+    rooms = [psutil.virtual_memory().available]
+    try:
+        from distributed.system import memory_limit
+    except ImportError:  # pragma: no cover - the cluster extra is not installed
+        pass
+    else:
+        rooms.append(memory_limit() - held.rss)
     try:
         import resource
     except ImportError:  # pragma: no cover - Windows has no address-space limits

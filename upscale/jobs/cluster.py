@@ -18,6 +18,7 @@ from concurrent.futures import CancelledError
 from contextlib import contextmanager
 
 from ..errors import ClusterError, InputError
+from ..optional import require
 
 #: Seconds to wait for a scheduler before giving up.
 CONNECT_TIMEOUT = 10
@@ -37,29 +38,28 @@ def compute_on(workers: int | None = None, address: str | None = None) -> Iterat
     ------
     InputError
         If both are given, or the scheduler cannot be reached within `CONNECT_TIMEOUT` s.
+    MissingLibraryError
+        If the ``cluster`` extra (distributed) is not installed.
     """
     if workers is not None and address is not None:
         raise InputError("give `workers` (a local cluster) or `scheduler` (an existing one), not both")
     if workers is None and address is None:
         yield 1
         return
-    try:
-        from dask.distributed import Client, LocalCluster
-    except ImportError:  # pragma: no cover - distributed is a dependency
-        raise InputError("`workers` and `scheduler` need dask.distributed") from None
+    distributed = require("distributed", "cluster")
     if workers is not None:
         if workers < 1:
             raise InputError(f"`workers` must be 1 or more, not {workers}")
         logging.getLogger("distributed").setLevel(logging.ERROR)  # its start-up chatter
         # no dashboard; the scheduler's HTTP server on any free port (a taken 8787 would warn)
-        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
+        with distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
                           dashboard_address=None, scheduler_kwargs={"dashboard_address": ":0"},
                           silence_logs=logging.ERROR) as cluster, \
-                Client(cluster) as client, _failures_explained():  # fmt: skip
+                distributed.Client(cluster) as client, _failures_explained():  # fmt: skip
             yield len(client.scheduler_info()["workers"])
         return
     try:
-        client = Client(address, timeout=CONNECT_TIMEOUT)
+        client = distributed.Client(address, timeout=CONNECT_TIMEOUT)
     except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(
             f"cannot reach the dask scheduler at {address!r} within {CONNECT_TIMEOUT} s ({exc})"

@@ -8,7 +8,7 @@ draw its figures and page, and write its folder.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line
 from ..analysis.ensemble import PERCENTILE_NOTE, method_spread
@@ -22,9 +22,12 @@ from ..field import Field
 from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
-from ..report.bundle import Bundle, bundle, spread_bundle
+from ..optional import require_extra
 from ..steps import Say, Steps, silent
 from .run import refuse_layer
+
+if TYPE_CHECKING:
+    from ..report.bundle import Bundle
 
 
 def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
@@ -141,6 +144,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             "percentiles": PERCENTILE_NOTE, "methods": methods,
             "best": methods[0]["name"] if methods and methods[0]["rank"] else None,
         }  # fmt: skip
+        from ..report.bundle import spread_bundle  # matplotlib: the figures extra
+
         made = spread_bundle(methods, content, command=command,
                              title=f"upscale — methods compared on {len(names)} realizations")  # fmt: skip
         write_ranking(stage, content, names, images=made.images, page=made.page)
@@ -150,6 +155,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
 
 def refuse_comparison(fine: Field, max_cells: int, layer: int | None) -> None:
     """Refuse, before any work, a comparison the flow check cannot rank or a `layer` it cannot draw."""
+    require_extra("figures")  # every comparison draws its figures and page
     reason = too_large(fine.shape, max_cells)
     if reason:
         raise InputError(f"a comparison ranks methods by the flow check, and {reason}; {RAISE_LIMIT}")
@@ -171,5 +177,7 @@ def _refuse_if_none_ran(result: Comparison, path: str | None = None) -> None:
 def _drawn(result: Comparison, path: str, *, layer: int | None, command: list[str],
            recorded_read: dict[str, Any] | None) -> tuple[dict[str, Any], Bundle]:  # fmt: skip
     """The content of ``compare.json``, and the figures and page, of one field's comparison."""
+    from ..report.bundle import bundle  # matplotlib: the figures extra
+
     made = bundle(result, title=f"upscale — methods compared on {path}", command=command, layer=layer)
     return compare_summary(result, command=command, read=recorded_read), made

@@ -7,12 +7,14 @@ The comparisons are in `upscale.jobs.compare`.
 
 from __future__ import annotations
 
+import logging
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..analysis.compare import single
+from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import ensemble_summary
 from ..analysis.summary import working_folder
 from ..check.axis import check_flow
@@ -27,9 +29,11 @@ from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
 from ..methods.coarsen import Upscaled, coarsen
-from ..report.bundle import bundle, ensemble_bundle
+from ..optional import require_extra
 from ..steps import Say, Steps, silent
 from ..units import unit_factors
+
+log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -80,6 +84,19 @@ class Settings:
     def __post_init__(self) -> None:
         unit_factors(str(self.read.get("unit", "mD")), self.units)  # refuses before any work
 
+    def require_libraries(self) -> None:
+        """Import, before any work, the optional libraries the outputs need (`upscale.optional`).
+
+        Raises
+        ------
+        MissingLibraryError
+            Without the ``formats`` extra (every run writes the package), or the
+            ``figures`` extra when figures or a report are asked for.
+        """
+        require_extra("formats")
+        if self.plot or self.report:
+            require_extra("figures")
+
 
 def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,
                  say: Say = silent, prefix: str = "") -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
@@ -111,6 +128,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     InputError
         For bad input, including ``--plot``/``--report`` without a check.
     """
+    settings.require_libraries()
     steps = Steps(say, prefix)
     with steps("read_s", f"reading {path}"):
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
@@ -118,6 +136,9 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     if settings.check:
         refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
+    warning = struggle(connectivity(fine, settings.check_limit), settings.block)
+    if warning:
+        log.warning("%s: %s", path, warning)
     cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
     with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
         result = coarsen(fine, settings.block, settings.method, **settings.options)
@@ -141,6 +162,8 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                 check = {axis: c.summary() for axis, c in checks.items()}
     made = None
     if checks and drawing:
+        from ..report.bundle import bundle  # matplotlib: the figures extra
+
         layer = settings.layer
         with steps(None, "drawing the figures"):
             made = bundle(single(result, checks, steps.timings["upscale_s"]),
@@ -186,6 +209,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     InputError
         If two realizations share a name or the grids differ (checked before any work).
     """
+    settings.require_libraries()
     names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
     done = []
@@ -205,6 +229,8 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                          "working_folder": working_folder(settings.command)})  # fmt: skip
         made = None
         if settings.plot or settings.report:
+            from ..report.bundle import ensemble_bundle  # matplotlib: the figures extra
+
             with Steps(say)(None, "drawing the spread over the realizations"):
                 made = ensemble_bundle(ensemble, unit=summaries[0]["unit"], command=settings.command,
                                        title=f"upscale — {settings.method} on {len(names)} realizations")

@@ -11,9 +11,7 @@
 * ``html``    — one self-contained HTML page (images embedded).
 
 Figures are built with `matplotlib.figure.Figure` (no pyplot, no display),
-so they render headless on any machine.
+so they render headless on any machine. matplotlib is the optional extra
+``figures`` (`upscale.optional`): this package imports it only from the modules
+that draw, so ``verdict`` serves the terminal without it.
 """
-
-from .figures import Plot, build_figures
-
-__all__ = ["Plot", "build_figures"]
