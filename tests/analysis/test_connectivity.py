@@ -136,7 +136,8 @@ def test_a_uniform_field_has_no_high_cells():
 
 def test_an_uncorrelated_field_that_happens_to_span_is_not_warned_of():
     """Half the cells of a 16 x 16 lognormal field are high and here they span y; its
-    contrast (about exp(1.6) = 4.9 for an ln-k deviation of 1) is below `CONTRAST`."""
+    contrast (about exp(1.6) = 4.9 for an ln-k deviation of 1) is below `CONTRAST`.
+    """
     k = uncorrelated_lognormal((1, 16, 16), 5)
     along_y = span(k, "y")
     assert along_y.spans and not along_y.straight and along_y.cross_section < 8 * 8
