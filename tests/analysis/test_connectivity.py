@@ -135,8 +135,9 @@ def test_a_uniform_field_has_no_high_cells():
 
 
 def test_an_uncorrelated_field_that_happens_to_span_is_not_warned_of():
-    """Half the cells of a 16 x 16 lognormal field are high and here they span y; its
-    contrast (about exp(1.6) = 4.9 for an ln-k deviation of 1) is below `CONTRAST`.
+    """A lognormal 16 x 16 field spans y by chance, with too little contrast for a warning.
+
+    Its contrast is about exp(1.6) = 4.9 for an ln-k deviation of 1, below `CONTRAST`.
     """
     k = uncorrelated_lognormal((1, 16, 16), 5)
     along_y = span(k, "y")
