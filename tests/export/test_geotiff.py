@@ -21,6 +21,7 @@ from affine import Affine
 from conftest import lognormal, north_up, write_raster
 
 import upscale
+from upscale.analysis.summary import RunSummary
 from upscale.errors import OutputExistsError
 from upscale.export.package import PACKAGE_FILES
 from upscale.grid import BlockSpec
@@ -172,8 +173,8 @@ def test_edge_blocks_keep_the_regular_pixel_size_in_the_file(tmp_path, map_input
         assert (dst.height, dst.width) == (7, 5)
         assert dst.res == (10 * DX, 5 * DY)
         np.testing.assert_array_equal(dst.read(), result.coarse.kx)
-    assert summary["coarse"]["dx_m"] == {"regular": 10 * DX, "last": 8 * DX}
-    assert summary["coarse"]["dy_m"] == {"regular": 5 * DY, "last": 2 * DY}
+    assert summary.coarse.dx_m == {"regular": 10 * DX, "last": 8 * DX}
+    assert summary.coarse.dy_m == {"regular": 5 * DY, "last": 2 * DY}
 
 
 def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_inputs):
@@ -186,7 +187,7 @@ def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_in
     returned = upscale.write_result(result, out, command=command, timings={"a": 1.5})
     text = (out / "summary.json").read_text()
     summary = _strict_json(text)
-    assert summary == returned
+    assert summary == returned.to_dict() and RunSummary.from_dict(summary) == returned
 
     assert summary["tool"] == "upscale"
     assert summary["versions"]["upscale"] == upscale.__version__ == metadata.version("upscale")

@@ -24,11 +24,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from comparison_records import comparison, method
 from conftest import lognormal
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
+from upscale.analysis.comparison_record import ComparisonRecord
 from upscale.analysis.ensemble import method_spread
 from upscale.report.charts import error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
@@ -64,16 +66,14 @@ def test_error_axis_reads_in_plain_percent_on_a_symmetric_log_scale():
     assert {"0", "10 %", "−10 %"} <= {text for _, text in labels}
 
 
-def _comparison_json(errors: dict[str, tuple[float, float]]) -> dict:
-    """The part of one realization's compare.json that `method_spread` reads."""
+def _comparison(errors: dict[str, tuple[float, float]]) -> ComparisonRecord:
+    """One realization's comparison: per method its check errors along x and y."""
     ranked = sorted(errors, key=lambda n: max(map(abs, errors[n])))
-    return {"dimensions": 2, "methods": [
-        {"name": n, "method": n, "error": None, "rank": ranked.index(n) + 1,
-         "check": {"x": {"rel_error": ex}, "y": {"rel_error": ey}}} for n, (ex, ey) in errors.items()]}
+    return comparison([method(n, ranked.index(n) + 1, {"x": ex, "y": ey}) for n, (ex, ey) in errors.items()])
 
 
 def test_spread_error_axis_reads_in_plain_percent():
-    realizations = [_comparison_json({"geometric": (-0.08 - 0.01 * i, 0.02), "arithmetic": (0.4, 1.9 + i)})
+    realizations = [_comparison({"geometric": (-0.08 - 0.01 * i, 0.02), "arithmetic": (0.4, 1.9 + i)})
                     for i in range(4)]  # fmt: skip
     methods = method_spread([f"r{i}" for i in range(4)], realizations)
     (ax,) = [a for a in method_spread_chart(methods, "xy", 4).axes if a.get_visible()]

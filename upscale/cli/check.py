@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from ..analysis.summary import FlowCheck
 from ..check.axis import check_summary
 from ..export import update_summary
 from ..io.package import read_package
@@ -35,6 +36,6 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
     refuse_bad_values(fine)  # the run checked them, but it may have recorded no SHA-256
     _, coarse = read_package(folder)
     result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
-    summary = update_summary(folder, {"check": result})
+    recorded = update_summary(folder, {"check": result})["check"]
     if not ctx.obj["quiet"]:
-        print_check(summary["check"])
+        print_check(FlowCheck.from_dict(recorded))

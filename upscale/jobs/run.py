@@ -14,7 +14,8 @@ from typing import Any
 
 from ..analysis.compare import single
 from ..analysis.ensemble import ensemble_summary
-from ..analysis.summary import working_folder
+from ..analysis.records import working_folder
+from ..analysis.summary import RunSummary
 from ..check.axis import check_flow
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.subdomains import check_subdomains
@@ -78,7 +79,7 @@ class Settings:
 
 
 def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,
-                 say: Say = silent, prefix: str = "") -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
+                 say: Say = silent, prefix: str = "") -> tuple[Upscaled, RunSummary]:  # fmt: skip
     """Upscale the field in `path` and write the result into `out`.
 
     Parameters
@@ -99,7 +100,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
 
     Returns
     -------
-    (Upscaled, dict)
+    (Upscaled, RunSummary)
         The result and its summary as written.
 
     Raises
@@ -186,7 +187,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                                   checksum=False)  # fmt: skip
     done = []
 
-    def one(name: str, path: str) -> dict[str, Any]:
+    def one(name: str, path: str) -> RunSummary:
         _, summary = upscale_file(path, settings, stage / name, say=say, prefix=f"{name}: ")
         done.append(name)
         say(f"[{len(done)}/{len(paths)}] realizations done ({name})")
@@ -196,13 +197,13 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         with ThreadPoolExecutor(max_workers=max(1, parallel)) as pool:
             summaries = list(pool.map(one, names, paths))
         ensemble = ensemble_summary(names, summaries)
-        ensemble.update({"method": {"name": settings.method, "options": summaries[0]["method"]["options"]},
-                         "block": summaries[0]["block"], "command": settings.command,
+        ensemble.update({"method": {"name": settings.method, "options": summaries[0].method.options},
+                         "block": summaries[0].block, "command": settings.command,
                          "working_folder": working_folder(settings.command)})  # fmt: skip
         made = None
         if settings.plot or settings.report:
             with Steps(say)(None, "drawing the spread over the realizations"):
-                made = ensemble_bundle(ensemble, unit=summaries[0]["unit"], command=settings.command,
+                made = ensemble_bundle(ensemble, unit=summaries[0].unit, command=settings.command,
                                        title=f"upscale — {settings.method} on {len(names)} realizations")
         write_ensemble(stage, ensemble, names, images=made.images if made and settings.plot else None,
                        page=made.page if made and settings.report else None)  # fmt: skip

@@ -8,7 +8,7 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
-from ..analysis.ensemble import PERCENTILES
+from ..analysis.ensemble import PERCENTILES, MethodSpread
 from .charts import error_band, readable_k_axis, warn_in
 from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
@@ -28,19 +28,19 @@ def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str
     ax.plot([x - half, x + half], [p50, p50], color="black", linewidth=1.6)
 
 
-def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: int) -> Figure:
+def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizations: int) -> Figure:
     """Check error of every method over the realizations, per axis, methods in ranked order.
 
     Parameters
     ----------
-    methods : list of dict
+    methods : tuple of MethodSpread
         From `upscale.analysis.ensemble.method_spread` (methods that ran somewhere are drawn).
     axes : str
         The flow axes, e.g. ``"xy"``.
     realizations : int
         How many realizations, for the title.
     """
-    ran = [m for m in methods if m["rank"] is not None]
+    ran = [m for m in methods if m.rank is not None]
     alone = len(methods) == 1
     fig = Figure(figsize=(min(MAX_WIDTH, max(6.5, 0.9 * len(ran) + 2.5)), 4.6), layout="constrained")
     ax = fig.subplots()
@@ -49,18 +49,18 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
     for i, axis in enumerate(axes):
         offset = (i - (len(axes) - 1) / 2) * width
         for j, m in enumerate(ran):
-            values = np.array([100 * r["rel_error"][axis] if r and r["rel_error"][axis] is not None
-                               else np.nan for r in m["by_realization"].values()])  # fmt: skip
+            values = np.array([100 * r.rel_error[axis] if r and r.rel_error[axis] is not None
+                               else np.nan for r in m.by_realization.values()])  # fmt: skip
             if np.isfinite(values).any():
                 largest = max(largest, float(np.nanmax(np.abs(values))))
             _spread_marks(ax, j + offset, values, PALETTE[i], f"along {axis}" if j == 0 else None,
                           half=0.4 * width)  # fmt: skip
     error_band(ax, largest)
-    ax.set_xticks(range(len(ran)), [m["name"] if alone else f"{m['rank']}. {m['name']}" for m in ran],
+    ax.set_xticks(range(len(ran)), [m.name if alone else f"{m.rank}. {m.name}" for m in ran],
                   rotation=30, ha="right")  # fmt: skip
     ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
     if ran:
-        warn_in(ax, outside_band(ran[0]["name"], ran[0]["worst_error"]["p50"], several=not alone,
+        warn_in(ax, outside_band(ran[0].name, ran[0].worst_error.p50, several=not alone,
                                  measure="median largest check error", where="over these realizations"))
     ax.legend(fontsize=LABEL, loc="best")
     title(fig, f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
