@@ -10,6 +10,10 @@ What is tested
 * ``compare.json`` of a real comparison (with a method that cannot run on
   the field) the same way with `ComparisonRecord`; the record built in
   memory from the comparison is the one the file holds.
+* ``ensemble.json`` of an ensemble run (`EnsembleSummary`) and of an
+  ensemble comparison (`EnsembleRanking`) the same way; the ranking computed
+  again from the realizations' ``compare.json`` files read back is the one
+  written.
 * The terminal report reads the record, not a dict: a statistic changed in
   the record is what `print_result` prints.
 """
@@ -27,6 +31,7 @@ from conftest import lognormal, write_raster
 import upscale
 from upscale.analysis.compare import candidates
 from upscale.analysis.comparison_record import ComparisonRecord, comparison_record
+from upscale.analysis.ensemble import EnsembleRanking, EnsembleSummary, method_spread
 from upscale.analysis.summary import FlowCheck, RunSummary
 from upscale.cli.report import print_result
 from upscale.grid import BlockSpec
@@ -35,7 +40,7 @@ from upscale.jobs.compare import compare_file
 SEED = 804_113
 
 
-def _dumped(record: RunSummary | ComparisonRecord) -> str:
+def _dumped(record: RunSummary | ComparisonRecord | EnsembleSummary | EnsembleRanking) -> str:
     """The record as the tool writes it."""
     return json.dumps(record.to_dict(), indent=2, allow_nan=False) + "\n"
 
@@ -45,7 +50,11 @@ def fields(tmp_path_factory) -> dict[str, Path]:
     folder = tmp_path_factory.mktemp("records")
     k = lognormal((16, 24), SEED)
     porosity = np.random.default_rng(SEED + 1).uniform(0.05, 0.3, size=(16, 24))
-    return {"k": write_raster(folder / "k.tif", k), "porosity": write_raster(folder / "por.tif", porosity)}
+    (folder / "ensemble").mkdir()
+    for r in range(3):
+        write_raster(folder / "ensemble" / f"r{r}.tif", lognormal((16, 24), SEED + 10 + r))
+    return {"k": write_raster(folder / "k.tif", k), "porosity": write_raster(folder / "por.tif", porosity),
+            "ensemble": folder / "ensemble"}
 
 
 def _round_trip(out: Path) -> RunSummary:
@@ -116,3 +125,32 @@ def test_the_terminal_report_reads_the_record(fields, tmp_path, capsys):
     printed = capsys.readouterr().out
     assert "1234" in printed.split("kx", 1)[1].splitlines()[0]
     assert "flow check: the same pressure drop" in printed
+
+
+def _read(path: Path, kind: type) -> tuple[str, object]:
+    text = path.read_text()
+    record = kind.from_dict(json.loads(text))
+    assert _dumped(record) == text
+    assert kind.from_dict(record.to_dict()) == record
+    return text, record
+
+
+def test_an_ensemble_run_round_trips(fields, tmp_path, run_cli):
+    out = tmp_path / "ens"
+    assert run_cli("-q", "run", fields["ensemble"] / "r*.tif", "--block", "4x4", "--method", "arithmetic",
+                   "--out", out)[0] == 0  # fmt: skip
+    _, record = _read(out / "ensemble.json", EnsembleSummary)
+    assert [r.name for r in record.realizations] == ["r0", "r1", "r2"]
+    assert record.axes == "xy" and record.statistics["rel_error"]["x"].count == 3
+    assert record.method.name == "arithmetic"
+
+
+def test_an_ensemble_comparison_round_trips_and_ranks_again_from_its_files(fields, tmp_path, run_cli):
+    out = tmp_path / "cmp"
+    assert run_cli("-q", "compare", fields["ensemble"] / "r*.tif", "--block", "4x4", "--methods",
+                   "geometric,harmonic,arithmetic", "--out", out)[0] == 0  # fmt: skip
+    _, ranking = _read(out / "ensemble.json", EnsembleRanking)
+    names = [r.name for r in ranking.realizations]
+    comparisons = [_read(out / name / "compare.json", ComparisonRecord)[1] for name in names]
+    assert tuple(method_spread(names, comparisons)) == ranking.methods
+    assert ranking.best == ranking.methods[0].name and ranking.methods[0].rank == 1

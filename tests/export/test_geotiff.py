@@ -103,7 +103,7 @@ def test_map_round_trip_keeps_georeference_units_and_values(tmp_path, map_inputs
         np.testing.assert_array_equal(stored, expected)  # bit for bit, NaN where inactive
         assert np.isnan(stored[0, 0, 0]) and not valid[0, 0, 0]
         assert np.isnan(stored).sum() == 1  # only the all-nodata block is inactive
-    assert [f for f in summary["files"] if f not in PACKAGE_FILES] == ["kx.tif", "ky.tif", "porosity.tif"]
+    assert [f for f in summary.files if f not in PACKAGE_FILES] == ["kx.tif", "ky.tif", "porosity.tif"]
 
 
 def test_coarse_geometric_mean_of_one_block_is_computed_from_the_fine_cells(tmp_path, map_inputs):

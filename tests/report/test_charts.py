@@ -17,7 +17,7 @@ What is tested
   (and does not when one is).
 
 Data come from real comparisons (`compare_methods`) or, for the ensemble
-charts, from hand-built summaries shaped like ``ensemble.json``.
+charts, from hand-built records of ``ensemble.json``.
 """
 
 from __future__ import annotations
@@ -31,7 +31,15 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
 from upscale.analysis.comparison_record import ComparisonRecord
-from upscale.analysis.ensemble import method_spread
+from upscale.analysis.ensemble import (
+    PERCENTILE_NOTE,
+    QUANTITIES,
+    EnsembleSummary,
+    RealizationCheck,
+    method_spread,
+    spread,
+)
+from upscale.analysis.summary import MethodUsed
 from upscale.report.charts import error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
 
@@ -81,14 +89,13 @@ def test_spread_error_axis_reads_in_plain_percent():
     _assert_plain_percent(_shown_labels(ax))
 
 
-def _ensemble(k_fine: list[float], k_coarse: list[float]) -> dict:
-    """An ensemble.json of one method along x, with the check errors of its k."""
-    rows = [{"name": f"r{i}", "k_fine": {"x": f}, "k_coarse": {"x": c}, "rel_error": {"x": (c - f) / f}}
-            for i, (f, c) in enumerate(zip(k_fine, k_coarse))]  # fmt: skip
-    errors = [r["rel_error"]["x"] for r in rows]
-    spread = {"p10": min(errors), "p50": float(np.median(errors)), "p90": max(errors)}
-    return {"realizations": rows, "method": {"name": "flow"},
-            "statistics": {"k_fine": {"x": {}}, "k_coarse": {"x": {}}, "rel_error": {"x": spread}}}
+def _ensemble(k_fine: list[float], k_coarse: list[float]) -> EnsembleSummary:
+    """One method over realizations along x, with the check errors of its k."""
+    rows = tuple(RealizationCheck(f"r{i}", (), {"x": f}, {"x": c}, {"x": (c - f) / f})
+                 for i, (f, c) in enumerate(zip(k_fine, k_coarse)))  # fmt: skip
+    statistics = {q: {"x": spread([getattr(r, q)["x"] for r in rows])} for q in QUANTITIES}
+    return EnsembleSummary(rows, statistics, PERCENTILE_NOTE, MethodUsed("flow", {"bc": "sealed"}),
+                           {"x": 4, "y": 4, "z": 1}, [], None)  # fmt: skip
 
 
 @pytest.mark.parametrize("k_fine, k_coarse", [

@@ -20,13 +20,108 @@ from ..caution import CAUTION
 from .compare import TIE
 from .comparison_record import ComparisonRecord
 from .records import Leaf, Spread, working_folder
-from .summary import RunSummary
+from .summary import MethodUsed, RunSummary
 
 PERCENTILES = (10, 50, 90)
 QUANTITIES = ("k_fine", "k_coarse", "rel_error")
 
 
-def ensemble_summary(names: list[str], summaries: list[RunSummary]) -> dict[str, Any]:
+@dataclass(frozen=True)
+class InputRef(Leaf):
+    """One input of a realization: its ``role``, ``path`` as given and ``sha256``."""
+
+    role: str
+    path: str
+    sha256: str | None
+
+
+@dataclass(frozen=True)
+class RealizationCheck:
+    """One realization's check: per axis k_fine, k_coarse (the field's unit) and rel_error (a fraction).
+
+    Attributes
+    ----------
+    name : str
+        The realization's folder.
+    inputs : tuple of InputRef
+    k_fine, k_coarse, rel_error : dict of str to (float or None)
+        Per axis; empty when the whole model was not checked.
+    """
+
+    name: str
+    inputs: tuple[InputRef, ...]
+    k_fine: dict[str, float | None]
+    k_coarse: dict[str, float | None]
+    rel_error: dict[str, float | None]
+
+    def to_dict(self) -> dict[str, Any]:
+        """A realization of ``ensemble.json``."""
+        return {"name": self.name, "inputs": [i.to_dict() for i in self.inputs], "k_fine": self.k_fine,
+                "k_coarse": self.k_coarse, "rel_error": self.rel_error}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> RealizationCheck:
+        """A realization of ``ensemble.json``."""
+        return cls(data["name"], tuple(InputRef.from_dict(i) for i in data["inputs"]), data["k_fine"],
+                   data["k_coarse"], data["rel_error"])  # fmt: skip
+
+
+@dataclass(frozen=True)
+class EnsembleSummary:
+    """One method run on every realization: the content of the ensemble's ``ensemble.json``.
+
+    Attributes
+    ----------
+    realizations : tuple of RealizationCheck
+    statistics : dict of str to dict of str to (Spread or None)
+        Per quantity (`QUANTITIES`) and axis, the spread over the realizations.
+    percentiles : str
+        How the percentiles are defined (`PERCENTILE_NOTE`).
+    method : MethodUsed
+    block : dict
+        The block partition (`upscale.BlockSpec.summary`).
+    command : list of str
+    working_folder : str or None
+    files : tuple of str
+        Written beside ``ensemble.json`` (empty until written).
+    caution : str
+    """
+
+    realizations: tuple[RealizationCheck, ...]
+    statistics: dict[str, dict[str, Spread | None]]
+    percentiles: str
+    method: MethodUsed
+    block: dict[str, Any]
+    command: list[str]
+    working_folder: str | None
+    files: tuple[str, ...] = ()
+    caution: str = CAUTION
+
+    @property
+    def axes(self) -> str:
+        """The axes checked on some realization, e.g. ``"xy"`` (empty without a check)."""
+        return "".join(self.statistics["k_fine"])
+
+    def to_dict(self) -> dict[str, Any]:
+        """The content of ``ensemble.json``, key for key."""
+        return {"realizations": [r.to_dict() for r in self.realizations],
+                "statistics": {q: {a: _plain(s) for a, s in by_axis.items()}
+                               for q, by_axis in self.statistics.items()},
+                "percentiles": self.percentiles, "method": self.method.to_dict(), "block": self.block,
+                "command": self.command, "working_folder": self.working_folder, "files": list(self.files),
+                "caution": self.caution}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> EnsembleSummary:
+        """The record of an ensemble run's ``ensemble.json``."""
+        statistics = {q: {a: None if s is None else Spread.from_dict(s) for a, s in by_axis.items()}
+                      for q, by_axis in data["statistics"].items()}  # fmt: skip
+        return cls(tuple(RealizationCheck.from_dict(r) for r in data["realizations"]), statistics,
+                   data["percentiles"], MethodUsed.from_dict(data["method"]), data["block"], data["command"],
+                   data["working_folder"], tuple(data["files"]), data["caution"])  # fmt: skip
+
+
+def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: list[str]) -> EnsembleSummary:
     """Per-realization check results and their percentiles over the ensemble.
 
     Parameters
@@ -34,27 +129,27 @@ def ensemble_summary(names: list[str], summaries: list[RunSummary]) -> dict[str,
     names : list of str
         Realization names.
     summaries : list of RunSummary
-        Each realization's summary.
+        Each realization's summary (one method and block for all).
+    command : list of str
+        The command line.
 
     Returns
     -------
-    dict
-        ``realizations`` (name, input, SHA-256, and per axis k_fine, k_coarse,
-        rel_error) and ``statistics``: per quantity and axis ``p10``, ``p50``,
-        ``p90``, ``mean``, ``min``, ``max`` (null when the check was not run).
+    EnsembleSummary
+        Per quantity and axis the spread is None when no realization has a value.
     """
     rows = []
     for name, summary in zip(names, summaries):
         checks = summary.check.axes if summary.check is not None else {}
-        row: dict[str, Any] = {"name": name, "inputs": [{"role": i.role, "path": i.path, "sha256": i.sha256}
-                                                        for i in summary.provenance.inputs]}  # fmt: skip
-        for quantity in QUANTITIES:
-            row[quantity] = {axis: getattr(c, quantity) for axis, c in checks.items()}
-        rows.append(row)
-    axes = sorted({axis for row in rows for axis in row["k_fine"]}, key="xyz".index)
-    statistics = {quantity: {axis: _plain(spread([r[quantity].get(axis) for r in rows])) for axis in axes}
+        inputs = tuple(InputRef(i.role, i.path, i.sha256) for i in summary.provenance.inputs)
+        per_axis = ({axis: getattr(c, quantity) for axis, c in checks.items()} for quantity in QUANTITIES)
+        rows.append(RealizationCheck(name, inputs, *per_axis))
+    axes = sorted({axis for row in rows for axis in row.k_fine}, key="xyz".index)
+    statistics = {quantity: {axis: spread([getattr(r, quantity).get(axis) for r in rows]) for axis in axes}
                   for quantity in QUANTITIES}  # fmt: skip
-    return {"realizations": rows, "statistics": statistics, "percentiles": PERCENTILE_NOTE}
+    first = summaries[0]
+    return EnsembleSummary(tuple(rows), statistics, PERCENTILE_NOTE, first.method, first.block, command,
+                           working_folder(command))  # fmt: skip
 
 
 #: How the percentiles are defined, recorded beside them.
@@ -289,9 +384,10 @@ def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
                            methods[0].name if methods and methods[0].rank else None)  # fmt: skip
 
 
-def csv_rows(ensemble: dict[str, Any]) -> tuple[list[str], list[list[Any]]]:
+def csv_rows(ensemble: EnsembleSummary) -> tuple[list[str], list[list[Any]]]:
     """Header and rows of ``ensemble.csv``: one row per realization."""
-    axes = [a for a in "xyz" if any(a in r["k_fine"] for r in ensemble["realizations"])]
+    axes = [a for a in "xyz" if any(a in r.k_fine for r in ensemble.realizations)]
     header = ["name", *(f"{q}_{a}" for a in axes for q in QUANTITIES)]
-    rows = [[r["name"], *(r[q].get(a) for a in axes for q in QUANTITIES)] for r in ensemble["realizations"]]
+    rows = [[r.name, *(getattr(r, q).get(a) for a in axes for q in QUANTITIES)]
+            for r in ensemble.realizations]  # fmt: skip
     return header, rows

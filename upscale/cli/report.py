@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from ..analysis.ensemble import EnsembleRanking
+from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.records import SolveRecord
 from ..analysis.summary import FlowCheck, RunSummary
 from ..export.package import PACKAGE_FILES
@@ -144,18 +144,17 @@ def _print_windows(check: FlowCheck) -> None:
                        f"median {100 * s.median:+.2f} %, max {100 * s.max:+.2f} %")  # fmt: skip
 
 
-def print_ensemble(ensemble: dict, out: str) -> None:
+def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
     """Print the spread of an ensemble's check: P10, P50, P90 per quantity and axis."""
-    stats = ensemble["statistics"]
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
-        for axis, s in stats[quantity].items():
+        for axis, s in ensemble.statistics[quantity].items():
             if s is None:
                 continue
             scale, spec = (100.0, "+.2f") if quantity == "rel_error" else (1.0, ".4g")
-            rows.append([f"{quantity} {axis}", *(number(scale * s[p], spec) for p in ("p10", "p50", "p90")),
-                         str(s["count"])])  # fmt: skip
-    click.echo(f"ensemble of {len(ensemble['realizations'])} realizations")
+            rows.append([f"{quantity} {axis}", *(number(scale * v, spec) for v in (s.p10, s.p50, s.p90)),
+                         str(s.count)])  # fmt: skip
+    click.echo(f"ensemble of {len(ensemble.realizations)} realizations")
     if rows:
         click.echo(table(["quantity", "P10", "P50", "P90", "n"], rows))
         click.echo("(k in the input's unit, errors in %; P10 is exceeded by 90 % of the realizations)")

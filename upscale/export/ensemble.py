@@ -12,16 +12,14 @@ import json
 from pathlib import Path
 from typing import Any
 
-from ..analysis.ensemble import PERCENTILES, EnsembleRanking, MethodSpread, csv_rows
-from ..analysis.records import jsonable
-from ..caution import CAUTION
+from ..analysis.ensemble import PERCENTILES, EnsembleRanking, EnsembleSummary, MethodSpread, csv_rows
 from .comparison import write_figures
 
 #: The ensemble's summary; written last, it marks the ensemble folder complete.
 ENSEMBLE = "ensemble.json"
 
 
-def write_ensemble(stage: Path, ensemble: dict[str, Any], names: list[str], *,
+def write_ensemble(stage: Path, ensemble: EnsembleSummary, names: list[str], *,
                    images: list[tuple[str, bytes, bytes]] | None = None,
                    page: str | None = None) -> None:  # fmt: skip
     """Write ``ensemble.csv``, any figures and page, then ``ensemble.json`` (listing the files)."""
@@ -31,8 +29,8 @@ def write_ensemble(stage: Path, ensemble: dict[str, Any], names: list[str], *,
     if page is not None:
         (stage / "report.html").write_text(page, encoding="utf-8")
         files.append("report.html")
-    content = dict(ensemble, files=files, caution=CAUTION)
-    (stage / ENSEMBLE).write_text(json.dumps(jsonable(content), indent=2, allow_nan=False) + "\n")
+    content = dataclasses.replace(ensemble, files=tuple(files)).to_dict()
+    (stage / ENSEMBLE).write_text(json.dumps(content, indent=2, allow_nan=False) + "\n")
 
 
 def ranking_rows(methods: tuple[MethodSpread, ...], axes: str) -> tuple[list[str], list[list[Any]]]:

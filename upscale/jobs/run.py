@@ -13,8 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from ..analysis.compare import single
-from ..analysis.ensemble import ensemble_summary
-from ..analysis.records import working_folder
+from ..analysis.ensemble import EnsembleSummary, ensemble_summary
 from ..analysis.summary import RunSummary
 from ..check.axis import check_flow
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
@@ -153,7 +152,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
 
 
 def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overwrite: bool = False,
-                 parallel: int = 1, say: Say = silent) -> dict[str, Any]:  # fmt: skip
+                 parallel: int = 1, say: Say = silent) -> EnsembleSummary:  # fmt: skip
     """The same job on every realization, into one sub-folder each, and the ensemble's spread.
 
     Parameters
@@ -175,7 +174,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
 
     Returns
     -------
-    dict
+    EnsembleSummary
         The content of ``ensemble.json``.
 
     Raises
@@ -196,10 +195,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         with ThreadPoolExecutor(max_workers=max(1, parallel)) as pool:
             summaries = list(pool.map(one, names, paths))
-        ensemble = ensemble_summary(names, summaries)
-        ensemble.update({"method": {"name": settings.method, "options": summaries[0].method.options},
-                         "block": summaries[0].block, "command": settings.command,
-                         "working_folder": working_folder(settings.command)})  # fmt: skip
+        ensemble = ensemble_summary(names, summaries, command=settings.command)
         made = None
         if settings.plot or settings.report:
             with Steps(say)(None, "drawing the spread over the realizations"):

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..analysis.compare import Comparison
-from ..analysis.ensemble import EnsembleRanking
+from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.records import versions, working_folder
 from ..caution import CAUTION
 from .ensemble_page import ensemble_page
@@ -76,13 +76,13 @@ def _percent(value: float | None) -> str:
     return "–" if value is None else f"{100 * value:+.2f} %"
 
 
-def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command: list[str]) -> Bundle:
+def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command: list[str]) -> Bundle:
     """The figure and the page of one method over an ensemble (``upscale run`` on several fields).
 
     Parameters
     ----------
-    ensemble : dict
-        From `upscale.analysis.ensemble.ensemble_summary`, with ``method`` and ``block`` added.
+    ensemble : EnsembleSummary
+        From `upscale.analysis.ensemble.ensemble_summary`.
     unit : str
         Permeability unit.
     title : str
@@ -97,19 +97,19 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
     images, shown = _rendered(plots)
     rows = []
     for quantity, name in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
-        for axis, s in ensemble["statistics"][quantity].items():
+        for axis, s in ensemble.statistics[quantity].items():
             if s is None:
                 continue
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
-            values = [cell(s[k]) for k in ("p10", "p50", "p90", "mean", "min", "max")]
-            rows.append([f"{name} along {axis}", *values, str(s["count"])])
-    errors = [s["p50"] for s in ensemble["statistics"]["rel_error"].values() if s]
-    name = ensemble["method"]["name"]
+            values = [cell(v) for v in (s.p10, s.p50, s.p90, s.mean, s.min, s.max)]
+            rows.append([f"{name} along {axis}", *values, str(s.count)])
+    errors = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
+    name = ensemble.method.name
     worst = max(errors, key=abs) if errors else None
     job = {
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(),
-        "verdict": f"{name} on {len(ensemble['realizations'])} realizations: "
+        "verdict": f"{name} on {len(ensemble.realizations)} realizations: "
         + (f"median check error within {100 * abs(worst):.2f} % on every axis." if errors else
            "the check was not run."),
         "warning": outside_band(name, worst, several=False, measure="median check error",
@@ -117,11 +117,11 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
         "note": None,
         "what": f"Effective permeability ({unit}) of the fine and the coarse model under the same "
         "pressure drop, and the check error, over the realizations.",
-        "realizations": [{"name": r["name"], **(r["inputs"][0] if r["inputs"] else
-                                                {"path": "", "sha256": None})}
-                         for r in ensemble["realizations"]],
-        "block": _block(ensemble["block"], "".join(ensemble["statistics"]["k_fine"])),
-        "percentiles": ensemble["percentiles"],
+        "realizations": [{"name": r.name, **(r.inputs[0].to_dict() if r.inputs else
+                                             {"path": "", "sha256": None})}
+                         for r in ensemble.realizations],
+        "block": _block(ensemble.block, ensemble.axes),
+        "percentiles": ensemble.percentiles,
     }  # fmt: skip
     head = ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
     return Bundle(images, ensemble_page(job, head, rows, shown))
