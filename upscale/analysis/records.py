@@ -1,8 +1,9 @@
 """The pieces every result record shares: provenance, grids, one axis of the flow check, spreads.
 
 The result model of the tool is a set of frozen dataclasses — `RunSummary`
-(``summary.json``), `ComparisonRecord` (``compare.json``), `EnsembleRanking`
-(``ensemble.json`` of a comparison) — built from these pieces. Each record
+(``summary.json``), `ComparisonRecord` (``compare.json``), `EnsembleSummary`
+and `EnsembleRanking` (``ensemble.json`` of a run and of a comparison) —
+built from these pieces. Each record
 holds JSON-ready values (an undefined number is None, never NaN) in the
 order its file lists them: ``to_dict()`` gives the file's content key for key,
 ``from_dict()`` reads it back. Writing the files stays in `upscale.export`.
