@@ -6,6 +6,17 @@ written out (range reduction on the float's exponent bits, then a short
 series), accurate to a few units in the last place, so the kernels that
 call them for every cell run in SIMD lanes. `JIT` holds the compiler options
 every kernel of the package uses.
+
+Kept rather than ``math.log``/``math.exp`` (measured for issue 15, one thread,
+16.8 M float32 cells, best of 5, 2-core machine under load): with the
+library functions the value scan every run makes of its input
+(`upscale.stats`) falls from 99–123 to 50–58 M cells/s and the power average
+from 85–87 to 32 M cells/s (``tests/benchmarks/bench_averages.py``: 0.05 →
+0.01 of ``numpy.sum``'s throughput); the outputs change in the last bits
+(sums of ln k, powers), which ``tests/test_reference_outputs.py`` refuses;
+and the first ``upscale run --method geometric`` would compile 4.9 CPU s
+instead of 5.5, about the spread between runs
+(``tests/benchmarks/bench_compile.py``).
 """
 
 from __future__ import annotations

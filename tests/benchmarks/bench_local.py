@@ -282,8 +282,7 @@ def task_tool(spec: dict) -> dict:
     import numba
 
     return {"times": times, "best": min(times), "median": float(np.median(times)), "before_mib": before,
-            "peak_mib": peak, "threads": numba.get_num_threads(), "layer": numba.threading_layer(),
-            "load": os.getloadavg()[0]}  # fmt: skip
+            "peak_mib": peak, "threads": numba.get_num_threads(), "load": os.getloadavg()[0]}  # fmt: skip
 
 
 def task_loop(spec: dict) -> dict:

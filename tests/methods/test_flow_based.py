@@ -52,6 +52,11 @@ What is tested
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+import textwrap
+
 import dask
 import dask.array as da
 import numpy as np
@@ -956,3 +961,30 @@ def test_direct_transmissibilities_exact_across_layers_with_barriers():
     first, last = direct.boundary[0]
     assert first.shape == (1, 2, 2) and last.shape == (1, 2, 2)
     assert np.all(np.isfinite(first)) and np.all(first > 0) and np.all(last > 0)
+
+
+def test_flow_solves_leave_numbas_threading_layer_alone_and_split_boxes_freely():
+    # Importing the package must not change numba's process-wide configuration: it once set
+    # numba.config.THREADING_LAYER = "threadsafe" for every importer (issue 15). The boxes are
+    # spread over numba's thread count instead; one thread and four give the same bits.
+    script = textwrap.dedent("""
+        import numba
+        import numpy as np
+        from upscale import Field, coarsen
+        from upscale.gallery.fields import lognormal_field
+        layer = numba.config.THREADING_LAYER
+        k = lognormal_field((40, 48), (6.0, 6.0), geometric_mean=50.0, sigma_ln=1.5, seed=20_151)
+        results = []
+        for threads in (1, 4):
+            numba.set_num_threads(threads)
+            for method, options in (("flow", {"bc": "periodic", "border": 1}), ("flow-transmissibility", {})):
+                result = coarsen(Field.from_arrays(k), "4x4", method, **options)
+                results.append(np.concatenate([result.coarse.kx.ravel(), result.coarse.ky.ravel()]))
+        print(layer, numba.config.THREADING_LAYER, results[0].tobytes() == results[2].tobytes(),
+              results[1].tobytes() == results[3].tobytes())
+    """)
+    env = {name: value for name, value in os.environ.items() if name != "NUMBA_THREADING_LAYER"}
+    env["NUMBA_NUM_THREADS"] = "4"
+    done = subprocess.run([sys.executable, "-c", script], env=env, capture_output=True, text=True,
+                          timeout=600, check=True)  # fmt: skip
+    assert done.stdout.split() == ["default", "default", "True", "True"]

@@ -1,4 +1,4 @@
-"""Stage 6a: several methods on one field, checked against one shared fine solve and ranked.
+"""Stage 6: several methods on one field, checked against one shared fine solve and ranked.
 
 `compare_methods` upscales the field with each method, solves the coarse
 model of each under the same pressure drops as the fine model — the fine

@@ -5,11 +5,7 @@ from __future__ import annotations
 import click
 
 from ..analysis.summary import FlowCheck
-from ..check.axis import check_summary
-from ..export import update_summary
-from ..io.package import read_package
-from ..io.results import read_run
-from ..methods.coarsen import refuse_bad_values
+from ..jobs.check import check_folder
 from .options import check_options, global_options
 from .report import print_check
 
@@ -32,10 +28,6 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
     Example:
       upscale check out/ --solver direct
     """
-    _, fine = read_run(folder)
-    refuse_bad_values(fine)  # the run checked them, but it may have recorded no SHA-256
-    _, coarse = read_package(folder)
-    result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
-    recorded = update_summary(folder, {"check": result})["check"]
+    summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit)
     if not ctx.obj["quiet"]:
-        print_check(FlowCheck.from_dict(recorded))
+        print_check(FlowCheck.from_dict(summary["check"]))

@@ -11,7 +11,6 @@ from ..io.realizations import expand
 from ..jobs.cluster import compute_on
 from ..jobs.run import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
-from ..units import unit_factors
 from .options import (
     block_options,
     block_spec,
@@ -93,7 +92,6 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
     if (plot or html_report) and no_check:
         raise InputError("--plot and --report show the flow check; leave out --no-check")
     spec = block_spec(options)
-    unit_factors(str(options["unit"]), units)  # refuses field units for a conductivity, early
     read = read_options(options)
     settings = Settings(
         block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},

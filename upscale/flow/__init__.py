@@ -1,7 +1,7 @@
-"""Shared flow engine: steady single-phase two-point flux on Cartesian grids.
+"""Stage 4: the flow engine, steady single-phase two-point flux on Cartesian grids.
 
-Stages 3b–5 (flow-based upscaling, coarse transmissibilities, the
-fine-versus-coarse check) build on the same pieces:
+The flow-based methods (stage 3), the coarse transmissibilities and the
+fine-versus-coarse check (stage 5) build on the same pieces:
 
 * ``transmissibility`` — half-cell and face transmissibilities (harmonic rule);
 * ``islands``         — which cells connect to a fixed-pressure face;

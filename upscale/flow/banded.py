@@ -15,14 +15,17 @@ from __future__ import annotations
 import numba as nb
 import numpy as np
 
-# Several threads (dask's, or an ensemble's) may launch the compiled parallel loops at
-# once; numba's default "workqueue" threading layer does not allow that (numba
-# documentation, "The Threading Layers"), the OpenMP or TBB layers do.
-nb.config.THREADING_LAYER = "threadsafe"
-
 #: Compiler options of the local solver. No fast-math: a result must not depend
-#: on memory alignment, so chunked and whole-array runs agree to the bit.
-EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy")
+#: on memory alignment, so chunked and whole-array runs agree to the bit. No C
+#: function wrapper (nothing takes the kernels' addresses): less to compile. One
+#: set for every kernel of the solver, inner ones included: numba compiles its own
+#: helpers (``np.empty``, ``min``, ...) once per caller option set, so kernels
+#: without a Python entry point (``no_cpython_wrapper``) made it compile each of
+#: them twice (tests/benchmarks/bench_compile.py).
+#: Kernels that only pass work on (``_one_box``, ``_live``, ...) are inlined by numba
+#: (``inline="always"``): it links a called kernel's whole call tree into each caller's
+#: code and optimises it there again, so every level of calls repeats the work below it.
+EXACT_JIT = dict(nogil=True, cache=True, error_model="numpy", no_cfunc_wrapper=True)
 
 
 @nb.njit(**EXACT_JIT)

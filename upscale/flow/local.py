@@ -45,6 +45,9 @@ so flux densities come out in the unit of k.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+
 import numba as nb
 import numpy as np
 
@@ -159,7 +162,7 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     return pinned
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _geometry(h, shape):
     """Cell-centre coordinates (3, max) and box lengths (3,) in m."""
     centre = np.zeros_like(h)
@@ -396,7 +399,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
             G[a, b] = (p_hi / a_hi - p_lo / a_lo) / h[b, lo[b] : hi[b]].sum()
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _live(t, shape, bc, axes, a):
     """Faces of the box that can carry flow under the gradient along `a` (`upscale.flow.paths`)."""
     fixed = np.zeros(3, np.bool_)
@@ -405,7 +408,7 @@ def _live(t, shape, bc, axes, a):
     return live_faces(t, shape, fixed, bc == PERIODIC, axes, a)
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
     n = t.shape[1]
     ab = np.empty((n, width + 1))
@@ -424,8 +427,38 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
                         U, G)  # fmt: skip
 
 
-@nb.njit(parallel=True, **EXACT_JIT)
-def block_tensors(t, h, shape, lo, hi, order, width, bc, axes):
+@nb.njit(**EXACT_JIT)
+def _tensors(t, h, shape, lo, hi, order, width, bc, axes, U, G):
+    """`block_tensors` of the boxes `t` into `U` and `G`, one box after the other."""
+    for q in range(t.shape[0]):
+        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+
+
+def _in_threads(count: int, run: Callable[[slice], None]) -> None:
+    """Call ``run`` on consecutive parts of ``range(count)``, one per thread (numba's thread count).
+
+    The compiled loops release the GIL, so the parts run in parallel; each
+    box is solved alone, so how the boxes are split changes no result.
+    Plain threads rather than numba's ``parallel=True``: its parallel loops,
+    launched from several threads at once (dask's, an ensemble's), need the
+    OpenMP or TBB threading layer, and only the process-wide
+    ``numba.config.THREADING_LAYER`` selects one (numba documentation, "The
+    Threading Layers"), which this package set for every importer; and they
+    cost about 4 s of compiling each on first use (docs/performance.md).
+    """
+    parts = min(nb.get_num_threads(), count)
+    bounds = [count * i // parts for i in range(parts + 1)] if parts > 1 else [0, count]
+    pieces = [slice(b0, b1) for b0, b1 in zip(bounds[:-1], bounds[1:])]
+    if len(pieces) == 1:
+        run(pieces[0])
+        return
+    with ThreadPoolExecutor(len(pieces)) as pool:
+        for done in [pool.submit(run, piece) for piece in pieces]:
+            done.result()
+
+
+def block_tensors(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                  order: np.ndarray, width: int, bc: int, axes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Average flux densities and pressure gradients of many boxes of one shape.
 
     Parameters
@@ -458,50 +491,52 @@ def block_tensors(t, h, shape, lo, hi, order, width, bc, axes):
     P = t.shape[0]
     U = np.full((P, 3, 3), np.nan)
     G = np.full((P, 3, 3), np.nan)
-    for q in nb.prange(P):
-        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+    _in_threads(P, lambda s: _tensors(t[s], h[s], shape, lo[s], hi[s], order, width, bc, axes, U[s], G[s]))
     return U, G
 
 
 @nb.njit(**EXACT_JIT)
-def _one_pair(t, h, shape, lo, mid, hi, a, order, width, axes, out):
-    n = t.shape[1]
+def _pairs(t, h, shape, lo, mid, hi, a, order, width, axes, out):
+    """`pair_fluxes` of the boxes `t` into `out`, one box after the other."""
+    n = t.shape[2]
     ab = np.empty((n, width + 1))
     floating = np.empty(n, np.bool_)
-    centre, length = _geometry(h, shape)
     bc, (near, far) = _SEALED, _SIDES
-    pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
-    factor(ab)
-    p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
-    inner, outer = _live(t, shape, bc, axes, a)
-    flux = magnitude = 0.0
-    sums = np.zeros(4)
-    for iz in range(lo[0], hi[0]):
-        for iy in range(lo[1], hi[1]):
-            for ix in range(lo[2], hi[2]):
-                c = (iz * shape[1] + iy) * shape[2] + ix
-                pos = (iz, iy, ix)[a]
-                q = 0.0
-                if pos == mid:
-                    q = _face(t, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
-                elif mid == shape[a] and pos == mid - 1:  # the box's last face: the domain's
-                    q = _face(t, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
-                flux += q
-                magnitude += abs(q)
-                conducting = t[0, c] + t[1, c] + t[2, c] > 0.0
-                if conducting and not floating[c]:
-                    v = h[0, iz] * h[1, iy] * h[2, ix]
-                    side = 0 if pos < mid else 2
-                    sums[side] += v * p[c]
-                    sums[side + 1] += v
-    out[0] = _net(flux, magnitude)
-    # without a first (second) block the face is the domain's own, at its fixed pressure
-    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if mid == 0 else np.nan)
-    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if mid == shape[a] else np.nan)
+    for q in range(t.shape[0]):
+        tq, hq, m = t[q], h[q], mid[q]
+        centre, length = _geometry(hq, shape)
+        pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
+        factor(ab)
+        p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
+        inner, outer = _live(tq, shape, bc, axes, a)
+        flux = magnitude = 0.0
+        sums = np.zeros(4)
+        for iz in range(lo[q, 0], hi[q, 0]):
+            for iy in range(lo[q, 1], hi[q, 1]):
+                for ix in range(lo[q, 2], hi[q, 2]):
+                    c = (iz * shape[1] + iy) * shape[2] + ix
+                    pos = (iz, iy, ix)[a]
+                    f = 0.0
+                    if pos == m:
+                        f = _face(tq, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
+                    elif m == shape[a] and pos == m - 1:  # the box's last face: the domain's
+                        f = _face(tq, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
+                    flux += f
+                    magnitude += abs(f)
+                    conducting = tq[0, c] + tq[1, c] + tq[2, c] > 0.0
+                    if conducting and not floating[c]:
+                        v = hq[0, iz] * hq[1, iy] * hq[2, ix]
+                        side = 0 if pos < m else 2
+                        sums[side] += v * p[c]
+                        sums[side + 1] += v
+        out[q, 0] = _net(flux, magnitude)
+        # without a first (second) block the face is the domain's own, at its fixed pressure
+        out[q, 1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if m == 0 else np.nan)
+        out[q, 2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if m == shape[a] else np.nan)
 
 
-@nb.njit(parallel=True, **EXACT_JIT)
-def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
+def pair_fluxes(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray, mid: np.ndarray,
+                hi: np.ndarray, a: int, order: np.ndarray, width: int, axes: np.ndarray) -> np.ndarray:
     """Flux through the shared face of two blocks, and their mean pressures.
 
     Each box holds two neighbouring blocks along axis `a` (``[lo, mid)`` and
@@ -530,10 +565,9 @@ def pair_fluxes(t, h, shape, lo, mid, hi, a, order, width, axes):
         the volume-averaged pressure (m) of the first and of the second block
         over its active cells (NaN when none has a defined pressure).
     """
-    P = t.shape[0]
-    out = np.empty((P, 3))
-    for q in nb.prange(P):
-        _one_pair(t[q], h[q], shape, lo[q], mid[q], hi[q], a, order, width, axes, out[q])
+    out = np.empty((t.shape[0], 3))
+    _in_threads(len(out), lambda s: _pairs(t[s], h[s], shape, lo[s], mid[s], hi[s], a, order, width, axes,
+                                           out[s]))  # fmt: skip
     return out
 
 

@@ -174,7 +174,7 @@ def _charged_edges(u, v, source, count, nodes):
     return live
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _whole(t, shape, axes):
     """Whether every cell conducts along every flow axis, at least two cells long.
 
@@ -192,7 +192,7 @@ def _whole(t, shape, axes):
     return True
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _every_face(shape, fixed, periodic, axes):
     """`live_faces` of a box whose every face carries flow: the faces it has."""
     n = shape[0] * shape[1] * shape[2]

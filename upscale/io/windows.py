@@ -90,6 +90,8 @@ def available_memory() -> int | None:
 
 
 _reading = threading.local()
+#: Held while this module changes the process's warning filters (`open_raster`).
+_FILTERS_LOCK = threading.Lock()
 
 
 #: Words of GDAL's reports that mean the file is damaged (its others are remarks).
@@ -132,13 +134,17 @@ def open_raster(path: str) -> Iterator[Any]:
     outer = getattr(_reading, "damage", None)
     _reading.damage = damage = []
     try:
-        with warnings.catch_warnings():
+        # rasterio warns at open only; the filters are process-wide and
+        # `catch_warnings` restores them on exit, so two reader threads must
+        # not interleave their saves and restores: the lock, for the open alone
+        with _FILTERS_LOCK, warnings.catch_warnings():
             warnings.simplefilter("ignore", NotGeoreferencedWarning)
-            with rasterio.open(path) as src:
-                if damage:
-                    raise InputError(f"{path}: cannot be read as a raster, the file is truncated or "
-                                     f"damaged ({damage[0]})")  # fmt: skip
-                yield src
+            opened = rasterio.open(path)
+        with opened as src:
+            if damage:
+                raise InputError(f"{path}: cannot be read as a raster, the file is truncated or "
+                                 f"damaged ({damage[0]})")  # fmt: skip
+            yield src
     except RasterioError as exc:
         # rasterio's own text may be 'Read failed. See previous exception for details.'
         raise InputError(f"{path}: cannot be read as a raster ({exc.__cause__ or exc})") from None

@@ -29,6 +29,7 @@ from ..io.realizations import read_realizations
 from ..methods.coarsen import Upscaled, coarsen
 from ..report.bundle import bundle, ensemble_bundle
 from ..steps import Say, Steps, silent
+from ..units import unit_factors
 
 
 @dataclass(frozen=True)
@@ -75,6 +76,9 @@ class Settings:
     report: bool = False
     layer: int | None = None
     command: list[str] = field(default_factory=list)
+
+    def __post_init__(self) -> None:
+        unit_factors(str(self.read.get("unit", "mD")), self.units)  # refuses before any work
 
 
 def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,

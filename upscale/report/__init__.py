@@ -1,4 +1,4 @@
-"""Stage 6b: figures and the HTML report of a comparison (or of one run).
+"""Stage 6: figures and the HTML report of a comparison (or of one run).
 
 * ``style``   — colour maps, the shared log scale and its ends, how no value is drawn;
 * ``coordinates`` — true cell edges of maps and sections, coordinates written in full;
