@@ -158,7 +158,16 @@ PERCENTILE_NOTE = ("10th, 50th and 90th percentiles over the realizations (numpy
 
 
 def spread(values: list[float | None]) -> Spread | None:
-    """P10, P50, P90, mean, min, max and count of the finite values (None if there are none)."""
+    """P10, P50, P90, mean, min, max and count of the finite values (None if there are none).
+
+    Examples
+    --------
+    >>> found = spread([1.0, None, 3.0, float("nan")])
+    >>> found.p50, found.count
+    (2.0, 2)
+    >>> spread([None]) is None
+    True
+    """
     finite = np.array([np.nan if v is None else v for v in values], dtype=float)
     finite = finite[np.isfinite(finite)]
     if finite.size == 0:

@@ -22,6 +22,7 @@ from typing import Any, TypeVar
 
 import numpy as np
 
+from ..check.axis import AxisCheck
 from ..field import Field, Grid
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
@@ -254,7 +255,7 @@ class AxisResult:
                    SolveRecord.from_dict(data["fine"]), SolveRecord.from_dict(data["coarse"]))  # fmt: skip
 
 
-def axis_results(checks: dict[str, Any]) -> dict[str, AxisResult]:
+def axis_results(checks: dict[str, AxisCheck]) -> dict[str, AxisResult]:
     """`AxisResult` per axis from the ``AxisCheck`` objects of `upscale.check.check_flow`."""
     return {axis: AxisResult.from_dict(jsonable(c.summary())) for axis, c in checks.items()}
 
