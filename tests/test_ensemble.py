@@ -7,6 +7,8 @@ What is tested
   folder's check, and ``ensemble.json`` percentiles equal to
   ``numpy.percentile`` over the per-realization results (Hyndman & Fan 1996,
   "Sample quantiles in statistical packages", definition 7: numpy's default).
+* An ensemble whose fields are past the check limit (each checked on
+  windows instead) is summarised with no check spread instead of stopping.
 * The same outputs, array for array, from the threaded scheduler, a
   ``dask.distributed.LocalCluster`` started by the test (``--scheduler``) and
   ``--workers 2``, for an average and for the flow method with a border; and
@@ -124,6 +126,20 @@ def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_pat
     a = json.loads((threaded[method] / "ensemble.json").read_text())["statistics"]
     b = json.loads((out / "ensemble.json").read_text())["statistics"]
     assert a == b
+
+
+def test_an_ensemble_checked_on_windows_has_no_check_spread(run_cli, realizations, tmp_path):
+    out = tmp_path / "ens"
+    code, stdout, stderr = run_cli("-q", "run", realizations / "r*.tif", "--block", "8x8", "--method",
+                                   "geometric", "--check-limit", 500, "--out", out)  # fmt: skip
+    assert (code, stdout, stderr) == (0, "", "")
+    names = [f"r{r}" for r in range(5)]
+    for name in names:
+        check = json.loads((out / name / "summary.json").read_text())["check"]
+        assert check["skipped"] and check["windows"]
+    ensemble = json.loads((out / "ensemble.json").read_text())
+    assert [r["name"] for r in ensemble["realizations"]] == names
+    assert ensemble["statistics"] == {quantity: {} for quantity in QUANTITIES}
 
 
 @pytest.mark.slow

@@ -67,9 +67,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 from browser_probe import assert_self_contained, probe
+from comparison_records import comparison, method
 from conftest import partial_leftovers, snapshot, write_raster
 from PIL import Image
 
+from upscale.analysis.comparison_record import ComparisonRecord
 from upscale.analysis.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
 from upscale.caution import CAUTION
 from upscale.cli.main import main
@@ -532,18 +534,14 @@ def test_page_is_self_contained_and_embeds_the_figure_file(page):
 
 def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on_all():
     # built by hand: "flaky" has the smallest P50 but did not run on r2; "steady" ran everywhere
-    def comparison(flaky: float | None, steady: float) -> dict:
+    def realization(flaky: float | None, steady: float) -> ComparisonRecord:
         def entry(name, error):
-            if error is None:
-                return {"name": name, "method": name, "error": "cannot run here", "rank": None,
-                        "check": None}
-            return {"name": name, "method": name, "error": None, "rank": 1,
-                    "check": {"x": {"rel_error": error}, "y": {"rel_error": 0.0}}}
-        return {"dimensions": 2, "methods": [entry("flaky", flaky), entry("steady", steady)]}
+            errors = None if error is None else {"x": error, "y": 0.0}
+            return method(name, None if error is None else 1, errors)
+        return comparison([entry("flaky", flaky), entry("steady", steady)])
 
-    methods = method_spread(["r1", "r2", "r3"], [comparison(0.01, 0.05), comparison(None, 0.04),
-                                                  comparison(0.02, 0.06)])  # fmt: skip
-    assert [(m["name"], m["rank"], m["ran"], m["failed"]) for m in methods] == [
-        ("steady", 1, 3, 0), ("flaky", 2, 2, 1)]  # fmt: skip
-    assert methods[1]["worst_error"]["p50"] == pytest.approx(0.015)  # over the two it ran on
-    assert methods[1]["by_realization"]["r2"] is None
+    methods = method_spread(["r1", "r2", "r3"], [realization(0.01, 0.05), realization(None, 0.04),
+                                                  realization(0.02, 0.06)])  # fmt: skip
+    assert [(m.name, m.rank, m.ran, m.failed) for m in methods] == [("steady", 1, 3, 0), ("flaky", 2, 2, 1)]
+    assert methods[1].worst_error.p50 == pytest.approx(0.015)  # over the two it ran on
+    assert methods[1].by_realization["r2"] is None

@@ -21,6 +21,7 @@ from affine import Affine
 from conftest import north_up, write_raster
 
 import upscale
+from upscale.analysis.summary import RunSummary
 from upscale.errors import OutputExistsError
 from upscale.export.package import PACKAGE_FILES
 from upscale.gallery.problems import uncorrelated_lognormal
@@ -103,7 +104,7 @@ def test_map_round_trip_keeps_georeference_units_and_values(tmp_path, map_inputs
         np.testing.assert_array_equal(stored, expected)  # bit for bit, NaN where inactive
         assert np.isnan(stored[0, 0, 0]) and not valid[0, 0, 0]
         assert np.isnan(stored).sum() == 1  # only the all-nodata block is inactive
-    assert [f for f in summary["files"] if f not in PACKAGE_FILES] == ["kx.tif", "ky.tif", "porosity.tif"]
+    assert [f for f in summary.files if f not in PACKAGE_FILES] == ["kx.tif", "ky.tif", "porosity.tif"]
 
 
 def test_coarse_geometric_mean_of_one_block_is_computed_from_the_fine_cells(tmp_path, map_inputs):
@@ -173,8 +174,8 @@ def test_edge_blocks_keep_the_regular_pixel_size_in_the_file(tmp_path, map_input
         assert (dst.height, dst.width) == (7, 5)
         assert dst.res == (10 * DX, 5 * DY)
         np.testing.assert_array_equal(dst.read(), result.coarse.kx)
-    assert summary["coarse"]["dx_m"] == {"regular": 10 * DX, "last": 8 * DX}
-    assert summary["coarse"]["dy_m"] == {"regular": 5 * DY, "last": 2 * DY}
+    assert summary.coarse.dx_m == {"regular": 10 * DX, "last": 8 * DX}
+    assert summary.coarse.dy_m == {"regular": 5 * DY, "last": 2 * DY}
 
 
 def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_inputs):
@@ -187,7 +188,7 @@ def test_summary_records_inputs_parameters_grids_and_statistics(tmp_path, map_in
     returned = upscale.write_result(result, out, command=command, timings={"a": 1.5})
     text = (out / "summary.json").read_text()
     summary = _strict_json(text)
-    assert summary == returned
+    assert summary == returned.to_dict() and RunSummary.from_dict(summary) == returned
 
     assert summary["tool"] == "upscale"
     assert summary["versions"]["upscale"] == upscale.__version__ == metadata.version("upscale")

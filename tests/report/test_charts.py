@@ -17,18 +17,28 @@ What is tested
   (and does not when one is).
 
 Data come from real comparisons (`compare_methods`) or, for the ensemble
-charts, from hand-built summaries shaped like ``ensemble.json``.
+charts, from hand-built records of ``ensemble.json``.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
+from comparison_records import comparison, method
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
-from upscale.analysis.ensemble import method_spread
+from upscale.analysis.comparison_record import ComparisonRecord
+from upscale.analysis.ensemble import (
+    PERCENTILE_NOTE,
+    QUANTITIES,
+    EnsembleSummary,
+    RealizationCheck,
+    method_spread,
+    spread,
+)
+from upscale.analysis.summary import MethodUsed
 from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.report.charts import error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
@@ -64,16 +74,14 @@ def test_error_axis_reads_in_plain_percent_on_a_symmetric_log_scale():
     assert {"0", "10 %", "−10 %"} <= {text for _, text in labels}
 
 
-def _comparison_json(errors: dict[str, tuple[float, float]]) -> dict:
-    """The part of one realization's compare.json that `method_spread` reads."""
+def _comparison(errors: dict[str, tuple[float, float]]) -> ComparisonRecord:
+    """One realization's comparison: per method its check errors along x and y."""
     ranked = sorted(errors, key=lambda n: max(map(abs, errors[n])))
-    return {"dimensions": 2, "methods": [
-        {"name": n, "method": n, "error": None, "rank": ranked.index(n) + 1,
-         "check": {"x": {"rel_error": ex}, "y": {"rel_error": ey}}} for n, (ex, ey) in errors.items()]}
+    return comparison([method(n, ranked.index(n) + 1, {"x": ex, "y": ey}) for n, (ex, ey) in errors.items()])
 
 
 def test_spread_error_axis_reads_in_plain_percent():
-    realizations = [_comparison_json({"geometric": (-0.08 - 0.01 * i, 0.02), "arithmetic": (0.4, 1.9 + i)})
+    realizations = [_comparison({"geometric": (-0.08 - 0.01 * i, 0.02), "arithmetic": (0.4, 1.9 + i)})
                     for i in range(4)]  # fmt: skip
     methods = method_spread([f"r{i}" for i in range(4)], realizations)
     (ax,) = [a for a in method_spread_chart(methods, "xy", 4).axes if a.get_visible()]
@@ -81,14 +89,13 @@ def test_spread_error_axis_reads_in_plain_percent():
     _assert_plain_percent(_shown_labels(ax))
 
 
-def _ensemble(k_fine: list[float], k_coarse: list[float]) -> dict:
-    """An ensemble.json of one method along x, with the check errors of its k."""
-    rows = [{"name": f"r{i}", "k_fine": {"x": f}, "k_coarse": {"x": c}, "rel_error": {"x": (c - f) / f}}
-            for i, (f, c) in enumerate(zip(k_fine, k_coarse))]  # fmt: skip
-    errors = [r["rel_error"]["x"] for r in rows]
-    spread = {"p10": min(errors), "p50": float(np.median(errors)), "p90": max(errors)}
-    return {"realizations": rows, "method": {"name": "flow"},
-            "statistics": {"k_fine": {"x": {}}, "k_coarse": {"x": {}}, "rel_error": {"x": spread}}}
+def _ensemble(k_fine: list[float], k_coarse: list[float]) -> EnsembleSummary:
+    """One method over realizations along x, with the check errors of its k."""
+    rows = tuple(RealizationCheck(f"r{i}", (), {"x": f}, {"x": c}, {"x": (c - f) / f})
+                 for i, (f, c) in enumerate(zip(k_fine, k_coarse)))  # fmt: skip
+    statistics = {q: {"x": spread([getattr(r, q)["x"] for r in rows])} for q in QUANTITIES}
+    return EnsembleSummary(rows, statistics, PERCENTILE_NOTE, MethodUsed("flow", {"bc": "sealed"}),
+                           {"x": 4, "y": 4, "z": 1}, [], None)  # fmt: skip
 
 
 @pytest.mark.parametrize("k_fine, k_coarse", [

@@ -41,8 +41,9 @@ from pathlib import Path
 
 import pytest
 from browser_probe import assert_self_contained, browse, probe
+from comparison_records import comparison, method
 
-from upscale.analysis.ensemble import PERCENTILE_NOTE, method_spread
+from upscale.analysis.ensemble import ensemble_ranking
 from upscale.caution import CAUTION
 from upscale.cli.main import main
 from upscale.report.bundle import spread_bundle
@@ -146,16 +147,13 @@ def test_a_wide_ranking_keeps_its_numbers_on_one_line(chromium, tmp_path):
     labels = ["flow-transmissibility (sealed, border 2)", "flow (periodic, border 2)", "power (ω=0.333)",
               "renormalization", "arithmetic"]  # fmt: skip
     names = [f"realization_{i:02d}" for i in range(5)]
-    compared = [{"dimensions": 3, "methods": [
-        {"name": label, "method": label.split(" ")[0], "error": None, "rank": j + 1,
-         "check": {a: {"rel_error": (-1) ** j * (0.05 + 0.03 * j + 0.002 * i + 0.01 * k)}
-                   for k, a in enumerate("xyz")}} for j, label in enumerate(labels)]}
-        for i in range(len(names))]  # fmt: skip
-    methods = method_spread(names, compared)
-    ensemble = {"realizations": [{"name": n, "path": f"/data/fields/{n}.tif", "sha256": "0" * 64}
-                                 for n in names],
-                "axes": "xyz", "block": {"x": 8, "y": 8, "z": 4}, "percentiles": PERCENTILE_NOTE}  # fmt: skip
-    made = spread_bundle(methods, ensemble, title="ensemble", command=["upscale", "compare", "r*.tif"])
+    compared = [comparison([method(label, j + 1, {a: (-1) ** j * (0.05 + 0.03 * j + 0.002 * i + 0.01 * k)
+                                                  for k, a in enumerate("xyz")}, label.split(" ")[0])
+                            for j, label in enumerate(labels)], 3, path=f"/data/fields/{n}.tif",
+                           block={"x": 8, "y": 8, "z": 4}) for i, n in enumerate(names)]  # fmt: skip
+    command = ["upscale", "compare", "r*.tif"]
+    ranking = ensemble_ranking(names, compared, command=command)
+    made = spread_bundle(ranking, title="ensemble", command=command)
     page = tmp_path / "report.html"
     page.write_text(made.page, encoding="utf-8")
     seen = probe(chromium, page, tmp_path, """  var verdict = {wrapped: wrappedCells(),

@@ -2,6 +2,7 @@
 
 Pure computation on results held in memory, no input or output: `compare`
 (every method against one fine solve), `ensemble` (spread over
-realizations), `anisotropy` (what a coarse tensor looks like) and `summary`
-(the content of ``summary.json``).
+realizations), `anisotropy` (what a coarse tensor looks like). The results
+are typed records (`records`, `summary`, `comparison_record`, `ensemble`)
+whose ``to_dict()`` is the content of the files the tool writes.
 """

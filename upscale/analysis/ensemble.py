@@ -10,54 +10,146 @@ exceeded by 10 % of the cases, which is this P90.
 
 from __future__ import annotations
 
-import math
+import dataclasses
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from ..caution import CAUTION
 from .compare import TIE
+from .comparison_record import ComparisonRecord
+from .records import Leaf, Spread, working_folder
+from .summary import MethodUsed, RunSummary
 
 PERCENTILES = (10, 50, 90)
 QUANTITIES = ("k_fine", "k_coarse", "rel_error")
 
 
-def ensemble_summary(names: list[str], summaries: list[dict[str, Any]]) -> dict[str, Any]:
+@dataclass(frozen=True)
+class InputRef(Leaf):
+    """One input of a realization: its ``role``, ``path`` as given and ``sha256``."""
+
+    role: str
+    path: str
+    sha256: str | None
+
+
+@dataclass(frozen=True)
+class RealizationCheck:
+    """One realization's check: per axis k_fine, k_coarse (the field's unit) and rel_error (a fraction).
+
+    Attributes
+    ----------
+    name : str
+        The realization's folder.
+    inputs : tuple of InputRef
+    k_fine, k_coarse, rel_error : dict of str to (float or None)
+        Per axis; empty when the whole model was not checked.
+    """
+
+    name: str
+    inputs: tuple[InputRef, ...]
+    k_fine: dict[str, float | None]
+    k_coarse: dict[str, float | None]
+    rel_error: dict[str, float | None]
+
+    def to_dict(self) -> dict[str, Any]:
+        """A realization of ``ensemble.json``."""
+        return {"name": self.name, "inputs": [i.to_dict() for i in self.inputs], "k_fine": self.k_fine,
+                "k_coarse": self.k_coarse, "rel_error": self.rel_error}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> RealizationCheck:
+        """A realization of ``ensemble.json``."""
+        return cls(data["name"], tuple(InputRef.from_dict(i) for i in data["inputs"]), data["k_fine"],
+                   data["k_coarse"], data["rel_error"])  # fmt: skip
+
+
+@dataclass(frozen=True)
+class EnsembleSummary:
+    """One method run on every realization: the content of the ensemble's ``ensemble.json``.
+
+    Attributes
+    ----------
+    realizations : tuple of RealizationCheck
+    statistics : dict of str to dict of str to (Spread or None)
+        Per quantity (`QUANTITIES`) and axis, the spread over the realizations.
+    percentiles : str
+        How the percentiles are defined (`PERCENTILE_NOTE`).
+    method : MethodUsed
+    block : dict
+        The block partition (`upscale.BlockSpec.summary`).
+    command : list of str
+    working_folder : str or None
+    files : tuple of str
+        Written beside ``ensemble.json`` (empty until written).
+    caution : str
+    """
+
+    realizations: tuple[RealizationCheck, ...]
+    statistics: dict[str, dict[str, Spread | None]]
+    percentiles: str
+    method: MethodUsed
+    block: dict[str, Any]
+    command: list[str]
+    working_folder: str | None
+    files: tuple[str, ...] = ()
+    caution: str = CAUTION
+
+    @property
+    def axes(self) -> str:
+        """The axes checked on some realization, e.g. ``"xy"`` (empty without a check)."""
+        return "".join(self.statistics["k_fine"])
+
+    def to_dict(self) -> dict[str, Any]:
+        """The content of ``ensemble.json``, key for key."""
+        return {"realizations": [r.to_dict() for r in self.realizations],
+                "statistics": {q: {a: _plain(s) for a, s in by_axis.items()}
+                               for q, by_axis in self.statistics.items()},
+                "percentiles": self.percentiles, "method": self.method.to_dict(), "block": self.block,
+                "command": self.command, "working_folder": self.working_folder, "files": list(self.files),
+                "caution": self.caution}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> EnsembleSummary:
+        """The record of an ensemble run's ``ensemble.json``."""
+        statistics = {q: {a: None if s is None else Spread.from_dict(s) for a, s in by_axis.items()}
+                      for q, by_axis in data["statistics"].items()}  # fmt: skip
+        return cls(tuple(RealizationCheck.from_dict(r) for r in data["realizations"]), statistics,
+                   data["percentiles"], MethodUsed.from_dict(data["method"]), data["block"], data["command"],
+                   data["working_folder"], tuple(data["files"]), data["caution"])  # fmt: skip
+
+
+def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: list[str]) -> EnsembleSummary:
     """Per-realization check results and their percentiles over the ensemble.
 
     Parameters
     ----------
     names : list of str
         Realization names.
-    summaries : list of dict
-        Each realization's ``summary.json`` content.
+    summaries : list of RunSummary
+        Each realization's summary (one method and block for all).
+    command : list of str
+        The command line.
 
     Returns
     -------
-    dict
-        ``realizations`` (name, input, SHA-256, and per axis k_fine, k_coarse,
-        rel_error) and ``statistics``: per quantity and axis ``p10``, ``p50``,
-        ``p90``, ``mean``, ``min``, ``max`` (null when the check was not run).
-
-    Examples
-    --------
-    >>> s = [{"inputs": [], "check": {"x": {"k_fine": v, "k_coarse": v, "rel_error": 0.0}}}
-    ...      for v in (1.0, 2.0, 3.0)]
-    >>> ensemble_summary(["a", "b", "c"], s)["statistics"]["k_fine"]["x"]["p50"]
-    2.0
+    EnsembleSummary
+        Per quantity and axis the spread is None when no realization has a value.
     """
     rows = []
     for name, summary in zip(names, summaries):
-        check = summary.get("check") or {}
-        row: dict[str, Any] = {"name": name,
-                               "inputs": [{k: i[k] for k in ("role", "path", "sha256")}
-                                          for i in summary.get("inputs", [])]}  # fmt: skip
-        for quantity in QUANTITIES:
-            row[quantity] = {axis: c.get(quantity) for axis, c in check.items() if isinstance(c, dict)}
-        rows.append(row)
-    axes = sorted({axis for row in rows for axis in row["k_fine"]}, key="xyz".index)
-    statistics = {quantity: {axis: spread([r[quantity].get(axis) for r in rows]) for axis in axes}
+        checks = summary.check.axes if summary.check is not None else {}
+        inputs = tuple(InputRef(i.role, i.path, i.sha256) for i in summary.provenance.inputs)
+        per_axis = ({axis: getattr(c, quantity) for axis, c in checks.items()} for quantity in QUANTITIES)
+        rows.append(RealizationCheck(name, inputs, *per_axis))
+    axes = sorted({axis for row in rows for axis in row.k_fine}, key="xyz".index)
+    statistics = {quantity: {axis: spread([getattr(r, quantity).get(axis) for r in rows]) for axis in axes}
                   for quantity in QUANTITIES}  # fmt: skip
-    return {"realizations": rows, "statistics": statistics, "percentiles": PERCENTILE_NOTE}
+    first = summaries[0]
+    return EnsembleSummary(tuple(rows), statistics, PERCENTILE_NOTE, first.method, first.block, command,
+                           working_folder(command))  # fmt: skip
 
 
 #: How the percentiles are defined, recorded beside them.
@@ -65,89 +157,246 @@ PERCENTILE_NOTE = ("10th, 50th and 90th percentiles over the realizations (numpy
                    "P10 is exceeded by 90 % of them")  # fmt: skip
 
 
-def spread(values: list[float | None]) -> dict[str, float] | None:
-    """P10, P50, P90, mean, min, max and count of the finite values (None if there are none)."""
+def spread(values: list[float | None]) -> Spread | None:
+    """P10, P50, P90, mean, min, max and count of the finite values (None if there are none).
+
+    Examples
+    --------
+    >>> found = spread([1.0, None, 3.0, float("nan")])
+    >>> found.p50, found.count
+    (2.0, 2)
+    >>> spread([None]) is None
+    True
+    """
     finite = np.array([np.nan if v is None else v for v in values], dtype=float)
     finite = finite[np.isfinite(finite)]
     if finite.size == 0:
         return None
-    p = np.percentile(finite, PERCENTILES)
-    return {**{f"p{q}": float(v) for q, v in zip(PERCENTILES, p)}, "mean": float(finite.mean()),
-            "min": float(finite.min()), "max": float(finite.max()), "count": int(finite.size)}  # fmt: skip
+    p10, p50, p90 = (float(v) for v in np.percentile(finite, PERCENTILES))
+    return Spread(p10, p50, p90, float(finite.mean()), float(finite.min()), float(finite.max()),
+                  int(finite.size))  # fmt: skip
 
 
-def method_spread(names: list[str], comparisons: list[dict[str, Any]]) -> list[dict[str, Any]]:
+def _plain(found: Spread | None) -> dict[str, float] | None:
+    return None if found is None else found.to_dict()
+
+
+@dataclass(frozen=True)
+class RealizationError(Leaf):
+    """One method's check errors on one realization.
+
+    Attributes
+    ----------
+    worst : float or None
+        Largest ``|rel_error|`` over the axes (a fraction); None when one is undefined.
+    rel_error : dict of str to (float or None)
+        Per axis ``(k_coarse - k_fine) / k_fine``.
+    """
+
+    worst: float | None
+    rel_error: dict[str, float | None]
+
+
+@dataclass(frozen=True)
+class RankCount(Leaf):
+    """How a method ranked in the realizations' own comparisons: ``mean`` rank, times ``first``."""
+
+    mean: float | None
+    first: int
+
+
+@dataclass(frozen=True)
+class MethodSpread:
+    """One method compared over an ensemble: its check errors over the realizations.
+
+    Attributes
+    ----------
+    name : str
+        Label, as in each comparison.
+    method : str
+        Method name.
+    ran, failed : int
+        Realizations it ran on and failed on.
+    worst_error : Spread or None
+        Spread of the largest ``|rel_error|`` over the axes (fractions), the
+        quantity each comparison ranks by; None when it ran nowhere.
+    rel_error : dict of str to (Spread or None)
+        Spread of the check error per axis.
+    rank_in_realizations : RankCount
+    by_realization : dict of str to (RealizationError or None)
+        Per realization; None where the method did not run.
+    rank : int or None
+        Over the ensemble (None when it ran nowhere).
+    """
+
+    name: str
+    method: str
+    ran: int
+    failed: int
+    worst_error: Spread | None
+    rel_error: dict[str, Spread | None]
+    rank_in_realizations: RankCount
+    by_realization: dict[str, RealizationError | None]
+    rank: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The method's object in ``ensemble.json``."""
+        return {"name": self.name, "method": self.method, "ran": self.ran, "failed": self.failed,
+                "worst_error": _plain(self.worst_error),
+                "rel_error": {a: _plain(s) for a, s in self.rel_error.items()},
+                "rank_in_realizations": self.rank_in_realizations.to_dict(),
+                "by_realization": {n: None if r is None else r.to_dict()
+                                   for n, r in self.by_realization.items()},
+                "rank": self.rank}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> MethodSpread:
+        """A method's object of ``ensemble.json``."""
+        def spread_of(found: dict[str, Any] | None) -> Spread | None:
+            return None if found is None else Spread.from_dict(found)
+
+        return cls(data["name"], data["method"], data["ran"], data["failed"], spread_of(data["worst_error"]),
+                   {a: spread_of(s) for a, s in data["rel_error"].items()},
+                   RankCount.from_dict(data["rank_in_realizations"]),
+                   {n: None if r is None else RealizationError.from_dict(r)
+                    for n, r in data["by_realization"].items()}, data["rank"])  # fmt: skip
+
+
+def method_spread(names: list[str], comparisons: list[ComparisonRecord]) -> list[MethodSpread]:
     """Every method's check errors over the realizations, ranked by their median.
 
     Parameters
     ----------
     names : list of str
         Realization names.
-    comparisons : list of dict
-        Each realization's ``compare.json`` content (the same methods in each).
+    comparisons : list of ComparisonRecord
+        Each realization's comparison (the same methods in each).
 
     Returns
     -------
-    list of dict
-        One per method, best first: ``name`` (label), ``method``, ``rank``, ``ran`` and ``failed``
-        (realizations), ``worst_error`` (the spread of the largest
-        ``|rel_error|`` over the axes, the quantity each comparison ranks
-        by), ``rel_error`` (its spread per axis), ``rank_in_realizations``
-        (mean rank and how often first) and ``by_realization`` (per
-        realization its ``worst`` and ``rel_error`` per axis; None where the
-        method did not run). Ranked by the P50 of ``worst_error`` (ties
-        within 1e-9 keep the order of the comparison), the methods that ran
-        on every realization first, then by how many realizations a method
-        failed on; methods that ran nowhere come last, unranked.
-
-    Examples
-    --------
-    >>> def c(a, b): return {"dimensions": 2, "methods": [
-    ...     {"name": n, "method": n, "error": None, "rank": 0,
-    ...      "check": {"x": {"rel_error": e}, "y": {"rel_error": 0.0}}}
-    ...     for n, e in (("one", a), ("two", b))]}
-    >>> [(m["name"], m["worst_error"]["p50"]) for m in method_spread(["r1", "r2", "r3"],
-    ...      [c(0.1, -0.05), c(0.3, 0.02), c(-0.2, 0.01)])]
-    [('two', 0.02), ('one', 0.2)]
+    list of MethodSpread
+        One per method, best first. Ranked by the P50 of ``worst_error``
+        (ties within 1e-9 keep the order of the comparison), the methods that
+        ran on every realization first, then by how many realizations a
+        method failed on; methods that ran nowhere come last, unranked.
     """
-    axes = "xyz"[: comparisons[0]["dimensions"]]
+    axes = comparisons[0].axes
     methods = []
-    for label in [m["name"] for m in comparisons[0]["methods"]]:
-        entries = {name: next(m for m in c["methods"] if m["name"] == label)
-                   for name, c in zip(names, comparisons)}  # fmt: skip
-        ran = {name: e for name, e in entries.items() if e["error"] is None and e["check"]}
-        worst = {name: _worst(e["check"], axes) for name, e in ran.items()}
-        methods.append({
-            "name": label, "method": entries[names[0]]["method"], "ran": len(ran),
-            "failed": len(entries) - len(ran),
-            "worst_error": spread(list(worst.values())),
-            "rel_error": {a: spread([e["check"][a]["rel_error"] for e in ran.values()]) for a in axes},
-            "rank_in_realizations": {
-                "mean": float(np.mean([e["rank"] for e in ran.values()])) if ran else None,
-                "first": sum(e["rank"] == 1 for e in ran.values()),
-            },
-            "by_realization": {name: {"worst": worst[name], "rel_error": {
-                a: ran[name]["check"][a]["rel_error"] for a in axes}} if name in ran else None
-                for name in names},
-        })  # fmt: skip
+    for label in [m.name for m in comparisons[0].methods]:
+        entries = {name: c.method(label) for name, c in zip(names, comparisons)}
+        ran = {name: e for name, e in entries.items() if e.error is None and e.check}
+        by_realization = {name: RealizationError(e.largest_error(axes),
+                                                 {a: e.check[a].rel_error for a in axes})
+                          for name, e in ran.items()}  # fmt: skip
+        ranks = [e.rank for e in ran.values()]
+        methods.append(MethodSpread(
+            label, entries[names[0]].method, len(ran), len(entries) - len(ran),
+            spread([r.worst for r in by_realization.values()]),
+            {a: spread([r.rel_error[a] for r in by_realization.values()]) for a in axes},
+            RankCount(float(np.mean(ranks)) if ran else None, sum(r == 1 for r in ranks)),
+            {name: by_realization.get(name) for name in names},
+        ))  # fmt: skip
     # a method that failed on some realizations ranks after every one that ran on all
-    ranked = sorted((m for m in methods if m["worst_error"]),
-                    key=lambda m: (m["failed"], round(m["worst_error"]["p50"] / TIE) * TIE))  # fmt: skip
-    for rank, m in enumerate(ranked, start=1):
-        m["rank"] = rank
-    unranked = [dict(m, rank=None) for m in methods if not m["worst_error"]]
-    return ranked + unranked
+    ranked = sorted((m for m in methods if m.worst_error),
+                    key=lambda m: (m.failed, round(m.worst_error.p50 / TIE) * TIE))  # fmt: skip
+    return ([dataclasses.replace(m, rank=rank) for rank, m in enumerate(ranked, start=1)]
+            + [m for m in methods if not m.worst_error])  # fmt: skip
 
 
-def _worst(check: dict[str, Any], axes: str) -> float | None:
-    """Largest |rel_error| over the axes; None when one is undefined (no flow in the fine model)."""
-    errors = [check[a]["rel_error"] for a in axes]
-    return None if any(e is None or not math.isfinite(e) for e in errors) else max(abs(e) for e in errors)
+@dataclass(frozen=True)
+class RealizationRecord(Leaf):
+    """One realization of an ensemble: its folder ``name``, its input's ``path`` and ``sha256``."""
+
+    name: str
+    path: str
+    sha256: str | None
 
 
-def csv_rows(ensemble: dict[str, Any]) -> tuple[list[str], list[list[Any]]]:
+@dataclass(frozen=True)
+class EnsembleRanking:
+    """Methods compared over an ensemble: the content of the ensemble's ``ensemble.json``.
+
+    Attributes
+    ----------
+    realizations : tuple of RealizationRecord
+    axes : str
+        The flow axes, e.g. ``"xy"``.
+    block : dict
+        The block partition (`upscale.BlockSpec.summary`).
+    command : list of str
+        The command line.
+    working_folder : str or None
+        The folder it ran in.
+    ranking, percentiles : str
+        How the methods are ranked and the percentiles defined.
+    methods : tuple of MethodSpread
+        Best first.
+    best : str or None
+        Label of the top method (None when none ran).
+    files : tuple of str
+        Written beside ``ensemble.json`` (empty until written).
+    caution : str
+        The caution every output carries.
+    """
+
+    realizations: tuple[RealizationRecord, ...]
+    axes: str
+    block: dict[str, Any]
+    command: list[str]
+    working_folder: str | None
+    ranking: str
+    percentiles: str
+    methods: tuple[MethodSpread, ...]
+    best: str | None
+    files: tuple[str, ...] = ()
+    caution: str = CAUTION
+
+    def to_dict(self) -> dict[str, Any]:
+        """The content of ``ensemble.json``, key for key."""
+        return {"realizations": [r.to_dict() for r in self.realizations], "axes": self.axes,
+                "block": self.block, "command": self.command, "working_folder": self.working_folder,
+                "ranking": self.ranking, "percentiles": self.percentiles,
+                "methods": [m.to_dict() for m in self.methods], "best": self.best, "files": list(self.files),
+                "caution": self.caution}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> EnsembleRanking:
+        """The record of an ensemble comparison's ``ensemble.json``."""
+        return cls(tuple(RealizationRecord.from_dict(r) for r in data["realizations"]), data["axes"],
+                   data["block"], data["command"], data["working_folder"], data["ranking"],
+                   data["percentiles"], tuple(MethodSpread.from_dict(m) for m in data["methods"]),
+                   data["best"], tuple(data["files"]), data["caution"])  # fmt: skip
+
+
+#: How an ensemble ranks its methods, recorded beside the ranking.
+ENSEMBLE_RANKING = "P50 over the realizations of the largest |rel_error| over the axes, smallest first"
+
+
+def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
+                     command: list[str]) -> EnsembleRanking:  # fmt: skip
+    """The methods of every realization's comparison ranked over the ensemble (`method_spread`).
+
+    Parameters
+    ----------
+    names : list of str
+        Realization names (their folders).
+    comparisons : list of ComparisonRecord
+        Each realization's comparison.
+    command : list of str
+        The command line.
+    """
+    methods = method_spread(names, comparisons)
+    realizations = tuple(RealizationRecord(name, c.provenance.inputs[0].path, c.provenance.inputs[0].sha256)
+                         for name, c in zip(names, comparisons))  # fmt: skip
+    return EnsembleRanking(realizations, comparisons[0].axes, comparisons[0].block, command,
+                           working_folder(command), ENSEMBLE_RANKING, PERCENTILE_NOTE, tuple(methods),
+                           methods[0].name if methods and methods[0].rank else None)  # fmt: skip
+
+
+def csv_rows(ensemble: EnsembleSummary) -> tuple[list[str], list[list[Any]]]:
     """Header and rows of ``ensemble.csv``: one row per realization."""
-    axes = [a for a in "xyz" if any(a in r["k_fine"] for r in ensemble["realizations"])]
+    axes = [a for a in "xyz" if any(a in r.k_fine for r in ensemble.realizations)]
     header = ["name", *(f"{q}_{a}" for a in axes for q in QUANTITIES)]
-    rows = [[r["name"], *(r[q].get(a) for a in axes for q in QUANTITIES)] for r in ensemble["realizations"]]
+    rows = [[r.name, *(getattr(r, q).get(a) for a in axes for q in QUANTITIES)]
+            for r in ensemble.realizations]  # fmt: skip
     return header, rows

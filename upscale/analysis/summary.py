@@ -1,84 +1,328 @@
-"""The run summary: inputs, parameters, grids, statistics — everything to trace a result."""
+"""The run summary: inputs, parameters, grids, statistics, the check — everything to trace a result.
+
+`build_summary` describes a run as a `RunSummary`; the command line and the
+report read its attributes, `upscale.export.write_result` writes its
+``to_dict()`` as ``summary.json``.
+"""
 
 from __future__ import annotations
 
-import math
-import os
-import platform
-from importlib import metadata
-from pathlib import Path
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from ..caution import CAUTION
-from ..field import Grid
 from ..methods.coarsen import Upscaled
 from ..methods.registry import METHODS
 from ..stats import scan_values
 from .anisotropy import tensor_summary
-
-_DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
-                 "pyarrow", "netCDF4", "pyproj")
+from .records import AxisResult, GridRecord, Leaf, Provenance, ZeroKRecord, grid_record, jsonable, provenance
 
 
-def versions() -> dict[str, str]:
-    """Versions of the tool, Python and the libraries that shape the numbers and the files."""
-    found = {"upscale": _version("upscale"), "python": platform.python_version()}
-    found.update({name: _version(name) for name in _DEPENDENCIES})
-    return found
+@dataclass(frozen=True)
+class MethodUsed(Leaf):
+    """The method of a run: its ``name`` and its ``options``."""
+
+    name: str
+    options: dict[str, Any]
 
 
-def working_folder(command: list[str] | None) -> str | None:
-    """The absolute folder a recorded `command` runs in (its relative paths start there); None without one.
+@dataclass(frozen=True)
+class ActiveCounts:
+    """What is active on each grid, and what the run dropped.
 
-    Recorded beside ``command`` in ``summary.json``, ``compare.json`` and
-    ``ensemble.json``, and shown as ``cd FOLDER && COMMAND`` in the report.
-    The tool never changes its working folder, so it is the one the command
-    was started in.
+    Attributes
+    ----------
+    fine_cells : int
+        Active fine cells.
+    coarse_blocks, coarse_blocks_inactive : int
+        Active and inactive coarse blocks.
+    dropped_cells : int
+        Fine cells cropped beyond the last whole block.
+    lost_pore_volume_m3 : float
+        Pore volume of the active cells the blocks made inactive hold (m³).
+    zero_k : ZeroKRecord
+        What the zero-k rule did.
+    coarse_pore_volume_m3 : float or None
+        Pore volume of the coarse grid (m³); None without porosity.
     """
-    return os.getcwd() if command else None
+
+    fine_cells: int
+    coarse_blocks: int
+    coarse_blocks_inactive: int
+    dropped_cells: int
+    lost_pore_volume_m3: float
+    zero_k: ZeroKRecord
+    coarse_pore_volume_m3: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``active`` object of ``summary.json``."""
+        found = {"fine_cells": self.fine_cells, "coarse_blocks": self.coarse_blocks,
+                 "coarse_blocks_inactive": self.coarse_blocks_inactive,
+                 "dropped_cells": self.dropped_cells, "lost_pore_volume_m3": self.lost_pore_volume_m3,
+                 "zero_k": self.zero_k.to_dict()}  # fmt: skip
+        if self.coarse_pore_volume_m3 is not None:
+            found["coarse_pore_volume_m3"] = self.coarse_pore_volume_m3
+        return found
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> ActiveCounts:
+        """The ``active`` object of ``summary.json``."""
+        return cls(data["fine_cells"], data["coarse_blocks"], data["coarse_blocks_inactive"],
+                   data["dropped_cells"], data["lost_pore_volume_m3"], ZeroKRecord.from_dict(data["zero_k"]),
+                   data.get("coarse_pore_volume_m3"))  # fmt: skip
 
 
-def _version(name: str) -> str:
-    try:
-        return metadata.version(name)
-    except metadata.PackageNotFoundError:
-        return "not installed"
+@dataclass(frozen=True)
+class PropertyStats(Leaf):
+    """Statistics of one property over a grid's cells (the property's unit; None where undefined).
+
+    Attributes
+    ----------
+    cells, active : int
+        All cells, and those with a value.
+    min, max, mean, geometric_mean : float or None
+    log10_std : float or None
+        Standard deviation of log10 of the positive values.
+    """
+
+    cells: int
+    active: int
+    min: float | None
+    max: float | None
+    mean: float | None
+    geometric_mean: float | None
+    log10_std: float | None
 
 
-def grid_summary(grid: Grid) -> dict[str, Any]:
-    """A grid as JSON-ready data: shape, cell sizes in m, CRS and transform."""
-    layers, rows, cols = grid.shape
-    out: dict[str, Any] = {
-        "shape": {"layers": layers, "rows": rows, "columns": cols},
-        "dx_m": _sizes(grid.dx),
-        "dy_m": _sizes(grid.dy),
-        "dz_m": grid.dz.tolist(),
-        "crs": grid.crs.to_string() if grid.crs is not None else None,
-        "transform": list(grid.transform)[:6] if grid.transform is not None else None,
-    }
-    return out
+@dataclass(frozen=True)
+class Statistics:
+    """Per property (``kx``, ``ky``, ``kz``, ``porosity``), its statistics on the `fine` and `coarse` grid."""
+
+    fine: dict[str, PropertyStats]
+    coarse: dict[str, PropertyStats]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``statistics`` object of ``summary.json``."""
+        return {grid: {name: s.to_dict() for name, s in getattr(self, grid).items()}
+                for grid in ("fine", "coarse")}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Statistics:
+        """The ``statistics`` object of ``summary.json``."""
+        fine, coarse = ({name: PropertyStats.from_dict(s) for name, s in data[grid].items()}
+                        for grid in ("fine", "coarse"))  # fmt: skip
+        return cls(fine, coarse)
 
 
-def _sizes(sizes: np.ndarray) -> dict[str, float] | float:
-    # a regular axis is one number; otherwise the full size and the edge block's size
-    if np.all(sizes == sizes[0]):
-        return float(sizes[0])
-    return {"regular": float(sizes[0]), "last": float(sizes[-1])}
+@dataclass(frozen=True)
+class WindowSpread(Leaf):
+    """The check errors of the windows along one axis: ``min``, ``median``, ``max``, ``mean`` (fractions)."""
+
+    min: float
+    median: float
+    max: float
+    mean: float
+    windows: int
 
 
-def jsonable(value: Any) -> Any:
-    """Plain JSON data: NaN and infinities become null, NumPy scalars Python numbers."""
-    if isinstance(value, dict):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [jsonable(v) for v in value]
-    if isinstance(value, (np.floating, float)):
-        return float(value) if math.isfinite(value) else None
-    if isinstance(value, np.integer):
-        return int(value)
-    return value
+@dataclass(frozen=True)
+class WindowCheck:
+    """The check on one window: its fine ``rows`` and ``columns`` (zero-based, end excluded) and per axis."""
+
+    rows: list[int]
+    columns: list[int]
+    check: dict[str, AxisResult]
+
+    def to_dict(self) -> dict[str, Any]:
+        """A window of ``check.windows`` in ``summary.json``."""
+        return {"rows": self.rows, "columns": self.columns,
+                "check": {a: c.to_dict() for a, c in self.check.items()}}  # fmt: skip
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> WindowCheck:
+        """A window of ``check.windows`` in ``summary.json``."""
+        checks = {a: AxisResult.from_dict(c) for a, c in data["check"].items()}
+        return cls(data["rows"], data["columns"], checks)
+
+
+@dataclass(frozen=True)
+class FlowCheck:
+    """The fine-versus-coarse flow check of a run: per axis, or why the whole model was not solved.
+
+    Attributes
+    ----------
+    axes : dict of str to AxisResult
+        Per axis (empty when skipped).
+    skipped : str or None
+        Why the whole fine model was not solved (past the check limit).
+    windows : tuple of WindowCheck, or None
+        The check on windows of whole blocks, done instead.
+    spread : dict of str to (WindowSpread or None), or None
+        Per axis, the spread of the windows' errors.
+    rule : str or None
+        How the windows were chosen.
+    """
+
+    axes: dict[str, AxisResult]
+    skipped: str | None = None
+    windows: tuple[WindowCheck, ...] | None = None
+    spread: dict[str, WindowSpread | None] | None = None
+    rule: str | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``check`` object of ``summary.json``."""
+        if self.skipped is None:
+            return {a: c.to_dict() for a, c in self.axes.items()}
+        found: dict[str, Any] = {"skipped": self.skipped}
+        if self.windows is not None:
+            found["windows"] = [w.to_dict() for w in self.windows]
+            found["spread"] = {a: None if s is None else s.to_dict() for a, s in (self.spread or {}).items()}
+            found["rule"] = self.rule
+        return found
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> FlowCheck:
+        """The ``check`` object of ``summary.json`` (not null)."""
+        if "skipped" not in data:
+            return cls({a: AxisResult.from_dict(c) for a, c in data.items()})
+        if "windows" not in data:
+            return cls({}, data["skipped"])
+        return cls({}, data["skipped"], tuple(WindowCheck.from_dict(w) for w in data["windows"]),
+                   {a: None if s is None else WindowSpread.from_dict(s) for a, s in data["spread"].items()},
+                   data["rule"])  # fmt: skip
+
+
+@dataclass(frozen=True)
+class TensorSummary:
+    """Anisotropy and off-diagonal terms of a full-tensor result over the active blocks.
+
+    Attributes
+    ----------
+    blocks : int
+        Active blocks summarised (0: the other attributes are None).
+    anisotropy_median, anisotropy_max : float or None
+        λmax/λmin of the symmetric part of the block tensors.
+    blocks_not_positive : int or None
+        Blocks with λmin <= 0 (left out of the ratios).
+    off_diagonal_max, off_diagonal_p95 : float or None
+        Largest relative off-diagonal term per block: maximum and 95th percentile.
+    blocks_above_warning : int or None
+        Blocks past the warning's threshold.
+    warning : str or None
+        A sentence when the off-diagonal terms matter.
+    blocks_without_path : dict of str to int, or None
+        Per axis, active blocks with no flowing path along it.
+    """
+
+    blocks: int
+    anisotropy_median: float | None = None
+    anisotropy_max: float | None = None
+    blocks_not_positive: int | None = None
+    off_diagonal_max: float | None = None
+    off_diagonal_p95: float | None = None
+    blocks_above_warning: int | None = None
+    warning: str | None = None
+    blocks_without_path: dict[str, int] | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``tensor`` object of ``summary.json`` (``blocks`` alone when there are none)."""
+        if not self.blocks:
+            return {"blocks": self.blocks}
+        return {name: getattr(self, name) for name in self.__dataclass_fields__}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> TensorSummary:
+        """The ``tensor`` object of ``summary.json``."""
+        return cls(**data)
+
+
+@dataclass(frozen=True)
+class FaceRule(Leaf):
+    """How the coarse transmissibilities were found (``rule``) and ``replaced_faces``: undefined ones."""
+
+    rule: str
+    replaced_faces: int
+
+
+@dataclass(frozen=True)
+class RunSummary:
+    """Everything to trace a run: the content of ``summary.json``.
+
+    Attributes
+    ----------
+    provenance : Provenance
+        Tool, versions, command, inputs, read options.
+    unit : str
+        Permeability unit of the field.
+    method : MethodUsed
+    block : dict
+        The block partition (`upscale.BlockSpec.summary`).
+    dimensions : int
+        2 or 3.
+    fine, coarse : GridRecord
+        The two grids.
+    active : ActiveCounts
+        Active cells and blocks, dropped cells, pore volumes.
+    statistics : Statistics
+        Per property on each grid.
+    check : FlowCheck or None
+        None when the check was not run.
+    files : tuple of str
+        The files written beside ``summary.json``.
+    timings_s : dict of str to float
+        Seconds per step.
+    caution : str
+        The caution every output carries.
+    tensor : TensorSummary or None
+        Anisotropy of a flow-based (local) method's tensors.
+    transmissibility : FaceRule or None
+        The rule of a flow-based (local) method's coarse faces.
+    """
+
+    provenance: Provenance
+    unit: str
+    method: MethodUsed
+    block: dict[str, Any]
+    dimensions: int
+    fine: GridRecord
+    coarse: GridRecord
+    active: ActiveCounts
+    statistics: Statistics
+    check: FlowCheck | None
+    files: tuple[str, ...]
+    timings_s: dict[str, float]
+    caution: str
+    tensor: TensorSummary | None = None
+    transmissibility: FaceRule | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The content of ``summary.json``, key for key."""
+        found = {**self.provenance.to_dict(), "unit": self.unit, "method": self.method.to_dict(),
+                 "block": self.block, "dimensions": self.dimensions, "fine": self.fine.to_dict(),
+                 "coarse": self.coarse.to_dict(), "active": self.active.to_dict(),
+                 "statistics": self.statistics.to_dict(),
+                 "check": None if self.check is None else self.check.to_dict(), "files": list(self.files),
+                 "timings_s": self.timings_s, "caution": self.caution}  # fmt: skip
+        if self.tensor is not None:
+            found["tensor"] = self.tensor.to_dict()
+        if self.transmissibility is not None:
+            found["transmissibility"] = self.transmissibility.to_dict()
+        return found
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> RunSummary:
+        """The record of a ``summary.json``'s content."""
+        check, tensor, faces = data["check"], data.get("tensor"), data.get("transmissibility")
+        return cls(Provenance.from_dict(data), data["unit"], MethodUsed.from_dict(data["method"]),
+                   data["block"], data["dimensions"], GridRecord.from_dict(data["fine"]),
+                   GridRecord.from_dict(data["coarse"]), ActiveCounts.from_dict(data["active"]),
+                   Statistics.from_dict(data["statistics"]),
+                   None if check is None else FlowCheck.from_dict(check), tuple(data["files"]),
+                   data["timings_s"], data["caution"],
+                   None if tensor is None else TensorSummary.from_dict(tensor),
+                   None if faces is None else FaceRule.from_dict(faces))  # fmt: skip
 
 
 def build_summary(
@@ -89,8 +333,8 @@ def build_summary(
     timings: dict[str, float] | None = None,
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
-) -> dict[str, Any]:
-    """Describe a run as JSON-ready data.
+) -> RunSummary:
+    """Describe a run.
 
     Parameters
     ----------
@@ -104,59 +348,44 @@ def build_summary(
         Seconds spent per step.
     check : dict, optional
         The fine-versus-coarse flow check: per axis ``AxisCheck.summary()``, or
-        ``{"skipped": reason}``.
+        ``{"skipped": reason}`` (with the windows checked instead, if any).
     read : dict, optional
         The options the fine field was read with (unit, scale, nodata, dz,
         cell size, kv/kh), so the run can be checked again later.
 
     Returns
     -------
-    dict
+    RunSummary
     """
-    fine, coarse, spec = result.fine, result.coarse, result.block
-    active_blocks = int(np.isfinite(coarse.kx).sum())
-    summary = {
-        "tool": "upscale",
-        "versions": versions(),
-        "command": command,
-        "working_folder": working_folder(command),
-        "inputs": [
-            {"role": s.role, "path": s.path, "resolved": str(Path(s.path).resolve()), "sha256": s.sha256}
-            for s in fine.sources
-        ],
-        "read": read,
-        "unit": fine.unit,
-        "method": {"name": result.method, "options": result.options},
-        "block": spec.summary(),
-        "dimensions": fine.ndim,
-        "fine": grid_summary(fine.grid),
-        "coarse": grid_summary(coarse.grid),
-        "active": {
-            "fine_cells": result.fine_stats["kx"].active,
-            "coarse_blocks": active_blocks,
-            "coarse_blocks_inactive": int(coarse.kx.size - active_blocks),
-            "dropped_cells": result.dropped_cells,
-            "lost_pore_volume_m3": result.lost_pore_volume,
-            "zero_k": result.zeros.summary(),
-        },
-        "statistics": {
-            "fine": {name: scan.summary() for name, scan in result.fine_stats.items()},
-            "coarse": {
-                name: scan_values(values).summary() for name, values in coarse.properties().items()
-            },
-        },
-        "check": check,
-        "files": files,
-        "timings_s": timings or {},
-        "caution": CAUTION,
-    }
+    fine, coarse = result.fine, result.coarse
+    tensor, faces = None, None
     if METHODS[result.method].local:
-        summary["tensor"] = tensor_summary(coarse, result.tensor, result.zeros)
-        summary["transmissibility"] = {
-            "rule": "two-block flow solves" if result.faces is not None else "harmonic half-block",
-            "replaced_faces": result.replaced_faces,
-        }
-    if fine.porosity is not None:
-        pore = np.nansum(coarse.porosity * coarse.grid.cell_volumes())
-        summary["active"]["coarse_pore_volume_m3"] = float(pore)
-    return jsonable(summary)
+        tensor = TensorSummary.from_dict(jsonable(tensor_summary(coarse, result.tensor, result.zeros)))
+        faces = FaceRule("two-block flow solves" if result.faces is not None else "harmonic half-block",
+                         jsonable(result.replaced_faces))  # fmt: skip
+    return RunSummary(
+        provenance(fine, command, read), fine.unit, MethodUsed(result.method, jsonable(result.options)),
+        jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
+        _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
+        tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
+    )  # fmt: skip
+
+
+def _active(result: Upscaled) -> ActiveCounts:
+    coarse = result.coarse
+    active_blocks = int(np.isfinite(coarse.kx).sum())
+    pore = None
+    if result.fine.porosity is not None:
+        pore = jsonable(float(np.nansum(coarse.porosity * coarse.grid.cell_volumes())))
+    zeros = ZeroKRecord.from_dict(jsonable(result.zeros.summary()))
+    return ActiveCounts(jsonable(result.fine_stats["kx"].active), active_blocks,
+                        int(coarse.kx.size - active_blocks), jsonable(result.dropped_cells),
+                        jsonable(result.lost_pore_volume), zeros, pore)  # fmt: skip
+
+
+def _statistics(result: Upscaled) -> Statistics:
+    fine = {name: PropertyStats.from_dict(jsonable(scan.summary()))
+            for name, scan in result.fine_stats.items()}  # fmt: skip
+    coarse = {name: PropertyStats.from_dict(jsonable(scan_values(values).summary()))
+              for name, values in result.coarse.properties().items()}  # fmt: skip
+    return Statistics(fine, coarse)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from ..analysis.summary import FlowCheck
 from ..jobs.check import check_folder
 from .options import check_options, global_options
 from .report import print_check
@@ -29,4 +30,4 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
     """
     summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit)
     if not ctx.obj["quiet"]:
-        print_check(summary["check"])
+        print_check(FlowCheck.from_dict(summary["check"]))

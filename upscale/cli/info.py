@@ -7,7 +7,7 @@ import json
 import click
 
 from ..analysis.describe import describe_field
-from ..analysis.summary import jsonable
+from ..analysis.records import jsonable
 from ..io import read_field
 from ..stats import ValueScan, where
 from .options import field_options, global_options, read_options

@@ -7,6 +7,9 @@ from pathlib import Path
 
 import click
 
+from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
+from ..analysis.records import SolveRecord
+from ..analysis.summary import FlowCheck, RunSummary
 from ..export.package import PACKAGE_FILES
 from ..field import PERMEABILITY
 from ..methods.coarsen import Upscaled
@@ -46,7 +49,7 @@ def table(header: list[str], rows: list[list[str]]) -> str:
     return "\n".join([line(header), *(line(r) for r in rows)])
 
 
-def print_result(result: Upscaled, summary: dict, out: str) -> None:
+def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     """Print what a run did: grids, method, and fine vs coarse statistics."""
     fine, coarse = result.fine, result.coarse
     opts = ", ".join(f"{k}={v}" for k, v in result.options.items())
@@ -54,7 +57,7 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     click.echo(f"fine grid    {dims(fine.shape, fine.ndim)} cells {axes}")
     click.echo(
         f"coarse grid  {dims(coarse.shape, fine.ndim)} blocks of {result.block} cells, "
-        f"{summary['active']['coarse_blocks']} active"
+        f"{summary.active.coarse_blocks} active"
     )
     click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
     if result.dropped_cells:
@@ -62,100 +65,96 @@ def print_result(result: Upscaled, summary: dict, out: str) -> None:
     zeros = result.zeros.line(fine.unit)
     if zeros:
         click.echo(f"zero k       {zeros} (--zero-k {result.zeros.rule})")
-    stats = summary["statistics"]
+    stats = summary.statistics
     rows = []
     for name in coarse.properties():
-        f, c = stats["fine"][name], stats["coarse"][name]
-        rows.append([name, number(f["mean"]), number(f["geometric_mean"]),
-                     number(c["mean"]), number(c["geometric_mean"]),
-                     number(c["min"]), number(c["max"])])  # fmt: skip
+        f, c = stats.fine[name], stats.coarse[name]
+        rows.append([name, number(f.mean), number(f.geometric_mean), number(c.mean), number(c.geometric_mean),
+                     number(c.min), number(c.max)])  # fmt: skip
     click.echo("")
     click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",
                       "coarse min", "coarse max"], rows))  # fmt: skip
     click.echo(f"({', '.join(PERMEABILITY[a] for a in fine.axes)} in {fine.unit}"
                + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
-    tensor = summary.get("tensor")
-    if tensor and tensor.get("blocks"):
-        cross = tensor["off_diagonal_max"]
+    tensor = summary.tensor
+    if tensor and tensor.blocks:
+        cross = tensor.off_diagonal_max
         click.echo(f"tensor: anisotropy (largest/smallest principal k) median "
-                   f"{number(tensor['anisotropy_median'], '.3g')}, max "
-                   f"{number(tensor['anisotropy_max'], '.3g')}"
+                   f"{number(tensor.anisotropy_median, '.3g')}, max {number(tensor.anisotropy_max, '.3g')}"
                    + (f"; largest off-diagonal {number(cross, '.2%')} of the diagonal"
                       if cross else ""))  # fmt: skip
-        if tensor["warning"]:
-            click.echo(f"warning: {tensor['warning']}")
-        closed = {a: n for a, n in tensor["blocks_without_path"].items() if n}
+        if tensor.warning:
+            click.echo(f"warning: {tensor.warning}")
+        closed = {a: n for a, n in tensor.blocks_without_path.items() if n}
         if closed:
             click.echo("blocks with no flowing path across: "
                        + ", ".join(f"{n} along {a}" for a, n in closed.items()))  # fmt: skip
-    faces = summary.get("transmissibility")
-    if faces and faces["rule"] != "harmonic half-block":
-        click.echo(f"coarse transmissibilities from {faces['rule']}"
-                   + (f"; {faces['replaced_faces']} undefined ones took the harmonic value"
-                      if faces["replaced_faces"] else ""))  # fmt: skip
+    faces = summary.transmissibility
+    if faces and faces.rule != "harmonic half-block":
+        click.echo(f"coarse transmissibilities from {faces.rule}"
+                   + (f"; {faces.replaced_faces} undefined ones took the harmonic value"
+                      if faces.replaced_faces else ""))  # fmt: skip
     click.echo("")
-    print_check(summary["check"])
+    print_check(summary.check)
     click.echo("")
-    files = [f for f in summary["files"] if not f.startswith("figures/") and f not in PACKAGE_FILES]
+    files = [f for f in summary.files if not f.startswith("figures/") and f not in PACKAGE_FILES]
     files.insert(len(files) - ("report.html" in files), "the coarse-grid package (manifest.json)")
-    figures = sum(f.endswith(".png") for f in summary["files"] if f.startswith("figures/"))
+    figures = sum(f.endswith(".png") for f in summary.files if f.startswith("figures/"))
     if figures:
         files.insert(len(files) - ("report.html" in files), f"{figures} figures in figures/ (PNG, SVG)")
     click.echo(f"wrote {', '.join(files + ['summary.json'])} to {Path(out)}")
 
 
-def _solve(solve: dict) -> str:
-    text = solve["solver"] + (f", {solve['iterations']} it" if solve["iterations"] else "")
-    return text if solve["connected"] else text + ", no path"
+def _solve(solve: SolveRecord) -> str:
+    text = solve.solver + (f", {solve.iterations} it" if solve.iterations else "")
+    return text if solve.connected else text + ", no path"
 
 
-def print_check(check: dict | None) -> None:
+def print_check(check: FlowCheck | None) -> None:
     """Print the fine-versus-coarse flow check recorded in a summary."""
     if check is None:
         click.echo("flow check   not run (--no-check)")
         return
-    if "skipped" in check:
-        click.echo(f"flow check   the whole fine model was not solved: {check['skipped']}")
-        if check.get("windows"):
+    if check.skipped is not None:
+        click.echo(f"flow check   the whole fine model was not solved: {check.skipped}")
+        if check.windows:
             _print_windows(check)
         return
     rows = []
-    for axis, c in check.items():
-        error = "-" if c["rel_error"] is None else f"{100 * c['rel_error']:+.2f} %"
-        rows.append([axis, number(c["k_fine"]), number(c["k_coarse"]), error,
-                     _solve(c["fine"]), _solve(c["coarse"])])  # fmt: skip
+    for axis, c in check.axes.items():
+        error = "-" if c.rel_error is None else f"{100 * c.rel_error:+.2f} %"
+        rows.append([axis, number(c.k_fine), number(c.k_coarse), error, _solve(c.fine), _solve(c.coarse)])
     click.echo("flow check: the same pressure drop across each axis on both grids")
     click.echo(table(["axis", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))
 
 
-def _print_windows(check: dict) -> None:
+def _print_windows(check: FlowCheck) -> None:
     """The sub-domain check: one row per window, then the spread per axis."""
-    axes = list(check["spread"])
+    axes = list(check.spread)
     rows = []
-    for w in check["windows"]:
-        place = f"rows {w['rows'][0]}-{w['rows'][1] - 1}, columns {w['columns'][0]}-{w['columns'][1] - 1}"
-        errors = [w["check"][a]["rel_error"] for a in axes]
+    for w in check.windows:
+        place = f"rows {w.rows[0]}-{w.rows[1] - 1}, columns {w.columns[0]}-{w.columns[1] - 1}"
+        errors = [w.check[a].rel_error for a in axes]
         rows.append([place, *("-" if e is None else f"{100 * e:+.2f} %" for e in errors)])
-    click.echo(f"checked instead on {len(rows)} windows ({check['rule']}):")
+    click.echo(f"checked instead on {len(rows)} windows ({check.rule}):")
     click.echo(table(["window (fine cells)", *(f"error {a}" for a in axes)], rows))
-    for axis, s in check["spread"].items():
+    for axis, s in check.spread.items():
         if s:
-            click.echo(f"spread along {axis}: min {100 * s['min']:+.2f} %, "
-                       f"median {100 * s['median']:+.2f} %, max {100 * s['max']:+.2f} %")  # fmt: skip
+            click.echo(f"spread along {axis}: min {100 * s.min:+.2f} %, "
+                       f"median {100 * s.median:+.2f} %, max {100 * s.max:+.2f} %")  # fmt: skip
 
 
-def print_ensemble(ensemble: dict, out: str) -> None:
+def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
     """Print the spread of an ensemble's check: P10, P50, P90 per quantity and axis."""
-    stats = ensemble["statistics"]
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
-        for axis, s in stats[quantity].items():
+        for axis, s in ensemble.statistics[quantity].items():
             if s is None:
                 continue
             scale, spec = (100.0, "+.2f") if quantity == "rel_error" else (1.0, ".4g")
-            rows.append([f"{quantity} {axis}", *(number(scale * s[p], spec) for p in ("p10", "p50", "p90")),
-                         str(s["count"])])  # fmt: skip
-    click.echo(f"ensemble of {len(ensemble['realizations'])} realizations")
+            rows.append([f"{quantity} {axis}", *(number(scale * v, spec) for v in (s.p10, s.p50, s.p90)),
+                         str(s.count)])  # fmt: skip
+    click.echo(f"ensemble of {len(ensemble.realizations)} realizations")
     if rows:
         click.echo(table(["quantity", "P10", "P50", "P90", "n"], rows))
         click.echo("(k in the input's unit, errors in %; P10 is exceeded by 90 % of the realizations)")
@@ -172,25 +171,25 @@ def print_notes(warning: str | None, note: str | None = None) -> None:
         click.echo(f"note: {note}")
 
 
-def print_spread(content: dict, out: str) -> None:
+def print_spread(ranking: EnsembleRanking, out: str) -> None:
     """Print the methods compared over an ensemble: rank, P10/P50/P90 of the largest error, wins."""
     rows = []
-    for m in content["methods"]:
-        w = m["worst_error"]
-        spread = [number(100 * w[p], ".2f") for p in ("p10", "p50", "p90")] if w else ["-"] * 3
-        rows.append([str(m["rank"] or "-"), m["name"], *spread, f"{m['ran']}/{m['ran'] + m['failed']}",
-                     str(m["rank_in_realizations"]["first"])])  # fmt: skip
-    click.echo(f"methods compared on {len(content['realizations'])} realizations, ranked by the P50 of "
+    for m in ranking.methods:
+        w = m.worst_error
+        spread = [number(100 * v, ".2f") for v in (w.p10, w.p50, w.p90)] if w else ["-"] * 3
+        rows.append([str(m.rank or "-"), m.name, *spread, f"{m.ran}/{m.ran + m.failed}",
+                     str(m.rank_in_realizations.first)])  # fmt: skip
+    click.echo(f"methods compared on {len(ranking.realizations)} realizations, ranked by the P50 of "
                "their largest check error over the axes")  # fmt: skip
     click.echo(table(["rank", "method", "P10 %", "P50 %", "P90 %", "ran", "first"], rows))
     click.echo("(largest |error| over the axes per realization, in %; P10 is exceeded by 90 % of the "
                "realizations)")  # fmt: skip
-    best = content["methods"][0] if content["best"] else None
+    best = ranking.methods[0] if ranking.best else None
     if best:
-        several = len(content["methods"]) > 1
-        click.echo(f"\nbest over the ensemble: {best['name']}")
-        print_notes(outside_band(best["name"], best["worst_error"]["p50"], several=several,
+        several = len(ranking.methods) > 1
+        click.echo(f"\nbest over the ensemble: {best.name}")
+        print_notes(outside_band(best.name, best.worst_error.p50, several=several,
                                  measure="median largest check error", where="over these realizations"),
-                    bound_note(best["method"], best["name"]) if several else None)
+                    bound_note(best.method, best.name) if several else None)
     click.echo(f"wrote one comparison folder per realization, ranking.csv, figures, report.html and "
                f"ensemble.json to {Path(out)}")  # fmt: skip

@@ -10,7 +10,8 @@ from typing import Any
 import numpy as np
 from affine import Affine
 
-from ..analysis.summary import build_summary, jsonable
+from ..analysis.records import jsonable
+from ..analysis.summary import RunSummary, build_summary
 from ..caution import CAUTION
 from ..flow import Transmissibilities
 from ..methods.coarsen import Upscaled
@@ -124,7 +125,7 @@ def write_result(
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
     units: str = "si",
-) -> dict[str, Any]:
+) -> RunSummary:
     """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
 
     Parameters
@@ -151,8 +152,8 @@ def write_result(
 
     Returns
     -------
-    dict
-        The summary as written to ``summary.json``.
+    RunSummary
+        The summary written as ``summary.json``.
     """
     coarse = result.coarse
     tags = {"method": result.method, "block": str(result.block), "tool": "upscale"}
@@ -180,5 +181,5 @@ def write_result(
         summary = build_summary(
             result, files=files, command=command, timings=timings, check=check, read=read
         )
-        (stage / MARKER).write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
+        (stage / MARKER).write_text(json.dumps(summary.to_dict(), indent=2, allow_nan=False) + "\n")
     return summary

@@ -11,11 +11,11 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line
-from ..analysis.ensemble import PERCENTILE_NOTE, method_spread
-from ..analysis.summary import working_folder
+from ..analysis.comparison_record import ComparisonRecord, comparison_record
+from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..errors import InputError
-from ..export.comparison import compare_summary, write_comparison
+from ..export.comparison import write_comparison
 from ..export.ensemble import ENSEMBLE, write_ranking
 from ..export.staging import staged_folder
 from ..field import Field
@@ -62,8 +62,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
     _refuse_if_none_ran(result)
-    summary, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
-    write_comparison(out, summary, made.images, made.page, overwrite=overwrite)
+    record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
+    write_comparison(out, record, made.images, made.page, overwrite=overwrite)
     return result, made
 
 
@@ -71,7 +71,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                      read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
                      tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
-                     overwrite: bool = False, say: Say = silent) -> dict[str, Any]:  # fmt: skip
+                     overwrite: bool = False, say: Say = silent) -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
@@ -102,7 +102,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
 
     Returns
     -------
-    dict
+    EnsembleRanking
         The content of ``ensemble.json``.
 
     Raises
@@ -115,7 +115,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     names, fields = read_realizations(paths, chunk_bytes, block, read)
     first = next(iter(fields.values()))
     refuse_comparison(first, check_limit, layer)
-    summaries = []
+    records = []
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         for i, (name, fine) in enumerate(fields.items(), start=1):
             def told(line: str, name: str = name) -> None:
@@ -128,28 +128,18 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                                      report=report, say=told)  # fmt: skip
             _refuse_if_none_ran(result, paths[i - 1])
             with Steps(told)(None, "drawing the figures and writing"):
-                summary, made = _drawn(result, paths[i - 1], layer=layer, command=command,
-                                       recorded_read=recorded_read)  # fmt: skip
-                write_comparison(stage / name, summary, made.images, made.page)
-            summaries.append(summary)
+                record, made = _drawn(result, paths[i - 1], layer=layer, command=command,
+                                      recorded_read=recorded_read)  # fmt: skip
+                write_comparison(stage / name, record, made.images, made.page)
+            records.append(record)
             say(f"[{i}/{len(fields)}] realizations done ({name})")
-        methods = method_spread(names, summaries)
-        axes = "xyz"[: first.ndim]
-        content = {
-            "realizations": [{"name": name, **{k: s["inputs"][0][k] for k in ("path", "sha256")}}
-                             for name, s in zip(names, summaries)],
-            "axes": axes, "block": summaries[0]["block"], "command": command,
-            "working_folder": working_folder(command),
-            "ranking": "P50 over the realizations of the largest |rel_error| over the axes, smallest first",
-            "percentiles": PERCENTILE_NOTE, "methods": methods,
-            "best": methods[0]["name"] if methods and methods[0]["rank"] else None,
-        }  # fmt: skip
+        ranking = ensemble_ranking(names, records, command=command)
         from ..report.bundle import spread_bundle  # matplotlib: the figures extra
 
-        made = spread_bundle(methods, content, command=command,
+        made = spread_bundle(ranking, command=command,
                              title=f"upscale — methods compared on {len(names)} realizations")  # fmt: skip
-        write_ranking(stage, content, names, images=made.images, page=made.page)
-    return content
+        write_ranking(stage, ranking, names, images=made.images, page=made.page)
+    return ranking
 
 
 
@@ -175,9 +165,9 @@ def _refuse_if_none_ran(result: Comparison, path: str | None = None) -> None:
 
 
 def _drawn(result: Comparison, path: str, *, layer: int | None, command: list[str],
-           recorded_read: dict[str, Any] | None) -> tuple[dict[str, Any], Bundle]:  # fmt: skip
-    """The content of ``compare.json``, and the figures and page, of one field's comparison."""
+           recorded_read: dict[str, Any] | None) -> tuple[ComparisonRecord, Bundle]:  # fmt: skip
+    """The record of one field's comparison (``compare.json``), and its figures and page."""
     from ..report.bundle import bundle  # matplotlib: the figures extra
 
     made = bundle(result, title=f"upscale — methods compared on {path}", command=command, layer=layer)
-    return compare_summary(result, command=command, read=recorded_read), made
+    return comparison_record(result, command=command, read=recorded_read), made

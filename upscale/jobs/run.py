@@ -15,8 +15,8 @@ from typing import Any
 
 from ..analysis.compare import single
 from ..analysis.connectivity import connectivity, struggle
-from ..analysis.ensemble import ensemble_summary
-from ..analysis.summary import working_folder
+from ..analysis.ensemble import EnsembleSummary, ensemble_summary
+from ..analysis.summary import RunSummary
 from ..check.axis import check_flow
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.subdomains import check_subdomains
@@ -99,7 +99,7 @@ class Settings:
 
 
 def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: bool = False,
-                 say: Say = silent, prefix: str = "") -> tuple[Upscaled, dict[str, Any]]:  # fmt: skip
+                 say: Say = silent, prefix: str = "") -> tuple[Upscaled, RunSummary]:  # fmt: skip
     """Upscale the field in `path` and write the result into `out`.
 
     Parameters
@@ -120,7 +120,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
 
     Returns
     -------
-    (Upscaled, dict)
+    (Upscaled, RunSummary)
         The result and its summary as written.
 
     Raises
@@ -179,7 +179,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
 
 
 def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overwrite: bool = False,
-                 parallel: int = 1, say: Say = silent) -> dict[str, Any]:  # fmt: skip
+                 parallel: int = 1, say: Say = silent) -> EnsembleSummary:  # fmt: skip
     """The same job on every realization, into one sub-folder each, and the ensemble's spread.
 
     Parameters
@@ -201,7 +201,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
 
     Returns
     -------
-    dict
+    EnsembleSummary
         The content of ``ensemble.json``.
 
     Raises
@@ -214,7 +214,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                                   checksum=False)  # fmt: skip
     done = []
 
-    def one(name: str, path: str) -> dict[str, Any]:
+    def one(name: str, path: str) -> RunSummary:
         _, summary = upscale_file(path, settings, stage / name, say=say, prefix=f"{name}: ")
         done.append(name)
         say(f"[{len(done)}/{len(paths)}] realizations done ({name})")
@@ -223,16 +223,13 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         with ThreadPoolExecutor(max_workers=max(1, parallel)) as pool:
             summaries = list(pool.map(one, names, paths))
-        ensemble = ensemble_summary(names, summaries)
-        ensemble.update({"method": {"name": settings.method, "options": summaries[0]["method"]["options"]},
-                         "block": summaries[0]["block"], "command": settings.command,
-                         "working_folder": working_folder(settings.command)})  # fmt: skip
+        ensemble = ensemble_summary(names, summaries, command=settings.command)
         made = None
         if settings.plot or settings.report:
             from ..report.bundle import ensemble_bundle  # matplotlib: the figures extra
 
             with Steps(say)(None, "drawing the spread over the realizations"):
-                made = ensemble_bundle(ensemble, unit=summaries[0]["unit"], command=settings.command,
+                made = ensemble_bundle(ensemble, unit=summaries[0].unit, command=settings.command,
                                        title=f"upscale — {settings.method} on {len(names)} realizations")
         write_ensemble(stage, ensemble, names, images=made.images if made and settings.plot else None,
                        page=made.page if made and settings.report else None)  # fmt: skip

@@ -6,7 +6,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..analysis.compare import Comparison
-from ..analysis.summary import versions, working_folder
+from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
+from ..analysis.records import versions, working_folder
 from ..caution import CAUTION
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
@@ -75,13 +76,13 @@ def _percent(value: float | None) -> str:
     return "–" if value is None else f"{100 * value:+.2f} %"
 
 
-def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command: list[str]) -> Bundle:
+def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command: list[str]) -> Bundle:
     """The figure and the page of one method over an ensemble (``upscale run`` on several fields).
 
     Parameters
     ----------
-    ensemble : dict
-        From `upscale.analysis.ensemble.ensemble_summary`, with ``method`` and ``block`` added.
+    ensemble : EnsembleSummary
+        From `upscale.analysis.ensemble.ensemble_summary`.
     unit : str
         Permeability unit.
     title : str
@@ -96,19 +97,19 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
     images, shown = _rendered(plots)
     rows = []
     for quantity, name in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
-        for axis, s in ensemble["statistics"][quantity].items():
+        for axis, s in ensemble.statistics[quantity].items():
             if s is None:
                 continue
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
-            values = [cell(s[k]) for k in ("p10", "p50", "p90", "mean", "min", "max")]
-            rows.append([f"{name} along {axis}", *values, str(s["count"])])
-    errors = [s["p50"] for s in ensemble["statistics"]["rel_error"].values() if s]
-    name = ensemble["method"]["name"]
+            values = [cell(v) for v in (s.p10, s.p50, s.p90, s.mean, s.min, s.max)]
+            rows.append([f"{name} along {axis}", *values, str(s.count)])
+    errors = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
+    name = ensemble.method.name
     worst = max(errors, key=abs) if errors else None
     job = {
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(),
-        "verdict": f"{name} on {len(ensemble['realizations'])} realizations: "
+        "verdict": f"{name} on {len(ensemble.realizations)} realizations: "
         + (f"median check error within {100 * abs(worst):.2f} % on every axis." if errors else
            "the check was not run."),
         "warning": outside_band(name, worst, several=False, measure="median check error",
@@ -116,33 +117,30 @@ def ensemble_bundle(ensemble: dict[str, Any], *, unit: str, title: str, command:
         "note": None,
         "what": f"Effective permeability ({unit}) of the fine and the coarse model under the same "
         "pressure drop, and the check error, over the realizations.",
-        "realizations": [{"name": r["name"], **(r["inputs"][0] if r["inputs"] else
-                                                {"path": "", "sha256": None})}
-                         for r in ensemble["realizations"]],
-        "block": _block(ensemble["block"], "".join(ensemble["statistics"]["k_fine"])),
-        "percentiles": ensemble["percentiles"],
+        "realizations": [{"name": r.name, **(r.inputs[0].to_dict() if r.inputs else
+                                             {"path": "", "sha256": None})}
+                         for r in ensemble.realizations],
+        "block": _block(ensemble.block, ensemble.axes),
+        "percentiles": ensemble.percentiles,
     }  # fmt: skip
     head = ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
     return Bundle(images, ensemble_page(job, head, rows, shown))
 
 
-def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, title: str,
-                  command: list[str]) -> Bundle:  # fmt: skip
+def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -> Bundle:
     """The figure and the page of methods compared over an ensemble (``upscale compare`` on several fields).
 
     Parameters
     ----------
-    methods : list of dict
-        From `upscale.analysis.ensemble.method_spread`.
-    ensemble : dict
-        ``realizations`` (name, inputs), ``axes``, ``block``, ``percentiles``.
+    ranking : EnsembleRanking
+        From `upscale.analysis.ensemble.ensemble_ranking`: the methods, realizations, axes, block.
     title : str
         Page title.
     command : list of str
         The command line.
     """
-    axes = ensemble["axes"]
-    n = len(ensemble["realizations"])
+    axes, methods = ranking.axes, ranking.methods
+    n = len(ranking.realizations)
     plots = [Plot("spread", method_spread_chart(methods, axes, n),
                   "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
                   "(tick). The ranking follows the P50 of the largest error; look at the bars too: "
@@ -150,25 +148,25 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
     images, shown = _rendered(plots)
     rows = []
     for m in methods:
-        w = m["worst_error"]
-        worst = [f"{100 * w[k]:.2f} %" for k in ("p10", "p50", "p90")] if w else ["–"] * 3
-        per_axis = [_percent(m["rel_error"][a]["p50"]) if m["rel_error"][a] else "–" for a in axes]
-        mean_rank = m["rank_in_realizations"]["mean"]
-        mark = bound_mark(m["method"])
-        rows.append([str(m["rank"] or "–"), m["name"] + (f" ({mark})" if mark else ""),
-                     f"{m['ran']} / {m['ran'] + m['failed']}", *worst, *per_axis,
+        w = m.worst_error
+        worst = [f"{100 * v:.2f} %" for v in (w.p10, w.p50, w.p90)] if w else ["–"] * 3
+        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error[a] else "–" for a in axes]
+        mean_rank = m.rank_in_realizations.mean
+        mark = bound_mark(m.method)
+        rows.append([str(m.rank or "–"), m.name + (f" ({mark})" if mark else ""),
+                     f"{m.ran} / {m.ran + m.failed}", *worst, *per_axis,
                      "–" if mean_rank is None else f"{mean_rank:.1f}",
-                     str(m["rank_in_realizations"]["first"])])  # fmt: skip
-    best = methods[0] if methods and methods[0]["rank"] else None
+                     str(m.rank_in_realizations.first)])  # fmt: skip
+    best = methods[0] if methods and methods[0].rank else None
     several = len(methods) > 1
     verdict, warning, note = "No method ran on these realizations.", None, None
     if best:
-        w = best["worst_error"]
-        verdict = (f"{'Best over' if several else 'Over'} {n} realizations: {best['name']}, median largest "
-                   f"check error {100 * w['p50']:.2f} % (P90 {100 * w['p90']:.2f} %).")  # fmt: skip
-        warning = outside_band(best["name"], w["p50"], several=several, measure="median largest check error",
+        w = best.worst_error
+        verdict = (f"{'Best over' if several else 'Over'} {n} realizations: {best.name}, median largest "
+                   f"check error {100 * w.p50:.2f} % (P90 {100 * w.p90:.2f} %).")  # fmt: skip
+        warning = outside_band(best.name, w.p50, several=several, measure="median largest check error",
                                where="over these realizations")  # fmt: skip
-        note = bound_note(best["method"], best["name"]) if several else None
+        note = bound_note(best.method, best.name) if several else None
     job = {
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
@@ -177,8 +175,8 @@ def spread_bundle(methods: list[dict[str, Any]], ensemble: dict[str, Any], *, ti
                  if several else "The method's largest check error over the axes, over the "
                  "realizations") + "; the P10 and P90 show how much that varies from one realization "
         "to the next — with few realizations they are interpolated between the nearest ones.",
-        "realizations": ensemble["realizations"], "block": _block(ensemble["block"], axes),
-        "percentiles": ensemble["percentiles"],
+        "realizations": [r.to_dict() for r in ranking.realizations], "block": _block(ranking.block, axes),
+        "percentiles": ranking.percentiles,
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
             *(f"P50 error along {a}" for a in axes), "mean rank", "times first"]  # fmt: skip

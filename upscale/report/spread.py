@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
-from ..analysis.ensemble import PERCENTILES
+from ..analysis.ensemble import PERCENTILES, EnsembleSummary, MethodSpread
 from .charts import error_band, readable_k_axis, warn_in
 from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
@@ -28,19 +26,19 @@ def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str
     ax.plot([x - half, x + half], [p50, p50], color="black", linewidth=1.6)
 
 
-def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: int) -> Figure:
+def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizations: int) -> Figure:
     """Check error of every method over the realizations, per axis, methods in ranked order.
 
     Parameters
     ----------
-    methods : list of dict
+    methods : tuple of MethodSpread
         From `upscale.analysis.ensemble.method_spread` (methods that ran somewhere are drawn).
     axes : str
         The flow axes, e.g. ``"xy"``.
     realizations : int
         How many realizations, for the title.
     """
-    ran = [m for m in methods if m["rank"] is not None]
+    ran = [m for m in methods if m.rank is not None]
     alone = len(methods) == 1
     fig = Figure(figsize=(min(MAX_WIDTH, max(6.5, 0.9 * len(ran) + 2.5)), 4.6), layout="constrained")
     ax = fig.subplots()
@@ -49,18 +47,18 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
     for i, axis in enumerate(axes):
         offset = (i - (len(axes) - 1) / 2) * width
         for j, m in enumerate(ran):
-            values = np.array([100 * r["rel_error"][axis] if r and r["rel_error"][axis] is not None
-                               else np.nan for r in m["by_realization"].values()])  # fmt: skip
+            values = np.array([100 * r.rel_error[axis] if r and r.rel_error[axis] is not None
+                               else np.nan for r in m.by_realization.values()])  # fmt: skip
             if np.isfinite(values).any():
                 largest = max(largest, float(np.nanmax(np.abs(values))))
             _spread_marks(ax, j + offset, values, PALETTE[i], f"along {axis}" if j == 0 else None,
                           half=0.4 * width)  # fmt: skip
     error_band(ax, largest)
-    ax.set_xticks(range(len(ran)), [m["name"] if alone else f"{m['rank']}. {m['name']}" for m in ran],
+    ax.set_xticks(range(len(ran)), [m.name if alone else f"{m.rank}. {m.name}" for m in ran],
                   rotation=30, ha="right")  # fmt: skip
     ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
     if ran:
-        warn_in(ax, outside_band(ran[0]["name"], ran[0]["worst_error"]["p50"], several=not alone,
+        warn_in(ax, outside_band(ran[0].name, ran[0].worst_error.p50, several=not alone,
                                  measure="median largest check error", where="over these realizations"))
     ax.legend(fontsize=LABEL, loc="best")
     title(fig, f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
@@ -68,39 +66,39 @@ def method_spread_chart(methods: list[dict[str, Any]], axes: str, realizations: 
     return fig
 
 
-def ensemble_chart(ensemble: dict[str, Any], unit: str) -> Figure:
+def ensemble_chart(ensemble: EnsembleSummary, unit: str) -> Figure:
     """One method over the realizations: fine and coarse k_eff per axis, and the check errors.
 
     Parameters
     ----------
-    ensemble : dict
+    ensemble : EnsembleSummary
         From `upscale.analysis.ensemble.ensemble_summary` (with the check run).
     unit : str
         Permeability unit for labels.
     """
-    rows = ensemble["realizations"]
-    axes = [a for a in "xyz" if a in ensemble["statistics"]["k_fine"]]
+    rows = ensemble.realizations
+    axes = [a for a in "xyz" if a in ensemble.axes]
     fig = Figure(figsize=(9.0, 4.6), layout="constrained")
     left, right = fig.subplots(1, 2)
     for i, axis in enumerate(axes):
         for j, (quantity, name) in enumerate((("k_fine", "fine"), ("k_coarse", "coarse"))):
-            values = np.array([r[quantity].get(axis) for r in rows], dtype=float)
+            values = np.array([getattr(r, quantity).get(axis) for r in rows], dtype=float)
             _spread_marks(left, 2 * i + 0.8 * j, values, PALETTE[j], name if i == 0 else None)
-        errors = np.array([r["rel_error"].get(axis) for r in rows], dtype=float) * 100
+        errors = np.array([r.rel_error.get(axis) for r in rows], dtype=float) * 100
         _spread_marks(right, i, errors, PALETTE[i], None)
     readable_k_axis(left)
     left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [f"along {a}" for a in axes])
     left.set_ylabel(f"effective permeability ({unit})")
     left.set_title("k_eff of the fine and the coarse model")
     left.legend(fontsize=LABEL, loc="best")
-    errors = np.array([r["rel_error"].get(a) for r in rows for a in axes], dtype=float) * 100
+    errors = np.array([r.rel_error.get(a) for r in rows for a in axes], dtype=float) * 100
     error_band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
     right.set_xticks(range(len(axes)), [f"along {a}" for a in axes])
     right.set_ylabel("check error (k_coarse − k_fine) / k_fine")
-    medians = [s["p50"] for s in ensemble["statistics"]["rel_error"].values() if s]
+    medians = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
     right.set_title("Check error")
     if medians:
-        warn_in(right, outside_band(ensemble["method"]["name"], max(medians, key=abs), several=False,
+        warn_in(right, outside_band(ensemble.method.name, max(medians, key=abs), several=False,
                                     measure="median check error", where="over these realizations"))
     right.legend(fontsize=LABEL, loc="best")
     title(fig, f"Over {len(rows)} realizations: dots, P10–P90 bar, P50 tick")
