@@ -8,8 +8,9 @@ What is tested
   packages are peers in the order given (a peer may use the ones after it).
 * The rule catches what it should: a module of a low layer that imports a
   higher one (a source written here) is reported.
-* ``import upscale`` imports neither matplotlib, pyarrow, netCDF4 nor
-  distributed (figures, package formats and clusters load when used).
+* ``import upscale`` imports neither matplotlib, pyarrow, netCDF4,
+  distributed, xarray nor rioxarray (figures, package formats, clusters and
+  labelled arrays load when used).
 """
 
 from __future__ import annotations
@@ -41,6 +42,8 @@ LAYERS = [
     "compiling",
     "_elementary",
     "field",
+    "labelled",
+    "display",
     "units",
     "_checks",
     "caution",
@@ -116,7 +119,7 @@ def test_the_rule_reports_an_upward_import():
 
 
 def test_import_upscale_loads_no_optional_heavy_library():
-    heavy = ("matplotlib", "pyarrow", "netCDF4", "distributed")
+    heavy = ("matplotlib", "pyarrow", "netCDF4", "distributed", "xarray", "rioxarray")
     script = f"import sys, upscale\nprint(' '.join(m for m in {heavy!r} if m in sys.modules))"
     done = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True)
     assert done.stdout.strip() == ""

@@ -9,15 +9,18 @@ single pass over the data — dask reads each chunk once.
 
 from __future__ import annotations
 
+import json
 import logging
 import math
-from dataclasses import dataclass, field, replace
-from typing import Any
+from dataclasses import KW_ONLY, dataclass, field, replace
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ..display import Row, as_html, as_text, cells, sizes
 from ..errors import InputError
-from ..field import AXES, PERMEABILITY, Field
+from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
 from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
@@ -27,6 +30,9 @@ from .flow_based import TENSOR
 from .registry import Method, get_method
 from .zeros import ZeroOutcome, apply_zero_rule
 
+if TYPE_CHECKING:
+    import xarray
+
 log = logging.getLogger(__name__)
 
 #: Below this fraction of active cells a field is said to be almost all nodata (our
@@ -34,9 +40,11 @@ log = logging.getLogger(__name__)
 SPARSE = 0.01
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class Upscaled:
     """A fine field, its coarse counterpart and how one was made from the other.
+
+    Made by `coarsen`. Every attribute after `coarse` is given by keyword.
 
     Attributes
     ----------
@@ -79,6 +87,7 @@ class Upscaled:
 
     fine: Field
     coarse: Field
+    _: KW_ONLY
     method: str
     options: dict
     block: BlockSpec
@@ -96,30 +105,123 @@ class Upscaled:
         """Coarse transmissibilities, in (unit of k) · m.
 
         Upscaled directly when the method made them; otherwise by the harmonic
-        half-block rule from the block permeabilities.
+        half-block rule from the block permeabilities. Computed once: the
+        check, the windows and the package all use them.
         """
-        known = self.__dict__.get("_transmissibilities")
-        if known is None:  # computed once: the check, the windows and the package all use it
-            known = transmissibilities(self.coarse)
-            if self.faces is not None:
-                known = replace(known, faces=self.faces, boundary=self.boundary)
-            object.__setattr__(self, "_transmissibilities", known)
+        return self._transmissibilities
+
+    @cached_property
+    def _transmissibilities(self) -> Transmissibilities:
+        # a frozen dataclass still has a __dict__, where cached_property keeps the value
+        known = transmissibilities(self.coarse)
+        if self.faces is not None:
+            known = replace(known, faces=self.faces, boundary=self.boundary)
         return known
+
+    def to_xarray(self) -> xarray.Dataset:
+        """The coarse field as an xarray Dataset, with how it was made.
+
+        Returns
+        -------
+        xarray.Dataset
+            What `Field.to_xarray` gives for `coarse` (``Field.from_xarray``
+            reads it back), with the variables ``active_fraction`` (active
+            fraction of each block's bulk volume) and the off-diagonal tensor
+            terms (``kxy``..., unit of k) of full-tensor methods, and the
+            attributes ``method``, ``options`` (JSON), ``block``, ``remainder``,
+            ``min_active``, ``zero_k``, ``zero_k_outcome``, ``fine_shape``,
+            ``dropped_cells`` and ``lost_pore_volume_m3``.
+
+        Raises
+        ------
+        ImportError
+            If xarray or rioxarray is not installed (the ``xarray`` extra).
+
+        Examples
+        --------
+        >>> fine = Field.from_arrays(np.array([[1.0, 4.0], [1.0, 4.0]]), cell_size=(5.0, 5.0))
+        >>> ds = coarsen(fine, "2x1", "arithmetic").to_xarray()
+        >>> ds.kx.values.tolist(), ds.attrs["method"], ds.attrs["block"]
+        ([[2.5], [2.5]], 'arithmetic', '2x1')
+        """
+        from ..labelled import to_dataset
+
+        coarse, unit = self.coarse, self.coarse.unit
+        extra = {"active_fraction": (self.active_fraction, {
+            "units": "1", "long_name": "active fraction of the block's bulk volume"})}  # fmt: skip
+        extra.update({name: (values, {"units": unit, "long_name": f"permeability tensor term: flux along "
+                                      f"{name[1]} per unit pressure gradient along {name[2]}"})
+                      for name, values in self.tensor.items()})  # fmt: skip
+        spec = self.block.summary()
+        attrs = {"method": self.method, "options": json.dumps(self.options), "block": str(self.block),
+                 "remainder": spec["remainder"], "min_active": spec["min_active"], "zero_k": spec["zero_k"],
+                 "zero_k_outcome": self.zeros.line(unit) or "no block with k = 0",
+                 "fine_shape": list(self.fine.shape), "dropped_cells": self.dropped_cells,
+                 "lost_pore_volume_m3": self.lost_pore_volume}  # fmt: skip
+        sources = {s.role: (s.path, s.sha256) for s in coarse.sources}
+        return to_dataset(coarse.properties(), coarse.grid, unit=unit, sources=sources,
+                          layered=coarse.ndim == 3 or coarse.shape[0] > 1, extra=extra, attrs=attrs)  # fmt: skip
+
+    def _rows(self) -> tuple[str, list[Row]]:
+        options = "".join(f", {k}={v:.4g}" if isinstance(v, float) else f", {k}={v}"
+                          for k, v in self.options.items())  # fmt: skip
+        title = f"Upscaled: {self.method}{options} in {self.block} blocks, k in {self.coarse.unit}"
+        coarse = self.coarse
+        active = int(np.count_nonzero(~np.isnan(coarse.kx)))
+        dropped = f", {self.dropped_cells} dropped ({self.block.remainder})" if self.dropped_cells else ""
+        named = ", ".join([*coarse.properties(), *self.tensor])
+        faces = ("upscaled directly" + (f", {self.replaced_faces} harmonic" if self.replaced_faces else "")
+                 if self.faces is not None else "harmonic half-block rule")  # fmt: skip
+        rows = [
+            ("fine", cells(self.fine.shape, AXIS_NAMES) + dropped),
+            ("coarse", cells(coarse.shape, AXIS_NAMES) + ": "
+             + ", ".join(sizes(n, getattr(coarse.grid, n)) for n in ("dx", "dy", "dz"))),
+            ("active", f"{active} of {math.prod(coarse.shape)} blocks (min_active {self.block.min_active:g})"),
+            ("zero k", f"{self.block.zero_k}: {self.zeros.line(coarse.unit) or 'no block with k = 0'}"),
+            ("properties", named),
+            ("faces", faces),
+        ]
+        return title, rows
+
+    def __repr__(self) -> str:
+        return as_text(*self._rows())
+
+    def _repr_html_(self) -> str:
+        return as_html(*self._rows())
 
 
 def coarsen(
-    field: Field, block: BlockSpec | str, method: str = "geometric", **options: Any
+    field: Field | Any,
+    block: BlockSpec | str,
+    method: str = "geometric",
+    *,
+    cell_size: tuple[float, float] | None = None,
+    dz: float | np.ndarray | None = None,
+    unit: str | None = None,
+    **options: Any,
 ) -> Upscaled:
     """Upscale every property of `field` to coarse blocks.
 
     Parameters
     ----------
-    field : Field
-        The fine field (NumPy or dask arrays).
+    field : Field, ndarray, dask array, xarray.DataArray or xarray.Dataset
+        The fine field. An array of shape (M, N) (a map) or (L, M, N) (layers,
+        rows, columns) is permeability along every axis and needs `cell_size`
+        (and `dz` for several layers), as `Field.from_arrays`. An xarray object
+        (dimensions ``(y, x)`` or ``(layer | band | z, y, x)``) brings its
+        georeference, cell sizes and nodata, as `Field.from_xarray`.
     block : BlockSpec or str
         The block partition, or its text form such as ``"8x8"``.
     method : str
         A name from `upscale.METHODS`.
+    cell_size : (float, float), optional
+        Column width and row height in m of an array `field`, or of an xarray
+        one that does not carry them.
+    dz : float or array of shape (L,), optional
+        Layer thickness(es) in m of an array or xarray `field` (1 m for a map).
+    unit : str, optional
+        Permeability unit of an array (default mD) or xarray `field` (default:
+        its ``units`` attribute, else mD).
     **options
         The method's options, e.g. ``exponent=0.5`` for ``power``.
 
@@ -132,8 +234,8 @@ def coarsen(
     ------
     InputError
         If the block does not fit the grid, a value cannot be averaged by the
-        method (negative, infinite, or zero where the method needs > 0), or no
-        cell is active.
+        method (negative, infinite, or zero where the method needs > 0), no
+        cell is active, or an array comes without `cell_size`.
 
     Examples
     --------
@@ -141,7 +243,13 @@ def coarsen(
     >>> fine = Field.from_arrays(np.array([[1.0, 1.0], [100.0, 100.0]]), cell_size=(10.0, 10.0))
     >>> coarsen(fine, "2x2", "geometric").coarse.kx
     array([[[10.]]])
+
+    A NumPy array needs its cell size in m:
+
+    >>> coarsen(np.array([[1.0, 1.0], [100.0, 100.0]]), "2x2", cell_size=(10.0, 10.0)).coarse.kx
+    array([[[10.]]])
     """
+    field = as_field(field, cell_size=cell_size, dz=dz, unit=unit)
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     chosen, options = get_method(method, options)
     spec.check(field.shape, field.ndim)
@@ -205,8 +313,39 @@ def coarsen(
     if faces is not None:
         faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
-    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost, zeros,
-                    tensor, faces, boundary, replaced)  # fmt: skip
+    return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
+                    fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,
+                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced)  # fmt: skip
+
+
+def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any = None,
+             unit: str | None = None) -> Field:  # fmt: skip
+    """`data` as a `Field`: a field as it is, an array or xarray object with its cell sizes.
+
+    Parameters are those of `coarsen`.
+
+    Raises
+    ------
+    InputError
+        For an array without `cell_size`, cell sizes or a unit given with a
+        `Field` (it has its own), or anything else than the kinds `coarsen` takes.
+    """
+    from ..labelled import is_labelled
+
+    if isinstance(data, Field):
+        given = [name for name, v in (("cell_size", cell_size), ("dz", dz), ("unit", unit)) if v is not None]
+        if given:
+            raise InputError(f"{', '.join(given)} describe an array; the Field has its own grid and unit")
+        return data
+    if is_labelled(data):
+        return Field.from_xarray(data, cell_size=cell_size, dz=dz, unit=unit)
+    if not hasattr(data, "ndim") or not hasattr(data, "dtype"):
+        raise InputError("field must be a Field, a NumPy or dask array, or an xarray DataArray or "
+                         f"Dataset, got {type(data).__name__}")  # fmt: skip
+    if cell_size is None:
+        raise InputError("an array carries no cell size; give cell_size=(dx, dy) in metres "
+                         "(and dz= for layers)")  # fmt: skip
+    return Field.from_arrays(data, cell_size=cell_size, dz=dz, unit=unit or "mD")
 
 
 def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> dict[str, np.ndarray]:
