@@ -20,7 +20,7 @@ import numpy as np
 
 from ..display import Row, as_html, as_text, cells, sizes
 from ..errors import InputError
-from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
+from ..field import AXIS_NAMES, PERMEABILITY, Field
 from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
@@ -260,20 +260,7 @@ def coarsen(
     fine = field.leading(spec.used_shape(field.shape))
     dz, cells = fine.grid.dz, spec.cells
 
-    lazy: dict[str, Any] = {}
-    if chosen.local:
-        lazy.update({f"_{k}": v for k, v in chosen.kernel(fine, cells, **options).items()})
-    else:
-        results_by_array: dict[tuple[int, int | None], Any] = {}
-        for axis_name in fine.axes:
-            name = PERMEABILITY[axis_name]
-            array = getattr(fine, name)
-            axis = AXES[axis_name]
-            # the same array under a rule that ignores the axis is computed once
-            key = (id(array), axis if chosen.directional else None)
-            if key not in results_by_array:
-                results_by_array[key] = apply_blocks(chosen.kernel, array, dz, cells, axis, **options)
-            lazy[name] = results_by_array[key]
+    lazy = chosen.kernel(fine, cells, **options)
     if fine.porosity is not None:
         lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
     lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
@@ -292,8 +279,8 @@ def coarsen(
     inactive = (fraction == 0) | (fraction < spec.min_active * (1 - 1e-12))
     pore = computed["porosity"] * coarse_grid.cell_volumes() if "porosity" in computed else None
     lost = float(pore[inactive].sum()) if pore is not None else 0.0
-    tensor = _tensor_terms(computed.pop("_tensor"), fine.ndim, computed) if chosen.local else {}
-    faces = computed.pop("_faces", None)
+    tensor = _tensor_terms(computed.pop("tensor"), fine.ndim, computed) if "tensor" in computed else {}
+    faces = computed.pop("faces", None)
     names = [PERMEABILITY[a] for a in fine.axes]
     floored, inactive, zeros = apply_zero_rule(spec, {name: computed[name] for name in names}, inactive, pore)
     computed.update(floored)
