@@ -43,3 +43,9 @@ class ClusterError(UpscaleError, RuntimeError):
     """The dask cluster failed the work (workers lost too often, scheduler gone); nothing was written."""
 
     exit_code = 1
+
+
+class MissingLibraryError(UpscaleError, ImportError):
+    """An optional library is not installed; the message names the extra that installs it."""
+
+    exit_code = 1

@@ -375,7 +375,7 @@ class Field:
         InputError
             If the dimensions are not those above, ``kx`` is missing, or a cell
             size is unknown or disagrees with the one given.
-        ImportError
+        MissingLibraryError
             If xarray or rioxarray is not installed (the ``xarray`` extra).
         """
         from .labelled import from_labelled
@@ -403,7 +403,7 @@ class Field:
 
         Raises
         ------
-        ImportError
+        MissingLibraryError
             If xarray or rioxarray is not installed (the ``xarray`` extra).
 
         Examples

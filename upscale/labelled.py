@@ -37,10 +37,8 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, MissingLibraryError
 
-#: How to install the optional libraries this module needs.
-EXTRA = 'pip install "upscale[xarray]"'
 #: Names accepted for the layer dimension of a DataArray or Dataset.
 LAYER_DIMS = ("layer", "band", "z")
 #: Long names of the properties a Dataset may hold.
@@ -52,18 +50,24 @@ _METRES = {"units": "m"}
 def require(what: str) -> ModuleType:
     """xarray, with rioxarray's ``.rio`` accessor registered.
 
+    Parameters
+    ----------
+    what : str
+        What needs them, for the message (e.g. ``"Field.to_xarray"``).
+
     Raises
     ------
-    ImportError
-        Naming `what` needed them and the extra that installs them.
+    MissingLibraryError
+        One line naming `what`, the missing library and the extra that installs it.
     """
     try:
         import rioxarray  # noqa: F401 - registers the .rio accessor
         import xarray
-    except ImportError as exc:
-        raise ImportError(
-            f"{what} needs xarray and rioxarray, which are optional: {EXTRA} ({exc})"
-        ) from exc
+    except ModuleNotFoundError as exc:
+        raise MissingLibraryError(
+            f"{what} needs {exc.name}, which is not installed; install the extra 'xarray': "
+            'pip install "upscale[xarray]"'
+        ) from None
     return xarray
 
 
@@ -172,7 +176,7 @@ def from_labelled(data: Any, *, cell_size: tuple[float, float] | None, dz: Any,
     sizes = _agree("cell_size", _own_cell_sizes(data, transform, crs), given)
     if sizes is None:
         raise InputError("the cell size is unknown (no dx/dy coordinates, projected georeference or "
-                         "evenly spaced x/y coordinates); give cell_size=(dx, dy) in metres")  # fmt: skip
+                         "evenly spaced x/y coordinates); give `cell_size`=(dx, dy) in metres")  # fmt: skip
     dy, dx = sizes
     grid = {"dz": _thickness(data, dz, layers), "dy": np.broadcast_to(dy, rows),
             "dx": np.broadcast_to(dx, columns), "transform": transform, "crs": crs}  # fmt: skip
@@ -195,17 +199,19 @@ def _order(kx: Any) -> tuple[str, ...]:
 def _cubes(variables: dict[str, Any], order: tuple[str, ...]) -> dict[str, Any]:
     """Each variable as an array of shape (L, M, N), its nodata value made NaN."""
     cubes: dict[int, Any] = {}  # one array under several names stays one
+    named: dict[str, Any] = {}
     for name, var in variables.items():
         if set(var.dims) != set(order):
             raise InputError(f"{name} has dimensions {tuple(map(str, var.dims))}, kx has {order}")
-        if id(var.data) in cubes:
-            continue
-        values = var.transpose(*order).data
-        nodata = var.rio.nodata
-        if nodata is not None and not np.isnan(nodata):
-            values = np.where(values == nodata, np.nan, values)
-        cubes[id(var.data)] = values if len(order) == 3 else values[None]
-    return {name: cubes[id(var.data)] for name, var in variables.items()}
+        data = var.data  # a lazily loaded variable gives a new array at every access: take it once
+        if id(data) not in cubes:
+            values = data.transpose([var.dims.index(d) for d in order])
+            nodata = var.rio.nodata
+            if nodata is not None and not np.isnan(nodata):
+                values = np.where(values == nodata, np.nan, values)
+            cubes[id(data)] = values if len(order) == 3 else values[None]
+        named[name] = (data, cubes[id(data)])  # the data is held, so its id is not reused
+    return {name: cube for name, (_, cube) in named.items()}
 
 
 def _agree(what: str, own: Any, given: Any) -> Any:
@@ -213,7 +219,7 @@ def _agree(what: str, own: Any, given: Any) -> Any:
     if given is None or own is None:
         return own if given is None else given
     if not all(np.allclose(a, b, rtol=1e-9, atol=0) for a, b in zip(own, given)):
-        raise InputError(f"the {what} given disagrees with the data's own; leave it out")
+        raise InputError(f"`{what}` disagrees with the data's own; leave it out")
     return own
 
 
@@ -228,7 +234,7 @@ def _own_cell_sizes(data: Any, transform: Any, crs: Any) -> tuple[Any, Any] | No
                              "resample it onto a north-up grid first")  # fmt: skip
         if crs is not None and crs.is_geographic:
             raise InputError(f"the data is in a geographic CRS ({crs.to_string()}), its cells are in "
-                             "degrees; reproject it (da.rio.reproject) or give cell_size=(dx, dy) in metres")  # fmt: skip
+                             "degrees; reproject it (da.rio.reproject) or give `cell_size`=(dx, dy) in metres")  # fmt: skip
         metres = crs.linear_units_factor[1] if crs is not None else 1.0
         return abs(transform.e) * metres, abs(transform.a) * metres
     steps = (_spacing(data, "y"), _spacing(data, "x"))
@@ -266,11 +272,11 @@ def _thickness(data: Any, given: Any, layers: int) -> np.ndarray:
     if given is not None:
         given = np.atleast_1d(np.asarray(given, float))
         if given.size not in (1, layers):
-            raise InputError(f"dz has {given.size} values but the data has {layers} layers")
+            raise InputError(f"`dz` has {given.size} values but the data has {layers} layers")
     found = _agree("dz", None if own is None else [own], None if given is None else [given])
     if found is None:
         if layers > 1:
-            raise InputError(f"{layers} layers make a 3D model; give the layer thickness dz= in m "
+            raise InputError(f"{layers} layers make a 3D model; give the layer thickness `dz` in m "
                              "(one value, or one per layer)")  # fmt: skip
         return np.ones(1)
     return np.broadcast_to(found[0], (layers,))

@@ -134,7 +134,7 @@ class Upscaled:
 
         Raises
         ------
-        ImportError
+        MissingLibraryError
             If xarray or rioxarray is not installed (the ``xarray`` extra).
 
         Examples
@@ -206,8 +206,8 @@ def coarsen(
     ----------
     field : Field, ndarray, dask array, xarray.DataArray or xarray.Dataset
         The fine field. An array of shape (M, N) (a map) or (L, M, N) (layers,
-        rows, columns) is permeability along every axis and needs `cell_size`
-        (and `dz` for several layers), as `Field.from_arrays`. An xarray object
+        rows, columns) is permeability along every axis (NaN: inactive), as
+        `Field.from_arrays`, on cells of `cell_size` and `dz`. An xarray object
         (dimensions ``(y, x)`` or ``(layer | band | z, y, x)``) brings its
         georeference, cell sizes and nodata, as `Field.from_xarray`.
     block : BlockSpec or str
@@ -215,10 +215,11 @@ def coarsen(
     method : str
         A name from `upscale.METHODS`.
     cell_size : (float, float), optional
-        Column width and row height in m of an array `field`, or of an xarray
-        one that does not carry them.
+        Column width and row height in m of an array `field` (default 1 m by
+        1 m), or of an xarray one that does not carry them.
     dz : float or array of shape (L,), optional
-        Layer thickness(es) in m of an array or xarray `field` (1 m for a map).
+        Layer thickness(es) in m of an array `field` (default 1 m), or of an
+        xarray one that does not carry them (1 m for a map).
     unit : str, optional
         Permeability unit of an array (default mD) or xarray `field` (default:
         its ``units`` attribute, else mD).
@@ -234,8 +235,8 @@ def coarsen(
     ------
     InputError
         If the block does not fit the grid, a value cannot be averaged by the
-        method (negative, infinite, or zero where the method needs > 0), no
-        cell is active, or an array comes without `cell_size`.
+        method (negative, infinite, or zero where the method needs > 0), or no
+        cell is active.
 
     Examples
     --------
@@ -244,7 +245,7 @@ def coarsen(
     >>> coarsen(fine, "2x2", "geometric").coarse.kx
     array([[[10.]]])
 
-    A NumPy array needs its cell size in m:
+    A NumPy array is kx (= ky) on cells of 1 m unless `cell_size` says otherwise:
 
     >>> coarsen(np.array([[1.0, 1.0], [100.0, 100.0]]), "2x2", cell_size=(10.0, 10.0)).coarse.kx
     array([[[10.]]])
@@ -314,25 +315,27 @@ def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any
     Raises
     ------
     InputError
-        For an array without `cell_size`, cell sizes or a unit given with a
-        `Field` (it has its own), or anything else than the kinds `coarsen` takes.
+        For cell sizes or a unit given with a `Field` (it has its own), or
+        anything else than the kinds `coarsen` takes.
     """
     from ..labelled import is_labelled
 
     if isinstance(data, Field):
-        given = [name for name, v in (("cell_size", cell_size), ("dz", dz), ("unit", unit)) if v is not None]
+        named = {"cell_size": cell_size, "dz": dz, "unit": unit}
+        given = [f"`{name}`" for name, value in named.items() if value is not None]
         if given:
-            raise InputError(f"{', '.join(given)} describe an array; the Field has its own grid and unit")
+            raise InputError(f"{', '.join(given)} describe an array; a Field has its own grid and unit")
         return data
     if is_labelled(data):
         return Field.from_xarray(data, cell_size=cell_size, dz=dz, unit=unit)
     if not hasattr(data, "ndim") or not hasattr(data, "dtype"):
-        raise InputError("field must be a Field, a NumPy or dask array, or an xarray DataArray or "
+        raise InputError("`field` must be a Field, a NumPy or dask array, or an xarray DataArray or "
                          f"Dataset, got {type(data).__name__}")  # fmt: skip
-    if cell_size is None:
-        raise InputError("an array carries no cell size; give cell_size=(dx, dy) in metres "
-                         "(and dz= for layers)")  # fmt: skip
-    return Field.from_arrays(data, cell_size=cell_size, dz=dz, unit=unit or "mD")
+    if data.ndim not in (2, 3):
+        raise InputError(f"an array `field` must have 2 (rows, columns) or 3 (layers, rows, columns) "
+                         f"dimensions, got {data.ndim}")  # fmt: skip
+    return Field.from_arrays(data, cell_size=cell_size or (1.0, 1.0), dz=1.0 if dz is None else dz,
+                             unit=unit or "mD")  # fmt: skip
 
 
 def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> dict[str, np.ndarray]:
