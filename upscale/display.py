@@ -37,8 +37,11 @@ def as_html(title: str, rows: list[Row]) -> str:
 
     Examples
     --------
-    >>> as_html("Grid", [("CRS", "<none>")])
-    '<table><caption style="text-align:left"><b>Grid</b></caption><tr><th style="text-align:left">CRS</th><td style="text-align:left">&lt;none&gt;</td></tr></table>'
+    >>> page = as_html("Grid", [("CRS", "<none>")])
+    >>> page[:61]
+    '<table><caption style="text-align:left"><b>Grid</b></caption>'
+    >>> page[61:]
+    '<tr><th style="text-align:left">CRS</th><td style="text-align:left">&lt;none&gt;</td></tr></table>'
     """
     left = ' style="text-align:left"'
     body = "".join(f"<tr><th{left}>{html.escape(label)}</th><td{left}>{html.escape(text)}</td></tr>"

@@ -87,18 +87,18 @@ class Grid:
         """Bulk volume of every cell in m³, shape ``(L, M, N)``."""
         return self.dz[:, None, None] * self.dy[None, :, None] * self.dx[None, None, :]
 
-    def centres(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Cell-centre coordinates along x, y and z.
+    def edges(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Cell-edge coordinates along x, y and z.
 
         Returns
         -------
-        x : ndarray of shape (N,)
+        x : ndarray of shape (N + 1,)
             In the CRS's units through `transform`; without one, in m from the
             west edge.
-        y : ndarray of shape (M,)
+        y : ndarray of shape (M + 1,)
             Likewise; without a transform, in m from the north edge, negative
             southward (row 0 on top).
-        z : ndarray of shape (L,)
+        z : ndarray of shape (L + 1,)
             Height above the top of the model in m, negative downward.
 
         Notes
@@ -112,22 +112,37 @@ class Grid:
         >>> from affine import Affine
         >>> grid = Grid(dz=[2.0], dy=[10.0, 10.0], dx=[20.0, 20.0, 5.0],
         ...             transform=Affine(20.0, 0.0, 1000.0, 0.0, -10.0, 500.0))
-        >>> [v.tolist() for v in grid.centres()]
-        [[1010.0, 1030.0, 1042.5], [495.0, 485.0], [-1.0]]
+        >>> [v.tolist() for v in grid.edges()]
+        [[1000.0, 1020.0, 1040.0, 1045.0], [500.0, 490.0, 480.0], [0.0, -2.0]]
         """
-        z = -_midpoints(self.dz)
+        z = 0.0 - _running(self.dz)  # 0.0 on top, not -0.0
         if self.transform is None:
-            return _midpoints(self.dx), -_midpoints(self.dy), z
+            return _running(self.dx), 0.0 - _running(self.dy), z
         t = self.transform
-        columns = _midpoints(self.dx / self.dx.max())
-        rows = _midpoints(self.dy / self.dy.max())
-        return t.c + t.a * columns, t.f + t.e * rows, z
+        x = t.c + t.a * _running(self.dx / self.dx.max())
+        return x, t.f + t.e * _running(self.dy / self.dy.max()), z
+
+    def centres(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Cell-centre coordinates along x, y and z: the midpoints of `edges`.
+
+        Returns
+        -------
+        x, y, z : ndarray of shapes (N,), (M,), (L,)
+            In the units of `edges`.
+
+        Examples
+        --------
+        >>> [v.tolist() for v in Grid(dz=[2.0], dy=[10.0], dx=[20.0, 5.0]).centres()]
+        [[10.0, 22.5], [-5.0], [-1.0]]
+        """
+        return tuple((e[:-1] + e[1:]) / 2 for e in self.edges())  # type: ignore[return-value]
 
     def _rows(self) -> list[Row]:
         rows = [("cell size", ", ".join(sizes(n, getattr(self, n)) for n in ("dx", "dy", "dz")))]
         if self.transform is None and self.crs is None:
             return [*rows, ("georeference", "none")]
-        where = "" if self.transform is None else f", origin ({self.transform.c:.10g}, {self.transform.f:.10g})"
+        t = self.transform
+        where = "" if t is None else f", origin ({t.c:.10g}, {t.f:.10g})"
         return [*rows, ("georeference", crs_name(self.crs) + where)]
 
     def __repr__(self) -> str:
@@ -137,10 +152,9 @@ class Grid:
         return as_html(f"Grid: {cells(self.shape, AXIS_NAMES)}", self._rows())
 
 
-def _midpoints(widths: np.ndarray) -> np.ndarray:
-    """Centres of consecutive intervals of `widths` laid end to end from 0."""
-    edges = np.concatenate([[0.0], np.cumsum(widths)])
-    return (edges[:-1] + edges[1:]) / 2
+def _running(widths: np.ndarray) -> np.ndarray:
+    """Ends of consecutive intervals of `widths` laid end to end from 0, shape (len + 1,)."""
+    return np.concatenate([[0.0], np.cumsum(widths)])
 
 
 @dataclass(frozen=True, eq=False)
@@ -425,7 +439,8 @@ class Field:
         layered = self.ndim == 3 or self.shape[0] > 1
         shape = self.shape if layered else self.shape[1:]
         names = AXIS_NAMES if layered else AXIS_NAMES[1:]
-        title = f"Field: {'3D model' if self.ndim == 3 else '2D map'}, {cells(shape, names)}, k in {self.unit}"
+        model = "3D model" if self.ndim == 3 else "2D map"
+        title = f"Field: {model}, {cells(shape, names)}, k in {self.unit}"
         arrays = self.properties()
         lazy = any(type(a).__module__.partition(".")[0] == "dask" for a in arrays.values())
         kind = f"{'dask (lazy)' if lazy else 'NumPy'} arrays of {np.dtype(self.kx.dtype).name}"

@@ -79,6 +79,7 @@ def is_labelled(data: Any) -> bool:
 
 def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dict[str, tuple[str, str]],
                layered: bool, extra: dict[str, tuple[Any, dict]] | None = None,
+               faces: dict[str, tuple[Any, dict]] | None = None,
                attrs: dict[str, Any] | None = None) -> Any:  # fmt: skip
     """The Dataset of the module docstring.
 
@@ -96,6 +97,12 @@ def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dic
         Keep the layer dimension; False for a one-layer map.
     extra : dict of str to (array of shape (L, M, N), dict), optional
         More variables on the same grid, with their attributes.
+    faces : dict of str to (array, dict), optional
+        Values on the inner faces normal to each axis (``"x"``, ``"y"``, ``"z"``
+        -> array of shape (L, M, N) with that axis one shorter, and its
+        variable's attributes). Each becomes the variable ``t`` + axis on the
+        dimension ``x_face``, ``y_face`` or ``z_face`` in place of ``x``, ``y``
+        or ``layer``, whose coordinate is the faces' position (`Grid.edges`).
     attrs : dict, optional
         Attributes of the Dataset.
 
@@ -127,6 +134,12 @@ def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dic
     variables = {name: (dims, on_dims(array), _attributes(name, unit, sources.get(name)))
                  for name, array in properties.items()}  # fmt: skip
     variables.update({name: (dims, on_dims(array), a) for name, (array, a) in (extra or {}).items()})
+    for axis, (values, a) in (faces or {}).items():
+        face = f"{axis}_face"
+        where = {"long_name": f"{axis} of the faces between neighbouring cells", **_METRES}
+        coords[face] = (face, grid.edges()["xyz".index(axis)][1:-1], where)
+        on_faces = tuple(face if d == {"z": "layer"}.get(axis, axis) else d for d in dims)
+        variables[f"t{axis}"] = (on_faces, values if layered else values[0], a)
     ds = xr.Dataset(variables, coords=coords, attrs=attrs or {})
     if grid.transform is not None:
         ds = ds.rio.write_transform(grid.transform)
@@ -230,11 +243,12 @@ def _own_cell_sizes(data: Any, transform: Any, crs: Any) -> tuple[Any, Any] | No
         return np.asarray(data.coords["dy"].values, float), np.asarray(data.coords["dx"].values, float)
     if transform is not None:
         if transform.b != 0 or transform.d != 0:
-            raise InputError(f"the georeference is rotated or sheared (geotransform {tuple(transform)[:6]}); "
-                             "resample it onto a north-up grid first")  # fmt: skip
+            raise InputError(f"the georeference is rotated or sheared (geotransform "
+                             f"{tuple(transform)[:6]}); resample it onto a north-up grid first")  # fmt: skip
         if crs is not None and crs.is_geographic:
             raise InputError(f"the data is in a geographic CRS ({crs.to_string()}), its cells are in "
-                             "degrees; reproject it (da.rio.reproject) or give `cell_size`=(dx, dy) in metres")  # fmt: skip
+                             "degrees; reproject it (da.rio.reproject) or give `cell_size`=(dx, dy) in "
+                             "metres")  # fmt: skip
         metres = crs.linear_units_factor[1] if crs is not None else 1.0
         return abs(transform.e) * metres, abs(transform.a) * metres
     steps = (_spacing(data, "y"), _spacing(data, "x"))

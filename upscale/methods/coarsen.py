@@ -20,7 +20,7 @@ import numpy as np
 
 from ..display import Row, as_html, as_text, cells, sizes
 from ..errors import InputError
-from ..field import AXIS_NAMES, PERMEABILITY, Field
+from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
 from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
@@ -119,16 +119,21 @@ class Upscaled:
         return known
 
     def to_xarray(self) -> xarray.Dataset:
-        """The coarse field as an xarray Dataset, with how it was made.
+        """The coarse field as an xarray Dataset, with its transmissibilities and how it was made.
 
         Returns
         -------
         xarray.Dataset
             What `Field.to_xarray` gives for `coarse` (``Field.from_xarray``
-            reads it back), with the variables ``active_fraction`` (active
-            fraction of each block's bulk volume) and the off-diagonal tensor
-            terms (``kxy``..., unit of k) of full-tensor methods, and the
-            attributes ``method``, ``options`` (JSON), ``block``, ``remainder``,
+            reads it back): ``kx``, ``ky`` (``kz``, ``porosity``) on
+            ``(layer, y, x)`` or ``(y, x)`` with their coordinates and CRS;
+            the variables ``active_fraction`` (active fraction of each block's
+            bulk volume), the off-diagonal tensor terms (``kxy``..., unit of k)
+            of full-tensor methods, and the coarse transmissibilities
+            (`transmissibilities`) between neighbouring blocks ``tx``, ``ty``
+            (``tz``) in (unit of k) · m on the dimensions ``x_face``,
+            ``y_face``, ``z_face`` (the faces' x, y or height); the attributes
+            ``method``, ``options`` (JSON), ``block``, ``remainder``,
             ``min_active``, ``zero_k``, ``zero_k_outcome``, ``fine_shape``,
             ``dropped_cells`` and ``lost_pore_volume_m3``.
 
@@ -140,9 +145,9 @@ class Upscaled:
         Examples
         --------
         >>> fine = Field.from_arrays(np.array([[1.0, 4.0], [1.0, 4.0]]), cell_size=(5.0, 5.0))
-        >>> ds = coarsen(fine, "2x1", "arithmetic").to_xarray()
-        >>> ds.kx.values.tolist(), ds.attrs["method"], ds.attrs["block"]
-        ([[2.5], [2.5]], 'arithmetic', '2x1')
+        >>> ds = coarsen(fine, "1x2", "arithmetic").to_xarray()
+        >>> ds.kx.values.tolist(), ds.tx.dims, ds.tx.values.tolist(), ds.attrs["block"]
+        ([[1.0, 4.0]], ('y', 'x_face'), [[3.2]], '1x2')
         """
         from ..labelled import to_dataset
 
@@ -152,6 +157,10 @@ class Upscaled:
         extra.update({name: (values, {"units": unit, "long_name": f"permeability tensor term: flux along "
                                       f"{name[1]} per unit pressure gradient along {name[2]}"})
                       for name, values in self.tensor.items()})  # fmt: skip
+        how = "upscaled directly" if self.faces is not None else "harmonic half-block rule"
+        faces = {axis: (self.transmissibilities().faces[AXES[axis]], {
+            "units": f"{unit}·m", "long_name": f"transmissibility between neighbouring blocks along {axis}",
+            "method": how}) for axis in coarse.axes}  # fmt: skip
         spec = self.block.summary()
         attrs = {"method": self.method, "options": json.dumps(self.options), "block": str(self.block),
                  "remainder": spec["remainder"], "min_active": spec["min_active"], "zero_k": spec["zero_k"],
@@ -160,27 +169,30 @@ class Upscaled:
                  "lost_pore_volume_m3": self.lost_pore_volume}  # fmt: skip
         sources = {s.role: (s.path, s.sha256) for s in coarse.sources}
         return to_dataset(coarse.properties(), coarse.grid, unit=unit, sources=sources,
-                          layered=coarse.ndim == 3 or coarse.shape[0] > 1, extra=extra, attrs=attrs)  # fmt: skip
+                          layered=coarse.ndim == 3 or coarse.shape[0] > 1, extra=extra, faces=faces,
+                          attrs=attrs)  # fmt: skip
 
     def _rows(self) -> tuple[str, list[Row]]:
         options = "".join(f", {k}={v:.4g}" if isinstance(v, float) else f", {k}={v}"
                           for k, v in self.options.items())  # fmt: skip
-        title = f"Upscaled: {self.method}{options} in {self.block} blocks, k in {self.coarse.unit}"
-        coarse = self.coarse
-        active = int(np.count_nonzero(~np.isnan(coarse.kx)))
+        coarse, unit = self.coarse, self.coarse.unit
+        title = f"Upscaled: {self.method}{options}, {self.block} blocks, k in {unit}"
+        kx = coarse.kx[~np.isnan(coarse.kx)]
         dropped = f", {self.dropped_cells} dropped ({self.block.remainder})" if self.dropped_cells else ""
-        named = ", ".join([*coarse.properties(), *self.tensor])
-        faces = ("upscaled directly" + (f", {self.replaced_faces} harmonic" if self.replaced_faces else "")
-                 if self.faces is not None else "harmonic half-block rule")  # fmt: skip
         rows = [
             ("fine", cells(self.fine.shape, AXIS_NAMES) + dropped),
             ("coarse", cells(coarse.shape, AXIS_NAMES) + ": "
              + ", ".join(sizes(n, getattr(coarse.grid, n)) for n in ("dx", "dy", "dz"))),
-            ("active", f"{active} of {math.prod(coarse.shape)} blocks (min_active {self.block.min_active:g})"),
-            ("zero k", f"{self.block.zero_k}: {self.zeros.line(coarse.unit) or 'no block with k = 0'}"),
-            ("properties", named),
-            ("faces", faces),
+            ("active", f"{kx.size} of {math.prod(coarse.shape)} blocks"),
+            ("coarse kx", f"mean {kx.mean():.4g} {unit}, {kx.min():.4g} to {kx.max():.4g}" if kx.size
+             else "no active block"),
+            ("properties", ", ".join([*coarse.properties(), *self.tensor])),
         ]
+        if self.zeros.line(unit):
+            rows.append(("zero k", f"{self.block.zero_k}: {self.zeros.line(unit)}"))
+        if self.faces is not None:
+            rows.append(("faces", "upscaled directly" + (f", {self.replaced_faces} by the harmonic rule"
+                                                         if self.replaced_faces else "")))  # fmt: skip
         return title, rows
 
     def __repr__(self) -> str:
