@@ -431,9 +431,7 @@ class Field:
         """
         from .labelled import to_dataset
 
-        sources = {s.role: (s.path, s.sha256) for s in self.sources}
-        return to_dataset(self.properties(), self.grid, unit=self.unit, sources=sources,
-                          layered=self.ndim == 3 or self.shape[0] > 1)  # fmt: skip
+        return to_dataset(self)
 
     def _rows(self) -> tuple[str, list[Row]]:
         layered = self.ndim == 3 or self.shape[0] > 1

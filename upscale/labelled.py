@@ -77,24 +77,16 @@ def is_labelled(data: Any) -> bool:
     return xr is not None and isinstance(data, xr.DataArray | xr.Dataset)
 
 
-def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dict[str, tuple[str, str]],
-               layered: bool, extra: dict[str, tuple[Any, dict]] | None = None,
+def to_dataset(field: Any, *, extra: dict[str, tuple[Any, dict]] | None = None,
                faces: dict[str, tuple[Any, dict]] | None = None,
                attrs: dict[str, Any] | None = None) -> Any:  # fmt: skip
     """The Dataset of the module docstring.
 
     Parameters
     ----------
-    properties : dict of str to array of shape (L, M, N)
-        ``kx``, ``ky`` and optionally ``kz``, ``porosity`` (NumPy or dask).
-    grid : upscale.Grid
-        Their grid.
-    unit : str
-        Unit of the permeabilities.
-    sources : dict of str to (str, str)
-        Path and SHA-256 of the file each property was read from.
-    layered : bool
-        Keep the layer dimension; False for a one-layer map.
+    field : upscale.Field
+        Its properties (NumPy or dask arrays), grid, unit and sources; the
+        layer dimension is kept unless it is a map of one layer.
     extra : dict of str to (array of shape (L, M, N), dict), optional
         More variables on the same grid, with their attributes.
     faces : dict of str to (array, dict), optional
@@ -111,6 +103,9 @@ def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dic
     xarray.Dataset
     """
     xr = require("to_xarray")
+    grid, unit = field.grid, field.unit
+    sources = {s.role: (s.path, s.sha256) for s in field.sources}
+    layered = field.ndim == 3 or field.shape[0] > 1
     x, y, z = grid.centres()
     dims = ("layer", "y", "x") if layered else ("y", "x")
     coords: dict[str, Any] = {
@@ -132,7 +127,7 @@ def to_dataset(properties: dict[str, Any], grid: Any, *, unit: str, sources: dic
         return views.setdefault(id(array), array if layered else array[0])
 
     variables = {name: (dims, on_dims(array), _attributes(name, unit, sources.get(name)))
-                 for name, array in properties.items()}  # fmt: skip
+                 for name, array in field.properties().items()}  # fmt: skip
     variables.update({name: (dims, on_dims(array), a) for name, (array, a) in (extra or {}).items()})
     for axis, (values, a) in (faces or {}).items():
         face = f"{axis}_face"

@@ -167,10 +167,7 @@ class Upscaled:
                  "zero_k_outcome": self.zeros.line(unit) or "no block with k = 0",
                  "fine_shape": list(self.fine.shape), "dropped_cells": self.dropped_cells,
                  "lost_pore_volume_m3": self.lost_pore_volume}  # fmt: skip
-        sources = {s.role: (s.path, s.sha256) for s in coarse.sources}
-        return to_dataset(coarse.properties(), coarse.grid, unit=unit, sources=sources,
-                          layered=coarse.ndim == 3 or coarse.shape[0] > 1, extra=extra, faces=faces,
-                          attrs=attrs)  # fmt: skip
+        return to_dataset(coarse, extra=extra, faces=faces, attrs=attrs)
 
     def _rows(self) -> tuple[str, list[Row]]:
         options = "".join(f", {k}={v:.4g}" if isinstance(v, float) else f", {k}={v}"
