@@ -9,8 +9,8 @@ What is tested
 * The rule catches what it should: a module of a low layer that imports a
   higher one (a source written here) is reported.
 * ``import upscale`` imports none of the optional extras' libraries
-  (matplotlib, pyarrow, netCDF4, pyproj, distributed: figures, package
-  formats and clusters load when used), nor scikit-image (the connectivity
+  (matplotlib, pyarrow, netCDF4, pyproj, distributed, xarray, rioxarray:
+  figures, package formats, clusters and labelled arrays load when used), nor scikit-image (the connectivity
   of a field, loaded when described).
 """
 
@@ -43,6 +43,8 @@ LAYERS = [
     "compiling",
     "_elementary",
     "field",
+    "labelled",
+    "display",
     "units",
     "_checks",
     "caution",
@@ -119,7 +121,7 @@ def test_the_rule_reports_an_upward_import():
 
 
 def test_import_upscale_loads_no_optional_heavy_library():
-    heavy = ("matplotlib", "pyarrow", "netCDF4", "pyproj", "distributed", "skimage")
+    heavy = ("matplotlib", "pyarrow", "netCDF4", "pyproj", "distributed", "skimage", "xarray", "rioxarray")
     script = f"import sys, upscale\nprint(' '.join(m for m in {heavy!r} if m in sys.modules))"
     done = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True)
     assert done.stdout.strip() == ""

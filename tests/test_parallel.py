@@ -90,12 +90,12 @@ def test_apply_blocks_dask_is_bitwise_identical(name, dtype):
     cases, lazies = [], []
     for block in BLOCKS:
         for axis in axes:
-            want = apply_blocks(method.kernel, k, dz, block, axis, **options)
+            want = apply_blocks(method.kernel.rule, k, dz, block, axis, **options)
             assert isinstance(want, np.ndarray) and want.dtype == np.float64
             assert want.shape == tuple(-(-n // b) for n, b in zip(SHAPE, block))
             for chunks in CHUNKINGS:
                 lazy = apply_blocks(
-                    method.kernel, da.from_array(k, chunks=chunks), dz, block, axis, **options
+                    method.kernel.rule, da.from_array(k, chunks=chunks), dz, block, axis, **options
                 )
                 assert is_dask(lazy)
                 cases.append((block, axis, chunks, want))

@@ -26,7 +26,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import lognormal, write_raster
+from conftest import write_raster
 
 import upscale
 from upscale.analysis.compare import candidates
@@ -34,6 +34,7 @@ from upscale.analysis.comparison_record import ComparisonRecord, comparison_reco
 from upscale.analysis.ensemble import EnsembleRanking, EnsembleSummary, method_spread
 from upscale.analysis.summary import FlowCheck, RunSummary
 from upscale.cli.report import print_result
+from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.grid import BlockSpec
 from upscale.jobs.compare import compare_file
 
@@ -48,11 +49,11 @@ def _dumped(record: RunSummary | ComparisonRecord | EnsembleSummary | EnsembleRa
 @pytest.fixture(scope="module")
 def fields(tmp_path_factory) -> dict[str, Path]:
     folder = tmp_path_factory.mktemp("records")
-    k = lognormal((16, 24), SEED)
+    k = uncorrelated_lognormal((16, 24), SEED)
     porosity = np.random.default_rng(SEED + 1).uniform(0.05, 0.3, size=(16, 24))
     (folder / "ensemble").mkdir()
     for r in range(3):
-        write_raster(folder / "ensemble" / f"r{r}.tif", lognormal((16, 24), SEED + 10 + r))
+        write_raster(folder / "ensemble" / f"r{r}.tif", uncorrelated_lognormal((16, 24), SEED + 10 + r))
     return {"k": write_raster(folder / "k.tif", k), "porosity": write_raster(folder / "por.tif", porosity),
             "ensemble": folder / "ensemble"}
 

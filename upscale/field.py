@@ -15,21 +15,28 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from pathlib import PurePath
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ._checks import check_positive_sizes
+from .display import Row, as_html, as_text, cells, crs_name, sizes
 from .errors import InputError
 from .units import check_unit
+
+if TYPE_CHECKING:
+    import xarray
 
 #: Axis name -> array axis in ``(L, M, N)`` order.
 AXES: Mapping[str, int] = {"x": 2, "y": 1, "z": 0}
 #: Axis name -> permeability property along it.
 PERMEABILITY = {"x": "kx", "y": "ky", "z": "kz"}
+#: Names of the array axes, in array order.
+AXIS_NAMES = ("layers", "rows", "columns")
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class Grid:
     """Geometry of a Cartesian grid.
 
@@ -80,6 +87,75 @@ class Grid:
         """Bulk volume of every cell in m³, shape ``(L, M, N)``."""
         return self.dz[:, None, None] * self.dy[None, :, None] * self.dx[None, None, :]
 
+    def edges(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Cell-edge coordinates along x, y and z.
+
+        Returns
+        -------
+        x : ndarray of shape (N + 1,)
+            In the CRS's units through `transform`; without one, in m from the
+            west edge.
+        y : ndarray of shape (M + 1,)
+            Likewise; without a transform, in m from the north edge, negative
+            southward (row 0 on top).
+        z : ndarray of shape (L + 1,)
+            Height above the top of the model in m, negative downward.
+
+        Notes
+        -----
+        The transform's lattice has cells of the largest size along each axis;
+        a smaller last cell (an edge block kept by ``remainder='keep'``) takes
+        its true share of a lattice cell, whatever the CRS's unit.
+
+        Examples
+        --------
+        >>> from affine import Affine
+        >>> grid = Grid(dz=[2.0], dy=[10.0, 10.0], dx=[20.0, 20.0, 5.0],
+        ...             transform=Affine(20.0, 0.0, 1000.0, 0.0, -10.0, 500.0))
+        >>> [v.tolist() for v in grid.edges()]
+        [[1000.0, 1020.0, 1040.0, 1045.0], [500.0, 490.0, 480.0], [0.0, -2.0]]
+        """
+        z = 0.0 - _running(self.dz)  # 0.0 on top, not -0.0
+        if self.transform is None:
+            return _running(self.dx), 0.0 - _running(self.dy), z
+        t = self.transform
+        x = t.c + t.a * _running(self.dx / self.dx.max())
+        return x, t.f + t.e * _running(self.dy / self.dy.max()), z
+
+    def centres(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Cell-centre coordinates along x, y and z: the midpoints of `edges`.
+
+        Returns
+        -------
+        x, y, z : ndarray of shapes (N,), (M,), (L,)
+            In the units of `edges`.
+
+        Examples
+        --------
+        >>> [v.tolist() for v in Grid(dz=[2.0], dy=[10.0], dx=[20.0, 5.0]).centres()]
+        [[10.0, 22.5], [-5.0], [-1.0]]
+        """
+        return tuple((e[:-1] + e[1:]) / 2 for e in self.edges())  # type: ignore[return-value]
+
+    def _rows(self) -> list[Row]:
+        rows = [("cell size", ", ".join(sizes(n, getattr(self, n)) for n in ("dx", "dy", "dz")))]
+        if self.transform is None and self.crs is None:
+            return [*rows, ("georeference", "none")]
+        t = self.transform
+        where = "" if t is None else f", origin ({t.c:.10g}, {t.f:.10g})"
+        return [*rows, ("georeference", crs_name(self.crs) + where)]
+
+    def __repr__(self) -> str:
+        return as_text(f"Grid: {cells(self.shape, AXIS_NAMES)}", self._rows())
+
+    def _repr_html_(self) -> str:
+        return as_html(f"Grid: {cells(self.shape, AXIS_NAMES)}", self._rows())
+
+
+def _running(widths: np.ndarray) -> np.ndarray:
+    """Ends of consecutive intervals of `widths` laid end to end from 0, shape (len + 1,)."""
+    return np.concatenate([[0.0], np.cumsum(widths)])
+
 
 @dataclass(frozen=True, eq=False)
 class Source:
@@ -90,7 +166,7 @@ class Source:
     sha256: str
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class Field:
     """Permeability (and porosity) on a Cartesian grid.
 
@@ -271,6 +347,112 @@ class Field:
             grid=grid,
             unit=unit,
         )
+
+    @classmethod
+    def from_xarray(
+        cls,
+        data: xarray.Dataset | xarray.DataArray,
+        *,
+        cell_size: tuple[float, float] | None = None,
+        dz: float | np.ndarray | None = None,
+        unit: str | None = None,
+    ) -> Field:
+        """Build a field from an xarray Dataset or DataArray, georeference included.
+
+        Parameters
+        ----------
+        data : xarray.Dataset or xarray.DataArray
+            A Dataset with variables ``kx`` and optionally ``ky``, ``kz``,
+            ``porosity`` (as `to_xarray` writes them), or one DataArray of
+            permeability (as ``rioxarray.open_rasterio`` reads a raster: ky and,
+            for several layers, kz equal to it). Dimensions ``(y, x)`` or
+            ``(layer | band | z, y, x)``; the CRS and geotransform are read as
+            rioxarray reads them, values equal to the nodata value
+            (``_FillValue``...) become NaN. NumPy or dask values; dask stays lazy.
+        cell_size : (float, float), optional
+            Column width and row height in m, for data whose cell size is not
+            known from ``dx``/``dy`` coordinates, a projected georeference or
+            evenly spaced ``x``/``y`` coordinates in m.
+        dz : float or array of shape (L,), optional
+            Layer thickness(es) in m, for data without a ``dz`` coordinate;
+            required for several layers, 1 m for a map.
+        unit : str, optional
+            Permeability unit; by default the ``units`` attribute of ``kx``, else mD.
+
+        Returns
+        -------
+        Field
+            A Dataset from `to_xarray` gives back the field it came from, exactly.
+
+        Raises
+        ------
+        InputError
+            If the dimensions are not those above, ``kx`` is missing, or a cell
+            size is unknown or disagrees with the one given.
+        MissingLibraryError
+            If xarray or rioxarray is not installed (the ``xarray`` extra).
+        """
+        from .labelled import from_labelled
+
+        parts = from_labelled(data, cell_size=cell_size, dz=dz, unit=unit)
+        arrays = share_inactive(parts.arrays)
+        return cls(kx=arrays["kx"], ky=arrays["ky"], kz=arrays.get("kz"), porosity=arrays.get("porosity"),
+                   grid=Grid(**parts.grid), unit=parts.unit,
+                   sources=tuple(Source(*s) for s in parts.sources))  # fmt: skip
+
+    def to_xarray(self) -> xarray.Dataset:
+        """The field as an xarray Dataset: labelled dimensions, coordinates, units and CRS.
+
+        Returns
+        -------
+        xarray.Dataset
+            Variables ``kx``, ``ky`` (``kz``, ``porosity`` when present) in the
+            field's unit (porosity as a fraction), NaN in inactive cells, on
+            dimensions ``(layer, y, x)`` — ``(y, x)`` for a one-layer map.
+            Coordinates ``x``, ``y`` at cell centres (`Grid.centres`), the cell
+            sizes ``dx``, ``dy``, ``dz`` in m, and for a model ``z`` (m, negative
+            downward); the CRS and geotransform in a ``spatial_ref`` variable as
+            rioxarray writes them, so ``ds.rio.crs`` and ``ds.rio.transform()``
+            work. Dask arrays stay lazy. See `upscale.labelled`.
+
+        Raises
+        ------
+        MissingLibraryError
+            If xarray or rioxarray is not installed (the ``xarray`` extra).
+
+        Examples
+        --------
+        >>> f = Field.from_arrays(np.array([[1.0, 2.0, 3.0]]), cell_size=(10.0, 5.0))
+        >>> ds = f.to_xarray()
+        >>> ds.kx.dims, ds.x.values.tolist(), ds.kx.attrs["units"]
+        (('y', 'x'), [5.0, 15.0, 25.0], 'mD')
+        >>> Field.from_xarray(ds).grid.dx.tolist()
+        [10.0, 10.0, 10.0]
+        """
+        from .labelled import to_dataset
+
+        return to_dataset(self)
+
+    def _rows(self) -> tuple[str, list[Row]]:
+        layered = self.ndim == 3 or self.shape[0] > 1
+        shape = self.shape if layered else self.shape[1:]
+        names = AXIS_NAMES if layered else AXIS_NAMES[1:]
+        model = "3D model" if self.ndim == 3 else "2D map"
+        title = f"Field: {model}, {cells(shape, names)}, k in {self.unit}"
+        arrays = self.properties()
+        lazy = any(type(a).__module__.partition(".")[0] == "dask" for a in arrays.values())
+        kind = f"{'dask (lazy)' if lazy else 'NumPy'} arrays of {np.dtype(self.kx.dtype).name}"
+        rows = [("properties", f"{', '.join(arrays)}: {kind}"), *self.grid._rows()]
+        if self.sources:
+            paths = dict.fromkeys(PurePath(s.path).name for s in self.sources)
+            rows.append(("read from", ", ".join(paths)))
+        return title, rows
+
+    def __repr__(self) -> str:
+        return as_text(*self._rows())
+
+    def _repr_html_(self) -> str:
+        return as_html(*self._rows())
 
 
 def _as_3d(array: Any) -> Any:

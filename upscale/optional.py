@@ -1,13 +1,16 @@
 """The optional libraries, the extras that install them, and their import on first use.
 
 ``pip install .`` installs the core: reading fields, coarsening, the flow
-check and the coarse GeoTIFFs. Three extras add the rest (``pip install
-".[all]"`` adds all three, as the README's Quickstart does):
+check and the coarse GeoTIFFs. Extras add the rest (``pip install
+".[all]"`` adds figures, formats and cluster, as the README's Quickstart does):
 
 * ``figures`` — matplotlib: the figures and the HTML reports (``--plot``,
   ``--report``, ``upscale compare``);
 * ``formats`` — pyarrow, netCDF4, pyproj and pyevtk: the coarse-grid package (CSV,
   Parquet, NetCDF-CF, VTK), written by every run and read by ``upscale check``;
+* ``xarray`` — xarray and rioxarray: `Field.to_xarray`, `Field.from_xarray`,
+  `Upscaled.to_xarray` and `coarsen` of a DataArray (not in ``all``: the
+  command line does not use them);
 * ``cluster`` — distributed: a local cluster or an existing scheduler, and
   the memory limit of a container (`upscale.io.windows.available_memory`).
 
@@ -31,6 +34,7 @@ EXTRAS: dict[str, tuple[str, tuple[str, ...]]] = {
     "formats": ("the coarse-grid package (CSV, Parquet, NetCDF, VTK) needs",
                 ("pyarrow", "netCDF4", "pyproj", "pyevtk")),
     "cluster": ("a dask cluster (workers or a scheduler) needs", ("distributed",)),
+    "xarray": ("the conversions to and from xarray need", ("xarray", "rioxarray")),
 }
 
 
@@ -41,7 +45,7 @@ def require(module: str, extra: str) -> ModuleType:
     ----------
     module : str
         Dotted import name, e.g. ``"pyarrow.parquet"``.
-    extra : {'figures', 'formats', 'cluster'}
+    extra : {'figures', 'formats', 'cluster', 'xarray'}
         The extra of ``pyproject.toml`` that installs it.
 
     Returns

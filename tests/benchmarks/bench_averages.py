@@ -62,10 +62,10 @@ def main() -> None:
     for name, method in METHODS.items():
         options = {"exponent": 0.5} if name == "power" else {}
         def kernel(method=method, options=options):
-            return method.kernel(k, dz, block, 2, **options)
+            return method.kernel.rule(k, dz, block, 2, **options)
 
         def tool(method=method, options=options):
-            return apply_blocks(method.kernel, lazy, dz, block, 2, **options).compute()
+            return apply_blocks(method.kernel.rule, lazy, dz, block, 2, **options).compute()
 
         kernel()  # compile outside the timing
         single = best_of(kernel, 3)

@@ -30,12 +30,12 @@ def test_method_names_and_kernels():
                              "flow", "flow-transmissibility", "renormalization"]  # fmt: skip
     assert {n for n, m in METHODS.items() if m.local} == {
         "flow", "flow-transmissibility", "renormalization"}  # fmt: skip
-    assert METHODS["arithmetic"].kernel is averages.arithmetic_mean
-    assert METHODS["harmonic"].kernel is averages.harmonic_mean
-    assert METHODS["geometric"].kernel is averages.geometric_mean
-    assert METHODS["power"].kernel is averages.power_mean
-    assert METHODS["tubes"].kernel is bounds.tubes_bound
-    assert METHODS["slabs"].kernel is bounds.slabs_bound
+    assert METHODS["arithmetic"].kernel.rule is averages.arithmetic_mean
+    assert METHODS["harmonic"].kernel.rule is averages.harmonic_mean
+    assert METHODS["geometric"].kernel.rule is averages.geometric_mean
+    assert METHODS["power"].kernel.rule is averages.power_mean
+    assert METHODS["tubes"].kernel.rule is bounds.tubes_bound
+    assert METHODS["slabs"].kernel.rule is bounds.slabs_bound
     for name, method in METHODS.items():
         assert isinstance(method, Method)
         assert method.name == name
@@ -126,7 +126,7 @@ def test_every_method_leaves_a_constant_field_unchanged(name, axis):
     c = 37.25
     dz = np.array([0.5, 3.0, 1.0, 2.0, 0.1])
     k = np.full((5, 11, 13), c)
-    got = METHODS[name].kernel(k, dz, (2, 4, 5), axis, **OPTIONS.get(name, {}))
+    got = METHODS[name].kernel.rule(k, dz, (2, 4, 5), axis, **OPTIONS.get(name, {}))
     assert got.shape == (3, 3, 3)
     np.testing.assert_allclose(got, c, rtol=1e-13)
 
@@ -136,7 +136,7 @@ def test_every_average_leaves_a_constant_field_with_inactive_cells_unchanged(nam
     c = 0.042
     dz = np.array([0.5, 3.0, 1.0, 2.0, 0.1])
     k = _constant_field((5, 11, 13), c, 0.3, 505_061_772)
-    got = METHODS[name].kernel(k, dz, (2, 4, 5), 2, **OPTIONS.get(name, {}))
+    got = METHODS[name].kernel.rule(k, dz, (2, 4, 5), 2, **OPTIONS.get(name, {}))
     active = ~np.isnan(got)
     assert active.sum() > 20
     np.testing.assert_allclose(got[active], c, rtol=1e-13)
@@ -150,7 +150,7 @@ def test_bounds_of_a_constant_field_with_inactive_cells_only_lose_flow(name):
     dz = np.array([0.5, 3.0, 1.0])
     k = np.full((3, 8, 8), c)
     k[1, 2, 6] = k[0, 5, 1] = k[2, 7, 7] = np.nan
-    got = METHODS[name].kernel(k, dz, (3, 4, 4), 2)
+    got = METHODS[name].kernel.rule(k, dz, (3, 4, 4), 2)
     holes = np.isnan(k).reshape(1, 3, 2, 4, 2, 4).any(axis=(1, 3, 5))
     assert holes.any() and not holes.all()
     np.testing.assert_allclose(got[~holes], c, rtol=1e-13)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import os
+from collections.abc import Collection
 from pathlib import Path
 from typing import Any
 
@@ -13,6 +14,7 @@ from affine import Affine
 from ..analysis.records import jsonable
 from ..analysis.summary import RunSummary, build_summary
 from ..caution import CAUTION
+from ..errors import InputError
 from ..flow import Transmissibilities
 from ..methods.coarsen import Upscaled
 from ..units import unit_factors
@@ -24,6 +26,9 @@ from .slabs import Values
 from .staging import MARKER, staged_folder
 from .vtk import write_vtk
 
+#: What `write_result` can write besides ``summary.json``: the coarse GeoTIFFs (one per
+#: property, and the face transmissibilities of direct methods), and the coarse-grid package.
+FORMATS = ("geotiff", "package")
 #: File of the coarse face transmissibilities along each axis (direct upscaling only).
 FACE_FILES = {axis: f"transmissibility_{axis}.tif" for axis in "xyz"}
 
@@ -113,6 +118,25 @@ def update_summary(folder: str | Path, changes: dict[str, Any]) -> dict[str, Any
     return summary
 
 
+def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list[str]:
+    """One GeoTIFF per coarse property, and per axis of the faces a direct method upscaled."""
+    coarse, files = result.coarse, []
+    for name, values in {**coarse.properties(), **result.tensor}.items():
+        unit = PROPERTY_UNITS.get(name, coarse.unit)
+        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
+        files.append(f"{name}.tif")
+    direct = result.transmissibilities() if result.faces is not None else None
+    for axis in "xyz"[: coarse.ndim] if direct is not None else ():
+        a = "zyx".index(axis)
+        half = Affine.translation(-0.5, 0) if axis == "x" else Affine.translation(0, -0.5)
+        shifted = coarse.grid.transform @ half if coarse.grid.transform and axis != "z" else None
+        write_property(stage / FACE_FILES[axis], face_raster(direct, a), coarse.grid,
+                       f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
+                       transform=shifted)  # fmt: skip
+        files.append(FACE_FILES[axis])
+    return files
+
+
 def write_result(
     result: Upscaled,
     folder: str | Path,
@@ -125,6 +149,7 @@ def write_result(
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
     units: str = "si",
+    formats: str | Collection[str] = FORMATS,
 ) -> RunSummary:
     """Write coarse GeoTIFFs and the summary into `folder`, all or nothing.
 
@@ -149,30 +174,43 @@ def write_result(
         An HTML report to write as ``report.html``.
     units : {'si', 'field'}
         Units of the coarse-grid package (see `upscale.export.package`).
+    formats : str or collection of {'geotiff', 'package'}
+        What to write besides ``summary.json`` (always written, last):
+        ``geotiff``, one GeoTIFF per coarse property (``kx.tif``...) and the
+        face transmissibilities of direct methods; ``package``, the coarse-grid
+        package (CSV and Parquet tables, ``coarse.nc``, ``coarse.vtr``,
+        ``manifest.json``), which `upscale check` reads. By default both, as
+        the command line writes them.
 
     Returns
     -------
     RunSummary
         The summary written as ``summary.json``.
+
+    Raises
+    ------
+    InputError
+        If `formats` names something else.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np, upscale
+    >>> result = upscale.coarsen(np.full((4, 4), 50.0), "2x2")
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     _ = write_result(result, folder, overwrite=True, formats="package")
+    ...     written = os.listdir(folder)
+    >>> "coarse.nc" in written, "manifest.json" in written, "kx.tif" in written
+    (True, True, False)
     """
-    coarse = result.coarse
+    formats = {formats} if isinstance(formats, str) else set(formats)
+    unknown = sorted(formats - set(FORMATS))
+    if unknown:
+        raise InputError(f"`formats` may hold geotiff and package, got {', '.join(map(repr, unknown))}")
     tags = {"method": result.method, "block": str(result.block), "tool": "upscale"}
     with staged_folder(folder, overwrite) as stage:
-        files = []
-        for name, values in {**coarse.properties(), **result.tensor}.items():
-            unit = PROPERTY_UNITS.get(name, coarse.unit)
-            write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
-            files.append(f"{name}.tif")
-        direct = result.transmissibilities() if result.faces is not None else None
-        for axis in "xyz"[: coarse.ndim] if direct is not None else ():
-            a = "zyx".index(axis)
-            half = Affine.translation(-0.5, 0) if axis == "x" else Affine.translation(0, -0.5)
-            shifted = coarse.grid.transform @ half if coarse.grid.transform and axis != "z" else None
-            write_property(stage / FACE_FILES[axis], face_raster(direct, a), coarse.grid,
-                           f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
-                           transform=shifted)  # fmt: skip
-            files.append(FACE_FILES[axis])
-        files += write_package(stage, result, units, check=check, command=command)
+        files = _write_geotiffs(stage, result, tags) if "geotiff" in formats else []
+        if "package" in formats:
+            files += write_package(stage, result, units, check=check, command=command)
         if images:
             files += write_figures(stage, images)
         if page is not None:

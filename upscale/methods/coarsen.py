@@ -9,15 +9,18 @@ single pass over the data — dask reads each chunk once.
 
 from __future__ import annotations
 
+import json
 import logging
 import math
-from dataclasses import dataclass, field, replace
-from typing import Any
+from dataclasses import KW_ONLY, dataclass, field, replace
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ..display import Row, as_html, as_text, cells, sizes
 from ..errors import InputError
-from ..field import AXES, PERMEABILITY, Field
+from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
 from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
@@ -27,6 +30,9 @@ from .flow_based import TENSOR
 from .registry import Method, get_method
 from .zeros import ZeroOutcome, apply_zero_rule
 
+if TYPE_CHECKING:
+    import xarray
+
 log = logging.getLogger(__name__)
 
 #: Below this fraction of active cells a field is said to be almost all nodata (our
@@ -34,9 +40,11 @@ log = logging.getLogger(__name__)
 SPARSE = 0.01
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class Upscaled:
     """A fine field, its coarse counterpart and how one was made from the other.
+
+    Made by `coarsen`. Every attribute after `coarse` is given by keyword.
 
     Attributes
     ----------
@@ -79,6 +87,7 @@ class Upscaled:
 
     fine: Field
     coarse: Field
+    _: KW_ONLY
     method: str
     options: dict
     block: BlockSpec
@@ -96,30 +105,133 @@ class Upscaled:
         """Coarse transmissibilities, in (unit of k) · m.
 
         Upscaled directly when the method made them; otherwise by the harmonic
-        half-block rule from the block permeabilities.
+        half-block rule from the block permeabilities. Computed once: the
+        check, the windows and the package all use them.
         """
-        known = self.__dict__.get("_transmissibilities")
-        if known is None:  # computed once: the check, the windows and the package all use it
-            known = transmissibilities(self.coarse)
-            if self.faces is not None:
-                known = replace(known, faces=self.faces, boundary=self.boundary)
-            object.__setattr__(self, "_transmissibilities", known)
+        return self._transmissibilities
+
+    @cached_property
+    def _transmissibilities(self) -> Transmissibilities:
+        # a frozen dataclass still has a __dict__, where cached_property keeps the value
+        known = transmissibilities(self.coarse)
+        if self.faces is not None:
+            known = replace(known, faces=self.faces, boundary=self.boundary)
         return known
+
+    def to_xarray(self) -> xarray.Dataset:
+        """The coarse field as an xarray Dataset, with its transmissibilities and how it was made.
+
+        Returns
+        -------
+        xarray.Dataset
+            What `Field.to_xarray` gives for `coarse` (``Field.from_xarray``
+            reads it back): ``kx``, ``ky`` (``kz``, ``porosity``) on
+            ``(layer, y, x)`` or ``(y, x)`` with their coordinates and CRS;
+            the variables ``active_fraction`` (active fraction of each block's
+            bulk volume), the off-diagonal tensor terms (``kxy``..., unit of k)
+            of full-tensor methods, and the coarse transmissibilities
+            (`transmissibilities`) between neighbouring blocks ``tx``, ``ty``
+            (``tz``) in (unit of k) · m on the dimensions ``x_face``,
+            ``y_face``, ``z_face`` (the faces' x, y or height); the attributes
+            ``method``, ``options`` (JSON), ``block``, ``remainder``,
+            ``min_active``, ``zero_k``, ``zero_k_outcome``, ``fine_shape``,
+            ``dropped_cells`` and ``lost_pore_volume_m3``.
+
+        Raises
+        ------
+        MissingLibraryError
+            If xarray or rioxarray is not installed (the ``xarray`` extra).
+
+        Examples
+        --------
+        >>> fine = Field.from_arrays(np.array([[1.0, 4.0], [1.0, 4.0]]), cell_size=(5.0, 5.0))
+        >>> ds = coarsen(fine, "1x2", "arithmetic").to_xarray()
+        >>> ds.kx.values.tolist(), ds.tx.dims, ds.tx.values.tolist(), ds.attrs["block"]
+        ([[1.0, 4.0]], ('y', 'x_face'), [[3.2]], '1x2')
+        """
+        from ..labelled import to_dataset
+
+        coarse, unit = self.coarse, self.coarse.unit
+        extra = {"active_fraction": (self.active_fraction, {
+            "units": "1", "long_name": "active fraction of the block's bulk volume"})}  # fmt: skip
+        extra.update({name: (values, {"units": unit, "long_name": f"permeability tensor term: flux along "
+                                      f"{name[1]} per unit pressure gradient along {name[2]}"})
+                      for name, values in self.tensor.items()})  # fmt: skip
+        how = "upscaled directly" if self.faces is not None else "harmonic half-block rule"
+        faces = {axis: (self.transmissibilities().faces[AXES[axis]], {
+            "units": f"{unit}·m", "long_name": f"transmissibility between neighbouring blocks along {axis}",
+            "method": how}) for axis in coarse.axes}  # fmt: skip
+        spec = self.block.summary()
+        attrs = {"method": self.method, "options": json.dumps(self.options), "block": str(self.block),
+                 "remainder": spec["remainder"], "min_active": spec["min_active"], "zero_k": spec["zero_k"],
+                 "zero_k_outcome": self.zeros.line(unit) or "no block with k = 0",
+                 "fine_shape": list(self.fine.shape), "dropped_cells": self.dropped_cells,
+                 "lost_pore_volume_m3": self.lost_pore_volume}  # fmt: skip
+        return to_dataset(coarse, extra=extra, faces=faces, attrs=attrs)
+
+    def _rows(self) -> tuple[str, list[Row]]:
+        options = "".join(f", {k}={v:.4g}" if isinstance(v, float) else f", {k}={v}"
+                          for k, v in self.options.items())  # fmt: skip
+        coarse, unit = self.coarse, self.coarse.unit
+        title = f"Upscaled: {self.method}{options}, {self.block} blocks, k in {unit}"
+        kx = coarse.kx[~np.isnan(coarse.kx)]
+        dropped = f", {self.dropped_cells} dropped ({self.block.remainder})" if self.dropped_cells else ""
+        rows = [
+            ("fine", cells(self.fine.shape, AXIS_NAMES) + dropped),
+            ("coarse", cells(coarse.shape, AXIS_NAMES) + ": "
+             + ", ".join(sizes(n, getattr(coarse.grid, n)) for n in ("dx", "dy", "dz"))),
+            ("active", f"{kx.size} of {math.prod(coarse.shape)} blocks"),
+            ("coarse kx", f"mean {kx.mean():.4g} {unit}, {kx.min():.4g} to {kx.max():.4g}" if kx.size
+             else "no active block"),
+            ("properties", ", ".join([*coarse.properties(), *self.tensor])),
+        ]
+        if self.zeros.line(unit):
+            rows.append(("zero k", f"{self.block.zero_k}: {self.zeros.line(unit)}"))
+        if self.faces is not None:
+            rows.append(("faces", "upscaled directly" + (f", {self.replaced_faces} by the harmonic rule"
+                                                         if self.replaced_faces else "")))  # fmt: skip
+        return title, rows
+
+    def __repr__(self) -> str:
+        return as_text(*self._rows())
+
+    def _repr_html_(self) -> str:
+        return as_html(*self._rows())
 
 
 def coarsen(
-    field: Field, block: BlockSpec | str, method: str = "geometric", **options: Any
+    field: Field | Any,
+    block: BlockSpec | str,
+    method: str = "geometric",
+    *,
+    cell_size: tuple[float, float] | None = None,
+    dz: float | np.ndarray | None = None,
+    unit: str | None = None,
+    **options: Any,
 ) -> Upscaled:
     """Upscale every property of `field` to coarse blocks.
 
     Parameters
     ----------
-    field : Field
-        The fine field (NumPy or dask arrays).
+    field : Field, ndarray, dask array, xarray.DataArray or xarray.Dataset
+        The fine field. An array of shape (M, N) (a map) or (L, M, N) (layers,
+        rows, columns) is permeability along every axis (NaN: inactive), as
+        `Field.from_arrays`, on cells of `cell_size` and `dz`. An xarray object
+        (dimensions ``(y, x)`` or ``(layer | band | z, y, x)``) brings its
+        georeference, cell sizes and nodata, as `Field.from_xarray`.
     block : BlockSpec or str
         The block partition, or its text form such as ``"8x8"``.
     method : str
         A name from `upscale.METHODS`.
+    cell_size : (float, float), optional
+        Column width and row height in m of an array `field` (default 1 m by
+        1 m), or of an xarray one that does not carry them.
+    dz : float or array of shape (L,), optional
+        Layer thickness(es) in m of an array `field` (default 1 m), or of an
+        xarray one that does not carry them (1 m for a map).
+    unit : str, optional
+        Permeability unit of an array (default mD) or xarray `field` (default:
+        its ``units`` attribute, else mD).
     **options
         The method's options, e.g. ``exponent=0.5`` for ``power``.
 
@@ -141,7 +253,13 @@ def coarsen(
     >>> fine = Field.from_arrays(np.array([[1.0, 1.0], [100.0, 100.0]]), cell_size=(10.0, 10.0))
     >>> coarsen(fine, "2x2", "geometric").coarse.kx
     array([[[10.]]])
+
+    A NumPy array is kx (= ky) on cells of 1 m unless `cell_size` says otherwise:
+
+    >>> coarsen(np.array([[1.0, 1.0], [100.0, 100.0]]), "2x2", cell_size=(10.0, 10.0)).coarse.kx
+    array([[[10.]]])
     """
+    field = as_field(field, cell_size=cell_size, dz=dz, unit=unit)
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     chosen, options = get_method(method, options)
     spec.check(field.shape, field.ndim)
@@ -152,20 +270,7 @@ def coarsen(
     fine = field.leading(spec.used_shape(field.shape))
     dz, cells = fine.grid.dz, spec.cells
 
-    lazy: dict[str, Any] = {}
-    if chosen.local:
-        lazy.update({f"_{k}": v for k, v in chosen.kernel(fine, cells, **options).items()})
-    else:
-        results_by_array: dict[tuple[int, int | None], Any] = {}
-        for axis_name in fine.axes:
-            name = PERMEABILITY[axis_name]
-            array = getattr(fine, name)
-            axis = AXES[axis_name]
-            # the same array under a rule that ignores the axis is computed once
-            key = (id(array), axis if chosen.directional else None)
-            if key not in results_by_array:
-                results_by_array[key] = apply_blocks(chosen.kernel, array, dz, cells, axis, **options)
-            lazy[name] = results_by_array[key]
+    lazy = chosen.kernel(fine, cells, **options)
     if fine.porosity is not None:
         lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
     lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
@@ -184,8 +289,8 @@ def coarsen(
     inactive = (fraction == 0) | (fraction < spec.min_active * (1 - 1e-12))
     pore = computed["porosity"] * coarse_grid.cell_volumes() if "porosity" in computed else None
     lost = float(pore[inactive].sum()) if pore is not None else 0.0
-    tensor = _tensor_terms(computed.pop("_tensor"), fine.ndim, computed) if chosen.local else {}
-    faces = computed.pop("_faces", None)
+    tensor = _tensor_terms(computed.pop("tensor"), fine.ndim, computed) if "tensor" in computed else {}
+    faces = computed.pop("faces", None)
     names = [PERMEABILITY[a] for a in fine.axes]
     floored, inactive, zeros = apply_zero_rule(spec, {name: computed[name] for name in names}, inactive, pore)
     computed.update(floored)
@@ -205,8 +310,41 @@ def coarsen(
     if faces is not None:
         faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
-    return Upscaled(fine, coarse, chosen.name, options, spec, fraction, scans, dropped, lost, zeros,
-                    tensor, faces, boundary, replaced)  # fmt: skip
+    return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
+                    fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,
+                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced)  # fmt: skip
+
+
+def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any = None,
+             unit: str | None = None) -> Field:  # fmt: skip
+    """`data` as a `Field`: a field as it is, an array or xarray object with its cell sizes.
+
+    Parameters are those of `coarsen`.
+
+    Raises
+    ------
+    InputError
+        For cell sizes or a unit given with a `Field` (it has its own), or
+        anything else than the kinds `coarsen` takes.
+    """
+    from ..labelled import is_labelled
+
+    if isinstance(data, Field):
+        named = {"cell_size": cell_size, "dz": dz, "unit": unit}
+        given = [f"`{name}`" for name, value in named.items() if value is not None]
+        if given:
+            raise InputError(f"{', '.join(given)} describe an array; a Field has its own grid and unit")
+        return data
+    if is_labelled(data):
+        return Field.from_xarray(data, cell_size=cell_size, dz=dz, unit=unit)
+    if not hasattr(data, "ndim") or not hasattr(data, "dtype"):
+        raise InputError("`field` must be a Field, a NumPy or dask array, or an xarray DataArray or "
+                         f"Dataset, got {type(data).__name__}")  # fmt: skip
+    if data.ndim not in (2, 3):
+        raise InputError(f"an array `field` must have 2 (rows, columns) or 3 (layers, rows, columns) "
+                         f"dimensions, got {data.ndim}")  # fmt: skip
+    return Field.from_arrays(data, cell_size=cell_size or (1.0, 1.0), dz=1.0 if dz is None else dz,
+                             unit=unit or "mD")  # fmt: skip
 
 
 def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> dict[str, np.ndarray]:

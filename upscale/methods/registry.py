@@ -8,9 +8,46 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from ..errors import InputError
+from ..field import AXES, PERMEABILITY, Field
+from ..parallel import apply_blocks
 from . import averages, bounds
 from .flow_based import direct_properties, flow_properties
 from .renormalization import renormalized_properties
+
+
+@dataclass(frozen=True)
+class EachAxis:
+    """The kernel of a method that reduces each block of one array at a time.
+
+    Called as every method's kernel, ``kernel(field, cells, **options)``, it
+    gives the lazy ``kx``, ``ky`` (``kz``) of `rule` applied to each
+    permeability array, chunk by chunk (`upscale.parallel.apply_blocks`).
+
+    Parameters
+    ----------
+    rule : callable
+        ``rule(k, dz, block, axis, **options) -> coarse`` on one chunk of
+        whole blocks (`upscale.methods.averages`, `upscale.methods.bounds`).
+    directional : bool
+        True if the result along an axis depends on the flow axis (bounds);
+        otherwise an array shared by two properties is reduced once.
+    """
+
+    rule: Callable[..., Any]
+    directional: bool = False
+
+    def __call__(self, field: Field, cells: tuple[int, int, int], **options: Any) -> dict[str, Any]:
+        """Lazy coarse ``kx``, ``ky`` (``kz``) of `field` in blocks of `cells` (z, y, x) fine cells."""
+        coarse: dict[str, Any] = {}
+        done: dict[tuple[int, int | None], Any] = {}
+        for axis_name in field.axes:
+            name, axis = PERMEABILITY[axis_name], AXES[axis_name]
+            array = getattr(field, name)
+            key = (id(array), axis if self.directional else None)
+            if key not in done:
+                done[key] = apply_blocks(self.rule, array, field.grid.dz, cells, axis, **options)
+            coarse[name] = done[key]
+        return coarse
 
 
 @dataclass(frozen=True)
@@ -22,14 +59,12 @@ class Method:
     name : str
         Name used on the command line and in summaries.
     kernel : callable
-        Averages: ``kernel(k, dz, block, axis, **options) -> coarse`` on one chunk
-        of whole blocks, applied to each property. Flow-based methods
-        (``local=True``): ``kernel(field, cells, **options) -> dict`` of lazy
-        arrays, ``"tensor"`` (and ``"faces"``) — see `upscale.methods.flow_based`.
+        ``kernel(field, cells, **options) -> dict`` of lazy coarse arrays, one
+        protocol for every family: averages and bounds give ``kx``, ``ky``
+        (``kz``) through `EachAxis`; flow-based methods give ``tensor`` (and
+        ``faces``), see `upscale.methods.flow_based`.
     summary : str
         One line for ``--help`` and reports.
-    directional : bool
-        True if the result along an axis depends on the flow axis (bounds).
     options : tuple of str
         Names of the method's own options (e.g. ``exponent``).
     takes_zeros : callable
@@ -47,52 +82,56 @@ class Method:
     """
 
     name: str
-    kernel: Callable[..., Any]
+    kernel: Callable[..., dict[str, Any]]
     summary: str
-    directional: bool = False
     options: tuple[str, ...] = ()
     takes_zeros: Callable[[Mapping[str, Any]], bool] = field(default=lambda options: True)
     defaults: Mapping[str, Any] = field(default_factory=dict)
     local: bool = False
     bound: str | None = None
 
+    @property
+    def directional(self) -> bool:
+        """True if the result along an axis depends on the flow axis (bounds)."""
+        return isinstance(self.kernel, EachAxis) and self.kernel.directional
+
 
 METHODS: Mapping[str, Method] = {
     m.name: m
     for m in (
-        Method("arithmetic", averages.arithmetic_mean, "volume-weighted arithmetic mean", bound="upper"),
+        Method(
+            "arithmetic", EachAxis(averages.arithmetic_mean), "volume-weighted arithmetic mean", bound="upper"
+        ),
         Method(
             "harmonic",
-            averages.harmonic_mean,
+            EachAxis(averages.harmonic_mean),
             "volume-weighted harmonic mean",
             takes_zeros=lambda options: False,
             bound="lower",
         ),
         Method(
             "geometric",
-            averages.geometric_mean,
+            EachAxis(averages.geometric_mean),
             "volume-weighted geometric mean",
             takes_zeros=lambda options: False,
         ),
         Method(
             "power",
-            averages.power_mean,
+            EachAxis(averages.power_mean),
             "volume-weighted power average with exponent ω (`exponent`)",
             options=("exponent",),
             takes_zeros=lambda options: options["exponent"] > 0,
         ),
         Method(
             "tubes",
-            bounds.tubes_bound,
+            EachAxis(bounds.tubes_bound, directional=True),
             "Cardwell–Parsons lower bound: cells in series along each tube, tubes in parallel",
-            directional=True,
             bound="lower",
         ),
         Method(
             "slabs",
-            bounds.slabs_bound,
+            EachAxis(bounds.slabs_bound, directional=True),
             "Cardwell–Parsons upper bound: cells in parallel across each slab, slabs in series",
-            directional=True,
             bound="upper",
         ),
         Method(
