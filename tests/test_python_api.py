@@ -33,6 +33,7 @@ from conftest import write_raster
 import upscale
 from upscale import Field, InputError, coarsen, read_field, write_result
 from upscale.gallery.problems import uncorrelated_lognormal
+from upscale.io.windows import open_raster
 from upscale.methods.coarsen import Upscaled
 
 
@@ -182,3 +183,15 @@ def test_without_xarray_a_conversion_names_the_extra():
                            "need xarray, which is not installed")
     assert last.endswith('install the extra \'xarray\': pip install "upscale[xarray]"')
     assert isinstance(upscale.errors.MissingLibraryError("x"), ImportError)
+
+
+def test_geotiffs_of_an_array_field_are_written_without_a_warning(tmp_path):
+    """An array has no georeference, and rasterio's warning about it is not the caller's business.
+
+    The suite turns warnings into errors, so a leaked one fails here.
+    """
+    result = coarsen(np.full((4, 6), 50.0), "2x2", "arithmetic", cell_size=(10.0, 5.0))
+    write_result(result, tmp_path / "out", formats="geotiff")
+    with open_raster(str(tmp_path / "out" / "kx.tif")) as src:  # no georeference: no warning
+        assert src.crs is None and src.read(1).shape == (2, 3)
+        np.testing.assert_array_equal(src.read(1), 50.0)

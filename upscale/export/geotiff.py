@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 
 from ..field import Grid
+from ..io.windows import georeference_optional
 
 #: Unit recorded for each non-permeability property.
 PROPERTY_UNITS = {"porosity": "fraction"}
@@ -66,7 +67,9 @@ def write_property(
     }
     if rows >= 256 and cols >= 256:
         profile.update(tiled=True, blockxsize=256, blockysize=256)
-    with rasterio.open(path, "w", **profile) as dst:
+    with georeference_optional():  # a field given as an array has none
+        opened = rasterio.open(path, "w", **profile)
+    with opened as dst:
         stored = values if np.isnan(nodata) else np.where(np.isnan(values), nodata, values)
         dst.write(stored.astype(dtype, copy=False))
         dst.update_tags(property=name, unit=unit, **(tags or {}))

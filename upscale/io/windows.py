@@ -121,6 +121,23 @@ logging.getLogger("rasterio._env").addFilter(_CollectDamage())
 
 
 @contextmanager
+def georeference_optional() -> Iterator[None]:
+    """Hide rasterio's warning about a raster with no georeference, around an open only.
+
+    rasterio warns when a raster is opened (to read or to write) without a
+    geotransform; the tool takes such rasters with a given cell size. The
+    warning filters are process-wide and ``catch_warnings`` restores them on
+    exit, so two threads must not interleave their saves and restores: hence
+    the lock, held for the open alone.
+    """
+    from rasterio.errors import NotGeoreferencedWarning
+
+    with _FILTERS_LOCK, warnings.catch_warnings():
+        warnings.simplefilter("ignore", NotGeoreferencedWarning)
+        yield
+
+
+@contextmanager
 def open_raster(path: str) -> Iterator[Any]:
     """Open a raster read-only; any failure to read it becomes one `InputError`.
 
@@ -128,16 +145,12 @@ def open_raster(path: str) -> Iterator[Any]:
     then given by the user), so rasterio's warning about it is not passed on.
     """
     import rasterio
-    from rasterio.errors import NotGeoreferencedWarning, RasterioError
+    from rasterio.errors import RasterioError
 
     outer = getattr(_reading, "damage", None)
     _reading.damage = damage = []
     try:
-        # rasterio warns at open only; the filters are process-wide and
-        # `catch_warnings` restores them on exit, so two reader threads must
-        # not interleave their saves and restores: the lock, for the open alone
-        with _FILTERS_LOCK, warnings.catch_warnings():
-            warnings.simplefilter("ignore", NotGeoreferencedWarning)
+        with georeference_optional():
             opened = rasterio.open(path)
         with opened as src:
             if damage:
