@@ -64,14 +64,25 @@ def _assert_plain_percent(labels):
         assert text == expected, (value, text)
 
 
-def test_error_axis_reads_in_plain_percent_on_a_symmetric_log_scale():
-    comparison = compare_methods(Field.from_arrays(LAYERS), "4x4", candidates(["arithmetic", "harmonic"]))
+@pytest.mark.parametrize("contrast", [1000.0, 5.0])
+def test_error_axis_reads_in_plain_percent_on_a_symmetric_log_scale(contrast):
+    """Layers of 1 and `contrast` mD, with errors far past the band.
+
+    The arithmetic mean across them is off by 80 % at a contrast of 5
+    ((1 + 5)² / (4 × 5) − 1, common practice), by 24 950 % at 1000.
+    """
+    layers = np.where(LAYERS > 1.0, contrast, 1.0)
+    comparison = compare_methods(Field.from_arrays(layers), "4x4", candidates(["arithmetic", "harmonic"]))
     assert max(e.worst_error for e in comparison.ranked) > 0.5  # the symmetric-log case
     (ax,) = error_bars(comparison).axes
     assert ax.get_yscale() == "symlog"
     labels = _shown_labels(ax)
     _assert_plain_percent(labels)
     assert {"0", "10 %", "−10 %"} <= {text for _, text in labels}
+    # every bar is read against a label near it: at most a factor 2.5 past the largest one
+    # (the log part of the axis carries no other scale; a 33 % bar looked like 15 % before)
+    largest = 100 * max(e.worst_error for e in comparison.ranked)
+    assert largest <= 2.5 * max(abs(value) for value, _ in labels), (largest, labels)
 
 
 def _comparison(errors: dict[str, tuple[float, float]]) -> ComparisonRecord:

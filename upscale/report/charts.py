@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
-from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, ScalarFormatter
+from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, ScalarFormatter, SymmetricalLogLocator
 
 from ..analysis.compare import Comparison
 from ..field import AXES, PERMEABILITY
@@ -35,12 +35,15 @@ def error_band(ax: Axes, largest: float) -> None:
     """The ±`BAND` % band and the zero line behind check errors (in %); ticks in plain percent.
 
     Errors beyond ten times the band get a symmetric-log axis, linear within
-    twice the band, so the band stays visible beside errors of 100 % or more.
+    twice the band, so the band stays visible beside errors of 100 % or more;
+    its ticks at 1, 2 and 5 times the powers of ten, so that a bar between
+    two decades (33 %) is read against labels next to it, not against 10 %.
     """
     ax.axhspan(-BAND, BAND, color="#d9d9d9", alpha=0.6, label=f"±{BAND:g} %", zorder=0)
     ax.axhline(0.0, color="black", linewidth=0.6)
     if largest > 10 * BAND:
         ax.set_yscale("symlog", linthresh=2 * BAND)
+        ax.yaxis.set_major_locator(SymmetricalLogLocator(linthresh=2 * BAND, base=10, subs=(1.0, 2.0, 5.0)))
     ax.yaxis.set_major_formatter(FuncFormatter(percent))
 
 
