@@ -26,7 +26,7 @@ from ..check.axis import AxisCheck
 from ..field import Field, Grid
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
-                 "pyarrow", "netCDF4", "pyproj")
+                 "pyarrow", "netCDF4", "pyproj", "pyevtk")
 
 _Leaf = TypeVar("_Leaf", bound="Leaf")
 
