@@ -223,3 +223,13 @@ def test_dask_scan_of_sentinels_merges_to_the_numpy_scan(chunks, dtype):
 def test_large_values_that_are_no_sentinel_are_not_flagged():
     k = np.array([[[9998.0, 9999.5, 1.0e29, 3.0e38, 12.0]]])
     assert scan_values(k).suspects() == []
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+def test_a_positive_sentinel_alone_is_found(dtype):
+    # no negative, zero or infinite value: the exact pass runs because a large value is a marker
+    k = np.array([[[2.0, 9999.0, 5.0e4, 1e30]], [[3.0, 4.0, 3.4e38, 7.0]]], dtype=dtype)
+    s = scan_values(k)
+    assert s.counts[KINDS.index(9999.0)] == 1 and s.firsts[KINDS.index(9999.0)] == ((0, 0, 1),)
+    assert s.counts[KINDS.index(1e30)] == 1 and s.counts[KINDS.index(3.4e38)] == 1
+    assert sum(s.counts) == 3

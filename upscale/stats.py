@@ -4,8 +4,8 @@
 compiled pass per chunk, and finds negative, zero and infinite values and
 values that often mark cells without data (`SENTINELS`) with the first few
 locations, so an error can name the cells (a second, exact pass runs only
-over chunks that hold values below zero, zero, infinite or as large as the
-smallest positive marker). On dask arrays it returns a lazy result that
+over chunks that hold values below zero, zero, infinite or equal to a
+positive marker). On dask arrays it returns a lazy result that
 shares the chunk reads of any other computation it is computed together
 with.
 """
@@ -41,44 +41,37 @@ _LARGE = float(_MARKERS[_MARKERS > 0].min())
 
 
 @nb.njit(**JIT)
-def _value_sums(k):
-    """Counts and sums over all cells of `k` for the statistics of a property.
+def _value_sums(k, sums, bounds):
+    """Add the counts and sums over all cells of `k` to `sums` and `bounds`.
 
     Parameters
     ----------
-    k : ndarray of shape (L, M, N)
+    k : ndarray of float64, shape (L, M, N)
         Values; NaN marks inactive cells.
-
-    Returns
-    -------
     sums : ndarray of shape (6,)
-        Active cells, valid cells (finite and >= 0), positive finite cells, the
-        sum of valid values, and the sums of ln k and (ln k)² over positive ones.
-    low, high : float
-        Smallest and largest valid value (inf and -inf when there is none).
+        Running active cells, valid cells (finite and >= 0), positive finite
+        cells, the sum of valid values, and the sums of ln k and (ln k)² over
+        positive ones (zeros before the first part).
+    bounds : ndarray of int64, shape (2,)
+        Running smallest and largest valid value as float64 bit patterns
+        (non-negative floats order like them; start from those of inf and 0).
     """
-    active = 0.0
-    valid = 0.0
-    positive = 0.0
-    total = 0.0
-    log_sum = 0.0
-    log_square = 0.0
+    active, valid, positive, total, log_sum, log_square = sums[0], sums[1], sums[2], sums[3], sums[4], sums[5]
     none = as_int(np.inf)
-    low = none
-    high = as_int(0.0)
+    low, high = bounds[0], bounds[1]
     L, M, N = k.shape
     for layer in range(L):
         for i in range(M):
             row = k[layer, i]
             # separate loops: each stays simple enough for the vectoriser
             for j in range(N):
-                v = np.float64(row[j])
+                v = row[j]
                 ok = (v >= 0.0) & (v < np.inf)
                 active += np.float64(v == v)  # a bool -> float conversion vectorises
                 valid += np.float64(ok)  # where a select between constants does not
                 total += v if ok else 0.0
             for j in range(N):
-                v = np.float64(row[j])
+                v = row[j]
                 good = (v > 0.0) & (v < np.inf)
                 lv = ln(v if good else 1.0)
                 positive += np.float64(good)
@@ -86,13 +79,38 @@ def _value_sums(k):
                 log_square += lv * lv
             for j in range(N):
                 # non-negative floats order like their bit patterns: integer min/max vectorise
-                v = np.float64(row[j])
+                v = row[j]
                 good = (v > 0.0) & (v < np.inf)
                 zero = v == 0.0
                 low = min(low, as_int(v) if good else (0 if zero else none))
                 high = max(high, as_int(v) if good else 0)
-    sums = np.array([active, valid, positive, total, log_sum, log_square])
-    return sums, as_float(low), as_float(high)
+    # one element at a time: a slice assignment compiles numba's error formatting (0.6 s)
+    sums[0], sums[1], sums[2], sums[3], sums[4], sums[5] = active, valid, positive, total, log_sum, log_square
+    bounds[0], bounds[1] = low, high
+
+
+#: Cells per part of a chunk given to `_value_sums`: a float32 chunk is widened to float64 a part at a
+#: time (the scan then compiles for float64 alone, and never holds a float64 copy of a whole chunk).
+_PART = 1 << 16
+
+
+def _scan_sums(chunk: np.ndarray) -> tuple[np.ndarray, float, float]:
+    """`_value_sums` over a whole chunk, fed in parts of whole rows: sums, smallest and largest valid value."""
+    sums = np.zeros(6)
+    bounds = np.array([np.float64(np.inf), np.float64(0.0)]).view(np.int64)
+    rows = max(1, _PART // max(chunk.shape[2], 1))
+    for layer in range(chunk.shape[0]):
+        for i in range(0, chunk.shape[1], rows):
+            part = np.asarray(chunk[layer : layer + 1, i : i + rows], dtype=np.float64)
+            _value_sums(part, sums, bounds)
+    low, high = bounds.view(np.float64)
+    return sums, float(low), float(high)
+
+
+def _holds_marker(chunk: np.ndarray) -> bool:
+    """Whether a value of `chunk` as large as `_LARGE` equals one of `SENTINELS` (exact or float32)."""
+    large = chunk[chunk >= _LARGE]
+    return bool(large.size) and bool(np.isin(large.astype(np.float64), _MARKERS).any())
 
 
 @nb.njit(nogil=True, cache=True)
@@ -155,10 +173,11 @@ class ValueScan:
     def from_chunk(cls, chunk: np.ndarray, offset: tuple[int, int, int], shape: tuple) -> ValueScan:
         """Scan one chunk whose first cell sits at `offset` in an array of `shape`."""
         chunk = np.ascontiguousarray(chunk)
-        sums, low, high = _value_sums(chunk)
+        sums, low, high = _scan_sums(chunk)
         active, valid, positive = (int(x) for x in sums[:3])
         counts, firsts = np.zeros(len(KINDS), np.int64), np.full((len(KINDS), FIRST), -1, np.int64)
-        if valid < active or positive < valid or (valid and high >= _LARGE):  # rare: an exact pass
+        suspect = valid and high >= _LARGE and _holds_marker(chunk)
+        if valid < active or positive < valid or suspect:  # rare: an exact pass
             counts, firsts = _locate_bad(chunk)
 
         def places(row: np.ndarray) -> tuple:

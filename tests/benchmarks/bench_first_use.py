@@ -29,6 +29,8 @@ COMMANDS = {
                                      "--method", "geometric"],
     "run flow sealed, lognormal 8x8": ["run", DEMO / "marrowfen_lognormal.tif", "--block", "8x8",
                                        "--method", "flow"],
+    "run flow-active sealed, channels 8x8 (no inactive cell)": ["run", DEMO / "marrowfen_channels.tif",
+                                                                "--block", "8x8", "--method", "flow"],
     "run flow-transmissibility, 3D 8x8x4": ["run", DEMO / "marrowfen_3d.tif", "--dz", "2", "--block",
                                             "8x8x4", "--method", "flow-transmissibility"],
     "compare every method, channels 8x8": ["compare", DEMO / "marrowfen_channels.tif", "--block", "8x8"],

@@ -52,7 +52,7 @@ import numba as nb
 import numpy as np
 
 from .banded import EXACT_JIT, factor, solve
-from .paths import live_faces, next_cell
+from .paths import all_whole, every_face, live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
 #: Boundary condition name -> code used by the compiled kernels.
@@ -400,16 +400,27 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def _live(t, shape, bc, axes, a):
-    """Faces of the box that can carry flow under the gradient along `a` (`upscale.flow.paths`)."""
+def _fixed_axes(bc, axes, a):
     fixed = np.zeros(3, np.bool_)
     for b in range(3):
         fixed[b] = axes[b] and _fixed(bc, a, b)
-    return live_faces(t, shape, fixed, bc == PERIODIC, axes, a)
+    return fixed
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
+def _live(t, shape, bc, axes, a):
+    """Faces of the box that can carry flow under the gradient along `a` (`upscale.flow.paths`)."""
+    return live_faces(t, shape, _fixed_axes(bc, axes, a), bc == PERIODIC, axes, a)
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _every(t, shape, bc, axes, a):
+    """`_live` of a whole box (`upscale.flow.paths.all_whole`): every face it has."""
+    return every_face(shape, _fixed_axes(bc, axes, a), bc == PERIODIC, axes)
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G, faces):
     n = t.shape[1]
     ab = np.empty((n, width + 1))
     floating = np.empty(n, np.bool_)
@@ -422,16 +433,24 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G):
             pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
             factor(ab)
         p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
-        inner, outer = _live(t, shape, bc, axes, a)
+        inner, outer = faces(t, shape, bc, axes, a)
         _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                         U, G)  # fmt: skip
 
 
 @nb.njit(**EXACT_JIT)
-def _tensors(t, h, shape, lo, hi, order, width, bc, axes, U, G):
-    """`block_tensors` of the boxes `t` into `U` and `G`, one box after the other."""
-    for q in range(t.shape[0]):
-        _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q])
+def _tensors(t, h, shape, lo, hi, order, width, bc, axes, U, G, whole):
+    """`block_tensors` of the boxes `t` into `U` and `G`, one box after the other.
+
+    `whole` is None when every box is whole (`upscale.flow.paths.all_whole`),
+    True otherwise; numba compiles only the branch its type selects.
+    """
+    if whole is None:
+        for q in range(t.shape[0]):
+            _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q], _every)
+    else:
+        for q in range(t.shape[0]):
+            _one_box(t[q], h[q], shape, lo[q], hi[q], order, width, bc, axes, U[q], G[q], _live)
 
 
 def _in_threads(count: int, run: Callable[[slice], None]) -> None:
@@ -491,48 +510,60 @@ def block_tensors(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarra
     P = t.shape[0]
     U = np.full((P, 3, 3), np.nan)
     G = np.full((P, 3, 3), np.nan)
-    _in_threads(P, lambda s: _tensors(t[s], h[s], shape, lo[s], hi[s], order, width, bc, axes, U[s], G[s]))
+    whole = None if all_whole(t, shape, axes) else True
+    _in_threads(P, lambda s: _tensors(t[s], h[s], shape, lo[s], hi[s], order, width, bc, axes, U[s], G[s],
+                                      whole))  # fmt: skip
     return U, G
 
 
+@nb.njit(inline="always", **EXACT_JIT)
+def _one_pair(tq, hq, shape, lo, m, hi, a, order, width, axes, ab, floating, out, faces):
+    bc, (near, far) = _SEALED, _SIDES
+    centre, length = _geometry(hq, shape)
+    pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
+    factor(ab)
+    p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
+    inner, outer = faces(tq, shape, bc, axes, a)
+    flux = magnitude = 0.0
+    sums = np.zeros(4)
+    for iz in range(lo[0], hi[0]):
+        for iy in range(lo[1], hi[1]):
+            for ix in range(lo[2], hi[2]):
+                c = (iz * shape[1] + iy) * shape[2] + ix
+                pos = (iz, iy, ix)[a]
+                f = 0.0
+                if pos == m:
+                    f = _face(tq, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
+                elif m == shape[a] and pos == m - 1:  # the box's last face: the domain's
+                    f = _face(tq, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
+                flux += f
+                magnitude += abs(f)
+                conducting = tq[0, c] + tq[1, c] + tq[2, c] > 0.0
+                if conducting and not floating[c]:
+                    v = hq[0, iz] * hq[1, iy] * hq[2, ix]
+                    side = 0 if pos < m else 2
+                    sums[side] += v * p[c]
+                    sums[side + 1] += v
+    out[0] = _net(flux, magnitude)
+    # without a first (second) block the face is the domain's own, at its fixed pressure
+    out[1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if m == 0 else np.nan)
+    out[2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if m == shape[a] else np.nan)
+
+
 @nb.njit(**EXACT_JIT)
-def _pairs(t, h, shape, lo, mid, hi, a, order, width, axes, out):
-    """`pair_fluxes` of the boxes `t` into `out`, one box after the other."""
+def _pairs(t, h, shape, lo, mid, hi, a, order, width, axes, out, whole):
+    """`pair_fluxes` of the boxes `t` into `out`, one box after the other (`whole` as in `_tensors`)."""
     n = t.shape[2]
     ab = np.empty((n, width + 1))
     floating = np.empty(n, np.bool_)
-    bc, (near, far) = _SEALED, _SIDES
-    for q in range(t.shape[0]):
-        tq, hq, m = t[q], h[q], mid[q]
-        centre, length = _geometry(hq, shape)
-        pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
-        factor(ab)
-        p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
-        inner, outer = _live(tq, shape, bc, axes, a)
-        flux = magnitude = 0.0
-        sums = np.zeros(4)
-        for iz in range(lo[q, 0], hi[q, 0]):
-            for iy in range(lo[q, 1], hi[q, 1]):
-                for ix in range(lo[q, 2], hi[q, 2]):
-                    c = (iz * shape[1] + iy) * shape[2] + ix
-                    pos = (iz, iy, ix)[a]
-                    f = 0.0
-                    if pos == m:
-                        f = _face(tq, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
-                    elif m == shape[a] and pos == m - 1:  # the box's last face: the domain's
-                        f = _face(tq, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
-                    flux += f
-                    magnitude += abs(f)
-                    conducting = tq[0, c] + tq[1, c] + tq[2, c] > 0.0
-                    if conducting and not floating[c]:
-                        v = hq[0, iz] * hq[1, iy] * hq[2, ix]
-                        side = 0 if pos < m else 2
-                        sums[side] += v * p[c]
-                        sums[side + 1] += v
-        out[q, 0] = _net(flux, magnitude)
-        # without a first (second) block the face is the domain's own, at its fixed pressure
-        out[q, 1] = sums[0] / sums[1] if sums[1] > 0.0 else (0.0 if m == 0 else np.nan)
-        out[q, 2] = sums[2] / sums[3] if sums[3] > 0.0 else (-length[a] if m == shape[a] else np.nan)
+    if whole is None:
+        for q in range(t.shape[0]):
+            _one_pair(t[q], h[q], shape, lo[q], mid[q], hi[q], a, order, width, axes, ab, floating, out[q],
+                      _every)  # fmt: skip
+    else:
+        for q in range(t.shape[0]):
+            _one_pair(t[q], h[q], shape, lo[q], mid[q], hi[q], a, order, width, axes, ab, floating, out[q],
+                      _live)  # fmt: skip
 
 
 def pair_fluxes(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray, mid: np.ndarray,
@@ -566,8 +597,9 @@ def pair_fluxes(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarray,
         over its active cells (NaN when none has a defined pressure).
     """
     out = np.empty((t.shape[0], 3))
+    whole = None if all_whole(t, shape, axes) else True
     _in_threads(len(out), lambda s: _pairs(t[s], h[s], shape, lo[s], mid[s], hi[s], a, order, width, axes,
-                                           out[s]))  # fmt: skip
+                                           out[s], whole))  # fmt: skip
     return out
 
 

@@ -2,7 +2,7 @@
 
 Every average and bound in `upscale.methods` reduces to sums of the form
 ``S = sum(w * f(k))`` and ``W = sum(w)`` over the cells of each (sub-)block,
-with ``f(k)`` one of k, 1/k, ln k or a constant. The kernels below compute
+with ``f(k)`` one of k, 1/k, ln k or k**p, or ``W`` alone (`block_counts`). The kernels below compute
 them in a single pass over the input without temporaries, so a float32
 raster is read once and never copied to float64.
 
@@ -28,8 +28,8 @@ import numpy as np
 from .._elementary import JIT as _JIT
 from .._elementary import LN2, MANTISSA, UNIT_EXPONENT, as_float, as_int, exp, ln
 
-#: f(k) selectors for `block_sums`: 0, k, 1/k, k**exponent.
-COUNT, LINEAR, RECIPROCAL, POWER = 0, 1, -1, 2
+#: f(k) selectors for `block_sums`: k, 1/k, k**exponent.
+LINEAR, RECIPROCAL, POWER = 1, -1, 2
 
 @nb.njit(**_JIT)
 def _coarse_shape(shape, sub):
@@ -84,7 +84,7 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     sub : (int, int, int)
         Sub-block size in cells ``(layers, rows, columns)``.
     mode : int
-        ``COUNT`` (f = 0), ``LINEAR`` (f = k), ``RECIPROCAL`` (f = 1/k) or
+        ``LINEAR`` (f = k), ``RECIPROCAL`` (f = 1/k) or
         ``POWER`` (f = k**exponent, for positive k).
     skip : bool
         True: leave inactive cells out of S and W. False: count them as k = 0.
@@ -139,6 +139,41 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
                 row_w[:] = 0.0
                 rows = 0
     return S, W
+
+
+@nb.njit(**_JIT)
+def block_counts(k, wz, sub):
+    """``W`` of `block_sums` with ``skip=True`` alone: the weight of the active cells of each sub-block.
+
+    A kernel of its own, so that a run needing only the active volume (the
+    flow-based methods) does not compile every mode of `block_sums`; the sums
+    are added in the same order, so W is the same to the bit.
+
+    Parameters as `block_sums`.
+
+    Returns
+    -------
+    W : ndarray of shape (ceil(L/sz), ceil(M/sy), ceil(N/sx))
+        ``sum(w)`` over the active cells of each sub-block.
+    """
+    L, M, N = k.shape
+    sz, sy, sx = sub
+    W = np.zeros(_coarse_shape(k.shape, sub))
+    row_w = np.zeros(N)
+    for layer in range(L):
+        cl = layer // sz
+        for i in range(M):
+            _add_active(k[layer, i], row_w)
+            if (i + 1) % sy == 0 or i == M - 1:
+                ci = i // sy
+                w = wz[layer]
+                for cj in range(W.shape[2]):
+                    c = 0.0
+                    for j in range(cj * sx, min(N, cj * sx + sx)):
+                        c += row_w[j]
+                    W[cl, ci, cj] += w * c
+                row_w[:] = 0.0
+    return W
 
 
 @nb.njit(**_JIT)

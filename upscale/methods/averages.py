@@ -160,4 +160,4 @@ def active_volume(
 
     Parameters and returns as `arithmetic_mean`.
     """
-    return kern.block_sums(k, dz, block, kern.COUNT, True)[1]
+    return kern.block_counts(k, dz, block)
