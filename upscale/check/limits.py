@@ -33,8 +33,8 @@ def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
     return f"the fine grid has {cells} cells, more than the check limit of {max_cells}"
 
 
-def refuse_global_past_limit(shape: tuple[int, int, int], method: str, max_cells: int) -> None:
-    """Refuse, before any work, a method that fits the fine global flows on a grid too large to solve whole.
+def refuse_global_past_limit(shape: tuple[int, int, int], max_cells: int) -> None:
+    """Refuse, before any work, the ``global`` method on a fine grid too large to solve whole.
 
     Raises
     ------
@@ -43,8 +43,8 @@ def refuse_global_past_limit(shape: tuple[int, int, int], method: str, max_cells
     """
     reason = too_large(shape, max_cells)
     if reason:
-        raise InputError(f"`{method}` fits the fine model's global flows, and {reason}; use `local-global`, "
-                         f"which needs no fine global solve, or {RAISE_LIMIT}")
+        raise InputError(f"global fits the fine model's global flows, and {reason}; local-global works "
+                         f"there (it needs no fine global solve), or {RAISE_LIMIT}")
 
 
 def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, available: int) -> str | None:

@@ -137,7 +137,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     fits_flows = METHODS[settings.method].global_flows
     if fits_flows:
-        refuse_global_past_limit(settings.block.used_shape(fine.shape), settings.method, settings.check_limit)
+        refuse_global_past_limit(settings.block.used_shape(fine.shape), settings.check_limit)
     if settings.check or fits_flows:
         refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
     warning = struggle(connectivity(fine, settings.check_limit), settings.block)
