@@ -81,10 +81,10 @@ def global_properties(field: Field, cells: tuple[int, int, int], *,
 
     Examples
     --------
-    >>> layers = np.tile([[1.0], [4.0]], (2, 4))   # rows of 1 and 4: layers along x
+    >>> layers = np.tile([[1.0], [4.0]], (2, 4))   # rows of 1 and 4 (1 m cells): layers along x
     >>> faces = global_properties(Field.from_arrays(layers), (1, 2, 2))["faces"]
-    >>> faces[2].round(12).tolist()   # along x: the face to the inlet, the face inside
-    [[[10.0, 2.5]]]
+    >>> faces[2, 0].round(12).tolist()   # along x: to the inlet face, then between the blocks
+    [[5.0, 2.5], [5.0, 2.5]]
     """
     properties = flow_properties(field, cells)
     properties["faces"] = fitted_faces(_axis_flows(field, flows), cells)
