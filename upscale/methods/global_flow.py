@@ -56,10 +56,8 @@ def global_properties(field: Field, cells: tuple[int, int, int], *,
 
     Parameters
     ----------
-    field : Field
-        The fine field, cropped to the blocks it is upscaled to.
-    cells : (int, int, int)
-        Cells per block (layers, rows, columns).
+    field, cells
+        As in `upscale.methods.flow_based.flow_properties`.
     flows : dict of str to AxisFlow, optional
         The fine pressure-drop solves along the field's axes (the flow
         check's, `upscale.check.fine_solves`), on the same grid; other keys
@@ -129,7 +127,7 @@ def fitted_faces(flows: list[AxisFlow], cells: tuple[int, int, int]) -> np.ndarr
     shape = trans.shape
     starts = [np.arange(0, n, b) for n, b in zip(shape, cells)]
     counts = [len(s) for s in starts]
-    volume = trans.grid.dz[:, None, None] * np.ones(shape[1:])  # cell volume over dx dy
+    volume = trans.grid.dz[:, None, None]  # cell volume over dx dy (uniform), broadcast
     means = [_block_means(flow.pressure, volume, starts) for flow in flows]
     faces = np.full((6, *counts), np.nan)
     for a in sorted(AXES[flow.axis] for flow in flows):
