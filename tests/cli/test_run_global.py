@@ -57,7 +57,7 @@ def test_run_fits_and_checks_with_one_fine_solve_per_axis(run_cli, field, tmp_pa
     assert Counter(solves) == {(1, 64, 64): 2, (1, 8, 8): 2}  # x and y, fine and coarse
     summary = json.loads((tmp_path / "g" / "summary.json").read_text())
     assert summary["method"]["name"] == "global"
-    assert summary["transmissibility"]["rule"] == "fit to the fine global flows"
+    assert summary["transmissibility"]["rule"] == "fits to the fine global flows"
     assert "fine_s" in summary["timings_s"]
     assert max(abs(summary["check"][a]["rel_error"]) for a in "xy") < 0.01
     with open(tmp_path / "g" / "connections.csv", newline="") as f:

@@ -240,7 +240,7 @@ class TensorSummary:
 
 #: The ``rule`` of ``summary.json``'s ``transmissibility``, by the ``faces`` of the method.
 FACE_RULES = {None: "harmonic half-block", "flow": "two-block flow solves",
-              "global": "fit to the fine global flows"}  # fmt: skip
+              "global": "fits to the fine global flows"}  # fmt: skip
 
 
 @dataclass(frozen=True)
