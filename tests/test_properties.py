@@ -234,7 +234,7 @@ ALL_METHODS = [
     ("power", {"exponent": 0.57}), ("tubes", {}), ("slabs", {}),
     ("flow", {"bc": "sealed", "border": 0}), ("flow", {"bc": "linear", "border": 1}),
     ("flow", {"bc": "periodic", "border": 0}), ("flow-transmissibility", {"border": 0}),
-    ("flow-transmissibility", {"border": 1}), ("renormalization", {}),
+    ("flow-transmissibility", {"border": 1}), ("global", {}), ("renormalization", {}),
 ]  # fmt: skip
 assert {name for name, _ in ALL_METHODS} == set(METHODS)
 
@@ -455,7 +455,7 @@ def chunkings(draw, shape):
 
 CHUNKED = [(m, {}) for m in (*AVERAGES, *BOUNDS)] + [
     ("flow", {"bc": bc, "border": b}) for bc in ("sealed", "linear", "periodic") for b in (0, 1, 2, 3)
-] + [("flow-transmissibility", {"border": b}) for b in (0, 2)]  # fmt: skip
+] + [("flow-transmissibility", {"border": b}) for b in (0, 2)] + [("global", {})]  # fmt: skip
 
 
 def _dask_field(case, chunks):

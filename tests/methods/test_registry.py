@@ -27,9 +27,10 @@ OPTIONS = {"power": {"exponent": 0.57}}
 def test_method_names_and_kernels():
     assert PUBLIC_METHODS is METHODS
     assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs",
-                             "flow", "flow-transmissibility", "renormalization"]  # fmt: skip
+                             "flow", "flow-transmissibility", "global", "renormalization"]  # fmt: skip
     assert {n for n, m in METHODS.items() if m.local} == {
-        "flow", "flow-transmissibility", "renormalization"}  # fmt: skip
+        "flow", "flow-transmissibility", "global", "renormalization"}  # fmt: skip
+    assert {n for n, m in METHODS.items() if m.global_flows} == {"global"}
     assert METHODS["arithmetic"].kernel.rule is averages.arithmetic_mean
     assert METHODS["harmonic"].kernel.rule is averages.harmonic_mean
     assert METHODS["geometric"].kernel.rule is averages.geometric_mean

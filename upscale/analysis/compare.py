@@ -260,7 +260,7 @@ def compare_methods(
         start, compiled = time.perf_counter(), compile_seconds()
         result, checks, error = None, {}, None
         try:
-            result = coarsen(field, spec, candidate.method, **candidate.options)
+            result = coarsen(field, spec, candidate.method, flows=fine_flows, **candidate.options)
             checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
                                   tolerance=tolerance)  # fmt: skip
         except InputError as exc:

@@ -238,6 +238,11 @@ class TensorSummary:
         return cls(**data)
 
 
+#: The ``rule`` of ``summary.json``'s ``transmissibility``, by the ``faces`` of the method.
+FACE_RULES = {None: "harmonic half-block", "flow": "two-block flow solves",
+              "global": "fits to the fine global flows"}  # fmt: skip
+
+
 @dataclass(frozen=True)
 class FaceRule(Leaf):
     """How the coarse transmissibilities were found (``rule``) and ``replaced_faces``: undefined ones."""
@@ -361,8 +366,7 @@ def build_summary(
     tensor, faces = None, None
     if METHODS[result.method].local:
         tensor = TensorSummary.from_dict(jsonable(tensor_summary(coarse, result.tensor, result.zeros)))
-        faces = FaceRule("two-block flow solves" if result.faces is not None else "harmonic half-block",
-                         jsonable(result.replaced_faces))  # fmt: skip
+        faces = FaceRule(FACE_RULES[METHODS[result.method].faces], jsonable(result.replaced_faces))
     return RunSummary(
         provenance(fine, command, read), fine.unit, MethodUsed(result.method, jsonable(result.options)),
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),

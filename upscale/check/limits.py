@@ -33,6 +33,20 @@ def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
     return f"the fine grid has {cells} cells, more than the check limit of {max_cells}"
 
 
+def refuse_global_past_limit(shape: tuple[int, int, int], max_cells: int) -> None:
+    """Refuse, before any work, the ``global`` method on a fine grid too large to solve whole.
+
+    Raises
+    ------
+    InputError
+        Saying that ``local-global`` needs no fine global solve.
+    """
+    reason = too_large(shape, max_cells)
+    if reason:
+        raise InputError(f"global fits the fine model's global flows, and {reason}; local-global works "
+                         f"there (it needs no fine global solve), or {RAISE_LIMIT}")
+
+
 def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, available: int) -> str | None:
     """Why the check's largest solve would not fit in `available` bytes, or None if it would.
 

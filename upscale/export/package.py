@@ -101,7 +101,11 @@ class PackageTables:
     factors : dict
         From `upscale.units.unit_factors`.
     source : str
-        How the inner transmissibilities were made (``harmonic`` or ``flow``).
+        The rule of the faces the method upscaled directly (``flow``, ``global``;
+        ``harmonic`` when it upscaled none).
+    direct : tuple of 3 ndarray of bool, optional
+        Per axis (z, y, x), laid out as ``trans.faces``: True for the faces
+        set by `source`; the others are ``harmonic``. None: every face is `source`.
 
     Notes
     -----
@@ -112,7 +116,8 @@ class PackageTables:
     """
 
     def __init__(self, coarse_properties: dict[str, np.ndarray], trans: Transmissibilities, *,
-                 factors: dict[str, Any], source: str) -> None:  # fmt: skip
+                 factors: dict[str, Any], source: str,
+                 direct: tuple[np.ndarray, ...] | None = None) -> None:  # fmt: skip
         self.properties = coarse_properties
         self.trans = trans
         self.grid = trans.grid
@@ -120,6 +125,7 @@ class PackageTables:
         self.kf = factors["k"]
         self.tf = factors["k"] * factors["length"]  # T = k A / L: one k and one length
         self.source = source
+        self.direct = direct
         self.centres = _centres(self.grid)
 
     def columns(self, table: str) -> list[str]:
@@ -197,7 +203,13 @@ class PackageTables:
                 yield {"id1": ids, "id2": ids + step, "axis": np.full(ids.size, _AXES[a]),
                        "transmissibility": T[keep] * self.tf, "area": areas[first][keep] * length**2,
                        "distance": distance[keep] * length,
-                       "source": np.full(ids.size, self.source)}  # fmt: skip
+                       "source": self._sources(a, first, keep)}  # fmt: skip
+
+    def _sources(self, a: int, region: Region, keep: np.ndarray) -> np.ndarray:
+        """The ``source`` of the kept faces of `region` along axis `a`."""
+        if self.direct is None:
+            return np.full(int(keep.sum()), self.source)
+        return np.where(self.direct[a][region][keep], self.source, "harmonic")
 
     def _boundary(self) -> Iterator[dict[str, Any]]:
         grid, trans, length = self.grid, self.trans, self.length
@@ -244,7 +256,7 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str) 
         "dx": length, "dy": length, "dz": length, "porosity": "1 (fraction)",
         "pore_volume": f"{length}³", "bulk_volume": f"{length}³", "axis": "x, y or z",
         "transmissibility": t, "half_transmissibility": t, "area": f"{length}²",
-        "distance": length, "source": "harmonic or flow", "face": "x-, x+, y-, y+, z- or z+",
+        "distance": length, "source": "harmonic, flow or global", "face": "x-, x+, y-, y+, z- or z+",
     }  # fmt: skip
     return {name: {c: known.get(c, k) for c in tables.columns(name)} for name in TABLES}
 

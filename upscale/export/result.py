@@ -17,6 +17,7 @@ from ..caution import CAUTION
 from ..errors import InputError
 from ..flow import Transmissibilities
 from ..methods.coarsen import Upscaled
+from ..methods.registry import METHODS
 from ..units import unit_factors
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
@@ -59,8 +60,9 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     factors = unit_factors(coarse.unit, units)
     trans = result.transmissibilities()
     properties = {**coarse.properties(), **result.tensor}
-    tables = PackageTables(properties, trans, factors=factors,
-                           source="flow" if result.faces is not None else "harmonic")  # fmt: skip
+    source = METHODS[result.method].faces or "harmonic"
+    tables = PackageTables(properties, trans, factors=factors, source=source,
+                           direct=result.direct_faces)  # fmt: skip
     table_files = write_tables(stage, tables)
     length = factors["length"]
     gridded: dict[str, tuple[Values, str, str]] = {}
@@ -93,7 +95,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in result.fine.sources],
         "method": {"name": result.method, "options": result.options},
         "block": result.block.summary(),
-        "transmissibility_source": "flow" if result.faces is not None else "harmonic",
+        "transmissibility_source": source,
         "check": check,
         "files": files,
         "tables": table_files,

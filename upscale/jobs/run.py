@@ -17,8 +17,8 @@ from ..analysis.compare import single
 from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import EnsembleSummary, ensemble_summary
 from ..analysis.summary import RunSummary
-from ..check.axis import check_flow
-from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
+from ..check.axis import coarse_check, fine_solves
+from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
 from ..check.subdomains import check_subdomains
 from ..errors import InputError
 from ..export import write_result
@@ -29,6 +29,7 @@ from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
 from ..methods.coarsen import Upscaled, coarsen
+from ..methods.registry import METHODS
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
 from ..units import unit_factors
@@ -134,14 +135,22 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
-    if settings.check:
+    fits_flows = METHODS[settings.method].global_flows
+    if fits_flows:
+        refuse_global_past_limit(settings.block.used_shape(fine.shape), settings.check_limit)
+    if settings.check or fits_flows:
         refuse_check_past_memory(fine, settings.check_limit)  # before the upscaling, not after
     warning = struggle(connectivity(fine, settings.check_limit), settings.block)
     if warning:
         log.warning("%s: %s", path, warning)
+    flows = None
+    if fits_flows:  # solved once: the method fits them, the check compares with them
+        used = fine.leading(settings.block.used_shape(fine.shape))
+        with steps("fine_s", f"solving the fine model along {', '.join(used.axes)}"):
+            flows = fine_solves(used, used.axes, solver=settings.solver, tolerance=settings.tolerance)
     cells = "x".join(map(str, fine.shape[::-1][: fine.ndim]))  # x first, like --block
     with steps("upscale_s", f"upscaling {cells} cells by {settings.method} in {settings.block} blocks"):
-        result = coarsen(fine, settings.block, settings.method, **settings.options)
+        result = coarsen(fine, settings.block, settings.method, flows=flows, **settings.options)
     check, checks = None, None
     drawing = settings.plot or settings.report
     if settings.check:
@@ -155,10 +164,12 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                     result.fine, result.coarse, result.transmissibilities(), result.block,
                     settings.check_limit, solver=settings.solver, tolerance=settings.tolerance)}  # fmt: skip
         else:
-            with steps("check_s", "checking the flow: fine and coarse solves along "
-                       + ", ".join(result.fine.axes)):  # fmt: skip
-                checks = check_flow(result.fine, result.transmissibilities(), solver=settings.solver,
-                                    tolerance=settings.tolerance)  # fmt: skip
+            solves = "coarse solves" if flows else "fine and coarse solves"
+            with steps("check_s", f"checking the flow: {solves} along " + ", ".join(result.fine.axes)):
+                flows = flows or fine_solves(result.fine, result.fine.axes, solver=settings.solver,
+                                             tolerance=settings.tolerance)  # fmt: skip
+                checks = coarse_check(flows, result.transmissibilities(), solver=settings.solver,
+                                      tolerance=settings.tolerance)  # fmt: skip
                 check = {axis: c.summary() for axis, c in checks.items()}
     made = None
     if checks and drawing:

@@ -21,7 +21,7 @@ import numpy as np
 from ..display import Row, as_html, as_text, cells, sizes
 from ..errors import InputError
 from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
-from ..flow import Transmissibilities, transmissibilities
+from ..flow import AxisFlow, Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
 from ..stats import ValueScan, scan_values, where
@@ -81,8 +81,13 @@ class Upscaled:
         `upscale.flow.Transmissibilities.boundary`.
     replaced_faces : int
         Faces between active blocks whose direct value was undefined (no
-        pressure drop between the two blocks) and that took the harmonic
-        half-block value instead.
+        pressure drop between the two blocks; for ``global``, also a fit
+        that is not positive) and that took the harmonic half-block value
+        instead.
+    direct_faces : tuple of 3 ndarray of bool or None
+        With `faces`: True for the inner faces whose transmissibility is the
+        method's own (laid out as `faces`), False for those of the harmonic
+        half-block rule.
     """
 
     fine: Field
@@ -100,6 +105,7 @@ class Upscaled:
     faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
     boundary: tuple[tuple[np.ndarray, np.ndarray], ...] | None = None
     replaced_faces: int = 0
+    direct_faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     def transmissibilities(self) -> Transmissibilities:
         """Coarse transmissibilities, in (unit of k) · m.
@@ -207,6 +213,7 @@ def coarsen(
     cell_size: tuple[float, float] | None = None,
     dz: float | np.ndarray | None = None,
     unit: str | None = None,
+    flows: dict[str, AxisFlow] | None = None,
     **options: Any,
 ) -> Upscaled:
     """Upscale every property of `field` to coarse blocks.
@@ -232,6 +239,11 @@ def coarsen(
     unit : str, optional
         Permeability unit of an array (default mD) or xarray `field` (default:
         its ``units`` attribute, else mD).
+    flows : dict of str to AxisFlow, optional
+        The fine model's pressure-drop solves along its axes
+        (`upscale.check.fine_solves` of the field as upscaled, i.e. cropped),
+        for a method that fits them (``global``); without them it solves
+        them itself. Other methods ignore them.
     **options
         The method's options, e.g. ``exponent=0.5`` for ``power``.
 
@@ -270,7 +282,8 @@ def coarsen(
     fine = field.leading(spec.used_shape(field.shape))
     dz, cells = fine.grid.dz, spec.cells
 
-    lazy = chosen.kernel(fine, cells, **options)
+    given = {"flows": flows} if chosen.global_flows else {}
+    lazy = chosen.kernel(fine, cells, **given, **options)
     if fine.porosity is not None:
         lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
     lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
@@ -306,13 +319,14 @@ def coarsen(
         unit=field.unit,
         sources=field.sources,
     )
-    replaced, boundary = 0, None
+    replaced, boundary, direct = 0, None, None
     if faces is not None:
-        faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
+        faces, boundary, replaced, direct = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
                     fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,
-                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced)  # fmt: skip
+                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced,
+                    direct_faces=direct)  # fmt: skip
 
 
 def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any = None,
@@ -360,11 +374,12 @@ def _tensor_terms(tensor: np.ndarray, ndim: int, computed: dict[str, Any]) -> di
 
 def _direct_faces(
     direct: np.ndarray, harmonic: Transmissibilities, ndim: int
-) -> tuple[tuple, tuple, int]:
-    """Face and outer-face transmissibilities from `direct_properties`' per-block values.
+) -> tuple[tuple, tuple, int, tuple]:
+    """Face and outer-face transmissibilities from a method's per-block values (``faces``).
 
     Undefined ones take the harmonic value; faces touching an inactive block are
-    closed. A map keeps the harmonic (empty) z faces.
+    closed. A map keeps the harmonic (empty) z faces. Also returns the number
+    replaced and, per axis, which inner faces kept the method's value.
     """
     replaced = 0
 
@@ -375,18 +390,21 @@ def _direct_faces(
         replaced += int((undefined & ~closed).sum())
         return np.where(undefined | closed, rule, values)
 
-    faces, boundary = [], []
+    faces, boundary, kept = [], [], []
     for a, rule in enumerate(harmonic.faces):
         if a == 0 and ndim == 2:
             faces.append(rule)
             boundary.append(harmonic.boundary[0])
+            kept.append(np.zeros(rule.shape, bool))
             continue
         n = direct.shape[a + 1]
-        faces.append(merge(np.take(direct[a], np.arange(1, n), axis=a), rule))
+        inner = np.take(direct[a], np.arange(1, n), axis=a)
+        kept.append(np.isfinite(inner) & (rule != 0))
+        faces.append(merge(inner, rule))
         first, last = harmonic.boundary[a]
         boundary.append((merge(np.take(direct[a], [0], axis=a), first),
                          merge(np.take(direct[3 + a], [n - 1], axis=a), last)))  # fmt: skip
-    return tuple(faces), tuple(boundary), replaced
+    return tuple(faces), tuple(boundary), replaced, tuple(kept)
 
 
 def refuse_bad_values(fine: Field) -> None:

@@ -12,6 +12,7 @@ from ..field import AXES, PERMEABILITY, Field
 from ..parallel import apply_blocks
 from . import averages, bounds
 from .flow_based import direct_properties, flow_properties
+from .global_flow import global_properties
 from .renormalization import renormalized_properties
 
 
@@ -73,6 +74,14 @@ class Method:
         Values of options that may be left out.
     local : bool
         True for methods that solve local flow problems on all properties at once.
+    faces : str or None
+        The ``source`` of the coarse face transmissibilities the method
+        upscales directly (``flow``, ``global``), as the package's
+        ``connections.csv`` names it; None: the harmonic half-block rule.
+    global_flows : bool
+        True if the kernel fits the fine model's global flows: it takes them
+        as ``flows=`` (`upscale.methods.global_flow`), so that a run or a
+        comparison that solves them for the check solves them once.
     bound : {'upper', 'lower'} or None
         Whether the method is a bound of the effective permeability rather
         than an estimate of it: the arithmetic and harmonic means are the
@@ -88,6 +97,8 @@ class Method:
     takes_zeros: Callable[[Mapping[str, Any]], bool] = field(default=lambda options: True)
     defaults: Mapping[str, Any] = field(default_factory=dict)
     local: bool = False
+    faces: str | None = None
+    global_flows: bool = False
     bound: str | None = None
 
     @property
@@ -149,6 +160,15 @@ METHODS: Mapping[str, Method] = {
             options=("bc", "border"),
             defaults={"bc": "sealed", "border": 0},
             local=True,
+            faces="flow",
+        ),
+        Method(
+            "global",
+            global_properties,
+            "coarse transmissibilities fitted to the fine model's global flows; sealed flow-based blocks",
+            local=True,
+            faces="global",
+            global_flows=True,
         ),
         Method(
             "renormalization",
