@@ -80,7 +80,11 @@ def test_local_solves_compile_one_copy_of_each_kernel(tmp_path):
         from numba.core.registry import CPUDispatcher
         from upscale import Field, coarsen
         from upscale.flow import local, paths
-        field = Field.from_arrays(np.random.default_rng(318_275).lognormal(2.0, 1.0, (12, 12)))
+        k = np.random.default_rng(318_275).lognormal(2.0, 1.0, (12, 12))
+        coarsen(Field.from_arrays(k), "4x4", "flow", bc="sealed", border=1)
+        print("whole boxes: graph search compiled", bool(paths.live_faces.signatures))
+        k[5, 6] = np.nan  # an inactive cell: faces of its boxes may carry no flow
+        field = Field.from_arrays(k)
         coarsen(field, "4x4", "flow", bc="sealed", border=1)
         coarsen(field, "4x4", "flow-transmissibility").transmissibilities()
         for module in (local, paths):
@@ -91,7 +95,11 @@ def test_local_solves_compile_one_copy_of_each_kernel(tmp_path):
     # an empty cache, so that every kernel is compiled here (a cached one shows no signatures)
     done = subprocess.run([sys.executable, "-c", script], env=_fresh_cache_env(tmp_path / "cache"),
                           capture_output=True, text=True, timeout=600, check=True)  # fmt: skip
-    counts = {line.rsplit(" ", 1)[0]: int(line.rsplit(" ", 1)[1]) for line in done.stdout.splitlines()}
+    lines = done.stdout.splitlines()
+    assert lines[0] == "whole boxes: graph search compiled False"  # pruned by type (flow.paths.all_whole)
+    counts = {line.rsplit(" ", 1)[0]: int(line.rsplit(" ", 1)[1]) for line in lines[1:]}
     expected = {"upscale.flow.local _face", "upscale.flow.local _assemble", "upscale.flow.paths live_faces"}
     assert expected <= counts.keys()
-    assert {name: n for name, n in counts.items() if n != 1} == {}
+    # the two solver entries: one copy with the graph search and one without (``whole`` None or True)
+    entries = {"upscale.flow.local _tensors", "upscale.flow.local _pairs"}
+    assert {name: n for name, n in counts.items() if n != (2 if name in entries else 1)} == {}
