@@ -27,6 +27,7 @@ from ..parallel import apply_blocks, compute_together
 from ..stats import ValueScan, scan_values, where
 from . import averages
 from .flow_based import TENSOR
+from .local_global import Coupling
 from .registry import Method, get_method
 from .zeros import ZeroOutcome, apply_zero_rule
 
@@ -83,6 +84,9 @@ class Upscaled:
         Faces between active blocks whose direct value was undefined (no
         pressure drop between the two blocks) and that took the harmonic
         half-block value instead.
+    coupling : Coupling or None
+        How the local–global iteration of the faces went (``local-global``
+        only; `upscale.methods.local_global`).
     """
 
     fine: Field
@@ -100,6 +104,7 @@ class Upscaled:
     faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
     boundary: tuple[tuple[np.ndarray, np.ndarray], ...] | None = None
     replaced_faces: int = 0
+    coupling: Coupling | None = None
 
     def transmissibilities(self) -> Transmissibilities:
         """Coarse transmissibilities, in (unit of k) · m.
@@ -306,13 +311,18 @@ def coarsen(
         unit=field.unit,
         sources=field.sources,
     )
-    replaced, boundary = 0, None
+    replaced, boundary, coupling = 0, None, None
     if faces is not None:
-        faces, boundary, replaced = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
+        harmonic = transmissibilities(coarse)
+        faces, boundary, replaced = _direct_faces(faces, harmonic, fine.ndim)
+        if chosen.couple is not None:
+            local = replace(harmonic, faces=faces, boundary=boundary)
+            faces, coupling = chosen.couple(fine, cells, local, tuple(f == 0 for f in harmonic.faces), **options)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
                     fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,
-                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced)  # fmt: skip
+                    tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced,
+                    coupling=coupling)  # fmt: skip
 
 
 def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any = None,

@@ -12,6 +12,7 @@ from ..field import AXES, PERMEABILITY, Field
 from ..parallel import apply_blocks
 from . import averages, bounds
 from .flow_based import direct_properties, flow_properties
+from .local_global import ITERATIONS, TOLERANCE, couple, local_global_properties
 from .renormalization import renormalized_properties
 
 
@@ -73,6 +74,10 @@ class Method:
         Values of options that may be left out.
     local : bool
         True for methods that solve local flow problems on all properties at once.
+    couple : callable or None
+        ``couple(fine, cells, trans, closed, **options) -> (faces, Coupling)``:
+        a step after the coarse model is built that iterates its face
+        transmissibilities with coarse global flows (``local-global``).
     bound : {'upper', 'lower'} or None
         Whether the method is a bound of the effective permeability rather
         than an estimate of it: the arithmetic and harmonic means are the
@@ -89,6 +94,7 @@ class Method:
     defaults: Mapping[str, Any] = field(default_factory=dict)
     local: bool = False
     bound: str | None = None
+    couple: Callable[..., Any] | None = None
 
     @property
     def directional(self) -> bool:
@@ -155,6 +161,15 @@ METHODS: Mapping[str, Method] = {
             renormalized_properties,
             "King's renormalization: repeated exact 2x2(x2) solves; powers-of-two blocks",
             local=True,
+        ),
+        Method(
+            "local-global",
+            local_global_properties,
+            "two-block transmissibilities iterated with coarse global flows on extended regions (`border=N`)",
+            options=("bc", "border", "tolerance", "iterations"),
+            defaults={"bc": "sealed", "border": 0, "tolerance": TOLERANCE, "iterations": ITERATIONS},
+            local=True,
+            couple=couple,
         ),
     )
 }
