@@ -7,7 +7,7 @@ What is tested
 * Layered fields: the coarse model passes exactly the fine flow along
   (arithmetic mean) and across (harmonic mean) the layers (Bear 1972).
 * A field already coarse (every block uniform) gives the harmonic
-  half-block transmissibilities.
+  half-block transmissibilities with closed sides.
 * The iteration converges with bounded iterations on lognormal and channel
   fields with contrasts up to 1e4; summary.json records it.
 * A run whose iteration does not converge stops with one line and writes nothing.
@@ -75,23 +75,24 @@ def test_functionals_agree_with_a_direct_solve_under_any_boundary_pressures():
         np.testing.assert_allclose(coefficients[0] @ b, _direct_region(t, b, shape, mid), rtol=1e-10, atol=1e-12)
 
 
-@pytest.mark.parametrize("border", [0])  # with border 2: 1.7e-5 across (the sealed sides bend the flow)
-def test_layered_fields_pass_the_exact_flow_along_and_across(border):
+@pytest.mark.parametrize(("border", "sides"), [(0, "pressure"), (2, "pressure"), (0, "closed")])
+def test_layered_fields_pass_the_exact_flow_along_and_across(border, sides):
     # Bear 1972, "Dynamics of Fluids in Porous Media", §5.10: arithmetic along, harmonic across
     layers = random_layers(32, seed=561_204_877, sigma_ln=2.0)
     field = Field.from_arrays(layers.rows(32))
-    result = coarsen(field, "8x8", "local-global", border=border)
+    result = coarsen(field, "8x8", "local-global", border=border, sides=sides)
     check = check_flow(field, result.transmissibilities())
     assert check["x"].coarse.k_eff == pytest.approx(layers.along, rel=1e-10)
     assert check["y"].coarse.k_eff == pytest.approx(layers.across, rel=1e-10)
     assert result.coupling.iterations <= 3
 
 
-def test_a_field_already_coarse_gives_the_harmonic_half_block_rule():
+def test_a_field_already_coarse_gives_the_harmonic_half_block_rule_with_closed_sides():
     # harmonic half-block rule of two-point flux: Aziz & Settari 1979, "Petroleum Reservoir Simulation"
+    # (with pressure on the sides the faces move away from it, towards the fine flow: docs/methods.md)
     rng = np.random.default_rng(298_113_645)
     field = Field.from_arrays(np.kron(np.exp(rng.normal(0.0, 2.0, (6, 5))), np.ones((4, 4))), cell_size=(2.0, 3.0))
-    found = coarsen(field, "4x4", "local-global").transmissibilities()
+    found = coarsen(field, "4x4", "local-global", sides="closed").transmissibilities()
     harmonic = coarsen(field, "4x4", "harmonic").transmissibilities()
     for a in (1, 2):
         np.testing.assert_allclose(found.faces[a], harmonic.faces[a], rtol=1e-10)
