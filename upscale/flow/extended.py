@@ -34,7 +34,7 @@ import numba as nb
 import numpy as np
 
 from .banded import EXACT_JIT, factor, solve
-from .local import _in_threads, _root, _series
+from .local import _in_threads, _series, connect, pin
 
 
 def outer_faces(shape: tuple[int, int, int], axes: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -75,8 +75,8 @@ def outer_faces(shape: tuple[int, int, int], axes: np.ndarray) -> tuple[np.ndarr
 def _assemble(t, shape, order, fixed, axes, ab, floating):
     """Matrix of one region into `ab`, fixed pressure on the outer sides flagged in `fixed` (2, 3).
 
-    Pins the level of every group of cells with no fixed face (its first
-    cell's row and column become the identity) and flags those cells in `floating`.
+    Pins the level of every group of cells with no fixed face and flags
+    those cells in `floating` (`upscale.flow.local.pin`).
     """
     n = t.shape[1]
     stride = (shape[1] * shape[2], shape[2], 1)
@@ -84,41 +84,19 @@ def _assemble(t, shape, order, fixed, axes, ab, floating):
     parent = np.arange(n)
     grounded = np.zeros(n, np.bool_)
     for c in range(n):
-        i = order[c]
         for a in range(3):
             if not axes[a]:
                 continue
             pos = (c // stride[a]) % shape[a]
-            ta = t[a, c]
             for side in range(2):
                 if pos == (0, shape[a] - 1)[side] and fixed[side, a]:
-                    ab[i, 0] += ta
-                    grounded[c] |= ta > 0.0
-            if pos + 1 == shape[a]:
-                continue
-            m = c + stride[a]
-            T = _series(ta, t[a, m])
-            if T > 0.0:
-                j = order[m]
-                ab[i, 0] += T
-                ab[j, 0] += T
-                ab[min(i, j), abs(j - i)] -= T
-                ri, rj = _root(parent, c), _root(parent, m)
-                if ri != rj:
-                    parent[max(ri, rj)] = min(ri, rj)
-    for c in range(n):
-        r = _root(parent, c)
-        grounded[r] |= grounded[c]
-    width = ab.shape[1] - 1
-    for c in range(n):
-        r = _root(parent, c)
-        floating[c] = not grounded[r]
-        if r == c and not grounded[r]:
-            i = order[c]
-            ab[i, 1:] = 0.0
-            for j in range(1, min(width, i) + 1):
-                ab[i - j, j] = 0.0
-            ab[i, 0] = 1.0
+                    ab[order[c], 0] += t[a, c]
+                    grounded[c] |= t[a, c] > 0.0
+            if pos + 1 < shape[a]:
+                T = _series(t[a, c], t[a, c + stride[a]])
+                if T > 0.0:
+                    connect(ab, parent, order, c, c + stride[a], T)
+    pin(parent, grounded, np.zeros(n, np.bool_), order, ab, floating)
 
 
 @nb.njit(**EXACT_JIT)
