@@ -89,6 +89,16 @@ def test_layered_fields_pass_the_exact_flow_along_and_across(border, sides):
     assert result.coupling.iterations <= 3
 
 
+def test_layered_model_passes_the_exact_flow_in_3d():
+    # Bear 1972, "Dynamics of Fluids in Porous Media", §5.10: arithmetic along, harmonic across
+    layers = random_layers(16, seed=771_203_455, sigma_ln=2.0)
+    field = Field.from_arrays(layers.stack(16, 16), dz=1.0)
+    result = coarsen(field, "4x4x4", "local-global", border=1)
+    check = check_flow(field, result.transmissibilities())
+    assert check["x"].coarse.k_eff == pytest.approx(layers.along, rel=1e-10)
+    assert check["z"].coarse.k_eff == pytest.approx(layers.across, rel=1e-10)
+
+
 def test_a_field_already_coarse_gives_the_harmonic_half_block_rule_with_closed_sides():
     # harmonic half-block rule of two-point flux: Aziz & Settari 1979, "Petroleum Reservoir Simulation"
     # (with pressure on the sides the faces move away from it, towards the fine flow: docs/methods.md)
