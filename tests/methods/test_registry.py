@@ -49,7 +49,7 @@ def test_only_the_bounds_are_directional():
 def test_options_declared():
     assert METHODS["power"].options == ("exponent",)
     assert METHODS["flow"].options == METHODS["flow-transmissibility"].options == ("bc", "border")
-    assert METHODS["local-global"].options == ("bc", "border", "sides", "tolerance", "iterations")
+    assert METHODS["local-global"].options == ("bc", "border", "sides", "max_change", "max_iterations")
     others = {"power", "flow", "flow-transmissibility", "local-global"}
     assert all(m.options == () for n, m in METHODS.items() if n not in others)
 

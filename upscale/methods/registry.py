@@ -12,7 +12,7 @@ from ..field import AXES, PERMEABILITY, Field
 from ..parallel import apply_blocks
 from . import averages, bounds
 from .flow_based import direct_properties, flow_properties
-from .local_global import ITERATIONS, TOLERANCE, couple, local_global_properties
+from .local_global import MAX_CHANGE, MAX_ITERATIONS, couple, local_global_properties
 from .renormalization import renormalized_properties
 
 
@@ -166,9 +166,9 @@ METHODS: Mapping[str, Method] = {
             "local-global",
             local_global_properties,
             "two-block transmissibilities iterated with coarse global flows on extended regions (`border=N`)",
-            options=("bc", "border", "sides", "tolerance", "iterations"),
-            defaults={"bc": "sealed", "border": 0, "sides": "pressure", "tolerance": TOLERANCE,
-                      "iterations": ITERATIONS},
+            options=("bc", "border", "sides", "max_change", "max_iterations"),
+            defaults={"bc": "sealed", "border": 0, "sides": "pressure", "max_change": MAX_CHANGE,
+                      "max_iterations": MAX_ITERATIONS},
             local=True,
             couple=couple,
         ),
