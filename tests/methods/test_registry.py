@@ -27,9 +27,9 @@ OPTIONS = {"power": {"exponent": 0.57}}
 def test_method_names_and_kernels():
     assert PUBLIC_METHODS is METHODS
     assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs",
-                             "flow", "flow-transmissibility", "global", "renormalization"]  # fmt: skip
+                             "flow", "flow-transmissibility", "global", "renormalization", "local-global"]  # fmt: skip
     assert {n for n, m in METHODS.items() if m.local} == {
-        "flow", "flow-transmissibility", "global", "renormalization"}  # fmt: skip
+        "flow", "flow-transmissibility", "global", "renormalization", "local-global"}  # fmt: skip
     assert {n for n, m in METHODS.items() if m.global_flows} == {"global"}
     assert METHODS["arithmetic"].kernel.rule is averages.arithmetic_mean
     assert METHODS["harmonic"].kernel.rule is averages.harmonic_mean
@@ -50,7 +50,8 @@ def test_only_the_bounds_are_directional():
 def test_options_declared():
     assert METHODS["power"].options == ("exponent",)
     assert METHODS["flow"].options == METHODS["flow-transmissibility"].options == ("bc", "border")
-    others = {"power", "flow", "flow-transmissibility"}
+    assert METHODS["local-global"].options == ("bc", "border", "sides", "max_change", "max_iterations")
+    others = {"power", "flow", "flow-transmissibility", "local-global"}
     assert all(m.options == () for n, m in METHODS.items() if n not in others)
 
 

@@ -5,7 +5,7 @@ What is tested
 * Every drawn text of every figure (titles, axis and tick labels, legends,
   colour bars) lies inside the canvas: for a comparison of one method (the
   figures of ``upscale run --plot``, whose one-panel titles were clipped at
-  both ends), of three, of all eleven candidates (a 3 x 4 grid of maps) and
+  both ends), of three, of all twelve candidates (a 3 x 4 grid of maps) and
   of a 3D model.
 * Every drawn text is at least 8 points on the report page. The page shows
   a figure at most 1100 CSS pixels wide (``max-width`` in
@@ -42,14 +42,14 @@ def _comparison(methods: list[str] | None, seed: int, shape=(32, 32), block="8x8
     return compare_methods(field, block, candidates(methods, **options))
 
 
-@pytest.fixture(scope="module", params=["one method", "three methods", "eleven candidates", "3D"])
+@pytest.fixture(scope="module", params=["one method", "three methods", "twelve candidates", "3D"])
 def plots(request):
     """The figures of a comparison: what ``upscale run --plot`` and ``upscale compare`` draw."""
     cases = {
         "one method": lambda: _comparison(["flow"], 7411, shape=(40, 40), block="10x10", bc="linear",
                                           border=2),
         "three methods": lambda: _comparison(["geometric", "harmonic", "slabs"], 7412),
-        "eleven candidates": lambda: _comparison(None, 7413),
+        "twelve candidates": lambda: _comparison(None, 7413),
         "3D": lambda: _comparison(["arithmetic", "flow"], 7414, shape=(4, 16, 16), block="8x8x2",
                                   dz=[1.0, 2.0, 0.5, 2.0]),
     }  # fmt: skip

@@ -240,15 +240,34 @@ class TensorSummary:
 
 #: The ``rule`` of ``summary.json``'s ``transmissibility``, by the ``faces`` of the method.
 FACE_RULES = {None: "harmonic half-block", "flow": "two-block flow solves",
-              "global": "fits to the fine global flows"}  # fmt: skip
+              "global": "fits to the fine global flows",
+              "local-global": "two-block flow solves iterated with coarse global flows (local-global)"}  # fmt: skip
 
 
 @dataclass(frozen=True)
 class FaceRule(Leaf):
-    """How the coarse transmissibilities were found (``rule``) and ``replaced_faces``: undefined ones."""
+    """How the coarse transmissibilities were found (``rule``) and ``replaced_faces``: undefined ones.
+
+    A local–global run adds ``iterations``, ``last_change`` (the largest
+    relative change of a face in the last iteration) and ``kept_faces``
+    (faces that kept their previous value: negative or undefined), see
+    `upscale.methods.local_global`; the keys are left out otherwise.
+    """
 
     rule: str
     replaced_faces: int
+    iterations: int | None = None
+    last_change: float | None = None
+    kept_faces: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``transmissibility`` object of ``summary.json``."""
+        return {name: value for name, value in super().to_dict().items() if value is not None}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> FaceRule:
+        """The ``transmissibility`` object of ``summary.json``."""
+        return cls(**{name: data.get(name) for name in cls.__dataclass_fields__})
 
 
 @dataclass(frozen=True)
@@ -366,13 +385,23 @@ def build_summary(
     tensor, faces = None, None
     if METHODS[result.method].local:
         tensor = TensorSummary.from_dict(jsonable(tensor_summary(coarse, result.tensor, result.zeros)))
-        faces = FaceRule(FACE_RULES[METHODS[result.method].faces], jsonable(result.replaced_faces))
+        faces = _face_rule(result)
     return RunSummary(
         provenance(fine, command, read), fine.unit, MethodUsed(result.method, jsonable(result.options)),
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
     )  # fmt: skip
+
+
+def _face_rule(result: Upscaled) -> FaceRule:
+    """How a local method's coarse faces were found."""
+    rule = FACE_RULES[METHODS[result.method].faces]
+    coupling = result.coupling
+    if coupling is None:
+        return FaceRule(rule, jsonable(result.replaced_faces))
+    return FaceRule(rule, jsonable(result.replaced_faces), coupling.iterations, jsonable(coupling.change),
+                    coupling.kept_faces)  # fmt: skip
 
 
 def _active(result: Upscaled) -> ActiveCounts:

@@ -94,6 +94,9 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
         click.echo(f"coarse transmissibilities from {faces.rule}"
                    + (f"; {faces.replaced_faces} undefined ones took the harmonic value"
                       if faces.replaced_faces else ""))  # fmt: skip
+    if faces and faces.iterations is not None:
+        click.echo(f"local-global: {faces.iterations} iterations, last change {faces.last_change:.2g}"
+                   + (f", {faces.kept_faces} faces kept their previous value" if faces.kept_faces else ""))
     click.echo("")
     print_check(summary.check)
     click.echo("")

@@ -133,16 +133,34 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
                 continue
             T = _series(ta, t[a, m])
             if T > 0.0:
-                j = order[m]
-                ab[i, 0] += T
-                ab[j, 0] += T
-                if i < j:
-                    ab[i, j - i] -= T
-                else:
-                    ab[j, i - j] -= T
-                ri, rj = _root(parent, c), _root(parent, m)
-                if ri != rj:
-                    parent[max(ri, rj)] = min(ri, rj)
+                connect(ab, parent, order, c, m, T)
+    return pin(parent, grounded, wrapped, order, ab, floating)
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def connect(ab, parent, order, c, m, T):
+    """Add the face of cells `c` and `m` (lexicographic) with T > 0 to the band `ab`; join their groups."""
+    i, j = order[c], order[m]
+    ab[i, 0] += T
+    ab[j, 0] += T
+    if i < j:
+        ab[i, j - i] -= T
+    else:
+        ab[j, i - j] -= T
+    ri, rj = _root(parent, c), _root(parent, m)
+    if ri != rj:
+        parent[max(ri, rj)] = min(ri, rj)
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def pin(parent, grounded, wrapped, order, ab, floating):
+    """Pin the level of every group of cells with no fixed pressure; returns the pinned cells.
+
+    A group's first cell gets the identity row and column in `ab`; `floating`
+    flags the cells of groups with neither a fixed pressure (`grounded`) nor a
+    periodic connection (`wrapped`), whose pressure level means nothing.
+    """
+    n = parent.size
     for c in range(n):
         r = _root(parent, c)
         grounded[r] |= grounded[c]

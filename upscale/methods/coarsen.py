@@ -27,6 +27,7 @@ from ..parallel import apply_blocks, compute_together
 from ..stats import ValueScan, scan_values, where
 from . import averages
 from .flow_based import TENSOR
+from .local_global import Coupling
 from .registry import Method, get_method
 from .zeros import ZeroOutcome, apply_zero_rule
 
@@ -88,6 +89,9 @@ class Upscaled:
         With `faces`: True for the inner faces whose transmissibility is the
         method's own (laid out as `faces`), False for those of the harmonic
         half-block rule.
+    coupling : Coupling or None
+        How the local–global iteration of the faces went (``local-global``
+        only; `upscale.methods.local_global`).
     """
 
     fine: Field
@@ -106,6 +110,7 @@ class Upscaled:
     boundary: tuple[tuple[np.ndarray, np.ndarray], ...] | None = None
     replaced_faces: int = 0
     direct_faces: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+    coupling: Coupling | None = None
 
     def transmissibilities(self) -> Transmissibilities:
         """Coarse transmissibilities, in (unit of k) · m.
@@ -319,14 +324,18 @@ def coarsen(
         unit=field.unit,
         sources=field.sources,
     )
-    replaced, boundary, direct = 0, None, None
+    replaced, boundary, direct, coupling = 0, None, None, None
     if faces is not None:
-        faces, boundary, replaced, direct = _direct_faces(faces, transmissibilities(coarse), fine.ndim)
+        harmonic = transmissibilities(coarse)
+        faces, boundary, replaced, direct = _direct_faces(faces, harmonic, fine.ndim)
+        if chosen.couple is not None:
+            local = replace(harmonic, faces=faces, boundary=boundary)
+            faces, coupling = chosen.couple(fine, cells, local, tuple(f == 0 for f in harmonic.faces), **options)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
                     fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,
                     tensor=tensor, faces=faces, boundary=boundary, replaced_faces=replaced,
-                    direct_faces=direct)  # fmt: skip
+                    direct_faces=direct, coupling=coupling)  # fmt: skip
 
 
 def as_field(data: Any, *, cell_size: tuple[float, float] | None = None, dz: Any = None,

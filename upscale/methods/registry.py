@@ -13,6 +13,7 @@ from ..parallel import apply_blocks
 from . import averages, bounds
 from .flow_based import direct_properties, flow_properties
 from .global_flow import global_properties
+from .local_global import MAX_CHANGE, MAX_ITERATIONS, couple, local_global_properties
 from .renormalization import renormalized_properties
 
 
@@ -82,6 +83,10 @@ class Method:
         True if the kernel fits the fine model's global flows: it takes them
         as ``flows=`` (`upscale.methods.global_flow`), so that a run or a
         comparison that solves them for the check solves them once.
+    couple : callable or None
+        ``couple(fine, cells, trans, closed, **options) -> (faces, Coupling)``:
+        a step after the coarse model is built that iterates its face
+        transmissibilities with coarse global flows (``local-global``).
     bound : {'upper', 'lower'} or None
         Whether the method is a bound of the effective permeability rather
         than an estimate of it: the arithmetic and harmonic means are the
@@ -100,6 +105,7 @@ class Method:
     faces: str | None = None
     global_flows: bool = False
     bound: str | None = None
+    couple: Callable[..., Any] | None = None
 
     @property
     def directional(self) -> bool:
@@ -175,6 +181,17 @@ METHODS: Mapping[str, Method] = {
             renormalized_properties,
             "King's renormalization: repeated exact 2x2(x2) solves; powers-of-two blocks",
             local=True,
+        ),
+        Method(
+            "local-global",
+            local_global_properties,
+            "two-block transmissibilities iterated with coarse global flows on extended regions (`border=N`)",
+            options=("bc", "border", "sides", "max_change", "max_iterations"),
+            defaults={"bc": "sealed", "border": 0, "sides": "pressure", "max_change": MAX_CHANGE,
+                      "max_iterations": MAX_ITERATIONS},
+            local=True,
+            faces="local-global",
+            couple=couple,
         ),
     )
 }
