@@ -215,7 +215,7 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
         errors = np.array([np.nan if b.largest_error is None else 100 * b.largest_error for b in method.blocks])
         largest = max(largest, float(np.nanmax(errors)) if np.isfinite(errors).any() else 0.0)
         ax.plot(cells, errors, marker="os^Dv<>"[(i + i // 7) % 7], markersize=6, linewidth=1.4,
-                label=method.name, **style_of(i))  # fmt: skip
+                label=method.name, clip_on=False, **style_of(i))  # fmt: skip
     ax.set_xscale("log", base=2)
     ax.set_xticks(cells, [f"{b.name}\n({b.cells})" for b in plan.blocks])
     ax.xaxis.set_minor_locator(NullLocator())
