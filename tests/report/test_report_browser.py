@@ -16,9 +16,9 @@ What is tested
 * The page of ``upscale plan`` the same way: loads without errors, its one figure decodes,
   its table has one row per method with the error at every block and the coarsest block
   (in bold in its row), no number cell wraps, self-contained with command and checksum.
-* A screenshot of the original page (1280 x 4000) is kept as a test artifact
-  in ``$UPSCALE_ARTIFACTS`` or ``<repo>/test-artifacts/``, and must be a
-  non-empty PNG of that size.
+* A screenshot of the original page (1280 x 4000; the plan's page 1280 x
+  2400) is kept as a test artifact in ``$UPSCALE_ARTIFACTS`` or
+  ``<repo>/test-artifacts/``, and must be a non-empty PNG of that size.
 * The page is self-contained (no http(s) or protocol-relative references, no
   scripts, no stylesheet links; figures are the PNG files of figures/ as
   data URIs) and carries the caution, the exact command line (after a ``cd``
@@ -133,16 +133,21 @@ def test_number_cells_stay_on_one_line_and_the_page_fits_the_window(verdict):
     assert 0 < verdict["widest_image"] <= 1100  # the page's width for figures (report/layout.py)
 
 
-def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
-    target = _artifacts() / "report-screenshot.png"
+def _screenshot(chromium: str, page: Path, name: str, height: int, profile: Path) -> None:
+    """Save a 1280 x `height` screenshot of `page` as the artifact `name`, and check it is that PNG."""
+    target = _artifacts() / name
     target.unlink(missing_ok=True)
-    options = [f"--screenshot={target}", "--window-size=1280,4000", "--virtual-time-budget=10000"]
-    done = browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, report["page"].as_uri())
+    options = [f"--screenshot={target}", f"--window-size=1280,{height}", "--virtual-time-budget=10000"]
+    done = browse(chromium, profile, "--hide-scrollbars", *options, page.as_uri())
     assert target.is_file(), f"no screenshot (exit {done.returncode}): {done.stderr[-2000:]}"
     data = target.read_bytes()
     assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
-    width, height = struct.unpack(">II", data[16:24])  # the IHDR chunk
-    assert (width, height) == (1280, 4000)
+    width, shown = struct.unpack(">II", data[16:24])  # the IHDR chunk
+    assert (width, shown) == (1280, height)
+
+
+def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
+    _screenshot(chromium, report["page"], "report-screenshot.png", 4000, tmp_path / "profile")
 
 
 def test_a_wide_ranking_keeps_its_numbers_on_one_line(chromium, tmp_path):
@@ -269,9 +274,4 @@ def test_plan_page_is_self_contained_with_the_command_and_checksum(plan_report):
 
 
 def test_plan_page_screenshot_is_saved_as_an_artifact(plan_report, chromium, tmp_path):
-    target = _artifacts() / "plan-report-screenshot.png"
-    target.unlink(missing_ok=True)
-    options = [f"--screenshot={target}", "--window-size=1280,2400", "--virtual-time-budget=10000"]
-    done = browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, plan_report["page"].as_uri())
-    assert target.is_file(), f"no screenshot (exit {done.returncode}): {done.stderr[-2000:]}"
-    assert target.read_bytes().startswith(b"\x89PNG\r\n\x1a\n")
+    _screenshot(chromium, plan_report["page"], "plan-report-screenshot.png", 2400, tmp_path / "profile")
