@@ -20,10 +20,13 @@ What is tested
   differently, a largest error that is not a percentage or is out of
   (0 %, 100 %), an unknown method; an output folder that holds files needs
   ``--overwrite``.
+* The notes: a method that passes at a coarse block but not at a finer one
+  is named; when no method passes at any block, a warning says so.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import io
 import json
 from contextlib import redirect_stderr, redirect_stdout
@@ -34,7 +37,7 @@ import upscale.flow.steady as steady
 from upscale import Field
 from upscale.analysis.compare import candidates
 from upscale.analysis.plan import plan_blocks
-from upscale.analysis.plan_record import PlanRecord
+from upscale.analysis.plan_record import PlanRecord, plan_record
 from upscale.cli.main import main
 from upscale.gallery.problems import random_layers, uncorrelated_lognormal
 from upscale.grid import BlockSpec
@@ -248,3 +251,24 @@ def test_a_folder_that_holds_files_needs_overwrite(small_field, tmp_path, run_cl
     assert (out / "plan.json").read_bytes() == before
     assert run_cli(*args, "--overwrite")[0] == 0
     assert json.loads((out / "plan.json").read_text())["files"][-1] == "report.html"
+
+
+def test_the_page_and_terminal_notes_name_uneven_answers_and_warn_when_none_passes():
+    from upscale.report.verdict import no_block_warning, uneven_note
+
+    field = Field.from_arrays(uncorrelated_lognormal((32, 32), seed=640_018_553, sigma_ln=0.5))
+    plan = plan_blocks(field, [BlockSpec.parse(b) for b in ("2x2", "4x4", "8x8")],
+                       candidates(["geometric", "arithmetic"]), max_error=0.5)  # fmt: skip
+    record = plan_record(plan)
+    assert [m.coarsest for m in record.methods] == ["8x8", "8x8"]  # sigma 0.5: every error is small
+    assert no_block_warning(record) is None and uneven_note(record) is None
+    # the same numbers judged against a tighter limit, with the 4x4 error of geometric made large
+    geometric, arithmetic = record.methods
+    checks = list(geometric.blocks)
+    checks[1] = dataclasses.replace(checks[1], largest_error=0.9, meets=False)
+    uneven = dataclasses.replace(geometric, blocks=tuple(checks), finer_all_meet=False)
+    assert "geometric: within the error accepted at the coarsest block named but not at some finer one" in \
+        uneven_note(dataclasses.replace(record, methods=(uneven, arithmetic)))  # fmt: skip
+    nowhere = tuple(dataclasses.replace(m, coarsest=None, finer_all_meet=False) for m in record.methods)
+    assert no_block_warning(dataclasses.replace(record, methods=nowhere)) == (
+        "No method is within 50 % at any block listed, not even at 2x2: try finer blocks or another method.")

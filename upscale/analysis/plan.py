@@ -63,18 +63,39 @@ class Plan:
 
     def coarsest(self, candidate: Candidate) -> BlockSpec | None:
         """The coarsest block at which `candidate` is within `max_error` (None: at no block)."""
-        passing = [b for b, ok in zip(self.blocks, self.meets(candidate)) if ok]
-        return passing[-1] if passing else None
+        index = coarsest_passing(self.meets(candidate))
+        return None if index is None else self.blocks[index]
 
     def finer_all_meet(self, candidate: Candidate) -> bool:
-        """Whether every block finer than the coarsest that meets `max_error` meets it too.
+        """Whether every block finer than the coarsest that meets `max_error` meets it too (`finer_all_pass`)."""
+        return finer_all_pass(self.meets(candidate))
 
-        When not, the error does not grow steadily with the block for this
-        method on this field: the coarsest passing block may owe its small
-        error to errors that cancel.
-        """
-        ok = self.meets(candidate)
-        return any(ok) and all(ok[: len(ok) - ok[::-1].index(True)])
+
+def coarsest_passing(passes: list[bool]) -> int | None:
+    """Index of the last True in `passes` (blocks finest first): the coarsest block that passes.
+
+    Examples
+    --------
+    >>> coarsest_passing([True, False, True, False]), coarsest_passing([False, False])
+    (2, None)
+    """
+    return max((i for i, ok in enumerate(passes) if ok), default=None)
+
+
+def finer_all_pass(passes: list[bool]) -> bool:
+    """Whether some block passes and every block finer than the coarsest that passes does too.
+
+    When not, the error does not grow steadily with the block for this
+    method on this field: the coarsest passing block may owe its small error
+    to errors that cancel.
+
+    Examples
+    --------
+    >>> finer_all_pass([True, True, False]), finer_all_pass([True, False, True]), finer_all_pass([False])
+    (True, False, False)
+    """
+    last = coarsest_passing(passes)
+    return last is not None and all(passes[: last + 1])
 
 
 def meets(error: float, max_error: float) -> bool:

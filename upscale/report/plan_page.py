@@ -49,20 +49,25 @@ error is within {_e(limit)} is the answer, shown in bold in its row.</p>
 <tr>{"".join(f"<th>{_e(h)}</th>" for h in head)}</tr>
 {rows}
 </table>
+{_failures(plan)}
 <h2>Figures</h2>
 {figures_html(images)}
 """, job)
 
 
+def _failures(plan: PlanRecord) -> str:
+    """A paragraph per method and block that did not run, with the reason."""
+    return "".join(f'<p class="failed">{_e(m.name)} did not run at {_e(b.block)}: {_e(b.error)}</p>\n'
+                   for m in plan.methods for b in m.blocks if b.error)  # fmt: skip
+
+
 def _row(method: MethodPlan) -> str:
     cells = [f"<td>{_e(method.name)}</td>"]
     for check in method.blocks:
-        text = "did not run" if check.error else f"{100 * check.largest_error:.2f} %"
-        if check.largest_error is None and not check.error:
-            text = "–"
+        text = "–" if check.largest_error is None else f"{100 * check.largest_error:.2f} %"
+        text = "did not run" if check.error else text
         strong = check.block == method.coarsest
-        title = f' title="{_e(check.error)}"' if check.error else ""
-        cells.append(f"<td{title}>{'<strong>' if strong else ''}{_e(text)}{'</strong>' if strong else ''}</td>")
+        cells.append(f"<td>{'<strong>' if strong else ''}{_e(text)}{'</strong>' if strong else ''}</td>")
     cells.append(f"<td>{_e(method.coarsest or 'none')}</td>")
     return '<tr class="method">' + "".join(cells) + "</tr>"
 
