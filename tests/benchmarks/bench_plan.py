@@ -21,7 +21,8 @@ commands ``--repeats`` times (the best of each enters the ratio):
 
 each end to end in this process (read, upscale, check, figures, page,
 staged writes), and the same work without figures and files through the
-library: `compare_methods` at 4x4 against `plan_blocks` at the four blocks.
+library: `compare_methods` at 4x4 against `plan_blocks` at the four blocks,
+with the plan's time per block and method (upscaling and coarse solves).
 
 Target (issue 16): p / c <= 1.5 — the planner shares the fine solves, so it
 should cost little more than one comparison.
@@ -73,7 +74,12 @@ def _commands(field: Path, folder: Path, tag: str) -> dict[str, list[str]]:
                      "--out", str(folder / f"p{tag}")]}  # fmt: skip
 
 
-def _library(field: Path, repeats: int) -> dict[str, float]:
+def _library(field: Path, repeats: int) -> tuple[dict[str, float], dict[str, dict[str, float]]]:
+    """Best times of `compare_methods` at the finest block and `plan_blocks`, and the plan's breakdown.
+
+    The breakdown (of the last plan) gives the shared fine solves and, per
+    block, each method's time to upscale and solve its coarse checks (s).
+    """
     fine = read_field(field)
     chosen = candidates(METHODS.split(","), bc="sealed")
     found: dict[str, list[float]] = {"compare": [], "plan": []}
@@ -82,9 +88,10 @@ def _library(field: Path, repeats: int) -> dict[str, float]:
         compare_methods(fine, BLOCKS[0], chosen)
         found["compare"].append(time.perf_counter() - start)
         start = time.perf_counter()
-        plan_blocks(fine, [BlockSpec.parse(b) for b in BLOCKS], chosen)
+        plan = plan_blocks(fine, [BlockSpec.parse(b) for b in BLOCKS], chosen)
         found["plan"].append(time.perf_counter() - start)
-    return {name: min(times) for name, times in found.items()}
+    breakdown = {str(c.block): {e.candidate.method: e.seconds for e in c.entries} for c in plan.comparisons}
+    return {name: min(times) for name, times in found.items()}, breakdown
 
 
 def run(size: int, repeats: int) -> dict:
@@ -101,11 +108,12 @@ def run(size: int, repeats: int) -> dict:
             for name, args in _commands(field, folder, str(i)).items():
                 times[name].append(_timed(args))
                 print(f"  {name}: {times[name][-1]:.1f} s", flush=True)
-        library = _library(field, repeats)
+        library, breakdown = _library(field, repeats)
     best = {name: min(t) for name, t in times.items()}
     return {"size": size, "methods": METHODS, "blocks": BLOCKS, "bc": "sealed", "repeats": repeats,
             "seconds": times, "best": best, "ratio": best["plan"] / best["compare"],
-            "library_best": library, "library_ratio": library["plan"] / library["compare"]}  # fmt: skip
+            "library_best": library, "library_ratio": library["plan"] / library["compare"],
+            "plan_breakdown_s": breakdown}  # fmt: skip
 
 
 def main_() -> None:
@@ -121,6 +129,8 @@ def main_() -> None:
           f"ratio {result['ratio']:.2f} (target <= 1.5)")
     print(f"  library (no figures, no files): compare_methods {library['compare']:.1f} s, plan_blocks "
           f"{library['plan']:.1f} s, ratio {result['library_ratio']:.2f}")
+    for block, seconds in result["plan_breakdown_s"].items():
+        print(f"  plan at {block}: " + ", ".join(f"{m} {s:.2f} s" for m, s in seconds.items()))
     if options.json:
         options.json.write_text(json.dumps(result, indent=2) + "\n")
 
