@@ -71,8 +71,8 @@ def lognormal_plan(demo_dir, tmp_path_factory):
                     "--out", root / f"compare-{block}")  # fmt: skip
         assert done[0] == 0, done[2]
         compared[block] = json.loads((root / f"compare-{block}" / "compare.json").read_text())
-    return {"folder": root / "plan", "stdout": out, "plan": json.loads((root / "plan" / "plan.json").read_text()),
-            "compared": compared}  # fmt: skip
+    plan = json.loads((root / "plan" / "plan.json").read_text())
+    return {"folder": root / "plan", "stdout": out, "plan": plan, "compared": compared}
 
 
 @pytest.mark.slow
@@ -219,7 +219,8 @@ def small_field(tmp_path_factory):
      "the blocks crop the grid to different extents (4x4 keeps 64 x 64 cells, 12x12 keeps 60 x 60 cells)"),
     (["--blocks", "4x4,8x"], "block '8x' is not of the form NXxNY"),
     (["--max-error", "abc"], "'abc' is not a percentage such as 5% or a fraction such as 0.05"),
-    (["--max-error", "-3%"], "the largest error accepted must be more than 0 % and less than 100 %, got '-3%'"),
+    (["--max-error", "-3%"],
+     "the largest error accepted must be more than 0 % and less than 100 %, got '-3%'"),
     (["--max-error", "0%"], "more than 0 % and less than 100 %, got '0%'"),
     (["--max-error", "150%"], "more than 0 % and less than 100 %, got '150%'"),
     (["--max-error", "nan"], "more than 0 % and less than 100 %, got 'nan'"),

@@ -69,7 +69,8 @@ def _timed(args: list[str]) -> float:
 
 def _commands(field: Path, folder: Path, tag: str) -> dict[str, list[str]]:
     common = ["--methods", METHODS, "--bc", "sealed"]
-    return {"compare": ["-q", "compare", str(field), "--block", BLOCKS[0], *common, "--out", str(folder / f"c{tag}")],
+    return {"compare": ["-q", "compare", str(field), "--block", BLOCKS[0], *common,
+                        "--out", str(folder / f"c{tag}")],
             "plan": ["-q", "plan", str(field), "--blocks", ",".join(BLOCKS), *common,
                      "--out", str(folder / f"p{tag}")]}  # fmt: skip
 

@@ -184,11 +184,12 @@ def test_error_by_block_chart_has_one_line_per_method_on_a_log_axis_of_the_coars
     assert ax.get_xscale() == "log" and ax.get_yscale() == "symlog"
     FigureCanvasAgg(ax.figure).draw()
     assert list(ax.get_xticks()) == [4, 16, 64, 256]  # fine cells per block
-    assert [t.get_text() for t in ax.get_xticklabels()] == ["2x2\n(4)", "4x4\n(16)", "8x8\n(64)", "16x16\n(256)"]
+    labels = [t.get_text() for t in ax.get_xticklabels()]
+    assert labels == ["2x2\n(4)", "4x4\n(16)", "8x8\n(64)", "16x16\n(256)"]
     lines = [line for line in ax.get_lines() if line.get_label() in {m.name for m in record.methods}]
     assert [line.get_label() for line in lines] == ["geometric", "arithmetic", "harmonic"]
-    for line, method in zip(lines, record.methods):
-        assert list(line.get_ydata()) == pytest.approx([100 * b.largest_error for b in method.blocks])
+    for line, planned in zip(lines, record.methods):
+        assert list(line.get_ydata()) == pytest.approx([100 * b.largest_error for b in planned.blocks])
     [limit] = [line for line in ax.get_lines() if line.get_label().startswith("largest error accepted")]
     assert list(limit.get_ydata()) == [5.0, 5.0]
     _assert_plain_percent(_shown_labels(ax))

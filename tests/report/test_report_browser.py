@@ -253,9 +253,9 @@ def test_plan_page_loads_and_shows_every_method_at_every_block(plan_verdict, pla
     assert plan_verdict["head"] == ["method", *(f"error at {b}" for b in PLAN_BLOCKS), "coarsest within 5 %"]
     # one row per method, in plan.json's order, its coarsest block last and in bold in its row
     assert [row[0] for row in plan_verdict["rows"]] == [m["name"] for m in plan["methods"]]
-    for row, method in zip(plan_verdict["rows"], plan["methods"]):
-        assert row[1:-1] == [f"{100 * b['largest_error']:.2f} %" for b in method["blocks"]]
-        assert row[-1] == (method["coarsest"] or "none")
+    for row, planned in zip(plan_verdict["rows"], plan["methods"]):
+        assert row[1:-1] == [f"{100 * b['largest_error']:.2f} %" for b in planned["blocks"]]
+        assert row[-1] == (planned["coarsest"] or "none")
     coarsest = [m for m in plan["methods"] if m["coarsest"]]
     assert len(plan_verdict["strong"]) == len(coarsest) >= 1
     assert plan_verdict["wrapped"] == [] and not plan_verdict["overflow"]

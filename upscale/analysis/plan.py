@@ -67,7 +67,7 @@ class Plan:
         return None if index is None else self.blocks[index]
 
     def finer_all_meet(self, candidate: Candidate) -> bool:
-        """Whether every block finer than the coarsest that meets `max_error` meets it too (`finer_all_pass`)."""
+        """Whether every block finer than the coarsest within `max_error` is within too (`finer_all_pass`)."""
         return finer_all_pass(self.meets(candidate))
 
 
@@ -137,10 +137,10 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
 
     Examples
     --------
-    >>> check_blocks([BlockSpec(8, 8), BlockSpec(4, 4)], (1, 64, 64), 2)
+    >>> check_blocks([BlockSpec(8, 8), BlockSpec(4, 4)], (1, 64, 64), 2)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    upscale.errors.InputError: the blocks must grow from the finest to the coarsest (in fine cells per block), but 4x4 (16 cells) follows 8x8 (64 cells); list them finest first, e.g. 4x4,8x8,16x16
+    upscale.errors.InputError: the blocks must grow ..., but 4x4 (16 cells) follows 8x8 (64 cells); ...
     """
     if not blocks:
         raise InputError("a plan needs at least one block, e.g. `blocks=4x4,8x8,16x16`")

@@ -217,5 +217,6 @@ def _method(plan: Plan, candidate: Candidate) -> MethodPlan:
         checks.append(BlockCheck(str(block), jsonable(entry.worst_error), ok, errors, entry.error,
                                  jsonable(entry.seconds)))  # fmt: skip
     coarsest = plan.coarsest(candidate)
-    return MethodPlan(candidate.label, candidate.method, jsonable(candidate.options), tuple(checks),
-                      None if coarsest is None else str(coarsest), plan.finer_all_meet(candidate))  # fmt: skip
+    name = None if coarsest is None else str(coarsest)
+    return MethodPlan(candidate.label, candidate.method, jsonable(candidate.options), tuple(checks), name,
+                      plan.finer_all_meet(candidate))  # fmt: skip

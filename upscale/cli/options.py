@@ -202,7 +202,7 @@ def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
 
 
 def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:
-    """The rules of a block partition: remainder, least active fraction, zero k (shared by run, compare, plan)."""
+    """The rules of a block partition: remainder, least active fraction, zero k (run, compare, plan)."""
     options = [
         click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop",
                      show_default=True, help="When the grid does not divide into whole blocks: stop "

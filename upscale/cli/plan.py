@@ -72,7 +72,8 @@ def parse_max_error(text: str) -> float:
 @click.pass_context
 def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: str | None,
          exponent: float | None, bc: str | None, border: int | None, chunk: str | None, solver: str,
-         tolerance: float, check_limit: int, out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+         tolerance: float, check_limit: int, out: str, overwrite: bool,
+         **options: object) -> None:  # fmt: skip
     """How coarse can FIELD go? Every method at every block size, against one fine solve.
 
     Upscales FIELD with every method at every block size listed, checks each

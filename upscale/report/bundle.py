@@ -10,9 +10,9 @@ from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.plan_record import PlanRecord
 from ..analysis.records import versions, working_folder
 from ..caution import CAUTION
+from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
-from .charts import error_by_block_chart
 from .html import report_page
 from .plan_page import plan_page
 from .spread import ensemble_chart, method_spread_chart

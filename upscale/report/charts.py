@@ -209,10 +209,12 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
     cells = [b.cells for b in plan.blocks]
     limit = 100 * plan.max_error
     ax.axhspan(0.0, limit, color="#d9d9d9", alpha=0.6, zorder=0, label=f"within {limit:g} %")
-    ax.axhline(limit, color="black", linestyle="--", linewidth=1.0, label=f"largest error accepted: {limit:g} %")
+    ax.axhline(limit, color="black", linestyle="--", linewidth=1.0,
+               label=f"largest error accepted: {limit:g} %")  # fmt: skip
     largest = limit
     for i, method in enumerate(plan.methods):
-        errors = np.array([np.nan if b.largest_error is None else 100 * b.largest_error for b in method.blocks])
+        errors = np.array([np.nan if b.largest_error is None else 100 * b.largest_error
+                           for b in method.blocks])  # fmt: skip
         largest = max(largest, float(np.nanmax(errors)) if np.isfinite(errors).any() else 0.0)
         ax.plot(cells, errors, marker="os^Dv<>"[(i + i // 7) % 7], markersize=6, linewidth=1.4,
                 label=method.name, clip_on=False, **style_of(i))  # fmt: skip
