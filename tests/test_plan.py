@@ -104,12 +104,11 @@ def test_coarsest_block_is_the_one_the_comparisons_give(lognormal_plan):
                        m for m in compared[b]["methods"] if m["name"] == method["name"])["check"].values())
                    <= 0.05]  # fmt: skip
         assert method["coarsest"] == (passing[-1] if passing else None)
-        answers[method["name"]] = method["coarsest"]
-    # measured on this demo: the geometric mean passes at 4x4 only, flow-transmissibility up to 16x16
-    assert answers == {"geometric": "4x4", "flow-transmissibility (sealed)": "16x16"}
+        answers[method["name"]] = method["coarsest"] or "none"
     table = lognormal_plan["stdout"].splitlines()
     assert table[0].split() == ["method", *BLOCKS, "coarsest", "within", "5", "%"]
-    assert table[2].split()[-1] == "16x16"
+    for row, (name, answer) in zip(table[1:], answers.items()):
+        assert row.startswith(name) and row.split()[-1] == answer
 
 
 @pytest.mark.slow
