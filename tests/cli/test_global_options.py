@@ -3,11 +3,11 @@
 What is tested
 --------------
 * ``--help`` of the group and of every command lists the three options.
-* Every command (run, compare, check, info, demo) with ``-q`` after it
+* Every command (run, compare, plan, check, info, demo) with ``-q`` after it
   prints exactly what it prints with ``-q`` before it; for run, compare,
-  check and demo that is nothing at all. ``-q`` after the command wins over
+  plan, check and demo that is nothing at all. ``-q`` after the command wins over
   ``-v`` before it, as ``-q -v`` does.
-* ``-v`` after the command gives the progress lines of run and compare on
+* ``-v`` after the command gives the progress lines of run, compare and plan on
   a stderr that is not a terminal (pytest's capture), and every ``-v``
   counts wherever it stands: ``-v info F -v`` logs debug messages as
   ``-vv info F`` does, and ``-v info F`` does not.
@@ -53,13 +53,14 @@ def _commands(field, finished, out):
     return {
         "run": ["run", field, "--block", "8x8", "--method", "geometric", "--out", out],
         "compare": ["compare", field, "--block", "8x8", "--methods", "geometric,harmonic", "--out", out],
+        "plan": ["plan", field, "--blocks", "4x4,8x8", "--methods", "geometric,harmonic", "--out", out],
         "check": ["check", finished, "--solver", "direct"],
         "info": ["info", field],
         "demo": ["demo", "--out", out],
     }
 
 
-COMMANDS = ["run", "compare", "check", "info", "demo"]
+COMMANDS = ["run", "compare", "plan", "check", "info", "demo"]
 
 
 @pytest.mark.parametrize("command", [[], *([c] for c in COMMANDS)], ids=["upscale", *COMMANDS])
@@ -87,10 +88,11 @@ def test_quiet_after_the_command_wins_over_verbose_before_it(run_cli, field, fin
 
 
 #: The first words of a progress line of each command that tells its progress.
-PROGRESS = {"run": "upscale: reading ", "compare": "upscale: [1/2] geometric"}
+PROGRESS = {"run": "upscale: reading ", "compare": "upscale: [1/2] geometric",
+            "plan": "upscale: 4x4 [1/2] geometric"}
 
 
-@pytest.mark.parametrize("command", ["run", "compare"])
+@pytest.mark.parametrize("command", ["run", "compare", "plan"])
 def test_verbose_after_the_command_tells_the_progress(run_cli, field, finished, tmp_path, command):
     code, _, err = run_cli(*_commands(field, finished, tmp_path / "out")[command], "-v")
     assert code == 0, err
@@ -121,6 +123,7 @@ def test_debug_after_the_command_raises_the_error(field, tmp_path, command):
     argv = {
         "run": ["run", missing, "--block", "8x8", "--method", "geometric", "--out", tmp_path / "o"],
         "compare": ["compare", missing, "--block", "8x8", "--out", tmp_path / "o"],
+        "plan": ["plan", missing, "--blocks", "4x4,8x8", "--out", tmp_path / "o"],
         "check": ["check", tmp_path],  # no summary.json here
         "info": ["info", missing],
         "demo": ["demo", "--out", full],  # holds files, and no --overwrite

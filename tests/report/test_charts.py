@@ -15,6 +15,11 @@ What is tested
   twelve candidates.
 * When no method is within the ±5 % band, the check-error chart says so
   (and does not when one is).
+* Error against block size (``upscale plan``): one line per method through
+  its largest error at each block, on a log axis of the fine cells per block
+  labelled with the blocks, the largest error accepted drawn as a line, the
+  errors in plain percent on a symmetric-log axis; a warning when no method
+  passes at any block.
 
 Data come from real comparisons (`compare_methods`) or, for the ensemble
 charts, from hand-built records of ``ensemble.json``.
@@ -155,3 +160,46 @@ def test_error_chart_warns_when_no_method_is_within_the_band():
     good = compare_methods(Field.from_arrays(np.full((8, 8), 5.0)), "4x4", candidates(["geometric"]))
     (ax,) = error_bars(good).axes
     assert not any("band" in t.get_text() for t in (ax.title, *ax.texts, *ax.figure.texts))
+
+
+# --- error against block size (upscale plan) ---------------------------------------------------
+
+
+def _plan_chart(field: np.ndarray, methods: list[str], blocks: list[str], max_error: float = 0.05):
+    from upscale.analysis.plan import plan_blocks
+    from upscale.analysis.plan_record import plan_record
+    from upscale.grid import BlockSpec
+    from upscale.report.charts import error_by_block_chart
+
+    plan = plan_blocks(Field.from_arrays(field), [BlockSpec.parse(b) for b in blocks], candidates(methods),
+                       max_error=max_error)  # fmt: skip
+    record = plan_record(plan)
+    (ax,) = error_by_block_chart(record).axes
+    return record, ax
+
+
+def test_error_by_block_chart_has_one_line_per_method_on_a_log_axis_of_the_coarsening_factor():
+    field = uncorrelated_lognormal((32, 32), seed=508_812_376, sigma_ln=1.0)
+    record, ax = _plan_chart(field, ["geometric", "arithmetic", "harmonic"], ["2x2", "4x4", "8x8", "16x16"])
+    assert ax.get_xscale() == "log" and ax.get_yscale() == "symlog"
+    FigureCanvasAgg(ax.figure).draw()
+    assert list(ax.get_xticks()) == [4, 16, 64, 256]  # fine cells per block
+    labels = [t.get_text() for t in ax.get_xticklabels()]
+    assert labels == ["2x2\n(4)", "4x4\n(16)", "8x8\n(64)", "16x16\n(256)"]
+    lines = [line for line in ax.get_lines() if line.get_label() in {m.name for m in record.methods}]
+    assert [line.get_label() for line in lines] == ["geometric", "arithmetic", "harmonic"]
+    for line, planned in zip(lines, record.methods):
+        assert list(line.get_ydata()) == pytest.approx([100 * b.largest_error for b in planned.blocks])
+    [limit] = [line for line in ax.get_lines() if line.get_label().startswith("largest error accepted")]
+    assert list(limit.get_ydata()) == [5.0, 5.0]
+    _assert_plain_percent(_shown_labels(ax))
+    # every point lies inside the axis
+    low, high = ax.get_ylim()
+    assert all(low <= 100 * b.largest_error <= high for m in record.methods for b in m.blocks)
+
+
+def test_error_by_block_chart_warns_when_no_method_passes_at_any_block():
+    _, ax = _plan_chart(LAYERS, ["arithmetic", "harmonic"], ["2x2", "4x4"])
+    assert "No method is within 5 % at any block listed" in ax.title.get_text()
+    _, ax = _plan_chart(np.full((8, 8), 5.0), ["geometric"], ["2x2", "4x4"])
+    assert ax.title.get_text() == ""

@@ -13,9 +13,12 @@ What is tested
   no number cell of the ranking breaks over two lines, the page is no
   wider than the window and no figure wider than 1100 px; the bound in the
   ranking (harmonic) carries its mark.
-* A screenshot of the original page (1280 x 4000) is kept as a test artifact
-  in ``$UPSCALE_ARTIFACTS`` or ``<repo>/test-artifacts/``, and must be a
-  non-empty PNG of that size.
+* The page of ``upscale plan`` the same way: loads without errors, its one figure decodes,
+  its table has one row per method with the error at every block and the coarsest block
+  (in bold in its row), no number cell wraps, self-contained with command and checksum.
+* A screenshot of the original page (1280 x 4000; the plan's page 1280 x
+  2400) is kept as a test artifact in ``$UPSCALE_ARTIFACTS`` or
+  ``<repo>/test-artifacts/``, and must be a non-empty PNG of that size.
 * The page is self-contained (no http(s) or protocol-relative references, no
   scripts, no stylesheet links; figures are the PNG files of figures/ as
   data URIs) and carries the caution, the exact command line (after a ``cd``
@@ -130,16 +133,21 @@ def test_number_cells_stay_on_one_line_and_the_page_fits_the_window(verdict):
     assert 0 < verdict["widest_image"] <= 1100  # the page's width for figures (report/layout.py)
 
 
-def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
-    target = _artifacts() / "report-screenshot.png"
+def _screenshot(chromium: str, page: Path, name: str, height: int, profile: Path) -> None:
+    """Save a 1280 x `height` screenshot of `page` as the artifact `name`, and check it is that PNG."""
+    target = _artifacts() / name
     target.unlink(missing_ok=True)
-    options = [f"--screenshot={target}", "--window-size=1280,4000", "--virtual-time-budget=10000"]
-    done = browse(chromium, tmp_path / "profile", "--hide-scrollbars", *options, report["page"].as_uri())
+    options = [f"--screenshot={target}", f"--window-size=1280,{height}", "--virtual-time-budget=10000"]
+    done = browse(chromium, profile, "--hide-scrollbars", *options, page.as_uri())
     assert target.is_file(), f"no screenshot (exit {done.returncode}): {done.stderr[-2000:]}"
     data = target.read_bytes()
     assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
-    width, height = struct.unpack(">II", data[16:24])  # the IHDR chunk
-    assert (width, height) == (1280, 4000)
+    width, shown = struct.unpack(">II", data[16:24])  # the IHDR chunk
+    assert (width, shown) == (1280, height)
+
+
+def test_screenshot_is_saved_as_an_artifact(report, chromium, tmp_path):
+    _screenshot(chromium, report["page"], "report-screenshot.png", 4000, tmp_path / "profile")
 
 
 def test_a_wide_ranking_keeps_its_numbers_on_one_line(chromium, tmp_path):
@@ -190,3 +198,80 @@ def test_page_has_the_caution_command_and_checksum(report):
     assert summary["inputs"][0]["sha256"] == sha256 and summary["command"] == report["command"]
     # the verdict names the best method of compare.json
     assert f"Best on this field: <strong>{html.escape(summary['best'])}</strong>" in page
+
+
+# --- the page of a plan (upscale plan) -----------------------------------------------------------
+
+PLAN_METHODS = "geometric,harmonic,flow-transmissibility"
+PLAN_BLOCKS = ["8x8", "16x16", "32x32"]
+
+
+@pytest.fixture(scope="module")
+def plan_report(demo_dir, tmp_path_factory):
+    """``upscale -q plan`` of the lognormal demo at three blocks with three methods."""
+    field = demo_dir / "marrowfen_lognormal.tif"
+    out = tmp_path_factory.mktemp("plan") / "plan"
+    args = ["-q", "plan", str(field), "--blocks", ",".join(PLAN_BLOCKS), "--methods", PLAN_METHODS,
+            "--out", str(out)]  # fmt: skip
+    assert main(args) == 0
+    return {"field": field, "out": out, "command": ["upscale", *args], "page": out / "report.html"}
+
+
+PLAN_VERDICT = """  var verdict = {
+    errors: window.__problems,
+    images: Array.prototype.map.call(document.images, function (img) {
+      return {figure: img.parentElement.id, complete: img.complete, width: img.naturalWidth,
+              height: img.naturalHeight, shown: img.width};
+    }),
+    head: Array.prototype.map.call(document.querySelectorAll("#plan th"), function (th) {
+      return th.textContent; }),
+    rows: Array.prototype.map.call(document.querySelectorAll("#plan tr.method"), function (tr) {
+      return Array.prototype.map.call(tr.cells, function (td) { return td.textContent; }); }),
+    strong: Array.prototype.map.call(document.querySelectorAll("#plan strong"), function (s) {
+      return s.textContent; }),
+    wrapped: wrappedCells(),
+    overflow: document.documentElement.scrollWidth > window.innerWidth,
+    title: document.title
+  };
+"""
+
+
+@pytest.fixture(scope="module")
+def plan_verdict(plan_report, chromium, tmp_path_factory):
+    """What the probe saw when Chromium loaded a probed copy of the plan's page."""
+    return probe(chromium, plan_report["page"], tmp_path_factory.mktemp("plan-probe"), PLAN_VERDICT)
+
+
+@pytest.mark.slow
+def test_plan_page_loads_and_shows_every_method_at_every_block(plan_verdict, plan_report):
+    plan = json.loads((plan_report["out"] / "plan.json").read_text())
+    assert plan_verdict["errors"] == []
+    assert plan_verdict["title"] == f"upscale — how coarse can {plan_report['field']} go?"
+    [image] = plan_verdict["images"]
+    assert image["figure"] == "error_by_block" and image["complete"] and image["width"] > 0
+    assert 0 < image["shown"] <= 1100  # the page's width for figures (report/layout.py)
+    assert plan_verdict["head"] == ["method", *(f"error at {b}" for b in PLAN_BLOCKS), "coarsest within 5 %"]
+    # one row per method, in plan.json's order, its coarsest block last and in bold in its row
+    assert [row[0] for row in plan_verdict["rows"]] == [m["name"] for m in plan["methods"]]
+    for row, planned in zip(plan_verdict["rows"], plan["methods"]):
+        assert row[1:-1] == [f"{100 * b['largest_error']:.2f} %" for b in planned["blocks"]]
+        assert row[-1] == (planned["coarsest"] or "none")
+    coarsest = [m for m in plan["methods"] if m["coarsest"]]
+    assert len(plan_verdict["strong"]) == len(coarsest) >= 1
+    assert plan_verdict["wrapped"] == [] and not plan_verdict["overflow"]
+
+
+def test_plan_page_is_self_contained_with_the_command_and_checksum(plan_report):
+    page = plan_report["page"].read_text(encoding="utf-8")
+    assert_self_contained(page)
+    assert f'<p class="caution">{html.escape(CAUTION)}</p>' in page
+    reproduce = f"cd {shlex.quote(os.getcwd())} && {shlex.join(plan_report['command'])}"
+    assert f"<pre><code>{html.escape(reproduce)}</code></pre>" in page
+    assert f"<code>{hashlib.sha256(plan_report['field'].read_bytes()).hexdigest()}</code>" in page
+    embedded = re.findall(r'src="data:image/png;base64,([^"]+)"', page)
+    assert [base64.b64decode(d) for d in embedded] == [
+        (plan_report["out"] / "figures" / "error_by_block.png").read_bytes()]
+
+
+def test_plan_page_screenshot_is_saved_as_an_artifact(plan_report, chromium, tmp_path):
+    _screenshot(chromium, plan_report["page"], "plan-report-screenshot.png", 2400, tmp_path / "profile")

@@ -215,6 +215,7 @@ def compare_methods(
     tolerance: float = 1e-10,
     report: Callable[[int, int, Candidate, Entry | None], None] | None = None,
     say: Say = silent,
+    fine_flows: dict[str, AxisFlow] | None = None,
 ) -> Comparison:
     """Upscale `field` with every candidate, check each against one fine solve, and rank.
 
@@ -233,6 +234,10 @@ def compare_methods(
         and after it — for progress messages.
     say : callable, optional
         Told when the fine solves start and end (silent by default).
+    fine_flows : dict of str to AxisFlow, optional
+        The fine solves of the check, from `shared_fine_solves` on the same
+        fine field as used here (a plan shares them between block sizes);
+        solved here when None.
 
     Returns
     -------
@@ -251,8 +256,8 @@ def compare_methods(
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     spec.check(field.shape, field.ndim)
     fine = field.leading(spec.used_shape(field.shape))
-    with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)}"):
-        fine_flows = fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
+    if fine_flows is None:
+        fine_flows = shared_fine_solves(fine, solver=solver, tolerance=tolerance, say=say)
     entries = []
     for i, candidate in enumerate(chosen):
         if report:
@@ -276,6 +281,28 @@ def compare_methods(
     ranked = [dataclasses.replace(e, rank=r + 1) for r, e in enumerate(ran)]
     failed = [e for e in entries if e.error is not None]
     return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen))
+
+
+def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 1e-10,
+                       say: Say = silent) -> dict[str, AxisFlow]:  # fmt: skip
+    """The fine solves every method of a comparison is checked against, solved once.
+
+    Parameters
+    ----------
+    fine : Field
+        The fine field as compared (cropped to whole blocks when asked).
+    solver, tolerance
+        Linear solves of the checks (see `upscale.check.check_flow`).
+    say : callable, optional
+        Told when the fine solves start and end (silent by default).
+
+    Returns
+    -------
+    dict of str to AxisFlow
+        Per checked flow, the fine solve.
+    """
+    with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)}"):
+        return fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
 
 
 def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0) -> Comparison:

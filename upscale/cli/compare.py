@@ -13,7 +13,6 @@ from ..export import check_destination
 from ..field import PERMEABILITY
 from ..io.realizations import expand
 from ..jobs.compare import compare_ensemble, compare_file
-from ..methods.registry import METHODS
 from ..report.verdict import bound_note, one_method, outside_band
 from .options import (
     block_options,
@@ -21,7 +20,9 @@ from .options import (
     check_options,
     field_options,
     global_options,
+    method_options,
     parse_chunk,
+    parse_methods,
     read_options,
     recorded,
 )
@@ -29,22 +30,10 @@ from .progress import teller
 from .report import number, print_notes, print_spread, table
 
 
-def _methods(text: str | None) -> list[str] | None:
-    return None if not text else [m.strip() for m in text.split(",") if m.strip()]
-
-
 @click.command(epilog=f"Caution: {CAUTION}")
 @click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @block_options
-@click.option("--methods", default=None, metavar="A,B,...",
-              help=f"Methods to compare (default: all): {', '.join(METHODS)}. 'flow' without --bc "
-              "stands for its three boundary conditions.")
-@click.option("--exponent", type=float, default=None,
-              help="Exponent ω of the power average [default: 1/3].")
-@click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
-              help="Boundary conditions of the flow methods [default: all three for flow].")
-@click.option("--border", type=int, default=None, metavar="CELLS",
-              help="Border of the flow methods' local solves, in fine cells [default: 0].")
+@method_options
 @click.option("--layer", type=click.IntRange(min=1), default=None,
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @field_options
@@ -82,7 +71,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
       upscale compare 'realizations/*.tif' --block 8x8 --methods geometric,flow --out cmp/
     """
     check_destination(out, overwrite)
-    chosen = candidates(_methods(methods), bc=bc, border=border, exponent=exponent)
+    chosen = candidates(parse_methods(methods), bc=bc, border=border, exponent=exponent)
     spec = block_spec(options)
     read = read_options(options)
     say = teller(ctx)

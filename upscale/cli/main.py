@@ -66,9 +66,10 @@ def _register() -> None:
     from .compare import compare
     from .demo import demo
     from .info import info
+    from .plan import plan
     from .run import run
 
-    for command in (run, compare, check, info, demo):
+    for command in (run, compare, plan, check, info, demo):
         cli.add_command(command)
 
 

@@ -15,6 +15,7 @@ from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
+from ..methods.registry import METHODS
 from ..units import UNITS
 
 
@@ -194,10 +195,15 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
 
 def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """The block partition and its rules (shared by run and compare); see `block_spec`."""
+    command = block_rule_options(command)
+    return click.option("--block", required=True, metavar="NXxNY[xNZ]",
+                        help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
+                        "8x8x2 adds 2 layers.")(command)  # fmt: skip
+
+
+def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The rules of a block partition: remainder, least active fraction, zero k (run, compare, plan)."""
     options = [
-        click.option("--block", required=True, metavar="NXxNY[xNZ]",
-                     help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
-                     "8x8x2 adds 2 layers."),
         click.option("--remainder", type=click.Choice(REMAINDER_POLICIES), default="stop",
                      show_default=True, help="When the grid does not divide into whole blocks: stop "
                      "with an error, crop the last cells, or keep smaller edge blocks."),
@@ -219,8 +225,37 @@ def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
 
 def block_spec(options: dict[str, Any]) -> BlockSpec:
     """Turn the values of `block_options` into the `BlockSpec` they describe."""
-    return BlockSpec.parse(options.pop("block"), remainder=options.pop("remainder"),
-                           min_active=options.pop("min_active"), zero_k=options.pop("zero_k"))  # fmt: skip
+    return block_specs(options.pop("block"), options)[0]
+
+
+def block_specs(text: str, options: dict[str, Any]) -> list[BlockSpec]:
+    """``"4x4,8x8"`` and the values of `block_rule_options` (taken from `options`) -> one `BlockSpec` each."""
+    rules = {"remainder": options.pop("remainder"), "min_active": options.pop("min_active"),
+             "zero_k": options.pop("zero_k")}  # fmt: skip
+    return [BlockSpec.parse(part, **rules) for part in text.split(",")]
+
+
+def method_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The methods compared and their shared options (compare, plan); see `parse_methods`."""
+    options = [
+        click.option("--methods", default=None, metavar="A,B,...",
+                     help=f"Methods to compare (default: all): {', '.join(METHODS)}. 'flow' without --bc "
+                     "stands for its three boundary conditions."),
+        click.option("--exponent", type=float, default=None,
+                     help="Exponent ω of the power average [default: 1/3]."),
+        click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
+                     help="Boundary conditions of the flow methods [default: all three for flow]."),
+        click.option("--border", type=int, default=None, metavar="CELLS",
+                     help="Border of the flow methods' local solves, in fine cells [default: 0]."),
+    ]  # fmt: skip
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def parse_methods(text: str | None) -> list[str] | None:
+    """``--methods``: ``"a,b"`` -> ``["a", "b"]``; None (every method) when not given."""
+    return None if not text else [m.strip() for m in text.split(",") if m.strip()]
 
 
 def check_options(command: Callable[..., Any]) -> Callable[..., Any]:

@@ -7,11 +7,14 @@ from typing import Any
 
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
+from ..analysis.plan_record import PlanRecord
 from ..analysis.records import versions, working_folder
 from ..caution import CAUTION
+from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
+from .plan_page import plan_page
 from .spread import ensemble_chart, method_spread_chart
 from .verdict import bound_mark, bound_note, outside_band
 
@@ -183,6 +186,41 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]
     return Bundle(images, ensemble_page(job, head, rows, shown))
+
+
+def plan_bundle(plan: PlanRecord, *, title: str, command: list[str]) -> Bundle:
+    """The figure and the page of a plan (``upscale plan``).
+
+    Parameters
+    ----------
+    plan : PlanRecord
+        From `upscale.analysis.plan_record.plan_record`.
+    title : str
+        Page title.
+    command : list of str
+        The command line.
+    """
+    limit = f"{100 * plan.max_error:g} %"
+    plots = [Plot("error_by_block", error_by_block_chart(plan),
+                  "Largest check error of each method (one line each) against the fine cells per block, "
+                  f"with the largest error accepted ({limit}, dashed): a method's answer is the rightmost "
+                  "point inside the grey band. A line that dips back into the band at a coarser block "
+                  "owes that to errors that cancel.")]  # fmt: skip
+    images, shown = _rendered(plots)
+    shape, fine = plan.fine.shape, plan.fine
+    job = {
+        "title": title, "command": command, "working_folder": working_folder(command),
+        "inputs": [i.to_dict() for i in plan.provenance.inputs], "caution": CAUTION, "versions": versions(),
+        "grid": f"{_dims((shape['layers'], shape['rows'], shape['columns']), plan.dimensions)} cells of "
+        f"{_size(fine.dx_m):g} m × {_size(fine.dy_m):g} m"
+        + (f", {sum(fine.dz_m):g} m thick in all" if plan.dimensions == 3 else ""),
+    }  # fmt: skip
+    return Bundle(images, plan_page(plan, shown, job))
+
+
+def _size(size: float | dict[str, float]) -> float:
+    """A cell size as recorded (`GridRecord`): one number, or the regular size beside the edge block's."""
+    return size["regular"] if isinstance(size, dict) else size
 
 
 def _block(block: dict[str, Any], axes: str) -> str:

@@ -1,18 +1,26 @@
-"""Charts: check errors per method, effective k against the bounds, histograms of log k."""
+"""Charts: check errors per method, effective k against the bounds, histograms of log k, error by block."""
 
 from __future__ import annotations
 
 import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
-from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, ScalarFormatter, SymmetricalLogLocator
+from matplotlib.ticker import (
+    FuncFormatter,
+    LogLocator,
+    MaxNLocator,
+    NullLocator,
+    ScalarFormatter,
+    SymmetricalLogLocator,
+)
 
 from ..analysis.compare import Comparison
+from ..analysis.plan_record import PlanRecord
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
 from .layout import LABEL, MAX_WIDTH, outer_labels, page_sizes, panel_grid, title
 from .style import PALETTE, style_of
-from .verdict import BAND, entry_name, one_method, outside_band
+from .verdict import BAND, entry_name, no_block_warning, one_method, outside_band
 
 #: Colour of warnings in figures (the page's colour for methods that failed).
 WARNING = "#8a1c1c"
@@ -183,5 +191,44 @@ def histograms(comparison: Comparison, unit: str) -> Figure:
     handles, labels = panels[0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=LABEL, frameon=False)
     title(fig, "Spread of kx (log scale): fine cells against coarse blocks")
+    page_sizes(fig)
+    return fig
+
+
+def error_by_block_chart(plan: PlanRecord) -> Figure:
+    """Largest check error of each method against the coarsening factor, with the largest error accepted.
+
+    One line per method; the x axis is the fine cells per block (log scale,
+    labelled with the blocks), the y axis the largest check error over the
+    checked flows in % (symmetric-log beyond ten times the accepted error,
+    so that errors of 1e-12 % and of 100 % share one axis). A method that did
+    not run at a block has no point there.
+    """
+    fig = Figure(figsize=(7.6, 4.8), layout="constrained")
+    ax = fig.subplots()
+    cells = [b.cells for b in plan.blocks]
+    limit = 100 * plan.max_error
+    ax.axhspan(0.0, limit, color="#d9d9d9", alpha=0.6, zorder=0, label=f"within {limit:g} %")
+    ax.axhline(limit, color="black", linestyle="--", linewidth=1.0,
+               label=f"largest error accepted: {limit:g} %")  # fmt: skip
+    largest = limit
+    for i, method in enumerate(plan.methods):
+        errors = np.array([np.nan if b.largest_error is None else 100 * b.largest_error
+                           for b in method.blocks])  # fmt: skip
+        largest = max(largest, float(np.nanmax(errors)) if np.isfinite(errors).any() else 0.0)
+        ax.plot(cells, errors, marker="os^Dv<>"[(i + i // 7) % 7], markersize=6, linewidth=1.4,
+                label=method.name, clip_on=False, **style_of(i))  # fmt: skip
+    ax.set_xscale("log", base=2)
+    ax.set_xticks(cells, [f"{b.name}\n({b.cells})" for b in plan.blocks])
+    ax.xaxis.set_minor_locator(NullLocator())
+    ax.set_yscale("symlog", linthresh=limit, linscale=1.0)
+    ax.yaxis.set_major_locator(SymmetricalLogLocator(linthresh=limit, base=10, subs=(1.0, 2.0, 5.0)))
+    ax.yaxis.set_major_formatter(FuncFormatter(percent))
+    ax.set_ylim(0.0, 1.5 * largest)
+    ax.set_xlabel("block (fine cells per block: the coarsening factor)")
+    ax.set_ylabel("largest check error over the checked flows")
+    warn_in(ax, no_block_warning(plan))
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside right center", fontsize=LABEL)
+    title(fig, "How coarse can the field go? Largest check error against the block size")
     page_sizes(fig)
     return fig

@@ -81,6 +81,20 @@ def notices_html(warning: str | None, note: str | None) -> str:
                    for kind, text in (("warning", warning), ("note", note)) if text)  # fmt: skip
 
 
+def inputs_html(inputs: list[dict[str, Any]]) -> str:
+    """The heading "Job and inputs" and the table of the input files (``role``, ``path``, ``sha256``)."""
+    rows = "\n".join(
+        f"<tr><td>{_e(i['role'])}</td><td class='text'>{_e(i['path'])}</td>"
+        f"<td class='text'><code>{_e(i['sha256'] or '–')}</code></td></tr>"
+        for i in inputs
+    )
+    return f"""<h2>Job and inputs</h2>
+<table>
+<tr><th>role</th><th>file</th><th>SHA-256</th></tr>
+{rows}
+</table>"""
+
+
 def document(title: str, body: str, job: dict[str, Any]) -> str:
     """A whole page: `body` (HTML) after the title, then how to reproduce, the versions, the cautions.
 
@@ -158,19 +172,10 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
             *(f"error along {a}" for a in axes), "time (s)"]  # fmt: skip
     best = comparison.best
     rows = "\n".join(_row(e, axes, best if ranked else None, ranked) for e in comparison.entries)
-    inputs = "\n".join(
-        f"<tr><td>{_e(i['role'])}</td><td class='text'>{_e(i['path'])}</td>"
-        f"<td class='text'><code>{_e(i['sha256'] or '–')}</code></td></tr>"
-        for i in job["inputs"]
-    )
     heading = ("Methods, ranked by the largest check error over the axes" if ranked
                else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
     return document(job["title"], f"""{_verdict(comparison, ranked)}
-<h2>Job and inputs</h2>
-<table>
-<tr><th>role</th><th>file</th><th>SHA-256</th></tr>
-{inputs}
-</table>
+{inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
 <h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model

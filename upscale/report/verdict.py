@@ -10,7 +10,10 @@ Shared by the pages, the figures and the terminal, so each fact is worded once:
 * a method that is a bound of the effective permeability
   (`upscale.methods.registry.Method.bound`) carries a note when it ranks
   first: its error cancels on this field, which is no evidence that it
-  captures the flow.
+  captures the flow;
+* a plan names each method's coarsest block within the error accepted, warns
+  when no method passes at any block, and notes a method that passes at a
+  coarse block but not at a finer one.
 """
 
 from __future__ import annotations
@@ -18,6 +21,7 @@ from __future__ import annotations
 import math
 
 from ..analysis.compare import Comparison, Entry
+from ..analysis.plan_record import PlanRecord
 from ..methods.registry import METHODS
 
 #: The band of check errors drawn and judged as acceptable (±5 %): a common engineering tolerance.
@@ -100,3 +104,21 @@ def bound_note(method: str, label: str) -> str | None:
     return (f"{label} is {article} {mark} of the effective permeability, not an estimate of it: it "
             "ranks first because its error cancels on this field, which is no evidence that it "
             "captures the flow.")  # fmt: skip
+
+
+def no_block_warning(plan: PlanRecord) -> str | None:
+    """The warning when no method is within the largest error accepted at any block, else None."""
+    if any(m.coarsest for m in plan.methods):
+        return None
+    return (f"No method is within {100 * plan.max_error:g} % at any block listed, not even at "
+            f"{plan.blocks[0].name}: try finer blocks or another method.")  # fmt: skip
+
+
+def uneven_note(plan: PlanRecord) -> str | None:
+    """A note naming the methods that pass at their coarsest block but not at some finer one, else None."""
+    uneven = [m.name for m in plan.methods if m.coarsest and not m.finer_all_meet]
+    if not uneven:
+        return None
+    return (f"{', '.join(uneven)}: within the error accepted at the coarsest block named but not at some "
+            "finer one — the error does not grow steadily with the block there, and may cancel by chance "
+            "at the coarser block; trust that answer less.")  # fmt: skip

@@ -1,0 +1,77 @@
+"""The plan job: every method at every block size on one field, checked once, written to a folder.
+
+`plan_file` is ``upscale plan``: it reads the field, refuses before any work
+what the check cannot rank or a plan cannot share (`upscale.analysis.plan.check_blocks`),
+checks every method at every block against one set of fine solves, and
+writes ``plan.json``, the figure and ``report.html``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from ..analysis.compare import Candidate
+from ..analysis.plan import Plan, check_blocks, check_max_error, plan_blocks
+from ..analysis.plan_record import PlanRecord, plan_record
+from ..export.comparison import PLAN, write_report_folder
+from ..grid import BlockSpec
+from ..io import read_field
+from ..steps import Say, Steps, silent
+from .compare import refuse_comparison
+
+
+def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: str | Path, *,
+              read: dict[str, Any], max_error: float = 0.05, chunk_bytes: int | None = None,
+              solver: str = "auto", tolerance: float = 1e-10, check_limit: int = 20_000_000,
+              recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
+              overwrite: bool = False, say: Say = silent) -> tuple[Plan, PlanRecord]:  # fmt: skip
+    """Plan the block size of the field in `path` and write ``plan.json``, the figure and the page.
+
+    Parameters
+    ----------
+    path : str
+        The fine field.
+    blocks : list of BlockSpec
+        Block sizes, finest first, with the same rules.
+    chosen : list of Candidate
+        From `upscale.analysis.compare.candidates`.
+    out : str or Path
+        The plan's folder.
+    read : dict
+        Keyword arguments of `upscale.read_field`.
+    max_error : float
+        Largest check error accepted, a fraction in (0, 1).
+    chunk_bytes, solver, tolerance, check_limit
+        As for a comparison (`upscale.jobs.compare.compare_file`).
+    recorded_read, command
+        Recorded in the outputs.
+    overwrite : bool
+        Replace the results in a folder that holds some.
+    say : callable, optional
+        Receives progress lines (silent by default).
+
+    Returns
+    -------
+    (Plan, PlanRecord)
+        The plan, and the content of ``plan.json`` as written.
+
+    Raises
+    ------
+    InputError
+        A field past `check_limit` or the memory, a block list `check_blocks`
+        refuses, a `max_error` out of range (all before any work).
+    """
+    check_max_error(max_error)
+    fine = read_field(path, chunk_bytes=chunk_bytes, block=blocks[-1].cells if blocks else (1, 1, 1), **read)
+    check_blocks(blocks, fine.shape, fine.ndim)
+    refuse_comparison(fine, check_limit, None)
+    plan = plan_blocks(fine, blocks, chosen, max_error=max_error, solver=solver, tolerance=tolerance,
+                       report=say, say=say)  # fmt: skip
+    record = plan_record(plan, command=command or [], read=recorded_read)
+    from ..report.bundle import plan_bundle  # matplotlib: the figures extra
+
+    with Steps(say)(None, "drawing the figure and writing"):
+        made = plan_bundle(record, title=f"upscale — how coarse can {path} go?", command=command or [])
+        write_report_folder(out, record, made.images, made.page, marker=PLAN, overwrite=overwrite)
+    return plan, record
