@@ -84,7 +84,7 @@ def test_layered_model_best_overall_is_the_first_method_exact_on_every_axis(laye
     # all three (in the order of METHODS) is tubes. The exact ones all tie, so they take the
     # first ranks in candidate order.
     assert layered.best.candidate.label == "tubes"
-    exact = [e for e in layered.ranked if e.worst_error < 1e-12]
+    exact = [e for e in layered.ranked if e.worst_error < 1e-10]  # the corner flow: two solves to 1e-10
     assert set(EXACT_ON_LAYERS) <= {e.candidate.label for e in exact}
     assert layered.ranked[: len(exact)] == exact
     order = [layered.candidates.index(e.candidate) for e in exact]

@@ -101,7 +101,7 @@ class EnsembleSummary:
     @property
     def axes(self) -> str:
         """The axes checked on some realization, e.g. ``"xy"`` (empty without a check)."""
-        return "".join(self.statistics["k_fine"])
+        return "".join(a for a in self.statistics["k_fine"] if a in ("x", "y", "z"))
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``ensemble.json``, key for key."""
