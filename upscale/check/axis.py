@@ -41,6 +41,22 @@ def flow_order(name: str) -> int:
     return ("x", "y", "z", *HELD_OUT).index(name)
 
 
+def flow_label(name: str) -> str:
+    """How tables and figures name a check flow.
+
+    Examples
+    --------
+    >>> flow_label("x"), flow_label("corner")
+    ('along x', 'corner to corner')
+    """
+    return "corner to corner" if name == "corner" else f"along {name}"
+
+
+def check_names(axes: tuple[str, ...] | str) -> tuple[str, ...]:
+    """The flows of a check on `axes`: the axes, then `HELD_OUT`."""
+    return (*axes, *HELD_OUT)
+
+
 @dataclass(frozen=True, eq=False)
 class AxisCheck:
     """Fine and coarse flow of one check flow: along an axis, or a held-out flow.

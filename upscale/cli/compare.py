@@ -127,8 +127,9 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
         rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
     header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {f}" for f in flows), "time s"]
     click.echo(table(header, rows))
-    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop; corner: the "
-               "held-out corner-to-corner flow, k = its rate over that of k = 1; rank: largest |error| of all)")
+    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop;\n"
+               " corner: the held-out corner-to-corner flow, k = its rate over that of k = 1;\n"
+               " rank: by the largest |error| over the axes and the corner flow)")
     compiling = sum(e.compiling for e in entries)
     if compiling >= 0.5:
         click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "

@@ -8,6 +8,7 @@ from typing import Any
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.records import versions, working_folder
+from ..check.axis import check_names, flow_label
 from ..caution import CAUTION
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
@@ -102,7 +103,7 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
                 continue
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
             values = [cell(v) for v in (s.p10, s.p50, s.p90, s.mean, s.min, s.max)]
-            rows.append([f"{name} along {axis}", *values, str(s.count)])
+            rows.append([f"{name} {flow_label(axis)}", *values, str(s.count)])
     errors = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
     name = ensemble.method.name
     worst = max(errors, key=abs) if errors else None
@@ -110,7 +111,8 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(),
         "verdict": f"{name} on {len(ensemble.realizations)} realizations: "
-        + (f"median check error within {100 * abs(worst):.2f} % on every axis." if errors else
+        + (f"median check error within {100 * abs(worst):.2f} % on every axis"
+           + (" and corner to corner." if "corner" in ensemble.statistics["rel_error"] else ".") if errors else
            "the check was not run."),
         "warning": outside_band(name, worst, several=False, measure="median check error",
                                 where="over these realizations") if errors else None,
@@ -150,7 +152,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     for m in methods:
         w = m.worst_error
         worst = [f"{100 * v:.2f} %" for v in (w.p10, w.p50, w.p90)] if w else ["–"] * 3
-        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error[a] else "–" for a in axes]
+        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error.get(a) else "–" for a in check_names(axes)]
         mean_rank = m.rank_in_realizations.mean
         mark = bound_mark(m.method)
         rows.append([str(m.rank or "–"), m.name + (f" ({mark})" if mark else ""),
@@ -171,15 +173,15 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
         "what": ("Methods ranked by the P50 over the realizations of their largest check error over "
-                 "the axes (methods that failed on some realizations after those that ran on all)"
-                 if several else "The method's largest check error over the axes, over the "
+                 "the axes and the corner-to-corner flow (methods that failed on some realizations after those that ran on all)"
+                 if several else "The method's largest check error over the axes and the corner-to-corner flow, over the "
                  "realizations") + "; the P10 and P90 show how much that varies from one realization "
         "to the next — with few realizations they are interpolated between the nearest ones.",
         "realizations": [r.to_dict() for r in ranking.realizations], "block": _block(ranking.block, axes),
         "percentiles": ranking.percentiles,
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
-            *(f"P50 error along {a}" for a in axes), "mean rank", "times first"]  # fmt: skip
+            *(f"P50 error {flow_label(a)}" for a in check_names(axes)), "mean rank", "times first"]  # fmt: skip
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]
     return Bundle(images, ensemble_page(job, head, rows, shown))
