@@ -86,7 +86,7 @@ class Entry:
 
     @property
     def worst_error(self) -> float:
-        """Largest ``|rel_error|`` over the axes and the held-out flows (inf for a failed method or a NaN error)."""
+        """Largest ``|rel_error|`` over the axes and the held-out flows (inf: failed, or a NaN error)."""
         if self.error is not None or not self.checks:
             return math.inf
         errors = [abs(c.rel_error) for c in self.checks.values()]

@@ -286,9 +286,11 @@ def method_spread(names: list[str], comparisons: list[ComparisonRecord]) -> list
     for label in [m.name for m in comparisons[0].methods]:
         entries = {name: c.method(label) for name, c in zip(names, comparisons)}
         ran = {name: e for name, e in entries.items() if e.error is None and e.check}
-        by_realization = {name: RealizationError(e.largest_error(axes),
-                                                 {a: e.check[a].rel_error for a in check_flows(axes, e.check)})
-                          for name, e in ran.items()}  # fmt: skip
+        by_realization = {
+            name: RealizationError(e.largest_error(axes),
+                                   {a: e.check[a].rel_error for a in check_flows(axes, e.check)})
+            for name, e in ran.items()
+        }
         flows = sorted({a for r in by_realization.values() for a in r.rel_error} | set(axes), key=flow_order)
         ranks = [e.rank for e in ran.values()]
         methods.append(MethodSpread(
@@ -371,8 +373,8 @@ class EnsembleRanking:
 
 
 #: How an ensemble ranks its methods, recorded beside the ranking.
-ENSEMBLE_RANKING = ("P50 over the realizations of the largest |rel_error| over the axes and the held-out corner "
-                    "flow, smallest first")  # fmt: skip
+ENSEMBLE_RANKING = ("P50 over the realizations of the largest |rel_error| over the axes and the held-out "
+                    "corner flow, smallest first")  # fmt: skip
 
 
 def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,

@@ -258,7 +258,7 @@ class AxisResult:
 
 
 def axis_results(checks: dict[str, AxisCheck]) -> dict[str, AxisResult]:
-    """`AxisResult` per flow (axes and held-out) from the ``AxisCheck`` objects of `upscale.check.check_flow`."""
+    """`AxisResult` per flow (axes, then held-out) from the ``AxisCheck``s of `upscale.check.check_flow`."""
     return {axis: AxisResult.from_dict(jsonable(c.summary())) for axis, c in checks.items()}
 
 

@@ -47,7 +47,7 @@ from ..field import Field, Grid
 from .steady import SteadyFlow, fixed_pressures
 from .transmissibility import Transmissibilities, transmissibilities
 
-#: Share of the blocks along y (at the x faces) and along x (at the y faces) that a corner region spans, rounded up.
+#: Share of the blocks along y (at the x faces) and along x (at the y faces) in a corner region, rounded up.
 FRACTION = 1 / 8
 
 
@@ -192,7 +192,8 @@ def _regions(trans: Transmissibilities, corners: Corners) -> tuple[tuple[np.ndar
     (rows_in, rows_out), (cols_in, cols_out) = corners.rows, corners.columns
     m, n = trans.shape[1:]
     # the faces x = 0 of the first rows and y = 0 of the first columns; mirrored at the outlet
-    inlet = _faces(index[:, :rows_in, :1], x_first[:, :rows_in], index[:, :1, :cols_in], y_first[:, :, :cols_in])
+    inlet = _faces(index[:, :rows_in, :1], x_first[:, :rows_in],
+                   index[:, :1, :cols_in], y_first[:, :, :cols_in])  # fmt: skip
     outlet = _faces(index[:, m - rows_out:, -1:], x_last[:, m - rows_out:],
                     index[:, -1:, n - cols_out:], y_last[:, :, n - cols_out:])  # fmt: skip
     return inlet, outlet

@@ -8,8 +8,8 @@ from typing import Any
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.records import versions, working_folder
-from ..check.axis import check_names, flow_label
 from ..caution import CAUTION
+from ..check.axis import check_names, flow_label
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
@@ -112,8 +112,8 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         "caution": CAUTION, "versions": versions(),
         "verdict": f"{name} on {len(ensemble.realizations)} realizations: "
         + (f"median check error within {100 * abs(worst):.2f} % on every axis"
-           + (" and corner to corner." if "corner" in ensemble.statistics["rel_error"] else ".") if errors else
-           "the check was not run."),
+           + (" and corner to corner." if "corner" in ensemble.statistics["rel_error"] else ".")
+           if errors else "the check was not run."),
         "warning": outside_band(name, worst, several=False, measure="median check error",
                                 where="over these realizations") if errors else None,
         "note": None,
@@ -173,15 +173,18 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
         "what": ("Methods ranked by the P50 over the realizations of their largest check error over "
-                 "the axes and the corner-to-corner flow (methods that failed on some realizations after those that ran on all)"
-                 if several else "The method's largest check error over the axes and the corner-to-corner flow, over the "
+                 "the axes and the corner-to-corner flow (methods that failed on some realizations after "
+                 "those that ran on all)"
+                 if several else "The method's largest check error over the axes and the corner-to-corner "
+                 "flow, over the "
                  "realizations") + "; the P10 and P90 show how much that varies from one realization "
         "to the next — with few realizations they are interpolated between the nearest ones.",
         "realizations": [r.to_dict() for r in ranking.realizations], "block": _block(ranking.block, axes),
         "percentiles": ranking.percentiles,
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
-            *(f"P50 error {flow_label(a)}" for a in check_names(axes)), "mean rank", "times first"]  # fmt: skip
+            *(f"P50 error {flow_label(a)}" for a in check_names(axes)), "mean rank",
+            "times first"]  # fmt: skip
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]
     return Bundle(images, ensemble_page(job, head, rows, shown))

@@ -78,7 +78,7 @@ def warn_in(ax: Axes, text: str | None) -> None:
 
 
 def error_bars(comparison: Comparison) -> Figure:
-    """Check error per method and flow (axes, then corner to corner; %), with the ±5 % band marked, and a warning when none is within."""
+    """Check error per method and flow (axes, then corner to corner; %), ±5 % band, a warning if none in."""
     ran = comparison.ranked
     axes_names = list(check_names(comparison.fine.axes))
     alone = one_method(comparison)

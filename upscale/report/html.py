@@ -116,7 +116,8 @@ def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None, ranked: bool) 
     if mark:
         label += f' <span class="bound">{_e(mark)}</span>'
     if entry.error is not None:
-        reason = f'<td class="text" colspan="{2 * len(axes) + len(HELD_OUT) + 1}">did not run: {_e(entry.error)}</td>'
+        span = 2 * len(axes) + len(HELD_OUT) + 1
+        reason = f'<td class="text" colspan="{span}">did not run: {_e(entry.error)}</td>'
         cells = [f"<td>{label}</td>", "<td>–</td>", reason]
         return f'<tr class="method failed">{"".join(cells)}</tr>'
     coarse = entry.result.coarse
@@ -164,7 +165,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
         f"<td class='text'><code>{_e(i['sha256'] or '–')}</code></td></tr>"
         for i in job["inputs"]
     )
-    heading = ("Methods, ranked by the largest check error over the axes and the corner-to-corner flow" if ranked
+    heading = ("Methods, ranked by the largest check error over the axes and corner to corner" if ranked
                else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 <h2>Job and inputs</h2>
