@@ -55,7 +55,7 @@ NOT_DOCUMENTED = {
     "upscale/field.py: kz was given for a 2D map; a map has no vertical permeability": _PYTHON_ONLY,
     "upscale/field.py: expected a 2D or 3D array, got": _PYTHON_ONLY,
     "upscale/check/axis.py: the fine and coarse grids differ in extent along": _PYTHON_ONLY,
-    "upscale/check/axis.py: the fine corner flow was solved for another block partition (": _PYTHON_ONLY,
+    "upscale/check/axis.py: the fine corner flow was solved for another block partition": _PYTHON_ONLY,
     "upscale/flow/corner.py: the corner region of the check spans": _PYTHON_ONLY,
     "upscale/methods/coarsen.py: the fine grid's": "an invariant: a raster's cells are uniform",
     "upscale/jobs/run.py: --plot and --report show the flow check, and": _ELIDED,

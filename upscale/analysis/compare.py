@@ -20,7 +20,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from ..check.axis import HELD_OUT, AxisCheck, coarse_check, fine_solves
+from ..check.axis import AxisCheck, coarse_check, fine_solves
 from ..compiling import compile_seconds
 from ..errors import InputError
 from ..field import Field
@@ -254,7 +254,7 @@ def compare_methods(
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
     spec.check(field.shape, field.ndim)
     fine = field.leading(spec.used_shape(field.shape))
-    with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)} and {', '.join(HELD_OUT)}"):
+    with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)} and corner to corner"):
         fine_flows = fine_solves(fine, fine.axes, coarse_grid=spec.coarse_grid(fine.grid), solver=solver,
                                  tolerance=tolerance)  # fmt: skip
     entries = []

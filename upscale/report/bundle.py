@@ -7,9 +7,9 @@ from typing import Any
 
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
-from ..analysis.records import versions, working_folder
+from ..analysis.records import check_flows, versions, working_folder
 from ..caution import CAUTION
-from ..check.axis import check_names, flow_label
+from ..check.axis import flow_label
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
@@ -142,6 +142,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         The command line.
     """
     axes, methods = ranking.axes, ranking.methods
+    flows = check_flows(axes, {name for m in methods for name in m.rel_error})  # none held out in old records
     n = len(ranking.realizations)
     plots = [Plot("spread", method_spread_chart(methods, axes, n),
                   "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
@@ -152,7 +153,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     for m in methods:
         w = m.worst_error
         worst = [f"{100 * v:.2f} %" for v in (w.p10, w.p50, w.p90)] if w else ["–"] * 3
-        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error.get(a) else "–" for a in check_names(axes)]
+        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error.get(a) else "–" for a in flows]
         mean_rank = m.rank_in_realizations.mean
         mark = bound_mark(m.method)
         rows.append([str(m.rank or "–"), m.name + (f" ({mark})" if mark else ""),
@@ -183,7 +184,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         "percentiles": ranking.percentiles,
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
-            *(f"P50 error {flow_label(a)}" for a in check_names(axes)), "mean rank",
+            *(f"P50 error {flow_label(a)}" for a in flows), "mean rank",
             "times first"]  # fmt: skip
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]
