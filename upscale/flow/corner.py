@@ -172,20 +172,26 @@ def corner_flow(
     >>> round(flow.mass_balance, 12), flow.rate > 0
     (0.0, True)
     """
-    solved = fixed_pressures(trans, *_regions(trans, corners), solver=solver, tolerance=tolerance)
+    solved = fixed_pressures(trans, *corner_faces(trans, corners), solver=solver, tolerance=tolerance)
     unit = unit_rate(trans.grid, corners, solver=solver, tolerance=tolerance)
     return CornerFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, corners=corners,
                       k_eff=solved.outflow / unit)  # fmt: skip
 
 
 def unit_rate(grid: Grid, corners: Corners, *, solver: str = "auto", tolerance: float = 1e-10) -> float:
-    """``Q_1``: the corner flow's rate on `grid` with k = 1 in every cell (m per unit of k)."""
-    ones = np.ones(grid.shape)
-    trans = transmissibilities(Field(ones, ones, None, None, grid))
-    return fixed_pressures(trans, *_regions(trans, corners), solver=solver, tolerance=tolerance).outflow
+    """``Q_1``: the corner flow's rate on `grid` with k = 1 in every cell (m per unit of k).
+
+    With k uniform and the regions through every layer, the pressure is the
+    same in every layer and no flow crosses them, so ``Q_1`` is solved on one
+    layer as thick as all of them: exact, and a 2D solve.
+    """
+    flat = Grid(dz=np.array([grid.dz.sum()]), dy=grid.dy, dx=grid.dx)
+    ones = np.ones(flat.shape)
+    trans = transmissibilities(Field(ones, ones, None, None, flat))
+    return fixed_pressures(trans, *corner_faces(trans, corners), solver=solver, tolerance=tolerance).outflow
 
 
-def _regions(trans: Transmissibilities, corners: Corners) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
+def corner_faces(trans: Transmissibilities, corners: Corners) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
     """The inlet and the outlet faces of `corners`: (cells, half-cell t) each, for `fixed_pressures`."""
     index = np.arange(int(np.prod(trans.shape))).reshape(trans.shape)
     (x_first, x_last), (y_first, y_last) = trans.boundary[2], trans.boundary[1]
