@@ -74,6 +74,7 @@ from PIL import Image
 from upscale.analysis.comparison_record import ComparisonRecord
 from upscale.analysis.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
 from upscale.caution import CAUTION
+from upscale.check.axis import flow_label
 from upscale.cli.main import main
 from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.methods.registry import METHODS as REGISTRY
@@ -81,6 +82,7 @@ from upscale.methods.registry import METHODS as REGISTRY
 SIZE = (32, 32)
 NAMES = ["r0", "r1", "r2", "r3"]
 AXES = "xy"
+FLOWS = (*AXES, "corner")  # every check also holds the held-out corner-to-corner flow
 #: Not in ranked order, so that the ranking shows in the order of the output.
 METHODS = "arithmetic,harmonic,geometric"
 #: The figures of a 2D comparison.
@@ -185,7 +187,7 @@ def _compare_rows(ensemble: dict) -> list[list[str]]:
         rows.append([str(m["rank"]), m["name"] + (f" ({mark} bound)" if mark else ""),
                      f"{m['ran']} / {m['ran'] + m['failed']}",
                      *(f"{100 * w[f'p{q}']:.2f} %" for q in PERCENTILES),
-                     *(f"{100 * m['rel_error'][a]['p50']:+.2f} %" for a in AXES),
+                     *(f"{100 * m['rel_error'][a]['p50']:+.2f} %" for a in FLOWS),
                      f"{mean_rank:.1f}", str(m["rank_in_realizations"]["first"])])  # fmt: skip
     return rows
 
@@ -194,11 +196,11 @@ def _run_rows(ensemble: dict) -> list[list[str]]:
     """The rows of the run page's table ``#spread``: k_eff as 4 significant digits, errors in %."""
     rows = []
     for quantity, label in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
-        for axis in AXES:
+        for axis in FLOWS:
             s = ensemble["statistics"][quantity][axis]
             values = [s[k] for k in ("p10", "p50", "p90", "mean", "min", "max")]
             cells = [f"{100 * v:+.2f} %" if quantity == "rel_error" else f"{v:.4g}" for v in values]
-            rows.append([f"{label} along {axis}", *cells, str(s["count"])])
+            rows.append([f"{label} {flow_label(axis)}", *cells, str(s["count"])])
     return rows
 
 
@@ -294,13 +296,13 @@ def test_spreads_are_the_percentiles_of_the_realizations(compared):
     assert sorted(methods) == sorted(METHODS.split(","))
     for label, m in methods.items():
         entries = [_entry(comparisons[name], label) for name in NAMES]
-        rel = {a: [e["check"][a]["rel_error"] for e in entries] for a in AXES}
-        worst = [max(abs(rel[a][i]) for a in AXES) for i in range(len(NAMES))]
+        rel = {a: [e["check"][a]["rel_error"] for e in entries] for a in FLOWS}
+        worst = [max(abs(rel[a][i]) for a in FLOWS) for i in range(len(NAMES))]  # the held-out flow too
         assert (m["ran"], m["failed"]) == (len(NAMES), 0), label
         _assert_spread(m["worst_error"], worst)
-        for axis in AXES:
+        for axis in FLOWS:
             _assert_spread(m["rel_error"][axis], rel[axis])
-        assert m["by_realization"] == {name: {"worst": worst[i], "rel_error": {a: rel[a][i] for a in AXES}}
+        assert m["by_realization"] == {name: {"worst": worst[i], "rel_error": {a: rel[a][i] for a in FLOWS}}
                                        for i, name in enumerate(NAMES)}, label  # fmt: skip
         ranks = [e["rank"] for e in entries]
         assert m["rank_in_realizations"] == {"mean": np.mean(ranks), "first": ranks.count(1)}, label
@@ -396,9 +398,9 @@ def test_run_ensemble_plot_and_report(ran):
         assert f"<td>{stats['k_fine'][axis]['p50']:.4g}</td>" in page
         assert f"<td>{stats['k_coarse'][axis]['p50']:.4g}</td>" in page
         assert f"<td>{100 * stats['rel_error'][axis]['p50']:+.2f} %</td>" in page
-    largest = max(abs(stats["rel_error"][a]["p50"]) for a in AXES)
+    largest = max(abs(stats["rel_error"][a]["p50"]) for a in FLOWS)
     assert (f"geometric on {len(NAMES)} realizations: median check error within {100 * largest:.2f} % "
-            "on every axis.") in page  # fmt: skip
+            "on every axis and corner to corner.") in page  # fmt: skip
     # --plot and --report also apply to each realization's own run
     for name in NAMES:
         files = _json(out / name / "summary.json")["files"]
@@ -505,8 +507,9 @@ def test_spread_table_has_a_row_per_method_or_quantity(verdict, page):
             m["name"] for m in page["ensemble"]["methods"]]  # fmt: skip
         assert verdict["head"][:3] == ["rank", "method", "ran"]
     else:  # one row per quantity and axis
-        assert [row[0] for row in verdict["rows"]] == [
-            f"{q} along {a}" for q in ("fine k_eff", "coarse k_eff", "error") for a in AXES]  # fmt: skip
+        quantities = ("fine k_eff", "coarse k_eff", "error")
+        labels = [f"{q} {flow_label(a)}" for q in quantities for a in FLOWS]
+        assert [row[0] for row in verdict["rows"]] == labels
         assert verdict["head"] == ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
     assert verdict["rows"] == page["rows"]
     assert all(len(row) == len(verdict["head"]) for row in verdict["rows"])

@@ -64,6 +64,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from upscale import BlockSpec, Field, check_flow, coarsen
+from upscale.field import Grid
+from upscale.flow import transmissibilities
+from upscale.flow.corner import CornerFlow, corner_faces, unit_rate
 from upscale.methods.registry import METHODS
 
 
@@ -340,7 +343,16 @@ def _precision(flow):
     """
     if not flow.connected or flow.outflow <= 0:
         return 1e-12
-    return _imbalance_bound(flow, TOLERANCE) / flow.outflow + 1e-12
+    found = _imbalance_bound(flow, TOLERANCE) / flow.outflow + 1e-12
+    if isinstance(flow, CornerFlow):  # k_eff = Q / Q_1: the precision of the k = 1 solve adds
+        grid = flow.trans.grid
+        flat = Grid(dz=np.array([grid.dz.sum()]), dy=grid.dy, dx=grid.dx)
+        ones = np.ones(flat.shape)
+        unit = transmissibilities(Field(ones, ones, None, None, flat))
+        boundary = sum(t.sum() for _, t in corner_faces(unit, flow.corners))
+        bound = TOLERANCE * (2.0 * unit.connections[2].sum() + boundary) + 1e-13 * boundary
+        found += bound / unit_rate(grid, flow.corners, tolerance=TOLERANCE)
+    return found
 
 
 def _imbalance_bound(flow, tolerance):
@@ -351,10 +363,13 @@ def _imbalance_bound(flow, tolerance):
     A_ii`` (its scaled residual). So ``|inflow - outflow| <= tolerance * sum_i A_ii``, plus
     the rounding of the two sums.
     """
-    a = {"z": 0, "y": 1, "x": 2}[flow.axis]
     solved = np.isfinite(flow.pressure).ravel()
     first, second, T = flow.trans.connections
     inside = solved[first] & solved[second]
+    if isinstance(flow, CornerFlow):  # the faces of the two corner regions
+        boundary = sum(t[solved[cells]].sum() for cells, t in corner_faces(flow.trans, flow.corners))
+        return tolerance * (2.0 * T[inside].sum() + boundary) + 1e-13 * boundary
+    a = {"z": 0, "y": 1, "x": 2}[flow.axis]
     t_in, t_out = (np.where(solved.reshape(flow.pressure.shape).take([i], axis=a), t, 0.0)
                    for i, t in zip((0, -1), flow.trans.boundary[a]))  # fmt: skip
     boundary = t_in.sum() + t_out.sum()

@@ -74,7 +74,7 @@ def test_a_flow_based_run_with_porosity_round_trips(fields, tmp_path, run_cli):
     record = _round_trip(out)
     assert record.tensor is not None and record.tensor.blocks == 6 * 4
     assert record.transmissibility is not None and record.active.coarse_pore_volume_m3 > 0
-    assert set(record.check.axes) == {"x", "y"} and record.check.skipped is None
+    assert set(record.check.axes) == {"x", "y", "corner"} and record.check.skipped is None
     assert record.statistics.fine["kx"].active == 16 * 24
 
 
@@ -85,7 +85,7 @@ def test_a_check_on_windows_and_no_check_round_trip(fields, tmp_path, run_cli):
     assert run_cli("-q", "run", fields["k"], "--block", "4x4", "--method", "geometric", "--no-check",
                    "--out", none)[0] == 0  # fmt: skip
     check = _round_trip(windows).check
-    assert check.skipped and check.windows and set(check.spread) == {"x", "y"} and not check.axes
+    assert check.skipped and check.windows and set(check.spread) == {"x", "y", "corner"} and not check.axes
     assert _round_trip(none).check is None
 
 

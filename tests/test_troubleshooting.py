@@ -56,6 +56,8 @@ NOT_DOCUMENTED = {
     "upscale/field.py: expected a 2D or 3D array, got": _PYTHON_ONLY,
     "upscale/check/axis.py: the fine and coarse grids differ in extent along": _PYTHON_ONLY,
     "upscale/methods/global_flow.py: the fine flow along": _PYTHON_ONLY,
+    "upscale/check/axis.py: the fine corner flow was solved for another block partition": _PYTHON_ONLY,
+    "upscale/flow/corner.py: the corner region of the check spans": _PYTHON_ONLY,
     "upscale/methods/coarsen.py: the fine grid's": "an invariant: a raster's cells are uniform",
     "upscale/jobs/run.py: --plot and --report show the flow check, and": _ELIDED,
     "upscale/jobs/compare.py: a comparison ranks methods by the flow check, and": _ELIDED,

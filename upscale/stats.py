@@ -19,7 +19,7 @@ from typing import Any
 import numba as nb
 import numpy as np
 
-from ._elementary import JIT, as_float, as_int, ln
+from ._elementary import JIT, as_int, ln
 from .parallel import is_dask
 
 #: How many offending cells an error message names.

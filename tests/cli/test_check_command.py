@@ -32,7 +32,7 @@ def test_run_records_and_prints_the_check_per_axis(demo_dir, tmp_path, run_cli):
     )  # fmt: skip
     assert status == 0
     check = _summary(out)["check"]
-    assert set(check) == {"x", "y"}
+    assert set(check) == {"x", "y", "corner"}
     for c in check.values():
         assert c["rel_error"] == pytest.approx((c["k_coarse"] - c["k_fine"]) / c["k_fine"], rel=1e-12)
         assert c["fine"]["mass_balance"] < 1e-8 and c["coarse"]["mass_balance"] < 1e-8
@@ -63,7 +63,7 @@ def test_3d_run_checks_the_vertical_axis_too(demo_dir, tmp_path, run_cli):
     )  # fmt: skip
     assert status == 0
     check = _summary(out)["check"]
-    assert set(check) == {"x", "y", "z"}
+    assert set(check) == {"x", "y", "z", "corner"}
     # blocks of 5 whole layers in a layer cake: harmonic across layers is close to exact along z
     # (the lateral variability of each layer is mild), and too low along the layers
     assert abs(check["z"]["rel_error"]) < 0.05

@@ -115,7 +115,7 @@ def test_compare_json_agrees_with_each_method_run_alone(lognormal_compare, run_c
         compared = by_method[method]
         assert compared["parameters"] == summary["method"]["options"], method
         assert compared["error"] is None and compared["rank"] in (1, 2, 3, 4)
-        assert sorted(compared["check"]) == sorted(summary["check"]) == ["x", "y"]
+        assert list(compared["check"]) == list(summary["check"]) == ["x", "y", "corner"]
         for axis, check in summary["check"].items():
             assert compared["check"][axis]["fine"]["solver"] == check["fine"]["solver"] == "direct"
             for key in ("k_fine", "k_coarse", "rel_error"):
@@ -194,7 +194,8 @@ def test_progress_lines_on_stderr_per_method(cropped):
     n = len(CROPPED_METHODS)
     assert all(line.startswith("upscale: ") for line in stderr.splitlines())
     lines = [line.removeprefix("upscale: ") for line in stderr.splitlines()]
-    assert lines[0] == "solving the fine model along x, y ..." and lines[1].startswith(lines[0][:-4])
+    assert lines[0] == "solving the fine model along x, y and corner to corner ..."
+    assert lines[1].startswith(lines[0][:-4])
     lines = lines[2:]
     for i, name in enumerate(CROPPED_METHODS, start=1):
         assert f"[{i}/{n}] {name} ..." in lines

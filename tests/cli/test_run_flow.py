@@ -66,7 +66,7 @@ def test_flow_periodic_with_border_writes_tensor_and_check(run_cli, demo_dir, tm
     assert 1.0 <= tensor["anisotropy_median"] <= tensor["anisotropy_max"]
     assert 0.0 < tensor["off_diagonal_p95"] <= tensor["off_diagonal_max"]
     assert summary["transmissibility"] == {"rule": "harmonic half-block", "replaced_faces": 0}
-    assert set(summary["check"]) == {"x", "y"}
+    assert set(summary["check"]) == {"x", "y", "corner"}
     assert "tensor: anisotropy" in stdout and "off-diagonal" in stdout
     assert ("warning: off-diagonal permeability" in stdout) == (tensor["warning"] is not None)
 

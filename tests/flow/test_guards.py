@@ -403,7 +403,7 @@ def test_a_field_made_only_of_an_island(write_tif, run_cli, tmp_path):
         assert check[axis]["fine"]["connected"] is False
         assert check[axis]["fine"]["isolated_cells"] == 16
         assert check[axis]["fine"]["unknowns"] == 0
-    assert stdout.count("no path") == 4  # fine and coarse, x and y
+    assert stdout.count("no path") == 6  # fine and coarse, x, y and corner to corner
 
 
 # --------------------------------------------------------------------------------------

@@ -72,7 +72,8 @@ def test_a_run_report_is_the_check_of_its_method(run_cli, layered, tmp_path):
     page = _page(out)
     for contest in ("Best on this field", "Methods, ranked", "<th>rank</th>", 'class="method best"'):
         assert contest not in page, contest
-    assert "<strong>harmonic</strong> on this field: largest check error 36.00 % over the axes." in page
+    assert ("<strong>harmonic</strong> on this field: largest check error 36.00 % over the axes and the "
+            "corner-to-corner flow.") in page
     assert WARNING.findall(page) == [
         "harmonic is outside the ±5 % band on this field: its largest check error is 36.00 %."]
     assert NOTE.findall(page) == []  # alone, the bound ranks against nothing

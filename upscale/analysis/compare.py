@@ -1,9 +1,11 @@
 """Stage 6: several methods on one field, checked against one shared fine solve and ranked.
 
 `compare_methods` upscales the field with each method, solves the coarse
-model of each under the same pressure drops as the fine model — the fine
+model of each under the same pressure drops as the fine model and under the
+held-out corner-to-corner flow (`upscale.check.axis.HELD_OUT`) — the fine
 solves are done once and shared — and ranks the methods by their largest
-absolute check error over the axes. A method that cannot run on this field
+absolute check error over the axes and the held-out flow: a method fitted to
+the axis flows cannot win by them alone. A method that cannot run on this field
 (renormalization on a block that is not a power of two, a harmonic mean of
 zeros...) is kept in the list with its reason instead of stopping the
 comparison.
@@ -18,11 +20,12 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from ..check.axis import AxisCheck, coarse_check, fine_solves
+from ..check.axis import HELD_OUT, AxisCheck, coarse_check, fine_solves, held_out_solves
 from ..compiling import compile_seconds
 from ..errors import InputError
-from ..field import Field
+from ..field import Field, Grid
 from ..flow import AxisFlow
+from ..flow.corner import CornerFlow
 from ..grid import BlockSpec
 from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import METHODS, check_exponent
@@ -61,13 +64,13 @@ class Entry:
     result : Upscaled or None
         None when the method failed.
     checks : dict of str to AxisCheck
-        Per axis, the shared fine solve and this method's coarse solve.
+        Per axis, then per held-out flow, the shared fine solve and this method's coarse solve.
     seconds : float
         Time to upscale and solve the coarse checks, without compiling kernels.
     error : str or None
         Why the method could not run on this field.
     rank : int or None
-        1 for the smallest largest-error; None for a failed method.
+        1 for the smallest `worst_error`; None for a failed method.
     compiling : float
         Time spent compiling kernels on their first use meanwhile (s; see
         `upscale.compiling`), left out of `seconds`.
@@ -83,7 +86,7 @@ class Entry:
 
     @property
     def worst_error(self) -> float:
-        """Largest ``|rel_error|`` over the axes (inf for a failed method or a NaN error)."""
+        """Largest ``|rel_error|`` over the axes and the held-out flows (inf: failed, or a NaN error)."""
         if self.error is not None or not self.checks:
             return math.inf
         errors = [abs(c.rel_error) for c in self.checks.values()]
@@ -101,8 +104,8 @@ class Comparison:
     block : BlockSpec
     entries : list of Entry
         In rank order; failed methods last.
-    fine_flows : dict of str to AxisFlow
-        The fine pressure-drop solve along each axis.
+    fine_flows : dict of str to (AxisFlow or CornerFlow)
+        The fine pressure-drop solve along each axis, then the held-out flows.
     candidates : list of Candidate
         The candidates in the order given (which breaks ties).
     """
@@ -110,7 +113,7 @@ class Comparison:
     fine: Field
     block: BlockSpec
     entries: list[Entry]
-    fine_flows: dict[str, AxisFlow]
+    fine_flows: dict[str, AxisFlow | CornerFlow]
     candidates: list[Candidate]
 
     @property
@@ -258,6 +261,8 @@ def compare_methods(
     fine = field.leading(spec.used_shape(field.shape))
     if fine_flows is None:
         fine_flows = shared_fine_solves(fine, solver=solver, tolerance=tolerance, say=say)
+    fine_flows = with_held_out(fine_flows, spec.coarse_grid(fine.grid), solver=solver, tolerance=tolerance,
+                               say=say)  # fmt: skip
     entries = []
     for i, candidate in enumerate(chosen):
         if report:
@@ -285,7 +290,11 @@ def compare_methods(
 
 def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 1e-10,
                        say: Say = silent) -> dict[str, AxisFlow]:  # fmt: skip
-    """The fine solves every method of a comparison is checked against, solved once.
+    """The fine axis solves every method of a comparison is checked against, solved once.
+
+    They do not depend on the block partition, so a plan shares them between
+    block sizes; the held-out flows do (their regions are whole blocks) and
+    are added per partition by `with_held_out`.
 
     Parameters
     ----------
@@ -299,10 +308,34 @@ def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 
     Returns
     -------
     dict of str to AxisFlow
-        Per checked flow, the fine solve.
+        Per axis, the fine solve.
     """
     with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)}"):
         return fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
+
+
+def with_held_out(fine_flows: dict[str, AxisFlow | CornerFlow], coarse_grid: Grid, *, solver: str = "auto",
+                  tolerance: float = 1e-10, say: Say = silent) -> dict[str, AxisFlow | CornerFlow]:  # fmt: skip
+    """`fine_flows` with the fine held-out flows of the partition into `coarse_grid` (`HELD_OUT`).
+
+    Parameters
+    ----------
+    fine_flows : dict
+        The fine axis solves (`shared_fine_solves`).
+    coarse_grid : Grid
+        The coarse grid of the partition: the held-out flows' regions are its blocks.
+    solver, tolerance, say
+        As in `shared_fine_solves`.
+
+    Returns
+    -------
+    dict of str to (AxisFlow or CornerFlow)
+        The axes, then the held-out flows.
+    """
+    trans = next(iter(fine_flows.values())).trans
+    with Steps(say)(None, "solving the fine model corner to corner"):
+        held = held_out_solves(trans, coarse_grid, solver=solver, tolerance=tolerance)
+    return {**{k: f for k, f in fine_flows.items() if k not in HELD_OUT}, **held}
 
 
 def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0) -> Comparison:

@@ -31,7 +31,7 @@ from .records import (
 )
 
 #: How a comparison ranks its methods, recorded beside the ranking.
-RANKING = "largest |rel_error| over the axes, smallest first"
+RANKING = "largest |rel_error| over the axes and the held-out corner flow, smallest first"
 
 
 @dataclass(frozen=True)
@@ -57,7 +57,7 @@ class MethodRecord:
     coarse_mean : dict of str to float, or None
         Per permeability, the mean over the active blocks (the field's unit).
     check : dict of str to AxisResult, or None
-        The flow check per axis.
+        The flow check per axis, then per held-out flow (``corner``).
     zero_k : ZeroKRecord or None
         What the zero-k rule did.
     """
@@ -79,7 +79,7 @@ class MethodRecord:
         return METHODS[self.method].bound
 
     def largest_error(self, axes: str) -> float | None:
-        """Largest ``|rel_error|`` over `axes` (None when the method failed or an error is undefined)."""
+        """Largest ``|rel_error|`` over `axes` and the held-out flows (None when failed or undefined)."""
         if self.error is not None or not self.check:
             return None
         return largest_error(self.check, axes)

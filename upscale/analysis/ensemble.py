@@ -17,9 +17,10 @@ from typing import Any
 import numpy as np
 
 from ..caution import CAUTION
+from ..check.axis import HELD_OUT, flow_order
 from .compare import TIE
 from .comparison_record import ComparisonRecord
-from .records import Leaf, Spread, working_folder
+from .records import Leaf, Spread, check_flows, working_folder
 from .summary import MethodUsed, RunSummary
 
 PERCENTILES = (10, 50, 90)
@@ -100,7 +101,7 @@ class EnsembleSummary:
     @property
     def axes(self) -> str:
         """The axes checked on some realization, e.g. ``"xy"`` (empty without a check)."""
-        return "".join(self.statistics["k_fine"])
+        return "".join(a for a in self.statistics["k_fine"] if a in ("x", "y", "z"))
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``ensemble.json``, key for key."""
@@ -144,7 +145,7 @@ def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: 
         inputs = tuple(InputRef(i.role, i.path, i.sha256) for i in summary.provenance.inputs)
         per_axis = ({axis: getattr(c, quantity) for axis, c in checks.items()} for quantity in QUANTITIES)
         rows.append(RealizationCheck(name, inputs, *per_axis))
-    axes = sorted({axis for row in rows for axis in row.k_fine}, key="xyz".index)
+    axes = sorted({axis for row in rows for axis in row.k_fine}, key=flow_order)
     statistics = {quantity: {axis: spread([getattr(r, quantity).get(axis) for r in rows]) for axis in axes}
                   for quantity in QUANTITIES}  # fmt: skip
     first = summaries[0]
@@ -188,9 +189,9 @@ class RealizationError(Leaf):
     Attributes
     ----------
     worst : float or None
-        Largest ``|rel_error|`` over the axes (a fraction); None when one is undefined.
+        Largest ``|rel_error|`` over the axes and the held-out flows (a fraction); None when one is undefined.
     rel_error : dict of str to (float or None)
-        Per axis ``(k_coarse - k_fine) / k_fine``.
+        Per axis, then per held-out flow, ``(k_coarse - k_fine) / k_fine``.
     """
 
     worst: float | None
@@ -218,10 +219,10 @@ class MethodSpread:
     ran, failed : int
         Realizations it ran on and failed on.
     worst_error : Spread or None
-        Spread of the largest ``|rel_error|`` over the axes (fractions), the
-        quantity each comparison ranks by; None when it ran nowhere.
+        Spread of the largest ``|rel_error|`` over the axes and the held-out
+        flows (fractions), the quantity each comparison ranks by; None when it ran nowhere.
     rel_error : dict of str to (Spread or None)
-        Spread of the check error per axis.
+        Spread of the check error per axis, then per held-out flow.
     rank_in_realizations : RankCount
     by_realization : dict of str to (RealizationError or None)
         Per realization; None where the method did not run.
@@ -285,14 +286,17 @@ def method_spread(names: list[str], comparisons: list[ComparisonRecord]) -> list
     for label in [m.name for m in comparisons[0].methods]:
         entries = {name: c.method(label) for name, c in zip(names, comparisons)}
         ran = {name: e for name, e in entries.items() if e.error is None and e.check}
-        by_realization = {name: RealizationError(e.largest_error(axes),
-                                                 {a: e.check[a].rel_error for a in axes})
-                          for name, e in ran.items()}  # fmt: skip
+        by_realization = {
+            name: RealizationError(e.largest_error(axes),
+                                   {a: e.check[a].rel_error for a in check_flows(axes, e.check)})
+            for name, e in ran.items()
+        }
+        flows = sorted({a for r in by_realization.values() for a in r.rel_error} | set(axes), key=flow_order)
         ranks = [e.rank for e in ran.values()]
         methods.append(MethodSpread(
             label, entries[names[0]].method, len(ran), len(entries) - len(ran),
             spread([r.worst for r in by_realization.values()]),
-            {a: spread([r.rel_error[a] for r in by_realization.values()]) for a in axes},
+            {a: spread([r.rel_error.get(a) for r in by_realization.values()]) for a in flows},
             RankCount(float(np.mean(ranks)) if ran else None, sum(r == 1 for r in ranks)),
             {name: by_realization.get(name) for name in names},
         ))  # fmt: skip
@@ -369,7 +373,8 @@ class EnsembleRanking:
 
 
 #: How an ensemble ranks its methods, recorded beside the ranking.
-ENSEMBLE_RANKING = "P50 over the realizations of the largest |rel_error| over the axes, smallest first"
+ENSEMBLE_RANKING = ("P50 over the realizations of the largest |rel_error| over the axes and the held-out "
+                    "corner flow, smallest first")  # fmt: skip
 
 
 def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
@@ -395,7 +400,7 @@ def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
 
 def csv_rows(ensemble: EnsembleSummary) -> tuple[list[str], list[list[Any]]]:
     """Header and rows of ``ensemble.csv``: one row per realization."""
-    axes = [a for a in "xyz" if any(a in r.k_fine for r in ensemble.realizations)]
+    axes = [a for a in ("x", "y", "z", *HELD_OUT) if any(a in r.k_fine for r in ensemble.realizations)]
     header = ["name", *(f"{q}_{a}" for a in axes for q in QUANTITIES)]
     rows = [[r.name, *(getattr(r, q).get(a) for a in axes for q in QUANTITIES)]
             for r in ensemble.realizations]  # fmt: skip

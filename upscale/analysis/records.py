@@ -22,7 +22,7 @@ from typing import Any, TypeVar
 
 import numpy as np
 
-from ..check.axis import AxisCheck
+from ..check.axis import HELD_OUT, AxisCheck
 from ..field import Field, Grid
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
@@ -226,12 +226,14 @@ class SolveRecord(Leaf):
 
 @dataclass(frozen=True)
 class AxisResult:
-    """The flow check along one axis: the same pressure drop on the fine and the coarse model.
+    """The flow check along one axis, or of a held-out flow: the same flow on the fine and the coarse model.
 
     Attributes
     ----------
     k_fine, k_coarse : float or None
-        Effective permeability of each model (the field's unit).
+        Effective permeability of each model (the field's unit); for a
+        held-out flow, its rate over the rate of k = 1 on the same grid
+        (`upscale.flow.corner`).
     rel_error : float or None
         ``(k_coarse - k_fine) / k_fine`` (a fraction); None when the fine model passes nothing.
     fine, coarse : SolveRecord
@@ -256,13 +258,22 @@ class AxisResult:
 
 
 def axis_results(checks: dict[str, AxisCheck]) -> dict[str, AxisResult]:
-    """`AxisResult` per axis from the ``AxisCheck`` objects of `upscale.check.check_flow`."""
+    """`AxisResult` per flow (axes, then held-out) from the ``AxisCheck``s of `upscale.check.check_flow`."""
     return {axis: AxisResult.from_dict(jsonable(c.summary())) for axis, c in checks.items()}
 
 
+def check_flows(axes: str, checks: dict[str, Any]) -> tuple[str, ...]:
+    """The axes, then the held-out flows `checks` holds (none in a check recorded before them)."""
+    return (*axes, *(h for h in HELD_OUT if h in checks))
+
+
 def largest_error(checks: dict[str, AxisResult], axes: str) -> float | None:
-    """Largest ``|rel_error|`` over `axes`; None when one is undefined (no flow in the fine model)."""
-    errors = [checks[a].rel_error for a in axes]
+    """Largest ``|rel_error|`` over `axes` and the held-out flows the check holds.
+
+    None when one is undefined (no flow in the fine model). A check recorded
+    before the held-out flows existed is ranked on its axes alone.
+    """
+    errors = [checks[a].rel_error for a in check_flows(axes, checks)]
     return None if any(e is None or not math.isfinite(e) for e in errors) else max(abs(e) for e in errors)
 
 

@@ -7,7 +7,8 @@ over the map (first, middle and last position along each axis), each as
 large as the limit allows. In every window the fine cells and the coarse
 blocks are solved under the same pressure drop across each axis (fixed
 pressures on the window's two faces across the axis, the other faces
-closed), exactly as the global check does on the whole domain. Inside a
+closed), and the held-out corner-to-corner flow between the window's corner
+blocks, exactly as the global check does on the whole domain. Inside a
 window the coarse model uses the run's own transmissibilities (directly
 upscaled ones included); on the window's sides that are not the domain's
 edge, the blocks' half transmissibilities come from their permeabilities
@@ -26,7 +27,7 @@ import numpy as np
 from ..field import Field
 from ..flow import Transmissibilities, transmissibilities
 from ..grid import BlockSpec
-from .axis import coarse_check, fine_solves
+from .axis import HELD_OUT, coarse_check, fine_solves
 
 #: Windows per map axis (first, middle, last position).
 PER_AXIS = 3
@@ -99,14 +100,13 @@ def check_subdomains(fine: Field, coarse: Field, trans: Transmissibilities, bloc
     """
     bz, by, bx = block.cells
     windows = []
-    errors: dict[str, list[float]] = {axis: [] for axis in fine.axes}
+    errors: dict[str, list[float]] = {name: [] for name in (*fine.axes, *HELD_OUT)}
     for rows, cols in plan_windows(fine.shape, block.cells, max_cells):
         fine_rows = slice(rows.start * by, min(rows.stop * by, fine.shape[1]))
         fine_cols = slice(cols.start * bx, min(cols.stop * bx, fine.shape[2]))
-        part = fine.window(fine_rows, fine_cols)
-        flows = fine_solves(part, part.axes, solver=solver, tolerance=tolerance)
-        checks = coarse_check(flows, _coarse_window(coarse, trans, rows, cols), solver=solver,
-                              tolerance=tolerance)  # fmt: skip
+        part, coarse_part = fine.window(fine_rows, fine_cols), _coarse_window(coarse, trans, rows, cols)
+        flows = fine_solves(part, part.axes, coarse_grid=coarse_part.grid, solver=solver, tolerance=tolerance)
+        checks = coarse_check(flows, coarse_part, solver=solver, tolerance=tolerance)
         windows.append({"rows": [fine_rows.start, fine_rows.stop],
                         "columns": [fine_cols.start, fine_cols.stop],
                         "check": {axis: c.summary() for axis, c in checks.items()}})  # fmt: skip

@@ -9,6 +9,7 @@ import numpy as np
 
 from ..analysis.compare import Entry, candidates
 from ..caution import CAUTION
+from ..check.axis import HELD_OUT
 from ..export import check_destination
 from ..field import PERMEABILITY
 from ..io.realizations import expand
@@ -95,25 +96,29 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
         best = result.best
         several = not one_method(result)
         click.echo(f"\nbest: {best.candidate.label}" if several else
-                   f"\n{best.candidate.label}: largest check error {100 * best.worst_error:.2f} %")
+                   f"\n{best.candidate.label}: largest check error {100 * best.worst_error:.2f} % "
+                   f"(axes and {', '.join(HELD_OUT)})")
         print_notes(outside_band(best.candidate.label, best.worst_error, several=several),
                     bound_note(best.candidate.method, best.candidate.label) if several else None)
         click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
 
 
 def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
+    flows = (*axes, *HELD_OUT)
     rows = []
     for e in entries:
         if e.error:
-            rows.append([e.candidate.label, "-", *(["-"] * (2 * len(axes))), f"{e.seconds:.2f}"])
+            rows.append([e.candidate.label, "-", *(["-"] * (len(axes) + len(flows))), f"{e.seconds:.2f}"])
             continue
         coarse = e.result.coarse
         means = [number(_mean(getattr(coarse, PERMEABILITY[a]))) for a in axes]
-        errors = [_percent(e.checks[a].rel_error) for a in axes]
+        errors = [_percent(e.checks[f].rel_error) for f in flows]
         rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
-    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {a}" for a in axes), "time s"]
+    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {f}" for f in flows), "time s"]
     click.echo(table(header, rows))
-    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop)")
+    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop;\n"
+               " corner: the held-out corner-to-corner flow, k = its rate over that of k = 1;\n"
+               " rank: by the largest |error| over the axes and the corner flow)")
     compiling = sum(e.compiling for e in entries)
     if compiling >= 0.5:
         click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "

@@ -1,4 +1,8 @@
-"""Steady flow under a pressure drop along one axis, and the effective permeability.
+"""Steady flow under fixed pressures on outer faces; the pressure drop along one axis and k_eff.
+
+`fixed_pressures` solves any steady flow with p = 1 on some outer faces,
+p = 0 on others and the rest closed; `pressure_drop` is the flow along one
+axis (and `upscale.flow.corner` the corner-to-corner flow).
 
 The fixed pressures sit on the two outer faces of the domain across the
 chosen axis — on the faces themselves, half a cell from the first and last
@@ -14,7 +18,7 @@ cross-section, inactive cells included; k_eff is in the unit of the input k.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 import numpy as np
 from scipy import sparse
@@ -26,26 +30,22 @@ from .transmissibility import Transmissibilities
 
 
 @dataclass(frozen=True, eq=False)
-class AxisFlow:
-    """The result of one pressure-drop solve.
+class SteadyFlow:
+    """A steady solve with fixed pressures 1 (inlet faces) and 0 (outlet faces), the rest closed.
 
     Attributes
     ----------
-    axis : str
-        ``"x"``, ``"y"`` or ``"z"``.
-    k_eff : float
-        Effective permeability along the axis, unit of the input k.
     inflow, outflow : float
-        Flow rate through the inlet and the outlet face, in (unit of k) · m per
+        Flow rate through the inlet and the outlet faces, in (unit of k) · m per
         unit of pressure drop over viscosity.
     mass_balance : float
         ``|inflow - outflow| / max(|inflow|, |outflow|)`` (0 when nothing flows).
     connected : bool
-        Whether any path of permeable active cells joins the two faces.
+        Whether any path of permeable active cells joins the inlet and the outlet.
     unknowns : int
         Cells solved for.
     isolated : int
-        Active cells in regions touching neither face (left out; no flow).
+        Active cells in regions touching neither the inlet nor the outlet (left out; no flow).
     method, iterations, residual
         How the linear solve went (see `upscale.flow.solvers.SolveInfo`).
     pressure : ndarray of shape (L, M, N)
@@ -54,8 +54,6 @@ class AxisFlow:
         The transmissibilities solved with (for face fluxes from `pressure`).
     """
 
-    axis: str
-    k_eff: float
     inflow: float
     outflow: float
     mass_balance: float
@@ -67,6 +65,22 @@ class AxisFlow:
     residual: float
     pressure: np.ndarray
     trans: Transmissibilities
+
+
+@dataclass(frozen=True, eq=False)
+class AxisFlow(SteadyFlow):
+    """The result of one pressure-drop solve across an axis (the fields of `SteadyFlow`, and these).
+
+    Attributes
+    ----------
+    axis : str
+        ``"x"``, ``"y"`` or ``"z"``.
+    k_eff : float
+        Effective permeability along the axis, unit of the input k.
+    """
+
+    axis: str
+    k_eff: float
 
 
 def pressure_drop(
@@ -102,11 +116,46 @@ def pressure_drop(
     """
     a = AXES[axis]
     shape = trans.shape
-    n = int(np.prod(shape))
-    index = np.arange(n).reshape(shape)
+    index = np.arange(int(np.prod(shape))).reshape(shape)
     t_in, t_out = (t.ravel() for t in trans.boundary[a])
-    inlet_cells = np.take(index, [0], axis=a).ravel()
-    outlet_cells = np.take(index, [shape[a] - 1], axis=a).ravel()
+    inlet = np.take(index, [0], axis=a).ravel(), t_in
+    outlet = np.take(index, [shape[a] - 1], axis=a).ravel(), t_out
+    solved = fixed_pressures(trans, inlet, outlet, solver=solver, tolerance=tolerance)
+    sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
+    length = sizes.pop(a)
+    k_eff = float(solved.outflow * length / (sizes[0] * sizes[1]))
+    return AxisFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, axis=axis, k_eff=k_eff)
+
+
+def fixed_pressures(
+    trans: Transmissibilities,
+    inlet: tuple[np.ndarray, np.ndarray],
+    outlet: tuple[np.ndarray, np.ndarray],
+    *,
+    solver: str = "auto",
+    tolerance: float = 1e-10,
+) -> SteadyFlow:
+    """Solve steady flow with p = 1 on the inlet faces and p = 0 on the outlet faces, the rest closed.
+
+    Parameters
+    ----------
+    trans : Transmissibilities
+        The grid's transmissibilities.
+    inlet, outlet : (ndarray of int, ndarray of float)
+        The flat index of the cell behind every fixed-pressure outer face, and
+        the half-cell transmissibility t of that cell towards the face
+        ((unit of k) · m; from ``trans.boundary``). A cell may appear more than
+        once (a corner cell with two inlet faces); faces with t = 0 are left out.
+    solver, tolerance
+        As in `pressure_drop`.
+
+    Returns
+    -------
+    SteadyFlow
+    """
+    shape = trans.shape
+    n = int(np.prod(shape))
+    (inlet_cells, t_in), (outlet_cells, t_out) = inlet, outlet
     inlet_cells, t_in = inlet_cells[t_in > 0], t_in[t_in > 0]
     outlet_cells, t_out = outlet_cells[t_out > 0], t_out[t_out > 0]
 
@@ -122,7 +171,7 @@ def pressure_drop(
     i, j, T = number[first[inside]], number[second[inside]], T[inside]
     m = int(keep.sum())
     inlet, outlet = number[inlet_cells], number[outlet_cells]
-    rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet face, p = 0 on the outlet
+    rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet faces, p = 0 on the outlet faces
     diagonal = (
         np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
         + rhs + np.bincount(outlet, t_out, minlength=m)
@@ -142,13 +191,9 @@ def pressure_drop(
     if not connected:  # no path joins the faces: nothing flows, the rates are rounding
         inflow = outflow = 0.0
     largest = max(abs(inflow), abs(outflow))
-    sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
-    length = sizes.pop(a)
     pressure = np.full(n, np.nan)
     pressure[keep] = p
-    return AxisFlow(
-        axis=axis,
-        k_eff=float(outflow * length / (sizes[0] * sizes[1])),
+    return SteadyFlow(
         inflow=inflow,
         outflow=outflow,
         mass_balance=abs(inflow - outflow) / largest if largest > 0 else 0.0,

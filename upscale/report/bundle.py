@@ -8,8 +8,9 @@ from typing import Any
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.plan_record import PlanRecord
-from ..analysis.records import versions, working_folder
+from ..analysis.records import check_flows, versions, working_folder
 from ..caution import CAUTION
+from ..check.axis import flow_label
 from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
@@ -105,7 +106,7 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
                 continue
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
             values = [cell(v) for v in (s.p10, s.p50, s.p90, s.mean, s.min, s.max)]
-            rows.append([f"{name} along {axis}", *values, str(s.count)])
+            rows.append([f"{name} {flow_label(axis)}", *values, str(s.count)])
     errors = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
     name = ensemble.method.name
     worst = max(errors, key=abs) if errors else None
@@ -113,8 +114,9 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(),
         "verdict": f"{name} on {len(ensemble.realizations)} realizations: "
-        + (f"median check error within {100 * abs(worst):.2f} % on every axis." if errors else
-           "the check was not run."),
+        + (f"median check error within {100 * abs(worst):.2f} % on every axis"
+           + (" and corner to corner." if "corner" in ensemble.statistics["rel_error"] else ".")
+           if errors else "the check was not run."),
         "warning": outside_band(name, worst, several=False, measure="median check error",
                                 where="over these realizations") if errors else None,
         "note": None,
@@ -143,6 +145,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         The command line.
     """
     axes, methods = ranking.axes, ranking.methods
+    flows = check_flows(axes, {name for m in methods for name in m.rel_error})  # none held out in old records
     n = len(ranking.realizations)
     plots = [Plot("spread", method_spread_chart(methods, axes, n),
                   "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
@@ -153,7 +156,7 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     for m in methods:
         w = m.worst_error
         worst = [f"{100 * v:.2f} %" for v in (w.p10, w.p50, w.p90)] if w else ["–"] * 3
-        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error[a] else "–" for a in axes]
+        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error.get(a) else "–" for a in flows]
         mean_rank = m.rank_in_realizations.mean
         mark = bound_mark(m.method)
         rows.append([str(m.rank or "–"), m.name + (f" ({mark})" if mark else ""),
@@ -174,15 +177,18 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
         "what": ("Methods ranked by the P50 over the realizations of their largest check error over "
-                 "the axes (methods that failed on some realizations after those that ran on all)"
-                 if several else "The method's largest check error over the axes, over the "
+                 "the axes and the corner-to-corner flow (methods that failed on some realizations after "
+                 "those that ran on all)"
+                 if several else "The method's largest check error over the axes and the corner-to-corner "
+                 "flow, over the "
                  "realizations") + "; the P10 and P90 show how much that varies from one realization "
         "to the next — with few realizations they are interpolated between the nearest ones.",
         "realizations": [r.to_dict() for r in ranking.realizations], "block": _block(ranking.block, axes),
         "percentiles": ranking.percentiles,
     }  # fmt: skip
     head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
-            *(f"P50 error along {a}" for a in axes), "mean rank", "times first"]  # fmt: skip
+            *(f"P50 error {flow_label(a)}" for a in flows), "mean rank",
+            "times first"]  # fmt: skip
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]
     return Bundle(images, ensemble_page(job, head, rows, shown))

@@ -16,6 +16,7 @@ from matplotlib.ticker import (
 
 from ..analysis.compare import Comparison
 from ..analysis.plan_record import PlanRecord
+from ..check.axis import check_names, flow_label
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
 from .layout import LABEL, MAX_WIDTH, outer_labels, page_sizes, panel_grid, title
@@ -85,9 +86,9 @@ def warn_in(ax: Axes, text: str | None) -> None:
 
 
 def error_bars(comparison: Comparison) -> Figure:
-    """Check error per method and axis (%), with the ±5 % band marked, and a warning when none is within."""
+    """Check error per method and flow (axes, then corner to corner; %), ±5 % band, a warning if none in."""
     ran = comparison.ranked
-    axes_names = list(comparison.fine.axes)
+    axes_names = list(check_names(comparison.fine.axes))
     alone = one_method(comparison)
     fig = Figure(figsize=(min(MAX_WIDTH, max(4.5 if alone else 6.0, 0.8 * len(ran) + 2.5)), 4.4),
                  layout="constrained")  # fmt: skip
@@ -99,8 +100,8 @@ def error_bars(comparison: Comparison) -> Figure:
         errors = np.array([100 * e.checks[axis].rel_error for e in ran])
         largest = max(largest, float(np.nanmax(np.abs(errors))) if errors.size else 0.0)
         offset = (i - (len(axes_names) - 1) / 2) * width
-        ax.bar(x + offset, errors, width, color=PALETTE[i], hatch=("", "//", "..")[i],
-               edgecolor="black", linewidth=0.4, label=f"along {axis}")  # fmt: skip
+        ax.bar(x + offset, errors, width, color=PALETTE[i], hatch=("", "//", "..", "xx")[i],
+               edgecolor="black", linewidth=0.4, label=flow_label(axis))  # fmt: skip
     error_band(ax, largest)
     ax.set_xticks(x, [entry_name(comparison, e) for e in ran], rotation=0 if alone else 30,
                   ha="center" if alone else "right")  # fmt: skip
@@ -108,8 +109,8 @@ def error_bars(comparison: Comparison) -> Figure:
     best = comparison.best
     warn_in(ax, best and outside_band(best.candidate.label, best.worst_error, several=not alone))
     ax.legend(fontsize=LABEL, loc="best")
-    title(fig, f"Flow check error of {ran[0].candidate.label} per axis" if alone
-          else "Flow check error per method and axis")  # fmt: skip
+    title(fig, f"Flow check error of {ran[0].candidate.label} per flow" if alone
+          else "Flow check error per method and flow")  # fmt: skip
     page_sizes(fig)
     return fig
 

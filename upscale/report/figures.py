@@ -61,7 +61,8 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
                           + scale))  # fmt: skip
     plots += [
         Plot("errors", error_bars(comparison),
-             f"Check error {'of the method' if alone else 'per method'} and axis; bars inside the grey "
+             f"Check error {'of the method' if alone else 'per method'} per axis and corner to corner "
+             "(the held-out flow); bars inside the grey "
              f"±{BAND:g} % band pass the fine model's flow closely, long bars mark "
              f"{'a coarse model' if alone else 'the methods'} to distrust on this field."),
         Plot("bounds", bounds_chart(comparison, unit),

@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from ..analysis.compare import Comparison, Entry
+from ..check.axis import HELD_OUT, check_names, flow_label
 from ..field import PERMEABILITY
 from .figures import Plot
 from .verdict import bound_mark, bound_note, one_method, outside_band
@@ -129,12 +130,13 @@ def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None, ranked: bool) 
     if mark:
         label += f' <span class="bound">{_e(mark)}</span>'
     if entry.error is not None:
-        reason = f'<td class="text" colspan="{2 * len(axes) + 1}">did not run: {_e(entry.error)}</td>'
+        span = 2 * len(axes) + len(HELD_OUT) + 1
+        reason = f'<td class="text" colspan="{span}">did not run: {_e(entry.error)}</td>'
         cells = [f"<td>{label}</td>", "<td>–</td>", reason]
         return f'<tr class="method failed">{"".join(cells)}</tr>'
     coarse = entry.result.coarse
     means = [_number(float(_mean(getattr(coarse, PERMEABILITY[a])))) for a in axes]
-    errors = [_percent(entry.checks[a].rel_error) for a in axes]
+    errors = [_percent(entry.checks[a].rel_error) for a in check_names(axes)]
     cells = [label, *([str(entry.rank)] if ranked else []), *means, *errors]
     kind = "method best" if entry is best else "method"
     return (f'<tr class="{kind}">' + "".join(f"<td>{c}</td>" for c in cells)
@@ -169,17 +171,20 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     unit = _e(job["unit"])
     ranked = not one_method(comparison)
     head = ["method", *(["rank"] if ranked else []), *(f"{PERMEABILITY[a]} mean ({unit})" for a in axes),
-            *(f"error along {a}" for a in axes), "time (s)"]  # fmt: skip
+            *(f"error {flow_label(a)}" for a in check_names(axes)), "time (s)"]  # fmt: skip
     best = comparison.best
     rows = "\n".join(_row(e, axes, best if ranked else None, ranked) for e in comparison.entries)
-    heading = ("Methods, ranked by the largest check error over the axes" if ranked
+    heading = ("Methods, ranked by the largest check error over the axes and corner to corner" if ranked
                else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
 <h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
-(closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.</p>
+(closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.
+It also applies a held-out flow no method is fitted to: pressure fixed on the outer faces of one
+corner region of whole blocks, the opposite corner at zero, the other faces closed (corner to corner;
+k is its rate over the rate of k = 1 on the same grid).</p>
 <table id="ranking">
 <tr>{"".join(f"<th>{h}</th>" for h in head)}</tr>
 {rows}
@@ -196,7 +201,7 @@ def _verdict(comparison: Comparison, ranked: bool) -> str:
     if best is None:
         return "<p>No method ran on this field.</p>"
     label = best.candidate.label
-    size = f"largest check error {100 * best.worst_error:.2f} % over the axes."
+    size = f"largest check error {100 * best.worst_error:.2f} % over the axes and the corner-to-corner flow."
     sentence = (f"Best on this field: <strong>{_e(label)}</strong>, {size}" if ranked
                 else f"<strong>{_e(label)}</strong> on this field: {size}")  # fmt: skip
     warning = outside_band(label, best.worst_error, several=ranked)

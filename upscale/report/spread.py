@@ -7,6 +7,8 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
 from ..analysis.ensemble import PERCENTILES, EnsembleSummary, MethodSpread
+from ..analysis.records import check_flows
+from ..check.axis import flow_label, flow_order
 from .charts import error_band, readable_k_axis, warn_in
 from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
@@ -27,7 +29,7 @@ def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str
 
 
 def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizations: int) -> Figure:
-    """Check error of every method over the realizations, per axis, methods in ranked order.
+    """Check error of every method over the realizations, per axis and held-out flow, in ranked order.
 
     Parameters
     ----------
@@ -40,6 +42,7 @@ def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizatio
     """
     ran = [m for m in methods if m.rank is not None]
     alone = len(methods) == 1
+    axes = check_flows(axes, {name for m in methods for name in m.rel_error})  # with the held-out flows
     fig = Figure(figsize=(min(MAX_WIDTH, max(6.5, 0.9 * len(ran) + 2.5)), 4.6), layout="constrained")
     ax = fig.subplots()
     width = 0.8 / len(axes)
@@ -47,11 +50,11 @@ def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizatio
     for i, axis in enumerate(axes):
         offset = (i - (len(axes) - 1) / 2) * width
         for j, m in enumerate(ran):
-            values = np.array([100 * r.rel_error[axis] if r and r.rel_error[axis] is not None
+            values = np.array([100 * r.rel_error[axis] if r and r.rel_error.get(axis) is not None
                                else np.nan for r in m.by_realization.values()])  # fmt: skip
             if np.isfinite(values).any():
                 largest = max(largest, float(np.nanmax(np.abs(values))))
-            _spread_marks(ax, j + offset, values, PALETTE[i], f"along {axis}" if j == 0 else None,
+            _spread_marks(ax, j + offset, values, PALETTE[i], flow_label(axis) if j == 0 else None,
                           half=0.4 * width)  # fmt: skip
     error_band(ax, largest)
     ax.set_xticks(range(len(ran)), [m.name if alone else f"{m.rank}. {m.name}" for m in ran],
@@ -77,7 +80,7 @@ def ensemble_chart(ensemble: EnsembleSummary, unit: str) -> Figure:
         Permeability unit for labels.
     """
     rows = ensemble.realizations
-    axes = [a for a in "xyz" if a in ensemble.axes]
+    axes = sorted(ensemble.statistics["k_fine"], key=flow_order)  # the axes, then the held-out flows
     fig = Figure(figsize=(9.0, 4.6), layout="constrained")
     left, right = fig.subplots(1, 2)
     for i, axis in enumerate(axes):
@@ -87,13 +90,13 @@ def ensemble_chart(ensemble: EnsembleSummary, unit: str) -> Figure:
         errors = np.array([r.rel_error.get(axis) for r in rows], dtype=float) * 100
         _spread_marks(right, i, errors, PALETTE[i], None)
     readable_k_axis(left)
-    left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [f"along {a}" for a in axes])
+    left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [flow_label(a) for a in axes])
     left.set_ylabel(f"effective permeability ({unit})")
     left.set_title("k_eff of the fine and the coarse model")
     left.legend(fontsize=LABEL, loc="best")
     errors = np.array([r.rel_error.get(a) for r in rows for a in axes], dtype=float) * 100
     error_band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
-    right.set_xticks(range(len(axes)), [f"along {a}" for a in axes])
+    right.set_xticks(range(len(axes)), [flow_label(a) for a in axes])
     right.set_ylabel("check error (k_coarse − k_fine) / k_fine")
     medians = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
     right.set_title("Check error")
