@@ -38,6 +38,7 @@ from upscale import Field
 from upscale.analysis.compare import candidates
 from upscale.analysis.plan import plan_blocks
 from upscale.analysis.plan_record import PlanRecord, plan_record
+from upscale.check.axis import HELD_OUT
 from upscale.cli.main import main
 from upscale.gallery.problems import random_layers, uncorrelated_lognormal
 from upscale.grid import BlockSpec
@@ -173,11 +174,15 @@ def test_the_fine_model_is_solved_once_per_flow_whatever_the_blocks(monkeypatch,
     sizes = _count_solves(monkeypatch)
     plan = plan_blocks(field, [BlockSpec.parse(b) for b in blocks], candidates(["geometric", "harmonic"]))
     fine = [s for s in sizes if s == 32 * 32]
-    assert len(fine) == len(plan.fine_flows) >= 2  # one per checked flow: x, y (and any other)
+    # the axis flows once; per block the held-out flows (their regions are whole blocks), each
+    # with its solve of k = 1 on the same grid (`upscale.flow.corner`)
+    held = 2 * len(HELD_OUT)
+    assert len(plan.fine_flows) == 2 and len(fine) == 2 + held * len(blocks)
     # and every coarse model was solved under each of those flows
-    assert len(sizes) - len(fine) == len(blocks) * 2 * len(plan.fine_flows)
+    assert len(sizes) - len(fine) == len(blocks) * 2 * (2 + held)
     for comparison in plan.comparisons:
-        assert comparison.fine_flows is plan.fine_flows
+        assert all(comparison.fine_flows[a] is plan.fine_flows[a] for a in "xy")
+        assert set(comparison.fine_flows) == {"x", "y", *HELD_OUT}
 
 
 def test_planner_answer_agrees_with_each_comparison_in_memory():
