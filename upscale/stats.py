@@ -95,7 +95,10 @@ _PART = 1 << 16
 
 
 def _scan_sums(chunk: np.ndarray) -> tuple[np.ndarray, float, float]:
-    """`_value_sums` over a whole chunk, fed in parts of whole rows: sums, smallest and largest valid value."""
+    """`_value_sums` over a whole chunk, fed in parts of whole rows.
+
+    Returns the sums, and the smallest and largest valid value.
+    """
     sums = np.zeros(6)
     bounds = np.array([np.float64(np.inf), np.float64(0.0)]).view(np.int64)
     rows = max(1, _PART // max(chunk.shape[2], 1))

@@ -2,7 +2,8 @@
 
 Run on demand (not collected by pytest), from the repository's top folder::
 
-    python tests/benchmarks/bench_compile.py [flow|flow-active|flow-transmissibility|geometric|compare] [--top 25]
+    python tests/benchmarks/bench_compile.py [flow|flow-active|flow-transmissibility|geometric|compare]
+                                             [--top 25]
 
 Runs one command of `bench_first_use.py` inside this process with an empty
 numba cache of its own (``NUMBA_CACHE_DIR``, set before numba is imported),
@@ -69,7 +70,8 @@ def _kernel_name(data: dict) -> str:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("command", nargs="?", default="flow",
-                        choices=["geometric", "flow", "flow-active", "flow-transmissibility", "compare"])  # fmt: skip
+                        choices=["geometric", "flow", "flow-active", "flow-transmissibility",
+                                 "compare"])  # fmt: skip
     parser.add_argument("--top", type=int, default=25, help="kernels and passes listed")
     args = parser.parse_args()
     start = time.process_time()

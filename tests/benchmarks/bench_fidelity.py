@@ -97,11 +97,13 @@ def main() -> None:
                 for entry in found.entries:
                     errors[family, block][entry.candidate.label].append(entry.worst_error)
                 top = found.best
-                best[family, block].append((top.worst_error, top.candidate.label) if top else (np.inf, "none"))
+                outcome = (top.worst_error, top.candidate.label) if top else (np.inf, "none")
+                best[family, block].append(outcome)
                 print(f"seed {seed} {family} {block}: best {best[family, block][-1][1]} "
                       f"{100 * best[family, block][-1][0]:.1f} %", flush=True)  # fmt: skip
     print(f"\n{time.perf_counter() - start:.0f} s; error = largest |rel_error| over every checked flow\n")
-    print("| field | block | best method's error: median | worst | best method (times) |\n|---|---|---|---|---|")
+    print("| field | block | best method's error: median | worst | best method (times) |")
+    print("|---|---|---|---|---|")
     for (family, block), outcomes in best.items():
         values = [e for e, _ in outcomes]
         names = Counter(name for _, name in outcomes).most_common()

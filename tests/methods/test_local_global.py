@@ -35,8 +35,10 @@ from upscale.gallery.problems import random_layers
 
 
 def _direct_region(t: np.ndarray, b: np.ndarray, shape: tuple, mid: int) -> tuple[float, float, float]:
-    """Flux through the face before column `mid` and the two halves' mean pressures, by one sparse solve
-    of a map region (z left out) with every outer face at the pressures `b` (order of `outer_faces`)."""
+    """Flux through the face before column `mid` and the two halves' mean pressures, by one sparse solve.
+
+    The region is a map (z left out) with every outer face at the pressures `b` (order of `outer_faces`).
+    """
     from scipy.sparse import lil_matrix
     from scipy.sparse.linalg import spsolve
 
@@ -75,7 +77,8 @@ def test_functionals_agree_with_a_direct_solve_under_any_boundary_pressures():
                                       np.array([mid]), np.array([[1, 5, 6]]), 2, fixed, order, width, axes)
     for _ in range(3):
         b = rng.uniform(-1.0, 2.0, coefficients.shape[2])
-        np.testing.assert_allclose(coefficients[0] @ b, _direct_region(t, b, shape, mid), rtol=1e-10, atol=1e-12)
+        want = _direct_region(t, b, shape, mid)
+        np.testing.assert_allclose(coefficients[0] @ b, want, rtol=1e-10, atol=1e-12)
 
 
 @pytest.mark.parametrize(("border", "sides"), [(0, "pressure"), (2, "pressure"), (0, "closed")])
@@ -104,7 +107,8 @@ def test_a_field_already_coarse_gives_the_harmonic_half_block_rule_with_closed_s
     # harmonic half-block rule of two-point flux: Aziz & Settari 1979, "Petroleum Reservoir Simulation"
     # (with pressure on the sides the faces move away from it, towards the fine flow: docs/methods.md)
     rng = np.random.default_rng(298_113_645)
-    field = Field.from_arrays(np.kron(np.exp(rng.normal(0.0, 2.0, (6, 5))), np.ones((4, 4))), cell_size=(2.0, 3.0))
+    k = np.kron(np.exp(rng.normal(0.0, 2.0, (6, 5))), np.ones((4, 4)))
+    field = Field.from_arrays(k, cell_size=(2.0, 3.0))
     found = coarsen(field, "4x4", "local-global", sides="closed").transmissibilities()
     harmonic = coarsen(field, "4x4", "harmonic").transmissibilities()
     for a in (1, 2):
@@ -114,9 +118,11 @@ def test_a_field_already_coarse_gives_the_harmonic_half_block_rule_with_closed_s
 @pytest.mark.slow
 @pytest.mark.parametrize("contrast", [1e2, 1e4])
 def test_the_iteration_converges_on_lognormal_and_channel_fields(contrast):
-    # Chen, Durlofsky, Gerritsen & Wen 2003: the iteration settles in a few steps (from memory; bounded here)
+    # Chen, Durlofsky, Gerritsen & Wen 2003: the iteration settles in a few steps
+    # (from memory; bounded here)
     sigma = np.log(contrast) / 4  # about 95 % of ln k within ±2σ: max/min about the contrast
-    fields = [lognormal_field((64, 64), (8.0, 16.0), geometric_mean=10.0, sigma_ln=sigma, seed=645_019_337)[None],
+    fields = [lognormal_field((64, 64), (8.0, 16.0), geometric_mean=10.0, sigma_ln=sigma,
+                              seed=645_019_337)[None],
               channel_field((64, 64), channels=4, width=5, k_sand=contrast, k_shale=1.0, seed=871_552_903)]
     for k in fields:
         result = coarsen(Field.from_arrays(k), "8x8", "local-global", border=2)
@@ -129,8 +135,8 @@ def test_summary_records_the_iteration_and_one_that_does_not_converge_stops_with
     source = tmp_path / "k.npy"
     np.save(source, k)
     out = tmp_path / "run"
-    done = CliRunner().invoke(cli, ["run", str(source), "--block", "8x8", "--method", "local-global", "--border",
-                                    "2", "--cell-size", "1", "--out", str(out)])  # fmt: skip
+    done = CliRunner().invoke(cli, ["run", str(source), "--block", "8x8", "--method", "local-global",
+                                    "--border", "2", "--cell-size", "1", "--out", str(out)])  # fmt: skip
     assert done.exit_code == 0, done.output
     faces = json.loads((out / "summary.json").read_text())["transmissibility"]
     assert faces["iterations"] >= 1 and faces["last_change"] < 1e-2 and faces["kept_faces"] >= 0

@@ -26,8 +26,9 @@ OPTIONS = {"power": {"exponent": 0.57}}
 
 def test_method_names_and_kernels():
     assert PUBLIC_METHODS is METHODS
-    assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs",
-                             "flow", "flow-transmissibility", "global", "renormalization", "local-global"]  # fmt: skip
+    assert list(METHODS) == ["arithmetic", "harmonic", "geometric", "power", "tubes", "slabs", "flow",
+                             "flow-transmissibility", "global", "renormalization",
+                             "local-global"]  # fmt: skip
     assert {n for n, m in METHODS.items() if m.local} == {
         "flow", "flow-transmissibility", "global", "renormalization", "local-global"}  # fmt: skip
     assert {n for n, m in METHODS.items() if m.global_flows} == {"global"}

@@ -314,8 +314,9 @@ def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 
         return fine_solves(fine, fine.axes, solver=solver, tolerance=tolerance)
 
 
-def with_held_out(fine_flows: dict[str, AxisFlow | CornerFlow], coarse_grid: Grid, *, solver: str = "auto",
-                  tolerance: float = 1e-10, say: Say = silent) -> dict[str, AxisFlow | CornerFlow]:  # fmt: skip
+def with_held_out(fine_flows: dict[str, AxisFlow | CornerFlow], coarse_grid: Grid, *,
+                  solver: str = "auto", tolerance: float = 1e-10,
+                  say: Say = silent) -> dict[str, AxisFlow | CornerFlow]:  # fmt: skip
     """`fine_flows` with the fine held-out flows of the partition into `coarse_grid` (`HELD_OUT`).
 
     Parameters

@@ -241,7 +241,8 @@ class TensorSummary:
 #: The ``rule`` of ``summary.json``'s ``transmissibility``, by the ``faces`` of the method.
 FACE_RULES = {None: "harmonic half-block", "flow": "two-block flow solves",
               "global": "fits to the fine global flows",
-              "local-global": "two-block flow solves iterated with coarse global flows (local-global)"}  # fmt: skip
+              "local-global": "two-block flow solves iterated with coarse global flows (local-global)",
+              }  # fmt: skip
 
 
 @dataclass(frozen=True)

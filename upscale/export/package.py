@@ -256,7 +256,8 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str) 
         "dx": length, "dy": length, "dz": length, "porosity": "1 (fraction)",
         "pore_volume": f"{length}³", "bulk_volume": f"{length}³", "axis": "x, y or z",
         "transmissibility": t, "half_transmissibility": t, "area": f"{length}²",
-        "distance": length, "source": "harmonic, flow, global or local-global", "face": "x-, x+, y-, y+, z- or z+",
+        "distance": length, "source": "harmonic, flow, global or local-global",
+        "face": "x-, x+, y-, y+, z- or z+",
     }  # fmt: skip
     return {name: {c: known.get(c, k) for c in tables.columns(name)} for name in TABLES}
 

@@ -202,6 +202,7 @@ def region_functionals(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.n
     """
     face_cell, face_axis, face_side = outer_faces(tuple(int(s) for s in shape), axes)
     out = np.empty((t.shape[0], 3, face_cell.size))
+    faces = (face_cell, face_axis, face_side)
     _in_threads(len(out), lambda s: _regions(t[s], h[s], shape, lo[s], mid[s], hi[s], a, fixed[s], order,
-                                             width, axes, face_cell, face_axis, face_side, out[s]))  # fmt: skip
+                                             width, axes, *faces, out[s]))  # fmt: skip
     return out

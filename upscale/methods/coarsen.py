@@ -330,7 +330,8 @@ def coarsen(
         faces, boundary, replaced, direct = _direct_faces(faces, harmonic, fine.ndim)
         if chosen.couple is not None:
             local = replace(harmonic, faces=faces, boundary=boundary)
-            faces, coupling = chosen.couple(fine, cells, local, tuple(f == 0 for f in harmonic.faces), **options)
+            closed = tuple(f == 0 for f in harmonic.faces)
+            faces, coupling = chosen.couple(fine, cells, local, closed, **options)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
                     fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,

@@ -181,9 +181,12 @@ def _inner_samples(trans: Any, pressure: np.ndarray, mean: np.ndarray, starts: l
 
 
 def _outer_samples(trans: Any, pressure: np.ndarray, mean: np.ndarray, starts: list[np.ndarray],
-                   a: int) -> tuple[tuple[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]:  # fmt: skip
-    """Flux in through the inlet face (p = 1) and out through the outlet face (p = 0) of each
-    outer block along `a`, with the pressure difference between the face and the block."""
+                   a: int) -> tuple[tuple[np.ndarray, ...], tuple[np.ndarray, ...]]:  # fmt: skip
+    """Flux through the inlet and outlet faces of each outer block along `a`.
+
+    In through the inlet face (p = 1) and out through the outlet face
+    (p = 0), each with the pressure difference between the face and the block.
+    """
     t_in, t_out = trans.boundary[a]
     n = pressure.shape[a]
     inflow = np.nan_to_num(t_in * (1.0 - np.take(pressure, [0], axis=a)))

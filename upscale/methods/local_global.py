@@ -63,8 +63,9 @@ is below `NEGLIGIBLE`, or that leaves one end of the region closed (a
 domain face that is closed in that flow) is left out of that face's sum
 (ours). **Faces kept**: a face that no flow informs (or whose blocks have
 no pressure in the coarse solve) keeps its previous iterate's value — the
-local value at first. Chen et al. (2003) report negative values where the coarse pressure difference is small and keep a
-transmissibility from the local (or previous) calculation there (from
+local value at first. Chen et al. (2003) report negative values where the
+coarse pressure difference is small and keep a transmissibility from the
+local (or previous) calculation there (from
 memory); such faces are counted (`Coupling.kept_faces`). The domain's outer
 half transmissibilities keep their local two-block values, and faces
 closed by the harmonic rule (touching an inactive block) stay closed.
@@ -162,7 +163,8 @@ def _check_options(sides: str, max_change: float, max_iterations: int) -> None:
         raise InputError(f"`sides` must be one of {', '.join(SIDES)}, not {sides!r}")
     if not (isinstance(max_change, (int, float)) and math.isfinite(max_change) and max_change > 0):
         raise InputError(f"`max_change` must be a positive number such as 0.01, not {max_change!r}")
-    if isinstance(max_iterations, bool) or not isinstance(max_iterations, (int, np.integer)) or max_iterations < 1:
+    whole = isinstance(max_iterations, (int, np.integer)) and not isinstance(max_iterations, bool)
+    if not whole or max_iterations < 1:
         raise InputError(f"`max_iterations` must be a whole number of 1 or more, not {max_iterations!r}")
 
 
@@ -185,8 +187,8 @@ class _Regions:
     through: dict[int, np.ndarray]
 
 
-def couple(fine: Field, cells: tuple[int, int, int], trans: Transmissibilities, closed: tuple[np.ndarray, ...],
-           *, bc: str, border: int, sides: str, max_change: float,
+def couple(fine: Field, cells: tuple[int, int, int], trans: Transmissibilities,
+           closed: tuple[np.ndarray, ...], *, bc: str, border: int, sides: str, max_change: float,
            max_iterations: int) -> tuple[tuple, Coupling]:  # fmt: skip
     """Iterate the face transmissibilities of a coarse model with its global flows.
 
@@ -280,8 +282,8 @@ def _regions(fine: Field, cells: tuple[int, int, int], coarse: tuple[int, int, i
     origin, stop = np.maximum(first - border, 0), np.minimum(last + border, extent)
     on_domain = np.stack([origin == 0, stop == extent], axis=1)  # (R, 2, 3)
     # regions clear of the first and last blocks on every axis see the same pressures in every flow
-    shared = np.all([(origin[:, a] >= cells[a]) & (stop[:, a] <= starts[a][-1]) for a in np.flatnonzero(axes)],
-                    axis=0)  # fmt: skip
+    inner = [(origin[:, a] >= cells[a]) & (stop[:, a] <= starts[a][-1]) for a in np.flatnonzero(axes)]
+    shared = np.all(inner, axis=0)
     operators, constants, through = {}, {}, {}
     for f in flows:
         # the interpolated pressure inside the domain, the flow's condition on its faces; closed sides: the
@@ -317,8 +319,12 @@ def _regions(fine: Field, cells: tuple[int, int, int], coarse: tuple[int, int, i
 
 def _faces(starts: list[np.ndarray], cells: tuple[int, int, int], extent: np.ndarray,
            coarse: tuple[int, int, int], axes: np.ndarray) -> tuple[np.ndarray, ...]:  # fmt: skip
-    """The faces between blocks, axis by axis: first cell (R, 3), first cell of the second block
-    along the axis (R,), end cell (R, 3), axis (R,) and flat index in ``Transmissibilities.faces[axis]``."""
+    """The faces between blocks, axis by axis.
+
+    Returns the first cell (R, 3), the first cell of the second block along
+    the axis (R,), the end cell (R, 3), the axis (R,) and the flat index in
+    ``Transmissibilities.faces[axis]``.
+    """
     firsts, mids, lasts, normal, index = [], [], [], [], []
     for d in np.flatnonzero(axes):
         shape = list(coarse)
@@ -363,8 +369,8 @@ class _Lines:
         faces = np.concatenate([np.zeros(shape), np.cumsum(cell, axis=b)], axis=b)
         centres = np.take(faces, np.arange(t.shape[b]), axis=b) + cell / 2
         h = np.expand_dims(sizes, [a for a in range(3) if a != b])
-        blocks = np.add.reduceat(centres * h, starts, axis=b) / np.add.reduceat(np.broadcast_to(h, t.shape), starts,
-                                                                              axis=b)  # fmt: skip
+        weights = np.add.reduceat(np.broadcast_to(h, t.shape), starts, axis=b)
+        blocks = np.add.reduceat(centres * h, starts, axis=b) / weights
         return cls(faces, centres, blocks)
 
     def at(self, array: np.ndarray, cells: np.ndarray, b: int, index: np.ndarray) -> np.ndarray:
@@ -385,7 +391,8 @@ def _linear(lines: _Lines, cells: np.ndarray, face: np.ndarray | None, b: int, b
     the outermost blocks.
     """
     count = lines.blocks.shape[b]
-    s = lines.at(lines.centres, cells, b, cells[..., b]) if face is None else lines.at(lines.faces, cells, b, face)
+    s = (lines.at(lines.centres, cells, b, cells[..., b]) if face is None
+         else lines.at(lines.faces, cells, b, face))  # fmt: skip
     own = cells[..., b] // block
     lower = np.where(s < lines.at(lines.blocks, cells, b, own), own - 1, own)
     upper = lower + 1
@@ -405,7 +412,8 @@ def _linear(lines: _Lines, cells: np.ndarray, face: np.ndarray | None, b: int, b
 
 def _interpolate(coefficients: np.ndarray, members: np.ndarray, origin: np.ndarray, shape: tuple,
                  axes: np.ndarray, lines: list[_Lines | None], cells: tuple[int, int, int], f: int,
-                 coarse: tuple[int, int, int], pieces: list[list[np.ndarray]], constant: np.ndarray) -> None:  # fmt: skip
+                 coarse: tuple[int, int, int], pieces: list[list[np.ndarray]],
+                 constant: np.ndarray) -> None:  # fmt: skip
     """Compose the outer-face coefficients (P, 3, F) of regions `members` with the interpolation.
 
     Appends rows, columns and values of the operator over the coarse
