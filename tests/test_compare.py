@@ -35,6 +35,7 @@ from upscale import Field, coarsen
 from upscale.analysis.compare import ALL_CONDITIONS, Candidate, candidates, compare_methods, single
 from upscale.check.axis import check_flow
 from upscale.errors import InputError
+from upscale.gallery.fields import channel_field
 from upscale.gallery.problems import Layers, uncorrelated_lognormal
 from upscale.methods.registry import METHODS
 
@@ -167,6 +168,19 @@ def test_failed_method_is_last_with_its_reason(mixed):
     assert all(e.error is None for e in mixed.entries[:-1])
     # the candidates keep the order they were given in
     assert [c.label for c in mixed.candidates][:2] == ["geometric", "renormalization"]
+
+
+def test_an_iteration_that_does_not_settle_fails_that_method_only():
+    # local-global stopped after one iteration cannot meet its change limit on a channel map: that
+    # method is reported as failed with the reason, and the comparison goes on
+    k = channel_field((32, 32), channels=3, width=4, k_sand=100.0, k_shale=1.0, seed=871_552_903)
+    chosen = [*candidates(["geometric"]),
+              Candidate("local-global (1 iteration)", "local-global",
+                        {**METHODS["local-global"].defaults, "max_iterations": 1})]  # fmt: skip
+    found = compare_methods(Field.from_arrays(k), "8x8", chosen)
+    assert [e.candidate.label for e in found.ranked] == ["geometric"]
+    failed = found.entries[-1]
+    assert failed.rank is None and "still changed" in failed.error and "1 iterations" in failed.error
 
 
 def test_fine_solves_are_shared_and_each_check_equals_the_method_run_alone(mixed):

@@ -26,6 +26,7 @@ from ..errors import InputError
 from ..field import Field, Grid
 from ..flow import AxisFlow
 from ..flow.corner import CornerFlow
+from ..flow.solvers import ConvergenceError
 from ..grid import BlockSpec
 from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import METHODS, check_exponent
@@ -273,7 +274,7 @@ def compare_methods(
             result = coarsen(field, spec, candidate.method, flows=fine_flows, **candidate.options)
             checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
                                   tolerance=tolerance)  # fmt: skip
-        except InputError as exc:
+        except (InputError, ConvergenceError) as exc:  # this method on this field, not the comparison
             result, checks, error = None, {}, str(exc)
         compiling = compile_seconds() - compiled
         entry = Entry(candidate, result, checks, time.perf_counter() - start - compiling, error,
