@@ -238,6 +238,7 @@ ALL_METHODS = [
     ("flow", {"bc": "sealed", "border": 0}), ("flow", {"bc": "linear", "border": 1}),
     ("flow", {"bc": "periodic", "border": 0}), ("flow-transmissibility", {"border": 0}),
     ("flow-transmissibility", {"border": 1}), ("global", {}), ("renormalization", {}),
+    ("local-global", {"border": 1}),
 ]  # fmt: skip
 assert {name for name, _ in ALL_METHODS} == set(METHODS)
 
@@ -470,7 +471,7 @@ def chunkings(draw, shape):
 
 CHUNKED = [(m, {}) for m in (*AVERAGES, *BOUNDS)] + [
     ("flow", {"bc": bc, "border": b}) for bc in ("sealed", "linear", "periodic") for b in (0, 1, 2, 3)
-] + [("flow-transmissibility", {"border": b}) for b in (0, 2)] + [("global", {})]  # fmt: skip
+] + [("flow-transmissibility", {"border": b}) for b in (0, 2)] + [("global", {}), ("local-global", {"border": 1})]  # fmt: skip
 
 
 def _dask_field(case, chunks):

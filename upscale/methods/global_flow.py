@@ -25,8 +25,9 @@ against the face's fixed pressure, ``T = q / (p_face - p̄)``, from the one
 flow that fixes it (the flow along that axis).
 
 Only the axis flows are fitted (a held-out flow in the same dictionary is
-left alone). A face whose ``|Δp_f|`` is at most `NEGLIGIBLE` in every flow,
-or whose fit is not positive (the fine flux runs against the coarse pressure
+left alone). A face whose ``|Δp_f|`` is at most `NEGLIGIBLE` in every flow
+(or whose flux is at most `NEGLIGIBLE` of the flow's rate: rounding, as in a
+flow that does not connect its two faces), or whose fit is not positive (the fine flux runs against the coarse pressure
 difference), is left undefined and takes the harmonic half-block value of
 the block permeabilities (the fallback, counted in ``replaced_faces``). A
 face that no conducting fine face crosses gets 0. The block permeabilities
@@ -131,14 +132,15 @@ def fitted_faces(flows: list[AxisFlow], cells: tuple[int, int, int]) -> np.ndarr
     means = [_block_means(flow.pressure, volume, starts) for flow in flows]
     faces = np.full((6, *counts), np.nan)
     for a in sorted(AXES[flow.axis] for flow in flows):
-        inner = [_inner_samples(trans, flow.pressure, mean, starts, a) for flow, mean in zip(flows, means)]
+        inner = [(*_inner_samples(trans, flow.pressure, mean, starts, a), _rate(flow))
+                 for flow, mean in zip(flows, means)]  # fmt: skip
         crossed = _block_sums(_inner_faces(trans.faces[a], starts, a), starts, a) > 0
         faces[a][_index(a, slice(1, None))] = _fit(inner, crossed)
         drop = next(i for i, flow in enumerate(flows) if AXES[flow.axis] == a)  # fixes a's outer faces
         inlet, outlet = _outer_samples(trans, flows[drop].pressure, means[drop], starts, a)
         t_in, t_out = (_block_sums(t, starts, a) > 0 for t in trans.boundary[a])
-        faces[a][_index(a, slice(0, 1))] = _fit([inlet], t_in)
-        faces[3 + a][_index(a, slice(-1, None))] = _fit([outlet], t_out)
+        faces[a][_index(a, slice(0, 1))] = _fit([(*inlet, _rate(flows[drop]))], t_in)
+        faces[3 + a][_index(a, slice(-1, None))] = _fit([(*outlet, _rate(flows[drop]))], t_out)
     return faces
 
 
@@ -195,15 +197,26 @@ def _outer_samples(trans: Any, pressure: np.ndarray, mean: np.ndarray, starts: l
     return (_block_sums(inflow, starts, a), 1.0 - first), (_block_sums(outflow, starts, a), last)
 
 
-def _fit(samples: list[tuple[np.ndarray, np.ndarray]], conducting: np.ndarray) -> np.ndarray:
-    """``T = Σ q Δp / Σ Δp²`` over the samples ``(q, Δp)`` whose ``|Δp|`` exceeds `NEGLIGIBLE`.
+def _rate(flow: AxisFlow) -> float:
+    """The flow's whole rate, (unit of k) · m: the scale of its fluxes.
 
-    0 where no fine face conducts; NaN where every ``Δp`` is negligible or the fit is not positive.
+    Infinite for a flow that does not connect its two faces: it carries
+    rounding alone, and no sample of it counts.
+    """
+    return max(flow.inflow, flow.outflow, 0.0) if flow.connected else np.inf
+
+
+def _fit(samples: list[tuple[np.ndarray, np.ndarray, float]], conducting: np.ndarray) -> np.ndarray:
+    """``T = Σ q Δp / Σ Δp²`` over the samples ``(q, Δp, rate)`` that count.
+
+    A sample counts where ``|Δp|`` exceeds `NEGLIGIBLE` and ``|q|`` exceeds
+    `NEGLIGIBLE` times its flow's rate. 0 where no fine face conducts; NaN
+    where no sample counts or the fit is not positive.
     """
     num = np.zeros(conducting.shape)
     den = np.zeros(conducting.shape)
-    for q, dp in samples:
-        counts = np.abs(np.nan_to_num(dp)) > NEGLIGIBLE
+    for q, dp, rate in samples:
+        counts = (np.abs(np.nan_to_num(dp)) > NEGLIGIBLE) & (np.abs(q) > NEGLIGIBLE * rate)
         num += np.where(counts, q * dp, 0.0)
         den += np.where(counts, dp * dp, 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
