@@ -471,7 +471,8 @@ def chunkings(draw, shape):
 
 CHUNKED = [(m, {}) for m in (*AVERAGES, *BOUNDS)] + [
     ("flow", {"bc": bc, "border": b}) for bc in ("sealed", "linear", "periodic") for b in (0, 1, 2, 3)
-] + [("flow-transmissibility", {"border": b}) for b in (0, 2)] + [("global", {}), ("local-global", {"border": 1})]  # fmt: skip
+] + [("flow-transmissibility", {"border": b}) for b in (0, 2)] + [
+    ("global", {}), ("local-global", {"border": 1})]  # fmt: skip
 
 
 def _dask_field(case, chunks):
