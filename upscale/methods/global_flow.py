@@ -29,9 +29,10 @@ left alone). A face whose ``|Δp_f|`` is at most `NEGLIGIBLE` in every flow
 (or whose flux is at most `NEGLIGIBLE` of the flow's rate: rounding, as in a
 flow that does not connect its two faces), or whose fit is not positive
 (the fine flux runs against the coarse pressure difference), is left
-undefined and takes the harmonic half-block value of the block permeabilities (the fallback, counted in ``replaced_faces``). A
-face that no conducting fine face crosses gets 0. The block permeabilities
-(``kx``, ``ky``, ``kz``) are those of the ``flow`` method with sealed sides.
+undefined and takes the harmonic half-block value of the block
+permeabilities (the fallback, counted in ``replaced_faces``). A face that no
+conducting fine face crosses gets 0. The block permeabilities (``kx``,
+``ky``, ``kz``) are those of the ``flow`` method with sealed sides.
 """
 
 from __future__ import annotations
