@@ -85,7 +85,7 @@ def test_check_uses_the_package_when_the_geotiffs_are_gone(run_folder, tmp_path,
     assert code == 0, stderr
     assert "flow check" in stdout
     after = _summary(folder)["check"]
-    assert set(after) == set(before) == {"x", "y"}
+    assert set(after) == set(before) == {"x", "y", "corner"}
     for axis in before:
         assert after[axis]["k_fine"] == pytest.approx(before[axis]["k_fine"], rel=1e-10)
         assert after[axis]["k_coarse"] == pytest.approx(before[axis]["k_coarse"], rel=1e-10)
