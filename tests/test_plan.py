@@ -13,8 +13,9 @@ What is tested
   every block; ``flow`` with sealed sides is exact along and across, so its
   coarsest block is the coarsest listed, while the arithmetic average (wrong
   across the layers) passes at no block that mixes layers.
-* The fine model is solved once per checked flow, however many blocks are
-  listed (counted at the solver that every pressure solve goes through).
+* The fine model is solved once per axis flow, however many blocks are
+  listed, and once per block for the corner flow (counted at the solver that
+  every pressure solve goes through).
 * Bad input ends with one line on stderr, exit status 2, no traceback and no
   folder: blocks that do not grow, blocks that do not fit the grid or crop it
   differently, a largest error that is not a percentage or is out of

@@ -137,8 +137,9 @@ class PlanRecord:
     measure : str
         What is compared with `max_error` (`MEASURE`).
     fine_k_eff : dict of str to (float or None)
-        Per checked flow, the effective permeability of the fine model (the
-        field's unit), solved once and shared by every block and method.
+        Per axis flow, the effective permeability of the fine model (the
+        field's unit), solved once and shared by every block and method (the
+        corner flow's depends on the block: see each comparison).
     methods : tuple of MethodPlan
         In the order given.
     caution : str

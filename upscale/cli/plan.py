@@ -74,11 +74,12 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
          exponent: float | None, bc: str | None, border: int | None, chunk: str | None, solver: str,
          tolerance: float, check_limit: int, out: str, overwrite: bool,
          **options: object) -> None:  # fmt: skip
-    """How coarse can FIELD go? Every method at every block size, against one fine solve.
+    """How coarse can FIELD go? Every method at every block size, against shared fine solves.
 
     Upscales FIELD with every method at every block size listed, checks each
-    coarse model against the fine model — solved once per flow and shared,
-    since the fine model does not change with the block — and names, per
+    coarse model against the fine model — solved once per axis flow and
+    shared, since the fine model does not change with the block; the corner
+    flow once per block, since its regions are whole blocks — and names, per
     method, the coarsest block whose largest check error over the checked
     flows is within --max-error, or says that none is. Writes plan.json,
     figures/error_by_block (PNG and SVG) and report.html (self-contained)
@@ -109,8 +110,8 @@ def _print(record: PlanRecord) -> None:
     rows = [[m.name, *(_error(b.largest_error, b.error) for b in m.blocks), m.coarsest or "none"]
             for m in record.methods]  # fmt: skip
     click.echo(table(header, rows))
-    click.echo("(error = largest |k_coarse - k_fine| / k_fine over the checked flows; the fine model is "
-               "solved once and shared by every block)")  # fmt: skip
+    click.echo("(error = largest |k_coarse - k_fine| / k_fine over the checked flows; the fine axis flows "
+               "are solved once for every block, the corner flow once per block)")  # fmt: skip
     for m in record.methods:
         for b in m.blocks:
             if b.error:
