@@ -198,6 +198,17 @@ def test_error_by_block_chart_has_one_line_per_method_on_a_log_axis_of_the_coars
     assert all(low <= 100 * b.largest_error <= high for m in record.methods for b in m.blocks)
 
 
+def test_error_by_block_chart_labels_errors_below_the_accepted_one():
+    # the linear part of the axis (0 to the accepted error) had no label between its two ends,
+    # so a 2 % point could not be read; ticks at 1, 2 and 5 x 10^k there too (common practice)
+    field = uncorrelated_lognormal((32, 32), seed=508_812_376, sigma_ln=1.0)
+    _, ax = _plan_chart(field, ["geometric", "arithmetic"], ["2x2", "4x4", "8x8"], max_error=0.1)
+    FigureCanvasAgg(ax.figure).draw()
+    low, high = ax.get_ylim()
+    shown = [t for t in ax.get_yticks() if low <= t <= high]
+    assert {1.0, 2.0, 5.0, 10.0} <= set(shown) and 0.0 in shown
+
+
 def test_error_by_block_chart_warns_when_no_method_passes_at_any_block():
     _, ax = _plan_chart(LAYERS, ["arithmetic", "harmonic"], ["2x2", "4x4"])
     assert "No method is within 5 % at any block listed" in ax.title.get_text()

@@ -6,6 +6,7 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.ticker import (
+    FixedLocator,
     FuncFormatter,
     LogLocator,
     MaxNLocator,
@@ -201,9 +202,10 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
 
     One line per method; the x axis is the fine cells per block (log scale,
     labelled with the blocks), the y axis the largest check error over the
-    checked flows in % (symmetric-log beyond ten times the accepted error,
-    so that errors of 1e-12 % and of 100 % share one axis). A method that did
-    not run at a block has no point there.
+    checked flows in % (linear up to the accepted error, logarithmic beyond,
+    so that errors of 1e-12 % and of 100 % share one axis; ticks at 1, 2 and
+    5 × 10^k on both parts). A method that did not run at a block has no
+    point there.
     """
     fig = Figure(figsize=(7.6, 4.8), layout="constrained")
     ax = fig.subplots()
@@ -223,7 +225,8 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
     ax.set_xticks(cells, [f"{b.name}\n({b.cells})" for b in plan.blocks])
     ax.xaxis.set_minor_locator(NullLocator())
     ax.set_yscale("symlog", linthresh=limit, linscale=1.0)
-    ax.yaxis.set_major_locator(SymmetricalLogLocator(linthresh=limit, base=10, subs=(1.0, 2.0, 5.0)))
+    steps = [m * 10.0**k for k in range(-4, 5) for m in (1.0, 2.0, 5.0)]
+    ax.yaxis.set_major_locator(FixedLocator([0.0, *(v for v in steps if limit / 10 <= v <= 1.5 * largest)]))
     ax.yaxis.set_major_formatter(FuncFormatter(percent))
     ax.set_ylim(0.0, 1.5 * largest)
     ax.set_xlabel("block (fine cells per block: the coarsening factor)")
