@@ -90,13 +90,20 @@ def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
             assert ensemble["statistics"][quantity][axis]["count"] == 5
 
 
+CLUSTER_METHODS = {
+    "geometric": ["--method", "geometric"],
+    "flow": ["--method", "flow", "--bc", "periodic", "--border", "3"],
+    "global": ["--method", "global"],  # fits the fine flows, solved on the client
+    "local-global": ["--method", "local-global", "--border", "2"],  # its first stage on the workers
+}
+
+
 @pytest.fixture(scope="module")
 def threaded(realizations, tmp_path_factory):
     from upscale.cli.main import main
 
     outs = {}
-    for name, method in (("geometric", ["--method", "geometric"]),
-                         ("flow", ["--method", "flow", "--bc", "periodic", "--border", "3"])):  # fmt: skip
+    for name, method in CLUSTER_METHODS.items():
         out = tmp_path_factory.mktemp("threaded") / name
         assert main(["-q", "run", str(realizations / "r*.tif"), "--block", "8x8", *method,
                      "--solver", "direct", "--out", str(out)]) == 0  # fmt: skip
@@ -104,14 +111,13 @@ def threaded(realizations, tmp_path_factory):
     return outs
 
 
-@pytest.mark.parametrize("method", ["geometric", "flow"])
+@pytest.mark.parametrize("method", list(CLUSTER_METHODS))
 def test_local_cluster_gives_the_threaded_arrays(realizations, threaded, tmp_path, method):
     from dask.distributed import LocalCluster
 
     from upscale.cli.main import main
 
-    options = {"geometric": ["--method", "geometric"],
-               "flow": ["--method", "flow", "--bc", "periodic", "--border", "3"]}[method]  # fmt: skip
+    options = CLUSTER_METHODS[method]
     # no dashboard, and the scheduler's HTTP server on a free port: a taken 8787 would warn
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None,
                       scheduler_kwargs={"dashboard_address": ":0"}) as cluster:  # fmt: skip
