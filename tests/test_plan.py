@@ -149,8 +149,13 @@ def test_layered_field_flow_passes_at_every_block_and_arithmetic_along_the_layer
         assert check["rel_error"]["y"] > 0.05 and not check["meets"]  # too high across them
     assert arithmetic["coarsest"] is None
     for check in flow["blocks"]:
-        assert check["largest_error"] < 1e-10 and check["meets"], check
-    assert flow["coarsest"] == "16x16" and flow["finer_all_meet"]
+        # exact on both axes; the held-out corner flow crosses the layers at an angle, so exact axis
+        # values still miss it (tests/flow/test_corner.py), and it decides whether a block passes
+        assert abs(check["rel_error"]["x"]) < 1e-10 and abs(check["rel_error"]["y"]) < 1e-10, check
+        assert check["largest_error"] == max(abs(e) for e in check["rel_error"].values())
+        assert check["meets"] == (check["largest_error"] <= 0.05)
+    passing = [check["block"] for check in flow["blocks"] if check["meets"]]
+    assert passing and flow["coarsest"] == passing[-1]
 
 
 # --- the fine model is solved once ---------------------------------------------------------------

@@ -19,6 +19,7 @@ What is tested
 from __future__ import annotations
 
 import math
+import warnings
 
 import dask
 import dask.array as da
@@ -233,3 +234,14 @@ def test_a_positive_sentinel_alone_is_found(dtype):
     assert s.counts[KINDS.index(9999.0)] == 1 and s.firsts[KINDS.index(9999.0)] == ((0, 0, 1),)
     assert s.counts[KINDS.index(1e30)] == 1 and s.counts[KINDS.index(3.4e38)] == 1
     assert sum(s.counts) == 3
+
+
+def test_a_signalling_nan_is_an_inactive_cell_without_a_warning():
+    # float32 NaN with the quiet bit clear (0x7f800001), as a damaged raster can hold: widening it
+    # to float64 raises the invalid flag (IEEE 754); the scan counts it as inactive, silently
+    k = np.array([[[1.0, 2.0, 0.0, 4.0]]], dtype=np.float32)
+    k.view(np.uint32)[0, 0, 2] = 0x7F800001
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        s = scan_values(k)
+    assert s.active == 3 and s.cells == 4

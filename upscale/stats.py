@@ -104,7 +104,8 @@ def _scan_sums(chunk: np.ndarray) -> tuple[np.ndarray, float, float]:
     rows = max(1, _PART // max(chunk.shape[2], 1))
     for layer in range(chunk.shape[0]):
         for i in range(0, chunk.shape[1], rows):
-            part = np.asarray(chunk[layer : layer + 1, i : i + rows], dtype=np.float64)
+            with np.errstate(invalid="ignore"):  # a signalling NaN of the raster becomes a quiet one
+                part = np.asarray(chunk[layer : layer + 1, i : i + rows], dtype=np.float64)
             _value_sums(part, sums, bounds)
     low, high = bounds.view(np.float64)
     return sums, float(low), float(high)

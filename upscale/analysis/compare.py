@@ -261,9 +261,12 @@ def compare_methods(
     spec.check(field.shape, field.ndim)
     fine = field.leading(spec.used_shape(field.shape))
     if fine_flows is None:
-        fine_flows = shared_fine_solves(fine, solver=solver, tolerance=tolerance, say=say)
-    fine_flows = with_held_out(fine_flows, spec.coarse_grid(fine.grid), solver=solver, tolerance=tolerance,
-                               say=say)  # fmt: skip
+        with Steps(say)(None, f"solving the fine model along {', '.join(fine.axes)} and corner to corner"):
+            fine_flows = fine_solves(fine, fine.axes, coarse_grid=spec.coarse_grid(fine.grid), solver=solver,
+                                     tolerance=tolerance)  # fmt: skip
+    else:
+        fine_flows = with_held_out(fine_flows, spec.coarse_grid(fine.grid), solver=solver,
+                                   tolerance=tolerance, say=say)  # fmt: skip
     entries = []
     for i, candidate in enumerate(chosen):
         if report:
