@@ -195,8 +195,12 @@ def test_error_bars_show_the_checks_and_the_five_percent_band(plots_2d, comparis
     x = ax.transAxes.inverted().transform(corners)[:, 0]
     assert min(y) == pytest.approx(-5.0, abs=1e-9) and max(y) == pytest.approx(5.0, abs=1e-9)
     assert min(x) == pytest.approx(0.0, abs=1e-12) and max(x) == pytest.approx(1.0, abs=1e-12)
-    legend = [t.get_text() for t in ax.get_legend().get_texts()]
+    (box,) = ax.figure.legends
+    legend = [t.get_text() for t in box.get_texts()]
     assert "along x" in legend and "along y" in legend and "±5 %" in legend
+    # beside the panel, where it hides no bar (inside it, it once covered one)
+    renderer = ax.figure.canvas.get_renderer()
+    assert not box.get_window_extent(renderer).overlaps(ax.get_window_extent(renderer))
     # one bar per method and axis, as high as the check error in %
     ran = comparison_2d.ranked
     containers = {c.get_label(): c for c in ax.containers}

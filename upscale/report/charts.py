@@ -109,7 +109,9 @@ def error_bars(comparison: Comparison) -> Figure:
     ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
     best = comparison.best
     warn_in(ax, best and outside_band(best.candidate.label, best.worst_error, several=not alone))
-    ax.legend(fontsize=LABEL, loc="best")
+    # below the panel: inside it, "best" still hid bars once thirteen methods and three flows filled it
+    handles, labels = ax.get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncols=len(handles), fontsize=LABEL, frameon=False)
     title(fig, f"Flow check error of {ran[0].candidate.label} per flow" if alone
           else "Flow check error per method and flow")  # fmt: skip
     page_sizes(fig)
