@@ -45,7 +45,7 @@ from upscale.analysis.ensemble import (
 )
 from upscale.analysis.summary import MethodUsed
 from upscale.gallery.problems import uncorrelated_lognormal
-from upscale.report.charts import error_bars, histograms
+from upscale.report.charts import bounds_chart, error_bars, histograms
 from upscale.report.spread import ensemble_chart, method_spread_chart
 
 #: Rows of 1 and 1000 mD: the means miss badly across the layers (errors far beyond 50 %).
@@ -131,6 +131,18 @@ def every():
     """Every candidate of the default comparison on a 32 x 32 lognormal map."""
     field = Field.from_arrays(uncorrelated_lognormal((32, 32), seed=8123), cell_size=(10.0, 10.0))
     return compare_methods(field, "8x8", candidates())
+
+
+def test_bounds_chart_ranks_stay_apart_with_every_method(every):
+    # with thirteen methods the two-digit ranks ran together ("10111213") in a panel of fixed width
+    figure = bounds_chart(every, "mD")
+    FigureCanvasAgg(figure).draw()
+    renderer = figure.canvas.get_renderer()
+    for ax in figure.axes:
+        boxes = [t.get_window_extent(renderer) for t in ax.get_xticklabels() if t.get_text()]
+        assert len(boxes) == len(every.ranked) >= 13
+        # left to right, apart by a third of their height at least (1.8 px, ranks run together, before)
+        assert all(b.x0 - a.x1 > a.height / 3 for a, b in zip(boxes, boxes[1:]))
 
 
 def test_histograms_are_small_multiples_with_the_fine_cells_behind(every):

@@ -123,7 +123,8 @@ def bounds_chart(comparison: Comparison, unit: str) -> Figure:
     fine = comparison.fine
     ran = comparison.ranked
     axes_names = list(fine.axes)
-    fig = Figure(figsize=(2.8 * len(axes_names) + 2.6, 4.6), layout="constrained")
+    panel = max(2.8, 0.27 * len(ran) + 0.6)  # room for two-digit ranks side by side
+    fig = Figure(figsize=(min(MAX_WIDTH, panel * len(axes_names) + 2.6), 4.6), layout="constrained")
     panels = fig.subplots(1, len(axes_names), squeeze=False)[0]
     alone = one_method(comparison)
     for ax, axis in zip(panels, axes_names):
