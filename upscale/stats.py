@@ -321,6 +321,26 @@ def _merge_all(scans: list[ValueScan]) -> ValueScan:
     return total
 
 
+def scan_each(arrays: dict[str, Any]) -> dict[str, Any]:
+    """`scan_values` of every array of `arrays`, an array held under several names scanned once.
+
+    A field's ``ky`` (and ``kz``) is its ``kx`` unless given: one pass serves them all.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> k = np.ones((1, 2, 2))
+    >>> scans = scan_each({"kx": k, "ky": k})
+    >>> scans["kx"] is scans["ky"]
+    True
+    """
+    done: dict[int, Any] = {}
+    for array in arrays.values():
+        if id(array) not in done:
+            done[id(array)] = scan_values(array)
+    return {name: done[id(array)] for name, array in arrays.items()}
+
+
 def scan_values(array: Any) -> Any:
     """Scan a property array of shape (L, M, N).
 

@@ -11,7 +11,7 @@ from typing import Any
 
 from ..field import Field
 from ..parallel import compute_together
-from ..stats import ValueScan, scan_values
+from ..stats import ValueScan, scan_each
 from .connectivity import HIGH_K, connectivity
 
 
@@ -29,7 +29,7 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
     scans : dict of str to ValueScan
         Per property.
     """
-    scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+    scans = compute_together(scan_each(fine.properties()))
     grid = fine.grid
     layers, rows, cols = fine.shape
     kx = scans["kx"]

@@ -24,7 +24,7 @@ from ..field import AXES, AXIS_NAMES, PERMEABILITY, Field
 from ..flow import AxisFlow, Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
-from ..stats import ValueScan, scan_values, where
+from ..stats import ValueScan, scan_each, where
 from . import averages
 from .flow_based import TENSOR
 from .local_global import Coupling
@@ -292,7 +292,7 @@ def coarsen(
     if fine.porosity is not None:
         lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
     lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
-    scans = {name: scan_values(array) for name, array in fine.properties().items()}
+    scans = scan_each(fine.properties())
 
     done = compute_together({**lazy, **{f"_scan_{k}": v for k, v in scans.items()}})
     scans = {name: done.pop(f"_scan_{name}") for name in scans}
@@ -419,7 +419,7 @@ def _direct_faces(
 
 def refuse_bad_values(fine: Field) -> None:
     """Refuse a field with no active cell, or infinite or negative values, or porosity above 1."""
-    scans = compute_together({name: scan_values(a) for name, a in fine.properties().items()})
+    scans = compute_together(scan_each(fine.properties()))
     _check_values(scans, None, {}, fine)
 
 
