@@ -94,7 +94,7 @@ CLUSTER_METHODS = {
     "geometric": ["--method", "geometric"],
     "flow": ["--method", "flow", "--bc", "periodic", "--border", "3"],
     "global": ["--method", "global"],  # fits the fine flows, solved on the client
-    "local-global": ["--method", "local-global", "--border", "2"],  # its first stage on the workers
+    "local-global": ["--method", "local-global", "--border", "2"],  # its regions on the workers
 }
 
 

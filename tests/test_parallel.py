@@ -11,6 +11,9 @@ What is tested
   float32 input.
 * The same through `upscale.coarsen` on fields built from dask arrays, with
   porosity, edge blocks kept or cropped, and ``min_active``.
+* `compute_together` gives every name its own result when delayed values and
+  dask arrays are mixed in any order, and `map_regions` gives every chunk's
+  result with its place in the whole array.
 """
 
 from __future__ import annotations
@@ -23,7 +26,7 @@ import pytest
 import upscale
 from upscale.methods.averages import active_volume, bulk_mean
 from upscale.methods.registry import METHODS
-from upscale.parallel import align_chunks, apply_blocks, is_dask
+from upscale.parallel import align_chunks, apply_blocks, compute_together, is_dask, map_regions
 
 # renormalization takes powers-of-two blocks only; it has its own tests (test_flow_based.py)
 ANY_BLOCK = [n for n in METHODS if n != "renormalization"]
@@ -178,3 +181,30 @@ def test_coarsen_2d_dask_map_shared_arrays():
         assert got.kz is None and got.porosity is None
         assert np.array_equal(want.kx, got.kx, equal_nan=True)
         assert np.array_equal(want.ky, got.ky, equal_nan=True)
+
+
+def test_compute_together_keeps_each_result_with_its_name_in_any_order():
+    # dask 2026.8 returns the array results of a mixed dask.compute call before the delayed ones
+    k = da.ones((4, 4), chunks=2)
+    lazy = {"sum": k.sum(), "delayed": dask.delayed(sum)([1, 5]), "mean": (3 * k).mean(),
+            "list": dask.delayed([dask.delayed(len)("ab"), dask.delayed(len)("abc")])}  # fmt: skip
+    assert compute_together(lazy) == {"sum": 16.0, "delayed": 6, "mean": 3.0, "list": [2, 3]}
+
+
+def _where(*chunks, dz, core, block, offset):
+    return {"offset": offset, "core": core, "shape": chunks[0].shape, "layers": dz.size}
+
+
+def test_map_regions_gives_each_chunk_its_place_and_border():
+    k = da.zeros((3, 12, 16), chunks=(3, 4, 8))
+    found = dask.compute(map_regions(_where, [k], np.ones(3), (1, 4, 4), (0, 4, 4)))[0]
+    for f in found:
+        (z0, z1), (y0, y1), (x0, x1) = f["core"]
+        own = (f["offset"][1] + y0, f["offset"][2] + x0)
+        assert own[0] % 4 == 0 and own[1] % 8 == 0  # the chunk's own cells start where dask's chunk does
+        assert f["shape"][1] - (y1 - y0) <= 8 and f["shape"][2] - (x1 - x0) <= 8  # a border of 4 each side
+        assert f["layers"] == 3
+    assert sorted((f["offset"][1] + f["core"][1][0], f["offset"][2] + f["core"][2][0]) for f in found) == [
+        (0, 0), (0, 8), (4, 0), (4, 8), (8, 0), (8, 8)]
+    whole = map_regions(_where, [np.zeros((3, 12, 16))], np.ones(3), (1, 4, 4), (0, 4, 4))
+    assert [w["shape"] for w in whole] == [(3, 12, 16)]

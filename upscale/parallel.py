@@ -115,6 +115,17 @@ def apply_blocks(
     )
 
 
+def _place(location: tuple[int, ...], core_chunks: tuple[tuple[int, ...], ...],
+           depth: tuple[int, int, int]) -> tuple[list[int], tuple[tuple[int, int], ...]]:  # fmt: skip
+    """First cell of an overlapping chunk in the whole array, and its own cells ``core`` within it."""
+    starts, before = [], []
+    for axis, (i, sizes) in enumerate(zip(location, core_chunks)):
+        starts.append(sum(sizes[:i]) - (depth[axis] if i > 0 else 0))
+        before.append(depth[axis] if i > 0 else 0)
+    core = tuple((b, b + sizes[i]) for b, i, sizes in zip(before, location, core_chunks))
+    return starts, core
+
+
 def _run_region_chunk(
     *chunks: np.ndarray,
     function: Callable[..., np.ndarray],
@@ -125,14 +136,36 @@ def _run_region_chunk(
     options: dict,
     block_info: dict | None = None,
 ) -> np.ndarray:
-    location = block_info[None]["chunk-location"][-3:]
-    starts, before = [], []
-    for axis, (i, sizes) in enumerate(zip(location, core_chunks)):
-        starts.append(sum(sizes[:i]) - (depth[axis] if i > 0 else 0))
-        before.append(depth[axis] if i > 0 else 0)
-    core = tuple((b, b + sizes[i]) for b, i, sizes in zip(before, location, core_chunks))
+    starts, core = _place(block_info[None]["chunk-location"][-3:], core_chunks, depth)
     layers = dz[starts[0] : starts[0] + chunks[0].shape[0]]
     return function(*chunks, dz=layers, core=core, block=block, **options)
+
+
+def _overlapping(arrays: list[Any], block: tuple[int, int, int], depth: tuple[int, int, int]) -> tuple:
+    """Dask arrays chunked to whole blocks, each chunk widened by `depth` cells of its neighbours.
+
+    Returns the widened arrays, the chunks of the cells each chunk owns, and
+    the depth used along each axis (0 along an axis held in one chunk).
+    """
+    import dask.array as da
+
+    template = next(a for a in arrays if is_dask(a))
+    template = align_chunks(template, block, depth)
+    aligned = [
+        (a if is_dask(a) else da.from_array(a)).rechunk(template.chunks) for a in arrays
+    ]
+    core_chunks = template.chunks
+    sides = {axis: d if max(core_chunks[axis]) < sum(core_chunks[axis]) else 0
+             for axis, d in enumerate(depth)}  # fmt: skip
+    widened = [da.overlap.overlap(a, depth=sides, boundary="none") for a in aligned]
+    expected = tuple(
+        tuple(c + (sides[axis] if i > 0 else 0) + (sides[axis] if i < len(cs) - 1 else 0)
+              for i, c in enumerate(cs))
+        for axis, cs in enumerate(core_chunks)
+    )  # fmt: skip
+    if widened[0].chunks != expected:
+        raise RuntimeError(f"overlapping chunks {widened[0].chunks} differ from {expected}")
+    return widened, core_chunks, tuple(sides[a] for a in range(3))
 
 
 def apply_regions(
@@ -176,22 +209,7 @@ def apply_regions(
         return function(*(np.asarray(a) for a in arrays), dz=dz, core=core, block=block, **options)
     import dask.array as da
 
-    template = next(a for a in arrays if is_dask(a))
-    template = align_chunks(template, block, depth)
-    aligned = [
-        (a if is_dask(a) else da.from_array(a)).rechunk(template.chunks) for a in arrays
-    ]
-    core_chunks = template.chunks
-    sides = {axis: d if max(core_chunks[axis]) < sum(core_chunks[axis]) else 0
-             for axis, d in enumerate(depth)}  # fmt: skip
-    widened = [da.overlap.overlap(a, depth=sides, boundary="none") for a in aligned]
-    expected = tuple(
-        tuple(c + (sides[axis] if i > 0 else 0) + (sides[axis] if i < len(cs) - 1 else 0)
-              for i, c in enumerate(cs))
-        for axis, cs in enumerate(core_chunks)
-    )  # fmt: skip
-    if widened[0].chunks != expected:
-        raise RuntimeError(f"overlapping chunks {widened[0].chunks} differ from {expected}")
+    widened, core_chunks, sides = _overlapping(arrays, block, depth)
     out_chunks = ((outputs,),) + tuple(
         tuple(-(-c // b) for c in cs) for cs, b in zip(core_chunks, block)
     )
@@ -200,7 +218,7 @@ def apply_regions(
         *widened,
         function=function,
         dz=dz,
-        depth=tuple(sides[a] for a in range(3)),
+        depth=sides,
         core_chunks=core_chunks,
         block=block,
         options=options,
@@ -211,13 +229,60 @@ def apply_regions(
     )
 
 
+def map_regions(
+    function: Callable[..., Any],
+    arrays: list[Any],
+    dz: np.ndarray,
+    block: tuple[int, int, int],
+    depth: tuple[int, int, int],
+    **options: Any,
+) -> Any:
+    """Apply `function` to every chunk and a border around it, for results of any kind.
+
+    Parameters
+    ----------
+    function : callable
+        ``function(*chunks, dz, core, block, offset, **options) -> object``, as in
+        `apply_regions`, and ``offset``: the first cell of the chunk (border
+        included) in the whole array, along z, y, x.
+    arrays, dz, block, depth, **options
+        As in `apply_regions`.
+
+    Returns
+    -------
+    list or dask.delayed.Delayed
+        One result per chunk; for dask input a lazy list (computed with the
+        other results of a pass by `compute_together`, on whatever scheduler
+        or cluster dask uses), for NumPy input the list itself.
+    """
+    if not any(is_dask(a) for a in arrays):
+        core = tuple((0, n) for n in np.shape(arrays[0]))
+        return [function(*(np.asarray(a) for a in arrays), dz=dz, core=core, block=block, offset=(0, 0, 0),
+                         **options)]  # fmt: skip
+    import dask
+
+    widened, core_chunks, sides = _overlapping(arrays, block, depth)
+    pieces = [a.to_delayed() for a in widened]
+    tasks = []
+    for location in np.ndindex(pieces[0].shape):
+        starts, core = _place(location, core_chunks, sides)
+        layers = dz[starts[0] : starts[0] + widened[0].chunks[0][location[0]]]
+        chunks = (p[location] for p in pieces)
+        tasks.append(dask.delayed(function, pure=True)(*chunks, dz=layers, core=core, block=block,
+                                                       offset=tuple(starts), **options))  # fmt: skip
+    return dask.delayed(tasks)
+
+
 def compute_together(lazy: dict[str, Any]) -> dict[str, Any]:
     """Compute several lazy results in one pass over their shared chunks.
 
     NumPy arrays and finished values pass through; each array result is a
     writable copy of its own.
     """
-    names = [name for name, value in lazy.items() if is_dask(value) or _is_delayed(value)]
+    # dask arrays first, then delayed values: dask 2026.8 returns a mixed call's array results before its
+    # delayed ones whatever their order (measured; tests/test_parallel.py holds the case)
+    names = [name for name, value in lazy.items() if is_dask(value) and not _is_delayed(value)]
+    names += [name for name, value in lazy.items() if _is_delayed(value)]
     done = dict(lazy)
     if names:
         import dask

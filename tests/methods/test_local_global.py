@@ -12,7 +12,8 @@ What is tested
   fields with contrasts up to 1e4; summary.json records it.
 * On binary channel maps local–global beats flow-transmissibility in most
   seeds, and `compare` ranks it beside the others.
-* The faces are the same from one chunk or many.
+* The faces are the same from one chunk or many, and the fine field is never
+  held whole: no task of the dask graph returns an array as large as it.
 * An iteration that does not converge stops with one message naming the last change.
 """
 
@@ -188,3 +189,26 @@ def test_the_same_faces_from_one_chunk_or_many():
                       border=2).transmissibilities()  # fmt: skip
     for a in (1, 2):
         assert np.array_equal(whole.faces[a], chunked.faces[a])
+
+
+def test_the_fine_field_is_never_held_whole():
+    # out of core: every task works on a chunk and its border (DEVELOPERS.md: memory bounded by the chunk)
+    import dask
+    import dask.array as da
+    from dask.callbacks import Callback
+
+    k = lognormal_field((256, 256), (8.0, 8.0), geometric_mean=10.0, sigma_ln=1.0, seed=310_577_201)[None]
+    largest = []
+
+    class Sizes(Callback):
+        def _posttask(self, key, result, dsk, state, id):
+            largest.append(result.nbytes if isinstance(result, np.ndarray) else 0)
+
+    with Sizes(), dask.config.set(scheduler="threads"):
+        chunked = coarsen(Field.from_arrays(da.from_array(k, chunks=(1, 32, 32))), "8x8", "local-global",
+                          border=2)  # fmt: skip
+    assert chunked.coupling.iterations >= 1
+    assert 0 < max(largest) <= k.nbytes / 4  # a chunk of 32 x 32 with its border of 3 blocks: 80 x 80 cells
+    whole = coarsen(Field.from_arrays(k), "8x8", "local-global", border=2).transmissibilities()
+    for a in (1, 2):
+        assert np.array_equal(whole.faces[a], chunked.transmissibilities().faces[a])

@@ -309,6 +309,7 @@ def coarsen(
     lost = float(pore[inactive].sum()) if pore is not None else 0.0
     tensor = _tensor_terms(computed.pop("tensor"), fine.ndim, computed) if "tensor" in computed else {}
     faces = computed.pop("faces", None)
+    regions = computed.pop("regions", None)
     names = [PERMEABILITY[a] for a in fine.axes]
     floored, inactive, zeros = apply_zero_rule(spec, {name: computed[name] for name in names}, inactive, pore)
     computed.update(floored)
@@ -331,7 +332,7 @@ def coarsen(
         if chosen.couple is not None:
             local = replace(harmonic, faces=faces, boundary=boundary)
             closed = tuple(f == 0 for f in harmonic.faces)
-            faces, coupling = chosen.couple(fine, cells, local, closed, **options)
+            faces, coupling = chosen.couple(regions, local, closed, **options)
     dropped = math.prod(field.shape) - math.prod(fine.shape)
     return Upscaled(fine, coarse, method=chosen.name, options=options, block=spec, active_fraction=fraction,
                     fine_stats=scans, dropped_cells=dropped, lost_pore_volume=lost, zeros=zeros,

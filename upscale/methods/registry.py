@@ -84,9 +84,10 @@ class Method:
         as ``flows=`` (`upscale.methods.global_flow`), so that a run or a
         comparison that solves them for the check solves them once.
     couple : callable or None
-        ``couple(fine, cells, trans, closed, **options) -> (faces, Coupling)``:
+        ``couple(regions, trans, closed, **options) -> (faces, Coupling)``:
         a step after the coarse model is built that iterates its face
-        transmissibilities with coarse global flows (``local-global``).
+        transmissibilities with coarse global flows (``local-global``), from
+        what the kernel gave as ``regions``.
     bound : {'upper', 'lower'} or None
         Whether the method is a bound of the effective permeability rather
         than an estimate of it: the arithmetic and harmonic means are the
