@@ -10,8 +10,8 @@ What is tested, and against what
   source at the centre and a fixed pressure on the sides is its conformal
   radius r_e ≈ 0.5394 L, the radius at which the square's Green's function
   equals that of a circle (``G → ln(r_e / r) / 2π`` near the source), taken
-  here from the Green's function's sine series (separation of variables,
-  common practice) — exact when r_w ≪ Δx ≪ L. The equal-area radius L / √π
+  from its Green's function (`upscale.gallery.problems.square_outer_radius`,
+  a sine series: separation of variables, common practice) — exact when r_w ≪ Δx ≪ L. The equal-area radius L / √π
   would be off by 0.6 % of the rate. What is left is the rounding of Peaceman's constant
   (0.28 / √2 = 0.1980 against the five-point scheme's exact e^{-γ} / (2√2) =
   0.1985, from memory: the lattice Green's function; 0.03 % of the rate
@@ -46,6 +46,7 @@ import pytest
 from upscale import Field
 from upscale.errors import InputError
 from upscale.flow import transmissibilities
+from upscale.gallery.problems import square_outer_radius
 from upscale.flow.wells import (
     Well,
     completed_thickness,
@@ -69,27 +70,10 @@ def _centre_well(n: int) -> tuple[Field, float, np.ndarray]:
     return field, flow.rates["W"], flow.pressure[0]
 
 
-def _conformal_radius(side: float, near: float = 1e-3, terms: int = 20_000) -> float:
-    """r_e of a square: Green's function (−∇²G = δ, G = 0 on the sides, source at the centre) near the source.
-
-    Its sine series in x with the exact solution in y, ``G(x, y) = Σ 2 sin(nπx0) sin(nπx)
-    sinh(nπ y<) sinh(nπ (1 - y>)) / (nπ sinh nπ)`` on the unit square, taken at a
-    distance `near` from the source, where ``G = ln(r_e / near) / 2π``.
-    """
-    n = np.arange(1, terms + 1) * np.pi
-    low, high = 0.5, 0.5 + near
-    # sinh(a) sinh(b) / sinh(c) written with exponentials that do not overflow
-    a, b = n * low, n * (1 - high)
-    ratio = np.exp(a + b - n) * -np.expm1(-2 * a) * -np.expm1(-2 * b) / -np.expm1(-2 * n) / 2
-    g = float(np.sum(2 * np.sin(n / 2) ** 2 * ratio / n))
-    return side * near * math.exp(2 * math.pi * g)
-
-
 def test_centre_well_matches_the_radial_solution() -> None:
     n = 31
     _, q, _ = _centre_well(n)
-    r_e = _conformal_radius(n * DX)
-    assert r_e == pytest.approx(0.5394 * n * DX, rel=1e-4)
+    r_e = square_outer_radius(n * DX)
     radial = 2 * math.pi * K * H * 1.0 / math.log(r_e / RW)  # Dupuit–Thiem, Δp = 1
     assert q == pytest.approx(radial, rel=5e-3)
 
