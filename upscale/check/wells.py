@@ -168,16 +168,29 @@ def well_check(
     >>> round(check.fine.rates["I"] + check.fine.rates["P"], 9)   # closed faces: in = out
     0.0
     """
-    refuse_rates_only(wells, outer_pressure)
+    on_fine = place_wells(fine, wells, outer_pressure)
     fine_trans = fine_trans or transmissibilities(fine)
     coarse_trans = coarse_trans or transmissibilities(coarse)
-    on_fine = [connect(w, fine.grid, *_horizontal(fine)) for w in wells]
-    refuse_shared_cells(on_fine)
     on_coarse = [connect(w, coarse.grid, *_horizontal(coarse), fine=fine.grid) for w in wells]
     flows = [well_flow(t, c, outer_pressure=outer_pressure, solver=solver, tolerance=tolerance)
              for t, c in ((fine_trans, on_fine), (coarse_trans, on_coarse))]  # fmt: skip
     return WellCheck(tuple(wells), *flows, outer_pressure, _cells(on_fine, fine.shape),
                      _cells(on_coarse, coarse.shape))  # fmt: skip
+
+
+def place_wells(fine: Field, wells: tuple[Well, ...] | list[Well], outer_pressure: float | None = None
+                ) -> list[Connections]:  # fmt: skip
+    """The wells connected to the fine grid, every rule that needs the grid checked (before any solve).
+
+    Raises
+    ------
+    InputError
+        As `well_check`.
+    """
+    refuse_rates_only(wells, outer_pressure)
+    connections = [connect(w, fine.grid, *_horizontal(fine)) for w in wells]
+    refuse_shared_cells(connections)
+    return connections
 
 
 def _horizontal(field: Field) -> tuple[np.ndarray, np.ndarray]:
