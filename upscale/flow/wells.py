@@ -257,7 +257,7 @@ def connect(well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Gri
         if not (np.isfinite(a) and np.isfinite(b) and a > 0 and b > 0):
             raise InputError(
                 f"well {well.name} is completed in an inactive or impermeable cell (layer {layer + 1}, "
-                f"row {row + 1}, column {column + 1}); move it or narrow its `layers`"
+                f"row {row + 1}, column {column + 1}); move it or narrow its layers"
             )
     dx, dy = grid.dx[column], grid.dy[row]
     r_o = equivalent_radius(k_x, k_y, dx, dy)
@@ -302,7 +302,7 @@ def refuse_shared_cells(connections: list[Connections]) -> None:
             if cell in owner:
                 raise InputError(
                     f"wells {owner[cell]} and {c.well.name} share a fine cell; two wells need two cells "
-                    "(move one, or give them different `layers`)"
+                    "(move one, or give them different layers)"
                 )
             owner[cell] = c.well.name
 

@@ -219,7 +219,7 @@ def _wells(settings: Settings, fine: Field) -> tuple:
     if settings.wells is None:
         return ()
     if not settings.check:
-        raise InputError("`wells` add a well check to the flow check; leave out `check=False` (--no-check)")
+        raise InputError("`wells` adds a well check to the flow check; leave out `check=False`")
     wells = read_wells(settings.wells)
     if not too_large(fine.shape, settings.check_limit):
         place_wells(fine.leading(settings.block.used_shape(fine.shape)), wells, settings.outer_pressure)
