@@ -52,7 +52,10 @@ def test_rate_wells_are_compared_by_drawdown() -> None:
     n = 24
     field = Field.from_arrays(np.full((2, n, n), K), cell_size=(DX, DX), dz=[1.0, 3.0])
     result = coarsen(field, "4x4x2", "arithmetic")
-    wells = [Well("I", 45.0, -45.0, (2, 2), "rate", 40.0, RW), Well("P", 195.0, -195.0, None, "pressure", 5.0, RW)]
+    wells = [
+        Well("I", 45.0, -45.0, (2, 2), "rate", 40.0, RW),
+        Well("P", 195.0, -195.0, None, "pressure", 5.0, RW),
+    ]
     check = well_check(result.fine, result.coarse, wells)
     assert check.fine.rates == pytest.approx({"I": 40.0, "P": -40.0}, rel=1e-9)
     assert check.coarse.rates == pytest.approx({"I": 40.0, "P": -40.0}, rel=1e-9)

@@ -47,13 +47,18 @@ DX = 10.0
 def fields(size: int, seed: int) -> dict[str, np.ndarray]:
     """The two fields of one seed, (size, size), mD."""
     return {
-        "lognormal σ=1": lognormal_field((size, size), (10.0, 10.0), geometric_mean=100.0, sigma_ln=1.0, seed=seed),
-        "channels 100:1": channel_field((size, size), channels=5, width=6.0, k_sand=100.0, k_shale=1.0, seed=seed)[0],
+        "lognormal σ=1": lognormal_field(
+            (size, size), (10.0, 10.0), geometric_mean=100.0, sigma_ln=1.0, seed=seed
+        ),
+        "channels 100:1": channel_field(
+            (size, size), channels=5, width=6.0, k_sand=100.0, k_shale=1.0, seed=seed
+        )[0],
     }  # fmt: skip
 
 
 def patterns(size: int) -> dict[str, list[Well]]:
     """Well patterns at fixed fractions of the side, each well in a fine-cell centre."""
+
     def at(name: str, fx: float, fy: float, pressure: float) -> Well:
         x, y = ((np.floor(f * size) + 0.5) * DX for f in (fx, fy))
         return Well(name, float(x), -float(y), None, "pressure", pressure, 0.1)
@@ -85,10 +90,14 @@ def main() -> None:
                 given = {"flows": flows} if METHODS[method].global_flows else {}
                 result = coarsen(field, args.block, method, **given)
                 for pattern, wells in patterns(args.size).items():
-                    check = well_check(result.fine, result.coarse, wells, coarse_trans=result.transmissibilities(),
+                    check = well_check(result.fine, result.coarse, wells,
+                                       coarse_trans=result.transmissibilities(),
                                        fine_trans=flows["x"].trans)  # fmt: skip
                     errors[(name, pattern, method)].append(check.rel_error)
-    print(f"{args.size}² cells, {args.block} blocks, {args.seeds} seeds, {time.perf_counter() - started:.0f} s\n")
+    print(
+        f"{args.size}² cells, {args.block} blocks, {args.seeds} seeds, "
+        f"{time.perf_counter() - started:.0f} s\n"
+    )
     print("| field | wells | " + " | ".join(methods) + " |")
     print("|---|---|" + "---|" * len(methods))
     for name in ("lognormal σ=1", "channels 100:1"):

@@ -22,7 +22,8 @@ from upscale.gallery.problems import uncorrelated_lognormal
 
 SEED = 6_150_883_271
 X0, Y0 = ORIGIN  # the north-west corner of the rasters; 10 m cells
-PAIR = f"name,x,y,control,value,radius\nI,{X0 + 45},{Y0 - 45},pressure,2,0.1\nP,{X0 + 275},{Y0 - 155},pressure,1,0.1\n"
+HEADER = "name,x,y,control,value,radius\n"
+PAIR = HEADER + f"I,{X0 + 45},{Y0 - 45},pressure,2,0.1\nP,{X0 + 275},{Y0 - 155},pressure,1,0.1\n"
 
 
 @pytest.fixture
@@ -44,7 +45,9 @@ def test_run_and_check_with_wells(run_cli, field: Path, tmp_path: Path) -> None:
     assert "well check: the wells of" in stdout and "total rate" in stdout
     recorded = json.loads((out / "summary.json").read_text())["well_check"]
     assert recorded["outer_faces"] == "closed" and set(recorded["wells"]) == {"I", "P"}
-    assert recorded["wells"]["I"]["fine"]["cells"] == [[0, 4, 4]] and recorded["wells"]["I"]["coarse"]["cells"] == [[0, 0, 0]]
+    assert recorded["wells"]["I"]["fine"]["cells"] == [[0, 4, 4]] and recorded["wells"]["I"]["coarse"][
+        "cells"
+    ] == [[0, 0, 0]]
     fine = recorded["wells"]["I"]["fine"]["rate"]
     assert fine > 0 and recorded["wells"]["P"]["fine"]["rate"] == pytest.approx(-fine, rel=1e-9)
 
@@ -54,7 +57,9 @@ def test_run_and_check_with_wells(run_cli, field: Path, tmp_path: Path) -> None:
     again = json.loads((out / "summary.json").read_text())["well_check"]
     for name in ("I", "P"):
         for grid in ("fine", "coarse"):
-            assert again["wells"][name][grid]["rate"] == pytest.approx(recorded["wells"][name][grid]["rate"], rel=1e-10)
+            assert again["wells"][name][grid]["rate"] == pytest.approx(
+                recorded["wells"][name][grid]["rate"], rel=1e-10
+            )
     code, _, stderr = run_cli("check", out, "--wells", wells, "--outer-pressure", "1.5", "-q")
     assert code == 0, stderr
     assert json.loads((out / "summary.json").read_text())["well_check"]["outer_faces"] == {"pressure": 1.5}
@@ -62,12 +67,13 @@ def test_run_and_check_with_wells(run_cli, field: Path, tmp_path: Path) -> None:
 
 BAD = {
     "unknown column": ("name,x,y,control,value,radius,depth\n", "unknown column 'depth'"),
-    "not a number": ("name,x,y,control,value,radius\nI,east,1,rate,1,0.1\n", "line 2: x = 'east' is not a finite number"),
-    "outside": (f"name,x,y,control,value,radius\nI,{X0 - 5},{Y0 - 5},pressure,1,0.1\n", "well I: x = 412345 lies outside"),
+    "not a number": (HEADER + "I,east,1,rate,1,0.1\n", "line 2: x = 'east' is not a finite number"),
+    "outside": (HEADER + f"I,{X0 - 5},{Y0 - 5},pressure,1,0.1\n", "well I: x = 412345 lies outside"),
     "one cell": (PAIR + f"Q,{X0 + 41},{Y0 - 49},pressure,0,0.1\n", "wells I and Q share a fine cell"),
-    "rates only": (PAIR.replace("pressure", "rate"), "every well is driven by a rate and the outer faces are closed"),
-    "layers": (f"name,x,y,layers,control,value,radius\nI,{X0 + 45},{Y0 - 45},2,pressure,1,0.1\n", "layers 2-2 go below"),
-    "radius in inches": (f"name,x,y,control,value,radius\nI,{X0 + 45},{Y0 - 45},pressure,1,4.5\n", "radius 4.5 must be a well radius in m"),
+    "rates only": (PAIR.replace("pressure", "rate"), "every well is driven by a rate and the outer faces"),
+    "layers": (f"name,x,y,layers,control,value,radius\nI,{X0 + 45},{Y0 - 45},2,pressure,1,0.1\n",
+               "layers 2-2 go below"),
+    "radius in inches": (HEADER + f"I,{X0 + 45},{Y0 - 45},pressure,1,4.5\n", "radius 4.5 must be"),
 }  # fmt: skip
 
 
@@ -85,4 +91,7 @@ def test_a_bad_wells_file_is_one_line(run_cli, field: Path, tmp_path: Path, case
 def test_wells_need_the_check(run_cli, field: Path, tmp_path: Path) -> None:
     code, _, stderr = run_cli("run", field, "--block", "8x8", "--method", "arithmetic", "--no-check",
                               "--wells", _wells(tmp_path, PAIR), "--out", tmp_path / "out")  # fmt: skip
-    assert code == 2 and stderr == "upscale: error: --wells adds a well check to the flow check; leave out --no-check\n"
+    assert (
+        code == 2
+        and stderr == "upscale: error: --wells adds a well check to the flow check; leave out --no-check\n"
+    )

@@ -400,7 +400,8 @@ def build_summary(
         provenance(fine, command, read), fine.unit, MethodUsed(result.method, jsonable(result.options)),
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
-        tuple(files), jsonable(timings or {}), CAUTION, tensor, faces, None if wells is None else jsonable(wells),
+        tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
+        None if wells is None else jsonable(wells),
     )  # fmt: skip
 
 

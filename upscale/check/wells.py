@@ -29,7 +29,15 @@ import numpy as np
 
 from ..field import Field
 from ..flow import Transmissibilities, transmissibilities
-from ..flow.wells import Connections, Well, WellFlow, connect, refuse_rates_only, refuse_shared_cells, well_flow
+from ..flow.wells import (
+    Connections,
+    Well,
+    WellFlow,
+    connect,
+    refuse_rates_only,
+    refuse_shared_cells,
+    well_flow,
+)
 
 #: What a rate means, recorded beside the numbers.
 RATE_UNIT = "q·μ in (unit of k)·m·(unit of pressure), positive into the rock (injection)"
@@ -194,12 +202,14 @@ def place_wells(fine: Field, wells: tuple[Well, ...] | list[Well], outer_pressur
 
 
 def _horizontal(field: Field) -> tuple[np.ndarray, np.ndarray]:
-    """kx and ky of a field in memory, ky = kx when not given."""
+    """Kx and ky of a field in memory, ky = kx when not given."""
     kx = np.asarray(field.kx, dtype=np.float64)
     return kx, kx if field.ky is None or field.ky is field.kx else np.asarray(field.ky, dtype=np.float64)
 
 
-def _cells(connections: list[Connections], shape: tuple[int, int, int]) -> dict[str, list[tuple[int, int, int]]]:
+def _cells(
+    connections: list[Connections], shape: tuple[int, int, int]
+) -> dict[str, list[tuple[int, int, int]]]:
     """(layer, row, column) of every connected cell, per well."""
     return {c.well.name: [tuple(int(i) for i in cell) for cell in zip(*np.unravel_index(c.cells, shape))]
             for c in connections}  # fmt: skip

@@ -70,7 +70,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS
 def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float | None,
         bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
-        tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, units: str, workers: int | None, scheduler: str | None,
+        tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, units: str,
+        workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
 

@@ -226,7 +226,9 @@ def completed_thickness(grid: Grid, layers: tuple[int, int] | None, fine: Grid |
     return np.clip(np.minimum(edges[1:], bottom) - np.maximum(edges[:-1], top), 0.0, None)
 
 
-def connect(well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Grid | None = None) -> Connections:
+def connect(
+    well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Grid | None = None
+) -> Connections:
     """The cells of `grid` the well crosses and their Peaceman well indices.
 
     Parameters
@@ -268,7 +270,9 @@ def connect(well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Gri
             "check the radius (in m) and the skin"
         )
     index = well_index(k_x, k_y, dx, dy, h[layers], well.radius, well.skin)
-    cells = np.ravel_multi_index((layers, np.full_like(layers, row), np.full_like(layers, column)), grid.shape)
+    cells = np.ravel_multi_index(
+        (layers, np.full_like(layers, row), np.full_like(layers, column)), grid.shape
+    )
     return Connections(well, cells, index)
 
 
@@ -307,7 +311,8 @@ def refuse_shared_cells(connections: list[Connections]) -> None:
             owner[cell] = c.well.name
 
 
-def well_flow(trans: Transmissibilities, connections: list[Connections], *, outer_pressure: float | None = None,
+def well_flow(trans: Transmissibilities, connections: list[Connections], *,
+              outer_pressure: float | None = None,
               solver: str = "auto", tolerance: float = 1e-10) -> WellFlow:  # fmt: skip
     """Solve the steady flow driven by the wells (module docstring) on one grid.
 
@@ -381,7 +386,9 @@ def well_flow(trans: Transmissibilities, connections: list[Connections], *, oute
     return WellFlow(rates, pressures, boundary_rate, pressure, int(keep.sum()), *info)
 
 
-def _outer_faces(trans: Transmissibilities, pressure: float | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _outer_faces(
+    trans: Transmissibilities, pressure: float | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Cells behind the four side faces, their half-cell t towards the face, and its pressure."""
     if pressure is None:
         return np.zeros(0, np.int64), np.zeros(0), np.zeros(0)

@@ -173,7 +173,9 @@ def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) 
         x, y = float(cells["x"][order][0]), float(cells["y"][order][0])
         k["kx"]
     except (KeyError, TypeError, ValueError) as exc:
-        raise InputError(f"{folder / 'cells.csv'}: no kx, x and y to place the wells on ({_plain(exc)})") from None
+        raise InputError(
+            f"{folder / 'cells.csv'}: no kx, x and y to place the wells on ({_plain(exc)})"
+        ) from None
     grid = trans.grid
     # the centres are in the CRS's units, laid out with the block sizes in m (`upscale.export.package`)
     corner = (x - grid.dx[0] / 2, y + grid.dy[0] / 2)

@@ -186,9 +186,11 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
             wells_check = {"file": settings.wells, "skipped": reason}
         else:
             with steps("wells_s", f"checking {len(wells)} wells: fine and coarse solves"):
-                found = well_check(result.fine, result.coarse, wells, coarse_trans=result.transmissibilities(),
-                                   fine_trans=next(iter(flows.values())).trans, outer_pressure=settings.outer_pressure,
-                                   solver=settings.solver, tolerance=settings.tolerance)  # fmt: skip
+                found = well_check(result.fine, result.coarse, wells,
+                                   coarse_trans=result.transmissibilities(),
+                                   fine_trans=next(iter(flows.values())).trans,
+                                   outer_pressure=settings.outer_pressure, solver=settings.solver,
+                                   tolerance=settings.tolerance)  # fmt: skip
                 wells_check = {"file": settings.wells, **found.summary()}
     made = None
     if checks and drawing:
@@ -201,7 +203,8 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                           layer=layer)  # fmt: skip
     with steps(None, "writing the coarse grid and the summary"):
         summary = write_result(result, out, overwrite=overwrite, command=settings.command,
-                               timings=steps.timings, check=check, read=settings.recorded_read, wells=wells_check,
+                               timings=steps.timings, check=check, read=settings.recorded_read,
+                               wells=wells_check,
                                images=made.images if made and settings.plot else None,
                                page=made.page if made and settings.report else None,
                                units=settings.units)  # fmt: skip

@@ -25,7 +25,11 @@ def _file(tmp_path: Path, text: str) -> Path:
 
 
 def test_a_good_file_with_defaults(tmp_path: Path) -> None:
-    text = "# injector and producer\n" + HEADER + "I1, 1250.5, -340,,rate,500,0.1,\n\nP1,2250,-1340,2-4,Pressure,0,0.08,1.5\n"
+    text = (
+        "# injector and producer\n"
+        + HEADER
+        + "I1, 1250.5, -340,,rate,500,0.1,\n\nP1,2250,-1340,2-4,Pressure,0,0.08,1.5\n"
+    )
     assert read_wells(_file(tmp_path, text)) == (
         Well("I1", 1250.5, -340.0, None, "rate", 500.0, 0.1, 0.0),
         Well("P1", 2250.0, -1340.0, (2, 4), "pressure", 0.0, 0.08, 1.5),
@@ -33,7 +37,9 @@ def test_a_good_file_with_defaults(tmp_path: Path) -> None:
     # optional columns may be left out, in any order
     short = "radius,value,control,y,x,name\n0.1,3,pressure,2,1,W\n"
     assert read_wells(_file(tmp_path, short)) == (Well("W", 1.0, 2.0, None, "pressure", 3.0, 0.1, 0.0),)
-    assert read_wells(_file(tmp_path, "name,x,y,layers,control,value,radius\nW,1,2,3,rate,1,0.1\n"))[0].layers == (3, 3)
+    assert read_wells(_file(tmp_path, "name,x,y,layers,control,value,radius\nW,1,2,3,rate,1,0.1\n"))[
+        0
+    ].layers == (3, 3)
 
 
 @pytest.mark.parametrize(
@@ -53,7 +59,8 @@ def test_a_good_file_with_defaults(tmp_path: Path) -> None:
         (HEADER + "W,1,2,,rate,1,4.5,\n", "line 2: radius 4.5 must be a well radius in m"),
         (HEADER + "W,1,2,3-1,rate,1,0.1,\n", "line 2: layers '3-1' must be all, one layer"),
         (HEADER + "W,1,2,0,rate,1,0.1,\n", "line 2: layers '0' must be all"),
-        (HEADER + "W,1,2,,rate,1,0.1,\nW,3,4,,pressure,0,0.1,\n", "line 3: the well name 'W' is used twice .first on line 2"),
+        (HEADER + "W,1,2,,rate,1,0.1,\nW,3,4,,pressure,0,0.1,\n",
+         "line 3: the well name 'W' is used twice .first on line 2"),
     ],
 )  # fmt: skip
 def test_each_bad_file_is_one_line(tmp_path: Path, text: str, message: str) -> None:
