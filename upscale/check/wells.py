@@ -176,13 +176,55 @@ def well_check(
     >>> round(check.fine.rates["I"] + check.fine.rates["P"], 9)   # closed faces: in = out
     0.0
     """
+    shared = fine_wells(fine, wells, fine_trans=fine_trans, outer_pressure=outer_pressure, solver=solver,
+                        tolerance=tolerance)  # fmt: skip
+    return coarse_wells(shared, coarse, coarse_trans=coarse_trans, solver=solver, tolerance=tolerance)
+
+
+@dataclass(frozen=True, eq=False)
+class FineWells:
+    """The fine half of the well check, to share between coarse models (`coarse_wells`).
+
+    Attributes
+    ----------
+    fine : Field
+    wells : tuple of Well
+    flow : WellFlow
+    cells : dict of str to list of (int, int, int)
+        The fine (layer, row, column) each well connects to.
+    outer_pressure : float or None
+    """
+
+    fine: Field
+    wells: tuple[Well, ...]
+    flow: WellFlow
+    cells: dict[str, list[tuple[int, int, int]]]
+    outer_pressure: float | None
+
+
+def fine_wells(fine: Field, wells: tuple[Well, ...] | list[Well], *,
+               fine_trans: Transmissibilities | None = None, outer_pressure: float | None = None, solver: str = "auto", tolerance: float = 1e-10
+               ) -> FineWells:  # fmt: skip
+    """The wells solved on the fine grid: one solve, whatever the number of coarse models checked.
+
+    Parameters and errors as in `well_check`.
+    """
     on_fine = place_wells(fine, wells, outer_pressure)
-    fine_trans = fine_trans or transmissibilities(fine)
-    coarse_trans = coarse_trans or transmissibilities(coarse)
-    on_coarse = [connect(w, coarse.grid, *_horizontal(coarse), fine=fine.grid) for w in wells]
-    flows = [well_flow(t, c, outer_pressure=outer_pressure, solver=solver, tolerance=tolerance)
-             for t, c in ((fine_trans, on_fine), (coarse_trans, on_coarse))]  # fmt: skip
-    return WellCheck(tuple(wells), *flows, outer_pressure, _cells(on_fine, fine.shape),
+    flow = well_flow(fine_trans or transmissibilities(fine), on_fine, outer_pressure=outer_pressure,
+                     solver=solver, tolerance=tolerance)  # fmt: skip
+    return FineWells(fine, tuple(wells), flow, _cells(on_fine, fine.shape), outer_pressure)
+
+
+def coarse_wells(shared: FineWells, coarse: Field, *, coarse_trans: Transmissibilities | None = None,
+                 solver: str = "auto", tolerance: float = 1e-10) -> WellCheck:  # fmt: skip
+    """The coarse half of the well check, against the fine solve of `fine_wells`.
+
+    Parameters and errors as in `well_check`.
+    """
+    on_coarse = [connect(w, coarse.grid, *_horizontal(coarse), fine=shared.fine.grid) for w in shared.wells]
+    flow = well_flow(coarse_trans or transmissibilities(coarse), on_coarse,
+                     outer_pressure=shared.outer_pressure, solver=solver, tolerance=tolerance)  # fmt: skip
+    return WellCheck(shared.wells, shared.flow, flow, shared.outer_pressure, shared.cells,
                      _cells(on_coarse, coarse.shape))  # fmt: skip
 
 
