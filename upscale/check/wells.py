@@ -203,8 +203,8 @@ class FineWells:
 
 
 def fine_wells(fine: Field, wells: tuple[Well, ...] | list[Well], *,
-               fine_trans: Transmissibilities | None = None, outer_pressure: float | None = None, solver: str = "auto", tolerance: float = 1e-10
-               ) -> FineWells:  # fmt: skip
+               fine_trans: Transmissibilities | None = None, outer_pressure: float | None = None,
+               solver: str = "auto", tolerance: float = 1e-10) -> FineWells:  # fmt: skip
     """The wells solved on the fine grid: one solve, whatever the number of coarse models checked.
 
     Parameters and errors as in `well_check`.
