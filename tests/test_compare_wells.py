@@ -9,7 +9,8 @@
   whose errors are all moderate.
 * Without wells, compare.json is as before (no ``well_check``; the digests
   of tests/test_reference_outputs.py hold it bit for bit); with them, every
-  method records its well check and the CLI prints its error.
+  method records its well check, the CLI prints its error, and the report
+  gains the column and the bar chart of the well rates fine vs coarse.
 """
 
 from __future__ import annotations
@@ -70,3 +71,7 @@ def test_compare_cli_with_wells(run_cli, tmp_path: Path) -> None:
     assert "error wells" in stdout and "and the wells)" in stdout
     record = json.loads((tmp_path / "cmp" / "compare.json").read_text())
     assert record["ranking"] == RANKING_WELLS and all("well_check" in m for m in record["methods"])
+    # the report: the wells' column in the ranking, and the bar chart of the well rates
+    page = (tmp_path / "cmp" / "report.html").read_text()
+    assert "<th>error wells</th>" in page and '<figure id="wells">' in page
+    assert (tmp_path / "cmp" / "figures" / "wells.png").stat().st_size > 0

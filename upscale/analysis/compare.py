@@ -361,7 +361,8 @@ def with_held_out(fine_flows: dict[str, AxisFlow | CornerFlow], coarse_grid: Gri
     return {**{k: f for k, f in fine_flows.items() if k not in HELD_OUT}, **held}
 
 
-def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0) -> Comparison:
+def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0, *,
+           wells: WellCheck | None = None) -> Comparison:  # fmt: skip
     """A comparison of one: a run's result and its check, for the same figures and report.
 
     Parameters
@@ -372,9 +373,11 @@ def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0)
         Its check, from `upscale.check.check_flow`.
     seconds : float
         Time the run took.
+    wells : WellCheck, optional
+        Its well check (`upscale.check.wells.well_check`).
     """
     candidate = Candidate(_label(result.method, result.options), result.method, result.options)
-    entry = Entry(candidate, result, checks, seconds, rank=1)
+    entry = Entry(candidate, result, checks, seconds, rank=1, wells=wells)
     flows = {axis: check.fine for axis, check in checks.items()}
     return Comparison(result.fine, result.block, [entry], flows, [candidate])
 

@@ -180,7 +180,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                 checks = coarse_check(flows, result.transmissibilities(), solver=settings.solver,
                                       tolerance=settings.tolerance)  # fmt: skip
                 check = {axis: c.summary() for axis, c in checks.items()}
-    wells_check = None
+    wells_check, found = None, None
     if wells:
         if reason:
             wells_check = {"file": settings.wells, "skipped": reason}
@@ -198,7 +198,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
 
         layer = settings.layer
         with steps(None, "drawing the figures"):
-            made = bundle(single(result, checks, steps.timings["upscale_s"]),
+            made = bundle(single(result, checks, steps.timings["upscale_s"], wells=found),
                           title=f"upscale — {result.method} on {path}", command=settings.command,
                           layer=layer)  # fmt: skip
     with steps(None, "writing the coarse grid and the summary"):
