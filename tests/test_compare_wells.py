@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from conftest import ORIGIN, write_raster
+from report.test_layout import PAGE_PX, SMALLEST, _drawn_texts  # the checks of every other figure
 
 from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
@@ -28,6 +29,8 @@ from upscale.analysis.comparison_record import RANKING_WELLS, comparison_record
 from upscale.check.wells import fine_wells
 from upscale.flow.wells import Well
 from upscale.gallery.fields import lognormal_field
+from upscale.report.figures import build_figures
+from upscale.report.layout import DPI
 
 SEED = 4_417_092_336
 
@@ -56,6 +59,14 @@ def test_methods_are_ranked_on_the_wells_too() -> None:
     assert all(m["well_check"]["total_rate"]["rel_error"] is not None for m in record["methods"])
     plain = comparison_record(compare_methods(field, "8x8", candidates(["geometric"]))).to_dict()
     assert "well_check" not in plain["methods"][0]
+    # the bar chart of the well rates: every text on the canvas, readable at the page's width
+    (plot,) = [p for p in build_figures(found, "mD") if p.name == "wells"]
+    texts, canvas = _drawn_texts(plot.figure)
+    for text, box in texts:
+        assert canvas.x0 - 1 <= box.x0 and box.x1 <= canvas.x1 + 1, text.get_text()
+        assert canvas.y0 - 1 <= box.y0 and box.y1 <= canvas.y1 + 1, text.get_text()
+    scale = min(1.0, PAGE_PX / (plot.figure.get_figwidth() * DPI))
+    assert min(t.get_fontsize() for t, _ in texts) * DPI / 96 * scale >= SMALLEST
 
 
 @pytest.mark.slow  # about 7 s: the figures and the page of a comparison
