@@ -95,3 +95,22 @@ def test_wells_need_the_check(run_cli, field: Path, tmp_path: Path) -> None:
         code == 2
         and stderr == "upscale: error: --wells adds a well check to the flow check; leave out --no-check\n"
     )
+
+
+def test_a_well_in_a_kept_edge_block(run_cli, tmp_path: Path) -> None:
+    # 30 x 44 cells in 8 x 8 blocks, edge blocks kept: 6 rows and 4 columns in the last ones
+    field = write_raster(tmp_path / "k.tif", uncorrelated_lognormal((30, 44), SEED + 1), cell_size=10.0)
+    rows = f"I,{X0 + 15},{Y0 - 15},pressure,2,0.1\nP,{X0 + 425},{Y0 - 285},rate,-3,0.1\n"
+    wells = _wells(tmp_path, HEADER + rows)
+    out = tmp_path / "out"
+    code, _, stderr = run_cli("run", field, "--block", "8x8", "--remainder", "keep", "--method", "flow",
+                              "--wells", wells, "--out", out, "-q")  # fmt: skip
+    assert code == 0, stderr
+    recorded = json.loads((out / "summary.json").read_text())["well_check"]["wells"]["P"]
+    assert recorded["fine"]["cells"] == [[0, 28, 42]] and recorded["coarse"]["cells"] == [[0, 3, 5]]
+    # the package places the edge blocks where the run did
+    code, _, stderr = run_cli("check", out, "--wells", wells, "-q")
+    assert code == 0, stderr
+    again = json.loads((out / "summary.json").read_text())["well_check"]["wells"]["P"]
+    assert again["coarse"]["cells"] == [[0, 3, 5]]
+    assert again["coarse"]["pressure"] == pytest.approx(recorded["coarse"]["pressure"], rel=1e-10)
