@@ -5,7 +5,7 @@ What is tested, and against what
 * One pressure well in the centre of a homogeneous square, the four sides at
   a fixed pressure: the rate agrees with the radial (Dupuit–Thiem) solution
   ``q = 2π k h Δp / ln(r_e / r_w)`` (Peaceman 1978, "Interpretation of
-  well-block pressures in numerical reservoir simulation", SPE J. 18(3), eq. 1)
+  well-block pressures in numerical reservoir simulation", SPE J. 18(3))
   within 0.5 %. A square is not a circle: its equivalent outer radius for a
   source at the centre and a fixed pressure on the sides is its conformal
   radius r_e ≈ 0.5394 L, the radius at which the square's Green's function
@@ -27,7 +27,8 @@ What is tested, and against what
 * Anisotropic kx ≠ ky and rectangular cells: the well index equals the
   formula of Peaceman (1983, "Interpretation of well-block pressures in
   numerical reservoir simulation with nonsquare grid blocks and anisotropic
-  permeability", SPE J. 23(3), eqs. 24 and 25), written out again here.
+  permeability", SPE J. 23(3): its equivalent radius and well index), written
+  out again here.
 * A rate well and a pressure well inside closed faces: the rate well moves
   its rate, the pressure well takes it back (mass balance, common practice),
   and the rates are linear in the rate given (twice the rate, twice the
@@ -94,7 +95,7 @@ def test_well_cell_pressure_is_that_of_peacemans_radius() -> None:
 @pytest.mark.parametrize(("kx", "ky", "dx", "dy"), [(400.0, 25.0, 20.0, 5.0), (3.0, 30.0, 7.5, 12.0),
                                                     (80.0, 80.0, 10.0, 40.0)])  # fmt: skip
 def test_anisotropic_well_index_is_peacemans_1983(kx: float, ky: float, dx: float, dy: float) -> None:
-    # Peaceman (1983), eq. 25: the equivalent radius; eq. 24: WI = 2π √(kx ky) h / ln(r_o / r_w)
+    # Peaceman (1983): the equivalent radius, and WI = 2π √(kx ky) h / (ln(r_o / r_w) + s)
     r_o = (
         0.28
         * math.sqrt(math.sqrt(ky / kx) * dx**2 + math.sqrt(kx / ky) * dy**2)

@@ -13,7 +13,7 @@ at which the radial pressure around it equals the cell pressure of the
 five-point scheme. For a rectangular cell Δx × Δy with kx ≠ ky (Peaceman
 1983, "Interpretation of well-block pressures in numerical reservoir
 simulation with nonsquare grid blocks and anisotropic permeability", SPE
-Journal 23(3), eq. 25)
+Journal 23(3))
 
     r_o = 0.28 √(√(ky/kx) Δx² + √(kx/ky) Δy²) / ((ky/kx)^¼ + (kx/ky)^¼),
 

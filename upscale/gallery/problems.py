@@ -325,7 +325,7 @@ def square_outer_radius(side: float, *, near: float = 1e-3, terms: int = 20_000)
     A well of radius r_w ≪ `side` at the centre then passes the radial
     (Dupuit–Thiem) rate ``q = 2π k h Δp / (μ ln(r_e / r_w))`` (Peaceman 1978,
     "Interpretation of well-block pressures in numerical reservoir
-    simulation", eq. 1, with r_e for the circle's radius). r_e is the
+    simulation", with r_e for the circle's radius). r_e is the
     square's conformal radius: the Green's function of the square
     (−∇²G = δ at the centre, G = 0 on the sides) tends to ``ln(r_e / r) / 2π``
     near the source. It is evaluated here from the Green's function's sine
