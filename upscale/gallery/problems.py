@@ -1,4 +1,4 @@
-"""Model problems with a known answer: layers, checkerboards, lognormal fields, channels and lenses.
+"""Model problems with a known answer: layers, checkerboards, lognormal fields, channels, lenses, a well.
 
 Each generator returns plain arrays ``(M, N)`` or ``(L, M, N)`` (rows as the
 array's second-to-last axis, x along the last) and is reproducible from its
