@@ -5,7 +5,9 @@ model of each under the same pressure drops as the fine model and under the
 held-out corner-to-corner flow (`upscale.check.axis.HELD_OUT`) — the fine
 solves are done once and shared — and ranks the methods by their largest
 absolute check error over the axes and the held-out flow: a method fitted to
-the axis flows cannot win by them alone. A method that cannot run on this field
+the axis flows cannot win by them alone. Given wells, each coarse model is
+also driven by them (`upscale.check.wells`, one fine solve shared) and the
+error of their total rate joins the largest error. A method that cannot run on this field
 (renormalization on a block that is not a power of two, a harmonic mean of
 zeros...) is kept in the list with its reason instead of stopping the
 comparison.
@@ -21,6 +23,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..check.axis import HELD_OUT, AxisCheck, coarse_check, fine_solves, held_out_solves
+from ..check.wells import FineWells, WellCheck, coarse_wells
 from ..compiling import compile_seconds
 from ..errors import InputError
 from ..field import Field, Grid
@@ -75,6 +78,8 @@ class Entry:
     compiling : float
         Time spent compiling kernels on their first use meanwhile (s; see
         `upscale.compiling`), left out of `seconds`.
+    wells : WellCheck or None
+        The well check of this method's coarse model, when wells were given.
     """
 
     candidate: Candidate
@@ -84,13 +89,16 @@ class Entry:
     error: str | None = None
     rank: int | None = None
     compiling: float = 0.0
+    wells: WellCheck | None = None
 
     @property
     def worst_error(self) -> float:
-        """Largest ``|rel_error|`` over the axes and the held-out flows (inf: failed, or a NaN error)."""
+        """Largest ``|rel_error|`` over the axes, held-out flows and wells (inf: failed, or a NaN error)."""
         if self.error is not None or not self.checks:
             return math.inf
         errors = [abs(c.rel_error) for c in self.checks.values()]
+        if self.wells is not None:
+            errors.append(abs(self.wells.rel_error))
         return math.inf if any(math.isnan(e) for e in errors) else max(errors)
 
 
@@ -109,6 +117,8 @@ class Comparison:
         The fine pressure-drop solve along each axis, then the held-out flows.
     candidates : list of Candidate
         The candidates in the order given (which breaks ties).
+    wells : FineWells or None
+        The wells' fine solve, when the methods were also checked by wells.
     """
 
     fine: Field
@@ -116,6 +126,7 @@ class Comparison:
     entries: list[Entry]
     fine_flows: dict[str, AxisFlow | CornerFlow]
     candidates: list[Candidate]
+    wells: FineWells | None = None
 
     @property
     def ranked(self) -> list[Entry]:
@@ -220,6 +231,7 @@ def compare_methods(
     report: Callable[[int, int, Candidate, Entry | None], None] | None = None,
     say: Say = silent,
     fine_flows: dict[str, AxisFlow] | None = None,
+    wells: FineWells | None = None,
 ) -> Comparison:
     """Upscale `field` with every candidate, check each against one fine solve, and rank.
 
@@ -242,6 +254,9 @@ def compare_methods(
         The fine solves of the check, from `shared_fine_solves` on the same
         fine field as used here (a plan shares them between block sizes);
         solved here when None.
+    wells : FineWells, optional
+        Wells solved on the fine field as used here (`upscale.check.wells.fine_wells`):
+        each method's coarse model is driven by them too, and ranked on them.
 
     Returns
     -------
@@ -277,11 +292,14 @@ def compare_methods(
             result = coarsen(field, spec, candidate.method, flows=fine_flows, **candidate.options)
             checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
                                   tolerance=tolerance)  # fmt: skip
+            well_check = None if wells is None else coarse_wells(
+                wells, result.coarse, coarse_trans=result.transmissibilities(), solver=solver,
+                tolerance=tolerance)  # fmt: skip
         except (InputError, ConvergenceError) as exc:  # this method on this field, not the comparison
-            result, checks, error = None, {}, str(exc)
+            result, checks, well_check, error = None, {}, None, str(exc)
         compiling = compile_seconds() - compiled
         entry = Entry(candidate, result, checks, time.perf_counter() - start - compiling, error,
-                      compiling=compiling)  # fmt: skip
+                      compiling=compiling, wells=well_check)  # fmt: skip
         entries.append(entry)
         if report:
             report(i, len(chosen), candidate, entry)
@@ -289,7 +307,7 @@ def compare_methods(
     ran = sorted((e for e in entries if e.error is None), key=lambda e: _tied(e.worst_error))
     ranked = [dataclasses.replace(e, rank=r + 1) for r, e in enumerate(ran)]
     failed = [e for e in entries if e.error is not None]
-    return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen))
+    return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen), wells)
 
 
 def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 1e-10,
@@ -343,7 +361,8 @@ def with_held_out(fine_flows: dict[str, AxisFlow | CornerFlow], coarse_grid: Gri
     return {**{k: f for k, f in fine_flows.items() if k not in HELD_OUT}, **held}
 
 
-def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0) -> Comparison:
+def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0, *,
+           wells: WellCheck | None = None) -> Comparison:  # fmt: skip
     """A comparison of one: a run's result and its check, for the same figures and report.
 
     Parameters
@@ -354,9 +373,11 @@ def single(result: Upscaled, checks: dict[str, AxisCheck], seconds: float = 0.0)
         Its check, from `upscale.check.check_flow`.
     seconds : float
         Time the run took.
+    wells : WellCheck, optional
+        Its well check (`upscale.check.wells.well_check`).
     """
     candidate = Candidate(_label(result.method, result.options), result.method, result.options)
-    entry = Entry(candidate, result, checks, seconds, rank=1)
+    entry = Entry(candidate, result, checks, seconds, rank=1, wells=wells)
     flows = {axis: check.fine for axis, check in checks.items()}
     return Comparison(result.fine, result.block, [entry], flows, [candidate])
 

@@ -9,6 +9,7 @@ report, the command line and the ensemble ranking read its attributes, and
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -32,6 +33,9 @@ from .records import (
 
 #: How a comparison ranks its methods, recorded beside the ranking.
 RANKING = "largest |rel_error| over the axes and the held-out corner flow, smallest first"
+#: How the methods are ranked when wells were given.
+RANKING_WELLS = ("largest |rel_error| over the axes, the held-out corner flow and the wells' total rate, "
+                 "smallest first")  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -60,6 +64,8 @@ class MethodRecord:
         The flow check per axis, then per held-out flow (``corner``).
     zero_k : ZeroKRecord or None
         What the zero-k rule did.
+    well_check : dict or None
+        With wells: the well check of this method (`upscale.check.wells.WellCheck.summary`).
     """
 
     name: str
@@ -72,6 +78,7 @@ class MethodRecord:
     coarse_mean: dict[str, float | None] | None
     check: dict[str, AxisResult] | None
     zero_k: ZeroKRecord | None
+    well_check: dict[str, Any] | None = None
 
     @property
     def bound(self) -> str | None:
@@ -82,13 +89,19 @@ class MethodRecord:
         """Largest ``|rel_error|`` over `axes` and the held-out flows (None when failed or undefined)."""
         if self.error is not None or not self.check:
             return None
-        return largest_error(self.check, axes)
+        found = largest_error(self.check, axes)
+        if found is None or self.well_check is None:
+            return found
+        wells = self.well_check["total_rate"]["rel_error"]
+        return None if wells is None or not math.isfinite(wells) else max(found, abs(wells))
 
     def to_dict(self) -> dict[str, Any]:
         """The method's object in ``compare.json``."""
         found = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
         found["check"] = None if self.check is None else {a: c.to_dict() for a, c in self.check.items()}
         found["zero_k"] = None if self.zero_k is None else self.zero_k.to_dict()
+        if self.well_check is None:  # absent without wells, as before them
+            del found["well_check"]
         return found
 
     @classmethod
@@ -98,7 +111,8 @@ class MethodRecord:
         return cls(data["name"], data["method"], data["parameters"], data["rank"], data["error"],
                    data["seconds"], data["compile_seconds"], data["coarse_mean"],
                    None if check is None else {a: AxisResult.from_dict(c) for a, c in check.items()},
-                   None if zeros is None else ZeroKRecord.from_dict(zeros))  # fmt: skip
+                   None if zeros is None else ZeroKRecord.from_dict(zeros),
+                   data.get("well_check"))  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -185,7 +199,8 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
     fine = comparison.fine
     return ComparisonRecord(
         provenance(fine, command, read), fine.unit, jsonable(comparison.block.summary()), fine.ndim,
-        grid_record(fine.grid), RANKING, tuple(_method(e, fine.axes) for e in comparison.entries),
+        grid_record(fine.grid), RANKING if comparison.wells is None else RANKING_WELLS,
+        tuple(_method(e, fine.axes) for e in comparison.entries),
         _label(comparison.best), {axis: _label(comparison.best_along(axis)) for axis in fine.axes}, CAUTION,
     )  # fmt: skip
 
@@ -198,9 +213,10 @@ def _method(entry: Entry, axes: tuple[str, ...]) -> MethodRecord:
         check = axis_results(entry.checks)
         zeros = ZeroKRecord.from_dict(jsonable(entry.result.zeros.summary()))
     candidate = entry.candidate
+    wells = None if entry.wells is None else jsonable(entry.wells.summary())
     return MethodRecord(candidate.label, candidate.method, jsonable(candidate.options), entry.rank,
                         entry.error, jsonable(entry.seconds), jsonable(entry.compiling), means, check,
-                        zeros)  # fmt: skip
+                        zeros, wells)  # fmt: skip
 
 
 def _label(entry: Entry | None) -> str | None:

@@ -304,6 +304,9 @@ class RunSummary:
         Anisotropy of a flow-based (local) method's tensors.
     transmissibility : FaceRule or None
         The rule of a flow-based (local) method's coarse faces.
+    well_check : dict or None
+        The well-driven check (`upscale.check.wells.WellCheck.summary`, with the
+        wells file), JSON-ready; None when no wells were given.
     """
 
     provenance: Provenance
@@ -321,6 +324,7 @@ class RunSummary:
     caution: str
     tensor: TensorSummary | None = None
     transmissibility: FaceRule | None = None
+    well_check: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``summary.json``, key for key."""
@@ -334,6 +338,8 @@ class RunSummary:
             found["tensor"] = self.tensor.to_dict()
         if self.transmissibility is not None:
             found["transmissibility"] = self.transmissibility.to_dict()
+        if self.well_check is not None:
+            found["well_check"] = self.well_check
         return found
 
     @classmethod
@@ -347,7 +353,7 @@ class RunSummary:
                    None if check is None else FlowCheck.from_dict(check), tuple(data["files"]),
                    data["timings_s"], data["caution"],
                    None if tensor is None else TensorSummary.from_dict(tensor),
-                   None if faces is None else FaceRule.from_dict(faces))  # fmt: skip
+                   None if faces is None else FaceRule.from_dict(faces), data.get("well_check"))  # fmt: skip
 
 
 def build_summary(
@@ -358,6 +364,7 @@ def build_summary(
     timings: dict[str, float] | None = None,
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
+    wells: dict[str, Any] | None = None,
 ) -> RunSummary:
     """Describe a run.
 
@@ -377,6 +384,8 @@ def build_summary(
     read : dict, optional
         The options the fine field was read with (unit, scale, nodata, dz,
         cell size, kv/kh), so the run can be checked again later.
+    wells : dict, optional
+        The well-driven check (`upscale.check.wells.WellCheck.summary`).
 
     Returns
     -------
@@ -392,6 +401,7 @@ def build_summary(
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
+        None if wells is None else jsonable(wells),
     )  # fmt: skip
 
 

@@ -6,28 +6,36 @@ import click
 
 from ..analysis.summary import FlowCheck
 from ..jobs.check import check_folder
-from .options import check_options, global_options
-from .report import print_check
+from .options import check_options, global_options, well_options
+from .report import print_check, print_well_check
 
 
 @click.command()
 @click.argument("folder", type=click.Path(file_okay=False))
 @check_options
+@well_options
 @global_options
 @click.pass_context
-def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int) -> None:
+def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int, wells: str | None,
+          outer_pressure: float | None) -> None:  # fmt: skip
     """Check again that the coarse grid in FOLDER passes the fine model's flow.
 
     Reads the run's summary.json and its fine inputs (which must be
     unchanged: their SHA-256 is compared), rebuilds the coarse model from the
     coarse-grid package alone (cells.csv, connections.csv, boundary.csv,
     manifest.json), applies the same pressure drop across each axis to both,
-    prints the errors and records them in summary.json.
+    prints the errors and records them in summary.json. With --wells, the
+    wells are also driven on both grids (the coarse blocks' kx, ky from
+    cells.csv) and the well check is recorded as well_check.
 
     \b
     Example:
       upscale check out/ --solver direct
+      upscale check out/ --wells wells.csv
     """
-    summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit)
+    summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit, wells=wells,
+                           outer_pressure=outer_pressure)  # fmt: skip
     if not ctx.obj["quiet"]:
         print_check(FlowCheck.from_dict(summary["check"]))
+        if wells is not None:
+            print_well_check(summary["well_check"])

@@ -26,6 +26,7 @@ from .options import (
     parse_methods,
     read_options,
     recorded,
+    well_options,
 )
 from .progress import teller
 from .report import number, print_notes, print_spread, table
@@ -41,6 +42,7 @@ from .report import number, print_notes, print_spread, table
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks).")
 @check_options
+@well_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder for compare.json, figures/ and report.html. For several fields, "
               "one such folder per field plus ranking.csv, figures/spread.*, report.html and "
@@ -50,8 +52,8 @@ from .report import number, print_notes, print_spread, table
 @click.pass_context
 def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
             bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
-            tolerance: float, check_limit: int, out: str, overwrite: bool,
-            **options: object) -> None:  # fmt: skip
+            tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, out: str,
+            overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
     Several FIELDs or a glob (an ensemble of realizations on one grid): the
@@ -62,7 +64,9 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     method's coarse model is solved under the same pressure drops, and the
     methods are ranked by their largest check error over the axes. Writes
     compare.json, figures/ (PNG and SVG) and report.html (self-contained)
-    into the output folder. A method that cannot run on this field is listed
+    into the output folder. With --wells, every coarse model is also driven
+    by the wells of the file and the error of their total rate joins the
+    ranking. A method that cannot run on this field is listed
     with its reason.
 
     \b
@@ -70,6 +74,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
       upscale compare map.tif --block 8x8 --out cmp/
       upscale compare map.tif --block 16x16 --methods geometric,flow --border 2 --out cmp/
       upscale compare 'realizations/*.tif' --block 8x8 --methods geometric,flow --out cmp/
+      upscale compare map.tif --block 8x8 --methods flow,local-global --wells wells.csv --out cmp/
     """
     check_destination(out, overwrite)
     chosen = candidates(parse_methods(methods), bc=bc, border=border, exponent=exponent)
@@ -80,7 +85,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.cells), "solver": solver,
             "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
             "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
-            "say": say}  # fmt: skip
+            "say": say, "wells": wells, "outer_pressure": outer_pressure}  # fmt: skip
     if len(paths) > 1:
         content = compare_ensemble(paths, spec, chosen, out, **jobs)
         if not ctx.obj["quiet"]:
@@ -97,7 +102,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
         several = not one_method(result)
         click.echo(f"\nbest: {best.candidate.label}" if several else
                    f"\n{best.candidate.label}: largest check error {100 * best.worst_error:.2f} % "
-                   f"(axes and {', '.join(HELD_OUT)})")
+                   f"(axes and {', '.join(HELD_OUT)}" + (", wells)" if result.wells else ")"))
         print_notes(outside_band(best.candidate.label, best.worst_error, several=several),
                     bound_note(best.candidate.method, best.candidate.label) if several else None)
         click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
@@ -105,20 +110,26 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
 
 def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     flows = (*axes, *HELD_OUT)
+    wells = any(e.wells is not None for e in entries)
     rows = []
     for e in entries:
         if e.error:
-            rows.append([e.candidate.label, "-", *(["-"] * (len(axes) + len(flows))), f"{e.seconds:.2f}"])
+            rows.append([e.candidate.label, "-", *(["-"] * (len(axes) + len(flows) + wells)),
+                         f"{e.seconds:.2f}"])  # fmt: skip
             continue
         coarse = e.result.coarse
         means = [number(_mean(getattr(coarse, PERMEABILITY[a]))) for a in axes]
         errors = [_percent(e.checks[f].rel_error) for f in flows]
+        errors += [] if e.wells is None else [_percent(e.wells.rel_error)]
         rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
-    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {f}" for f in flows), "time s"]
+    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {f}" for f in flows),
+              *(["error wells"] if wells else []), "time s"]  # fmt: skip
     click.echo(table(header, rows))
     click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop;\n"
                " corner: the held-out corner-to-corner flow, k = its rate over that of k = 1;\n"
-               " rank: by the largest |error| over the axes and the corner flow)")
+               + (" wells: the error of the total well rate (docs/wells.md);\n" if wells else "")
+               + " rank: by the largest |error| over the axes and the corner flow"
+               + (", and the wells)" if wells else ")"))  # fmt: skip
     compiling = sum(e.compiling for e in entries)
     if compiling >= 0.5:
         click.echo(f"(first use: {compiling:.1f} s went to compiling kernels, not counted in the times; "

@@ -276,6 +276,22 @@ def check_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
+def well_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """Options of the well-driven check (shared by run and check)."""
+    options = [
+        click.option("--wells", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+                     help="A wells file (CSV, docs/wells.md): the check also drives these wells on the "
+                     "fine and the coarse grid and compares their rates (pressure wells) or pressures "
+                     "(rate wells)."),
+        click.option("--outer-pressure", type=float, default=None, metavar="PRESSURE",
+                     help="Hold the four sides of the domain at this pressure in the well check "
+                     "[default: closed sides]."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
 def read_options(options: dict[str, Any]) -> dict[str, Any]:
     """Turn the values of `field_options` into keyword arguments of `upscale.read_field`."""
     dz = parse_numbers(options.pop("dz"), "--dz")

@@ -99,6 +99,8 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
                    + (f", {faces.kept_faces} faces kept their previous value" if faces.kept_faces else ""))
     click.echo("")
     print_check(summary.check)
+    if summary.well_check is not None:
+        print_well_check(summary.well_check)
     click.echo("")
     files = [f for f in summary.files if not f.startswith("figures/") and f not in PACKAGE_FILES]
     files.insert(len(files) - ("report.html" in files), "the coarse-grid package (manifest.json)")
@@ -130,6 +132,27 @@ def print_check(check: FlowCheck | None) -> None:
     click.echo("flow check: the same pressure drop across each axis on both grids"
                + (", and corner to corner (held out)" if "corner" in check.axes else ""))  # fmt: skip
     click.echo(table(["flow", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))
+
+
+def print_well_check(check: dict) -> None:
+    """Print the well-driven check recorded in a summary (its ``well_check`` object)."""
+    if "skipped" in check:
+        click.echo(f"well check   not run: {check['skipped']}")
+        return
+    outer = check["outer_faces"]
+    sides = "closed sides" if outer == "closed" else f"sides at pressure {number(outer['pressure'])}"
+    click.echo(f"well check: the wells of {check['file']} on both grids, {sides}")
+    rows = []
+    for name, w in check["wells"].items():
+        shown = "rate" if w["control"] == "pressure" else "pressure"
+        error = "-" if w["rel_error"] is None else f"{100 * w['rel_error']:+.2f} %"
+        rows.append([name, f"{w['control']} {number(w['value'])}", shown, number(w["fine"][shown]),
+                     number(w["coarse"][shown]), error])  # fmt: skip
+    total = check["total_rate"]
+    error = "-" if total["rel_error"] is None else f"{100 * total['rel_error']:+.2f} %"
+    rows.append(["total rate", "", "Σ |q|", number(total["fine"]), number(total["coarse"]), error])
+    click.echo(table(["well", "control", "compared", "fine", "coarse", "error"], rows))
+    click.echo(f"(rates: {check['rate_unit']}; a rate well's error is that of its drawdown)")
 
 
 def _print_windows(check: FlowCheck) -> None:

@@ -21,6 +21,7 @@ from .options import (
     parse_chunk,
     read_options,
     recorded,
+    well_options,
 )
 from .progress import progress, teller
 from .report import print_ensemble, print_result
@@ -51,6 +52,7 @@ _METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS
 @click.option("--layer", type=click.IntRange(min=1), default=None,
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @check_options
+@well_options
 @click.option("--units", type=click.Choice(["si", "field"]), default="si", show_default=True,
               help="Units of the coarse-grid package: si (m, m², m³; transmissibility k·A/L in m³) "
               "or field (ft, mD; transmissibility in mD·ft).")
@@ -68,7 +70,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS
 def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float | None,
         bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
-        tolerance: float, check_limit: int, units: str, workers: int | None, scheduler: str | None,
+        tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, units: str,
+        workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
 
@@ -91,6 +94,8 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
     check_destination(out, overwrite)
     if (plot or html_report) and no_check:
         raise InputError("--plot and --report show the flow check; leave out --no-check")
+    if wells and no_check:
+        raise InputError("--wells adds a well check to the flow check; leave out --no-check")
     spec = block_spec(options)
     read = read_options(options)
     settings = Settings(
@@ -98,7 +103,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.cells),
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
         plot=plot, report=html_report, layer=None if layer is None else layer - 1,
-        command=ctx.obj["command"],
+        wells=wells, outer_pressure=outer_pressure, command=ctx.obj["command"],
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]

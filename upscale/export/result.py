@@ -148,6 +148,7 @@ def write_result(
     timings: dict[str, float] | None = None,
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
+    wells: dict[str, Any] | None = None,
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
     units: str = "si",
@@ -170,6 +171,8 @@ def write_result(
     check, read : dict, optional
         The flow check and the read options, recorded in the summary (see
         `upscale.analysis.summary.build_summary`).
+    wells : dict, optional
+        The well-driven check, recorded as ``well_check`` in the summary.
     images : list of (str, bytes, bytes), optional
         Figures to write as ``figures/NAME.png`` and ``.svg``.
     page : str, optional
@@ -219,7 +222,7 @@ def write_result(
             (stage / "report.html").write_text(page, encoding="utf-8")
             files.append("report.html")
         summary = build_summary(
-            result, files=files, command=command, timings=timings, check=check, read=read
+            result, files=files, command=command, timings=timings, check=check, read=read, wells=wells
         )
         (stage / MARKER).write_text(json.dumps(summary.to_dict(), indent=2, allow_nan=False) + "\n")
     return summary

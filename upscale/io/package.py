@@ -14,9 +14,10 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from affine import Affine
 
 from ..errors import InputError
-from ..field import Grid
+from ..field import Field, Grid
 from ..flow import Transmissibilities
 from ..optional import lazy
 from .read import sha256
@@ -132,3 +133,54 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
         ) from None
     trans = Transmissibilities(grid, tuple(faces), tuple((b[0], b[1]) for b in boundary), active)
     return manifest, trans
+
+
+def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) -> Field:
+    """The coarse kx, ky of a package on its grid, placed on the map, in the unit of the run's input.
+
+    What the well check needs of the coarse model besides its
+    transmissibilities: each block's kx and ky (Peaceman's coarse well
+    index) and where the blocks lie (the ``x``, ``y`` centres of
+    ``cells.csv``, in the CRS's units).
+
+    Parameters
+    ----------
+    folder : str or Path
+        An output folder of ``upscale run``.
+    trans : Transmissibilities
+        Its coarse model, from `read_package` (the grid's sizes and active blocks).
+    unit : str
+        The permeability unit of the run's input.
+
+    Returns
+    -------
+    Field
+        kx, ky of shape (L, M, N), NaN for inactive blocks; the grid of `trans`
+        with a north-up transform through the first block's corner.
+
+    Raises
+    ------
+    InputError
+        If the cells table is missing, changed, or lacks a column.
+    """
+    folder = Path(folder)
+    manifest = json.loads((folder / MANIFEST).read_text())
+    factors = manifest["units"]["factors"]
+    cells = _table(folder / "cells.csv", dict(manifest["tables"]))
+    try:
+        order = np.argsort(cells["id"])
+        k = {name: np.asarray(cells[name][order], dtype=np.float64) for name in ("kx", "ky") if name in cells}
+        x, y = float(cells["x"][order][0]), float(cells["y"][order][0])
+        k["kx"]
+    except (KeyError, TypeError, ValueError) as exc:
+        raise InputError(
+            f"{folder / 'cells.csv'}: no kx, x and y to place the wells on ({_plain(exc)})"
+        ) from None
+    grid = trans.grid
+    # the centres are in the CRS's units, laid out with the block sizes in m (`upscale.export.package`)
+    corner = (x - grid.dx[0] / 2, y + grid.dy[0] / 2)
+    transform = Affine(grid.dx.max(), 0.0, corner[0], 0.0, -grid.dy.max(), corner[1])
+    placed = Grid(dz=grid.dz, dy=grid.dy, dx=grid.dx, transform=transform)
+    kx = np.where(trans.active, k["kx"].reshape(grid.shape) / float(factors["k"]), np.nan)
+    ky = np.where(trans.active, k.get("ky", k["kx"]).reshape(grid.shape) / float(factors["k"]), np.nan)
+    return Field(kx, ky, None, None, placed, unit)

@@ -6,15 +6,18 @@ from pathlib import Path
 from typing import Any
 
 from ..check.axis import check_summary
-from ..check.limits import DEFAULT_LIMIT
+from ..check.limits import DEFAULT_LIMIT, too_large
+from ..check.wells import place_wells, well_check
 from ..export import update_summary
-from ..io.package import read_package
+from ..io.package import read_coarse_field, read_package
 from ..io.results import read_run
+from ..io.wells import read_wells
 from ..methods.coarsen import refuse_bad_values
 
 
 def check_folder(folder: str | Path, *, solver: str = "auto", tolerance: float = 1e-10,
-                 check_limit: int = DEFAULT_LIMIT) -> dict[str, Any]:  # fmt: skip
+                 check_limit: int = DEFAULT_LIMIT, wells: str | None = None,
+                 outer_pressure: float | None = None) -> dict[str, Any]:  # fmt: skip
     """Solve the flow check of the run in `folder` again and record it in its ``summary.json``.
 
     The fine field is read from the inputs the summary names (their SHA-256
@@ -29,6 +32,12 @@ def check_folder(folder: str | Path, *, solver: str = "auto", tolerance: float =
         residual tolerance.
     check_limit : int
         Fine cells solved at once; a larger field is reported as skipped.
+    wells : str, optional
+        A wells file (``docs/wells.md``): the well check is solved too and
+        recorded as ``well_check``; the coarse wells connect to the package's
+        blocks by Peaceman's index from the block kx, ky of ``cells.csv``.
+    outer_pressure : float, optional
+        Pressure on the four side faces in the well check; None: closed.
 
     Returns
     -------
@@ -37,6 +46,16 @@ def check_folder(folder: str | Path, *, solver: str = "auto", tolerance: float =
     """
     _, fine = read_run(folder)
     refuse_bad_values(fine)  # the run checked them, but it may have recorded no SHA-256
+    well_list = read_wells(wells) if wells is not None else ()
+    if well_list and not too_large(fine.shape, check_limit):
+        place_wells(fine, well_list, outer_pressure)  # refused before any solve
     _, coarse = read_package(folder)
     result = check_summary(fine, coarse, solver=solver, tolerance=tolerance, max_cells=check_limit)
-    return update_summary(folder, {"check": result})
+    if not well_list:
+        return update_summary(folder, {"check": result})
+    reason = too_large(fine.shape, check_limit)
+    if reason:
+        return update_summary(folder, {"check": result, "well_check": {"file": wells, "skipped": reason}})
+    found = well_check(fine, read_coarse_field(folder, coarse, fine.unit), well_list, coarse_trans=coarse,
+                       outer_pressure=outer_pressure, solver=solver, tolerance=tolerance)  # fmt: skip
+    return update_summary(folder, {"check": result, "well_check": {"file": wells, **found.summary()}})

@@ -14,6 +14,7 @@ from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, pr
 from ..analysis.comparison_record import ComparisonRecord, comparison_record
 from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
+from ..check.wells import FineWells, fine_wells
 from ..errors import InputError
 from ..export.comparison import write_comparison
 from ..export.ensemble import ENSEMBLE, write_ranking
@@ -22,6 +23,7 @@ from ..field import Field
 from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
+from ..io.wells import read_wells
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
 from .run import refuse_layer
@@ -34,7 +36,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                  read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
                  tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                  recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
-                 overwrite: bool = False, say: Say = silent) -> tuple[Comparison, Bundle]:  # fmt: skip
+                 overwrite: bool = False, say: Say = silent, wells: str | None = None,
+                 outer_pressure: float | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
     """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
 
     Parameters
@@ -45,6 +48,11 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
         As in `compare_ensemble`, for one field (`out` is the comparison's folder).
     recorded_read, command, overwrite, say
         As in `compare_ensemble`.
+    wells : str, optional
+        A wells file (``docs/wells.md``): every method is also checked by these
+        wells (one fine solve), and ranked on the error of their total rate too.
+    outer_pressure : float, optional
+        Pressure on the four side faces in the well check; None: closed.
 
     Returns
     -------
@@ -59,19 +67,33 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     """
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.cells, **read)
     refuse_comparison(fine, check_limit, layer)
+    shared = _wells(fine, block, wells, outer_pressure, solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
-                             report=lambda *args: say(progress_line(*args)), say=say)  # fmt: skip
+                             report=lambda *args: say(progress_line(*args)), say=say,
+                             wells=shared)  # fmt: skip
     _refuse_if_none_ran(result)
     record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
     write_comparison(out, record, made.images, made.page, overwrite=overwrite)
     return result, made
 
 
+def _wells(fine: Field, block: BlockSpec, path: str | None, outer_pressure: float | None, solver: str,
+           tolerance: float, say: Say) -> FineWells | None:  # fmt: skip
+    """The wells of `path` solved on the fine field as the comparison uses it, or None without a file."""
+    if path is None:
+        return None
+    wells = read_wells(path)
+    with Steps(say)(None, f"solving the fine model driven by {len(wells)} wells"):
+        return fine_wells(fine.leading(block.used_shape(fine.shape)), wells, outer_pressure=outer_pressure,
+                          solver=solver, tolerance=tolerance)  # fmt: skip
+
+
 def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
                      read: dict[str, Any], chunk_bytes: int | None = None, solver: str = "auto",
                      tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
-                     overwrite: bool = False, say: Say = silent) -> EnsembleRanking:  # fmt: skip
+                     overwrite: bool = False, say: Say = silent, wells: str | None = None,
+                     outer_pressure: float | None = None) -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
@@ -99,6 +121,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         Replace the results in a folder that holds some.
     say : callable, optional
         Receives progress lines (silent by default).
+    wells, outer_pressure : optional
+        As in `compare_file`, for every realization.
 
     Returns
     -------
@@ -124,8 +148,9 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
                 told(progress_line(j, n, candidate, entry))
 
+            shared = _wells(fine, block, wells, outer_pressure, solver, tolerance, told)
             result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
-                                     report=report, say=told)  # fmt: skip
+                                     report=report, say=told, wells=shared)  # fmt: skip
             _refuse_if_none_ran(result, paths[i - 1])
             with Steps(told)(None, "drawing the figures and writing"):
                 record, made = _drawn(result, paths[i - 1], layer=layer, command=command,

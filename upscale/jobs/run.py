@@ -20,6 +20,7 @@ from ..analysis.summary import RunSummary
 from ..check.axis import coarse_check, fine_solves
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
 from ..check.subdomains import check_subdomains
+from ..check.wells import place_wells, well_check
 from ..errors import InputError
 from ..export import write_result
 from ..export.ensemble import ENSEMBLE, write_ensemble
@@ -28,6 +29,7 @@ from ..field import Field
 from ..grid import BlockSpec
 from ..io import read_field
 from ..io.realizations import read_realizations
+from ..io.wells import read_wells
 from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import METHODS
 from ..optional import require_extra
@@ -62,6 +64,10 @@ class Settings:
         Whether to write the figures and the HTML report.
     layer : int or None
         Zero-based fine layer drawn in 3D maps.
+    wells : str or None
+        A wells file (``docs/wells.md``): the check also solves these wells on both grids.
+    outer_pressure : float or None
+        Pressure on the four side faces in the well check; None: closed.
     command : list of str
         The command line, recorded in the outputs.
     """
@@ -80,6 +86,8 @@ class Settings:
     plot: bool = False
     report: bool = False
     layer: int | None = None
+    wells: str | None = None
+    outer_pressure: float | None = None
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
@@ -135,6 +143,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
+    wells = _wells(settings, fine)
     fits_flows = METHODS[settings.method].global_flows
     if fits_flows:
         refuse_global_past_limit(settings.block.used_shape(fine.shape), settings.check_limit)
@@ -171,22 +180,53 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                 checks = coarse_check(flows, result.transmissibilities(), solver=settings.solver,
                                       tolerance=settings.tolerance)  # fmt: skip
                 check = {axis: c.summary() for axis, c in checks.items()}
+    wells_check, found = None, None
+    if wells:
+        if reason:
+            wells_check = {"file": settings.wells, "skipped": reason}
+        else:
+            with steps("wells_s", f"checking {len(wells)} wells: fine and coarse solves"):
+                found = well_check(result.fine, result.coarse, wells,
+                                   coarse_trans=result.transmissibilities(),
+                                   fine_trans=next(iter(flows.values())).trans,
+                                   outer_pressure=settings.outer_pressure, solver=settings.solver,
+                                   tolerance=settings.tolerance)  # fmt: skip
+                wells_check = {"file": settings.wells, **found.summary()}
     made = None
     if checks and drawing:
         from ..report.bundle import bundle  # matplotlib: the figures extra
 
         layer = settings.layer
         with steps(None, "drawing the figures"):
-            made = bundle(single(result, checks, steps.timings["upscale_s"]),
+            made = bundle(single(result, checks, steps.timings["upscale_s"], wells=found),
                           title=f"upscale — {result.method} on {path}", command=settings.command,
                           layer=layer)  # fmt: skip
     with steps(None, "writing the coarse grid and the summary"):
         summary = write_result(result, out, overwrite=overwrite, command=settings.command,
                                timings=steps.timings, check=check, read=settings.recorded_read,
+                               wells=wells_check,
                                images=made.images if made and settings.plot else None,
                                page=made.page if made and settings.report else None,
                                units=settings.units)  # fmt: skip
     return result, summary
+
+
+def _wells(settings: Settings, fine: Field) -> tuple:
+    """The wells of `settings`, read and placed on the fine grid (refused before any work), or ().
+
+    Raises
+    ------
+    InputError
+        For a bad wells file or well, or wells without the check.
+    """
+    if settings.wells is None:
+        return ()
+    if not settings.check:
+        raise InputError("`wells` adds a well check to the flow check; leave out `check=False`")
+    wells = read_wells(settings.wells)
+    if not too_large(fine.shape, settings.check_limit):
+        place_wells(fine.leading(settings.block.used_shape(fine.shape)), wells, settings.outer_pressure)
+    return wells
 
 
 def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overwrite: bool = False,

@@ -118,6 +118,42 @@ def error_bars(comparison: Comparison) -> Figure:
     return fig
 
 
+def well_rates(comparison: Comparison) -> Figure | None:
+    """Each pressure well's |rate| on the fine grid and on each method's coarse grid (None: none such).
+
+    Rate wells move their given rate on both grids and are left out. Among
+    more than four methods, the best and the worst are drawn.
+    """
+    ran = [e for e in comparison.ranked if e.wells is not None]
+    if not ran:
+        return None
+    shown = ran if len(ran) <= 4 else [ran[0], ran[-1]]
+    check = shown[0].wells
+    names = [w.name for w in check.wells if w.control == "pressure"]
+    if not names:
+        return None
+    series = [("fine", [abs(check.fine.rates[n]) for n in names])]
+    series += [(entry_name(comparison, e), [abs(e.wells.coarse.rates[n]) for n in names]) for e in shown]
+    fig = Figure(figsize=(min(MAX_WIDTH, max(5.0, 0.9 * len(names) * len(series) + 2.5)), 4.4),
+                 layout="constrained")  # fmt: skip
+    ax = fig.subplots()
+    width = 0.8 / len(series)
+    x = np.arange(len(names))
+    for i, (label, rates) in enumerate(series):
+        offset = (i - (len(series) - 1) / 2) * width
+        color = "#444444" if i == 0 else PALETTE[(i - 1) % len(PALETTE)]
+        ax.bar(x + offset, rates, width, color=color, hatch=("", "//", "..", "xx", "\\\\")[i % 5],
+               edgecolor="black", linewidth=0.4, label=label if i else "fine grid")  # fmt: skip
+    ax.set_xticks(x, names)
+    ax.set_xlabel("well (bottom-hole pressure fixed)")
+    ax.set_ylabel(f"|rate| · μ ({comparison.fine.unit}·m × unit of pressure)")
+    handles, labels = ax.get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncols=len(handles), fontsize=LABEL, frameon=False)
+    title(fig, "Well rates on the fine grid and on the coarse grid")
+    page_sizes(fig)
+    return fig
+
+
 def bounds_chart(comparison: Comparison, unit: str) -> Figure:
     """Each method's coarse k_eff per axis against the fine k_eff, the Wiener and Cardwell–Parsons bounds."""
     fine = comparison.fine

@@ -9,7 +9,7 @@ from matplotlib import rc_context
 from matplotlib.figure import Figure
 
 from ..analysis.compare import Comparison
-from .charts import bounds_chart, error_bars, histograms
+from .charts import bounds_chart, error_bars, histograms, well_rates
 from .layout import DPI
 from .maps import field_maps, mismatch_maps, pressure_maps
 from .style import MISSING_LABEL
@@ -73,6 +73,14 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
              "spread less than fine cells; a method that narrows it much more than the others "
              "smooths away extremes that carry flow."),
     ]  # fmt: skip
+    rates = well_rates(comparison)
+    if rates is not None:
+        whose = "the method" if alone else "the methods (the best and the worst beyond four)"
+        plots.append(Plot("wells", rates,
+                          f"Rate of each pressure-controlled well on the fine grid beside the coarse grid "
+                          f"of {whose} (Peaceman's well index in each cell and block; docs/wells.md): "
+                          "unequal bars show how far the coarse model's wells are off, a difference "
+                          "no axis check sees."))  # fmt: skip
     for axis in fine.axes[:2]:
         plots.append(Plot(f"mismatch_{axis}", mismatch_maps(comparison, axis=axis, layer=layer),
                           f"Where {'the' if alone else 'each'} method errs under flow along {axis}: "

@@ -124,19 +124,20 @@ def document(title: str, body: str, job: dict[str, Any]) -> str:
 """
 
 
-def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None, ranked: bool) -> str:
+def _row(entry: Entry, axes: tuple[str, ...], best: Entry | None, ranked: bool, wells: bool) -> str:
     label = _e(entry.candidate.label)
     mark = bound_mark(entry.candidate.method)
     if mark:
         label += f' <span class="bound">{_e(mark)}</span>'
     if entry.error is not None:
-        span = 2 * len(axes) + len(HELD_OUT) + 1
+        span = 2 * len(axes) + len(HELD_OUT) + 1 + wells
         reason = f'<td class="text" colspan="{span}">did not run: {_e(entry.error)}</td>'
         cells = [f"<td>{label}</td>", "<td>–</td>", reason]
         return f'<tr class="method failed">{"".join(cells)}</tr>'
     coarse = entry.result.coarse
     means = [_number(float(_mean(getattr(coarse, PERMEABILITY[a])))) for a in axes]
     errors = [_percent(entry.checks[a].rel_error) for a in check_names(axes)]
+    errors += [_percent(entry.wells.rel_error)] if wells else []
     cells = [label, *([str(entry.rank)] if ranked else []), *means, *errors]
     kind = "method best" if entry is best else "method"
     return (f'<tr class="{kind}">' + "".join(f"<td>{c}</td>" for c in cells)
@@ -170,12 +171,15 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     axes = comparison.fine.axes
     unit = _e(job["unit"])
     ranked = not one_method(comparison)
+    wells = any(e.wells is not None for e in comparison.ranked)
+    and_wells = ", and the wells" if wells else ""
     head = ["method", *(["rank"] if ranked else []), *(f"{PERMEABILITY[a]} mean ({unit})" for a in axes),
-            *(f"error {flow_label(a)}" for a in check_names(axes)), "time (s)"]  # fmt: skip
+            *(f"error {flow_label(a)}" for a in check_names(axes)), *(["error wells"] if wells else []),
+            "time (s)"]  # fmt: skip
     best = comparison.best
-    rows = "\n".join(_row(e, axes, best if ranked else None, ranked) for e in comparison.entries)
-    heading = ("Methods, ranked by the largest check error over the axes and corner to corner" if ranked
-               else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
+    rows = "\n".join(_row(e, axes, best if ranked else None, ranked, wells) for e in comparison.entries)
+    heading = (f"Methods, ranked by the largest check error over the axes and corner to corner{and_wells}"
+               if ranked else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
@@ -184,7 +188,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.
 It also applies a held-out flow no method is fitted to: pressure fixed on the outer faces of one
 corner region of whole blocks, the opposite corner at zero, the other faces closed (corner to corner;
-k is its rate over the rate of k = 1 on the same grid).</p>
+k is its rate over the rate of k = 1 on the same grid).{_WELLS if wells else ""}</p>
 <table id="ranking">
 <tr>{"".join(f"<th>{h}</th>" for h in head)}</tr>
 {rows}
@@ -195,13 +199,20 @@ k is its rate over the rate of k = 1 on the same grid).</p>
 """, job)
 
 
+_WELLS = """
+With wells, each model is also driven by the wells of the wells file (Peaceman's well index in each
+cell and block; docs/wells.md): error wells is the error of the total well rate."""
+
+
 def _verdict(comparison: Comparison, ranked: bool) -> str:
     """The opening: the best method (or the one method's check), then warnings on the band and bounds."""
     best = comparison.best
     if best is None:
         return "<p>No method ran on this field.</p>"
     label = best.candidate.label
-    size = f"largest check error {100 * best.worst_error:.2f} % over the axes and the corner-to-corner flow."
+    wells = ", and the wells" if best.wells is not None else ""
+    size = (f"largest check error {100 * best.worst_error:.2f} % over the axes and the corner-to-corner "
+            f"flow{wells}.")
     sentence = (f"Best on this field: <strong>{_e(label)}</strong>, {size}" if ranked
                 else f"<strong>{_e(label)}</strong> on this field: {size}")  # fmt: skip
     warning = outside_band(label, best.worst_error, several=ranked)

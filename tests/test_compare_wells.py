@@ -1,0 +1,88 @@
+"""``compare`` with wells: every method also checked by the wells, and ranked on them too.
+
+* The fine well solve is done once and shared by every method (the cost
+  the issue allows: one extra fine solve per wells file), each method's
+  coarse well solve is its own.
+* The rank follows the largest |error| over the axes, the corner flow and
+  the wells' total rate (the rule recorded in compare.json), so a method
+  whose axis errors are small but whose wells are far off ranks below one
+  whose errors are all moderate.
+* Without wells, compare.json is as before (no ``well_check``; the digests
+  of tests/test_reference_outputs.py hold it bit for bit); with them, every
+  method records its well check, the CLI prints its error, and the report
+  gains the column and the bar chart of the well rates fine vs coarse.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from conftest import ORIGIN, write_raster
+from report.test_layout import PAGE_PX, SMALLEST, _drawn_texts  # the checks of every other figure
+
+from upscale import Field
+from upscale.analysis.compare import candidates, compare_methods
+from upscale.analysis.comparison_record import RANKING_WELLS, comparison_record
+from upscale.check.wells import fine_wells
+from upscale.flow.wells import Well
+from upscale.gallery.fields import lognormal_field
+from upscale.report.figures import build_figures
+from upscale.report.layout import DPI
+
+SEED = 4_417_092_336
+
+
+def _field() -> np.ndarray:
+    return lognormal_field((32, 32), (6.0, 6.0), geometric_mean=100.0, sigma_ln=1.0, seed=SEED)
+
+
+WELLS = [Well("I", 25.0, -25.0, None, "pressure", 1.0, 0.1),
+         Well("P", 295.0, -295.0, None, "pressure", 0.0, 0.1)]  # fmt: skip
+
+
+def test_methods_are_ranked_on_the_wells_too() -> None:
+    field = Field.from_arrays(_field(), cell_size=(10.0, 10.0))
+    shared = fine_wells(field, WELLS)
+    chosen = candidates(["arithmetic", "harmonic", "geometric", "flow"])
+    found = compare_methods(field, "8x8", chosen, wells=shared)
+    for entry in found.ranked:
+        assert entry.wells.fine is shared.flow  # one fine solve for every method
+        axes = max(abs(c.rel_error) for c in entry.checks.values())
+        assert entry.worst_error == max(axes, abs(entry.wells.rel_error))
+    worst = [e.worst_error for e in found.ranked]
+    assert worst == sorted(worst)
+    record = comparison_record(found).to_dict()
+    assert record["ranking"] == RANKING_WELLS
+    assert all(m["well_check"]["total_rate"]["rel_error"] is not None for m in record["methods"])
+    plain = comparison_record(compare_methods(field, "8x8", candidates(["geometric"]))).to_dict()
+    assert "well_check" not in plain["methods"][0]
+    # the bar chart of the well rates: every text on the canvas, readable at the page's width
+    (plot,) = [p for p in build_figures(found, "mD") if p.name == "wells"]
+    texts, canvas = _drawn_texts(plot.figure)
+    for text, box in texts:
+        assert canvas.x0 - 1 <= box.x0 and box.x1 <= canvas.x1 + 1, text.get_text()
+        assert canvas.y0 - 1 <= box.y0 and box.y1 <= canvas.y1 + 1, text.get_text()
+    scale = min(1.0, PAGE_PX / (plot.figure.get_figwidth() * DPI))
+    assert min(t.get_fontsize() for t, _ in texts) * DPI / 96 * scale >= SMALLEST
+
+
+@pytest.mark.slow  # about 7 s: the figures and the page of a comparison
+def test_compare_cli_with_wells(run_cli, tmp_path: Path) -> None:
+    path = write_raster(tmp_path / "k.tif", _field(), cell_size=10.0)
+    x0, y0 = ORIGIN
+    wells = tmp_path / "wells.csv"
+    wells.write_text(f"name,x,y,control,value,radius\nI,{x0 + 25},{y0 - 25},pressure,1,0.1\n"
+                     f"P,{x0 + 295},{y0 - 295},pressure,0,0.1\n")  # fmt: skip
+    code, stdout, stderr = run_cli("compare", path, "--block", "8x8", "--methods", "geometric,flow",
+                                   "--wells", wells, "--out", tmp_path / "cmp")  # fmt: skip
+    assert code == 0, stderr
+    assert "error wells" in stdout and "and the wells)" in stdout
+    record = json.loads((tmp_path / "cmp" / "compare.json").read_text())
+    assert record["ranking"] == RANKING_WELLS and all("well_check" in m for m in record["methods"])
+    # the report: the wells' column in the ranking, and the bar chart of the well rates
+    page = (tmp_path / "cmp" / "report.html").read_text()
+    assert "<th>error wells</th>" in page and '<figure id="wells">' in page
+    assert (tmp_path / "cmp" / "figures" / "wells.png").stat().st_size > 0
