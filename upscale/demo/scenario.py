@@ -26,6 +26,17 @@ _CRS = "+proj=tmerc +lat_0=0 +lon_0=0 +k=1 +x_0=0 +y_0=0 +R=6371000 +units=m +no
 _ORIGIN = (31_000.0, 87_000.0)  # west and north edges of every demo grid, m
 #: Equiprobable realizations in demo-fields/ensemble/.
 ENSEMBLE_SIZE = 8
+#: The wells of the channel belt (docs/wells.md): an injector and a producer in one sand channel, a
+#: producer in the shale beside it; x, y at cell centres of marrowfen_channels.tif (5 m cells).
+WELLS = {
+    "marrowfen_wells.csv": (
+        "# Marrowfen Basin (fictional): test wells on marrowfen_channels.tif, pressures in bar\n"
+        "name,x,y,control,value,radius,skin\n"
+        "OST-I1,31102.5,86322.5,pressure,200,0.1,0\n"
+        "OST-P1,32182.5,86322.5,pressure,100,0.1,0\n"
+        "OST-P2,32182.5,85997.5,pressure,100,0.1,0\n"
+    )
+}
 
 
 def _outline(shape: tuple[int, int]) -> np.ndarray:
@@ -128,7 +139,7 @@ def write_demo_fields(folder: str | Path, overwrite: bool = False) -> list[str]:
     Returns
     -------
     list of str
-        Names of the files written.
+        Names of the rasters written (the wells tables beside them are listed in the listing).
     """
     from rasterio.crs import CRS
 
@@ -163,6 +174,11 @@ def write_demo_fields(folder: str | Path, overwrite: bool = False) -> list[str]:
                 "dz_m": spec["dz"],
                 "unit": spec["unit"],
             }
-        text = {"scenario": __doc__.splitlines()[0], "files": list(listing), "fields": listing}
+        for name, table in WELLS.items():
+            (stage / name).write_text(table)
+        story = ("Test wells of marrowfen_channels.tif: injector OST-I1 and producer OST-P1 in one sand "
+                 "channel, producer OST-P2 in the shale beside it (docs/wells.md).")
+        text = {"scenario": __doc__.splitlines()[0], "files": list(listing), "fields": listing,
+                "wells": dict.fromkeys(WELLS, story)}  # fmt: skip
         (stage / LISTING).write_text(json.dumps(text, indent=2) + "\n")
     return list(listing)
