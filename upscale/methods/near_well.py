@@ -133,7 +133,7 @@ def upscale_wells(fine: Field, trans: Transmissibilities, on_fine: list[Connecti
     >>> result = coarsen(np.full((24, 24), 100.0), "8x8", "arithmetic")
     >>> wells = [Well("I", 4.5, -4.5, None, "pressure", 1.0, 0.1),
     ...          Well("P", 19.5, -19.5, None, "pressure", 0.0, 0.1)]
-    >>> k_f, k_c = result.fine.kx.compute(), result.coarse.kx.compute()
+    >>> k_f, k_c = np.asarray(result.fine.kx), np.asarray(result.coarse.kx)
     >>> on_fine = [connect(w, result.fine.grid, k_f, k_f) for w in wells]
     >>> on_coarse = [connect(w, result.coarse.grid, k_c, k_c) for w in wells]
     >>> found = upscale_wells(result.fine, result.transmissibilities(), on_fine, on_coarse)
