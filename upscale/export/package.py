@@ -344,8 +344,13 @@ def well_columns(check: dict[str, Any], fine: Grid, coarse: Grid, factors: dict[
         for column, value in zip(FACE_COLUMNS, (first, first + step, face["axis"],
                                                 face["transmissibility"] * tf)):  # fmt: skip
             faces[column].append(value)
-    return {"wells": {c: np.asarray(v) for c, v in rows.items()},
-            "well_faces": {c: np.asarray(v) for c, v in faces.items()}}  # fmt: skip
+    return {"wells": {c: _typed(c, v) for c, v in rows.items()},
+            "well_faces": {c: _typed(c, v) for c, v in faces.items()}}  # fmt: skip
+
+
+def _typed(name: str, values: list[Any]) -> np.ndarray:
+    """A column's values as the array its type in `_schema` needs (an empty column too)."""
+    return np.asarray(values, dtype=np.int64 if name in _INTEGER else str if name in _TEXT else np.float64)
 
 
 #: The columns of ``wells.csv`` and ``well_faces.csv``.
