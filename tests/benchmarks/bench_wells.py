@@ -1,5 +1,6 @@
-"""Benchmark: the total-rate error of the coarse wells, Peaceman's index against near-well upscaling
-(issue 17, items 4a and 4b), measured, not tuned.
+"""Benchmark: the coarse wells' total-rate error, Peaceman's index against near-well upscaling.
+
+Issue 17, items 4a and 4b; measured, not tuned.
 
 Run on demand (not collected by pytest), from the repository's top folder::
 

@@ -64,7 +64,8 @@ def test_documented_program_gives_the_run_well_rates(demo_dir, tmp_path, monkeyp
                      f"P,{X0 + 2155},{Y0 - 2155},pressure,100,0.1\n"
                      f"R,{X0 + 2155},{Y0 - 605},rate,-3000,0.1\n")  # fmt: skip
     args = ["-q", "run", str(demo_dir / "marrowfen_lognormal.tif"), "--block", "8x8", "--method",
-            "flow-transmissibility", "--wells", str(wells), "--units", units, "--out", "wells-8x8"]  # fmt: skip
+            "flow-transmissibility", "--wells", str(wells), "--units", units,
+            "--out", "wells-8x8"]  # fmt: skip
     assert main(args) == 0
     manifest = json.loads((tmp_path / "wells-8x8" / "manifest.json").read_text())
     tf = manifest["units"]["factors"]["k"] * manifest["units"]["factors"]["length"]

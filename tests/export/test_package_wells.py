@@ -167,4 +167,5 @@ def test_package_written_without_wells_connects_them_by_the_option(run_cli, tmp_
         found[how] = json.loads((out / "summary.json").read_text())["well_check"]
         assert found[how]["connection"] == how
     assert all(np.array(found["near-well"]["wells"][w]["coarse"]["set_by"]) == "near-well" for w in "IPR")
-    assert found["near-well"]["total_rate"]["coarse"] != pytest.approx(found["peaceman"]["total_rate"]["coarse"])
+    totals = [found[how]["total_rate"]["coarse"] for how in ("near-well", "peaceman")]
+    assert totals[0] != pytest.approx(totals[1])

@@ -68,7 +68,7 @@ def test_peaceman_is_kept_when_asked_and_misses_an_off_centre_well() -> None:
     check = well_check(result.fine, result.coarse, wells, coarse_trans=result.transmissibilities(),
                        connection="peaceman")  # fmt: skip
     peaceman = float(well_index(K, K, 8 * DX, 8 * DX, 1.0, RW))
-    assert check.factors == {"I": [pytest.approx(peaceman, rel=1e-12)], "P": [pytest.approx(peaceman, rel=1e-12)]}
+    assert check.factors == {name: [pytest.approx(peaceman, rel=1e-12)] for name in ("I", "P")}
     assert check.set_by == {"I": ["peaceman"], "P": ["peaceman"]} and check.faces == {}
     assert check.rel_error < -0.05  # the coarse well sits in the block centre, 25 m farther from the other
     summary = check.summary()

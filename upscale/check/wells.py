@@ -291,7 +291,8 @@ def coarse_wells(shared: FineWells, coarse: Field, *, coarse_trans: Transmissibi
                      {n: list(m) for n, m in zip(names, found.methods)}, found.faces)  # fmt: skip
 
 
-def _from_table(wells: tuple[Well, ...], table: PackageWells, coarse: Field, fine: Field) -> list[Connections]:
+def _from_table(wells: tuple[Well, ...], table: PackageWells, coarse: Field, fine: Field
+                ) -> list[Connections]:  # fmt: skip
     """The wells connected as a package's wells table says, after checking it holds them where they are.
 
     Raises

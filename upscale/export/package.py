@@ -251,7 +251,8 @@ def _face_areas(grid: Grid, a: int) -> np.ndarray:
     return sizes[0] * sizes[1]
 
 
-def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, *, wells: bool = False) -> dict:
+def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, *,
+                 wells: bool = False) -> dict:  # fmt: skip
     """The unit of every column of every table (with `wells`, of the wells tables too), for the manifest."""
     length, k, t = factors["length_unit"], factors["k_unit"], factors["transmissibility_unit"]
     known = {

@@ -78,7 +78,8 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     table_files = write_tables(stage, tables)
     solved = wells is not None and "wells" in wells
     if solved:
-        table_files.update(write_well_tables(stage, well_columns(wells, result.fine.grid, coarse.grid, factors)))
+        columns = well_columns(wells, result.fine.grid, coarse.grid, factors)
+        table_files.update(write_well_tables(stage, columns))
     length = factors["length"]
     gridded: dict[str, tuple[Values, str, str]] = {}
     for name, values in properties.items():
@@ -112,7 +113,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "block": result.block.summary(),
         "transmissibility_source": source,
         "check": check,
-        **({"wells": {"outer_faces": wells["outer_faces"], "connection": wells["connection"]}} if solved else {}),
+        **({"wells": {key: wells[key] for key in ("outer_faces", "connection")}} if solved else {}),
         "files": files,
         "tables": table_files,
         "caution": CAUTION,

@@ -210,7 +210,8 @@ class PackageWells:
     faces: dict[tuple[int, int, int, int], float]
 
 
-def read_package_wells(folder: str | Path, manifest: dict, shape: tuple[int, int, int]) -> PackageWells | None:
+def read_package_wells(folder: str | Path, manifest: dict, shape: tuple[int, int, int]
+                       ) -> PackageWells | None:  # fmt: skip
     """The wells tables of a package, or None for a package written without wells.
 
     Parameters
@@ -249,4 +250,6 @@ def read_package_wells(folder: str | Path, manifest: dict, shape: tuple[int, int
             {(a, int(k), int(j), int(i)): float(v) for a, k, j, i, v in zip(axes, *at, T)},
         )  # fmt: skip
     except (KeyError, ValueError, IndexError, TypeError) as exc:
-        raise InputError(f"{folder}: the wells tables are incomplete or inconsistent ({_plain(exc)})") from None
+        raise InputError(
+            f"{folder}: the wells tables are incomplete or inconsistent ({_plain(exc)})"
+        ) from None

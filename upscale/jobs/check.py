@@ -17,7 +17,8 @@ from ..methods.coarsen import refuse_bad_values
 
 def check_folder(folder: str | Path, *, solver: str = "auto", tolerance: float = 1e-10,
                  check_limit: int = DEFAULT_LIMIT, wells: str | None = None,
-                 outer_pressure: float | None = None, well_connection: str = "near-well") -> dict[str, Any]:  # fmt: skip
+                 outer_pressure: float | None = None,
+                 well_connection: str = "near-well") -> dict[str, Any]:  # fmt: skip
     """Solve the flow check of the run in `folder` again and record it in its ``summary.json``.
 
     The fine field is read from the inputs the summary names (their SHA-256
@@ -62,8 +63,8 @@ def check_folder(folder: str | Path, *, solver: str = "auto", tolerance: float =
     reason = too_large(fine.shape, check_limit)
     if reason:
         return update_summary(folder, {"check": result, "well_check": {"file": wells, "skipped": reason}})
-    shared = fine_wells(fine, well_list, outer_pressure=outer_pressure, connection=well_connection, solver=solver,
-                        tolerance=tolerance)  # fmt: skip
-    found = coarse_wells(shared, read_coarse_field(folder, coarse, fine.unit), coarse_trans=coarse, given=table,
-                         solver=solver, tolerance=tolerance)  # fmt: skip
+    shared = fine_wells(fine, well_list, outer_pressure=outer_pressure, connection=well_connection,
+                        solver=solver, tolerance=tolerance)  # fmt: skip
+    found = coarse_wells(shared, read_coarse_field(folder, coarse, fine.unit), coarse_trans=coarse,
+                         given=table, solver=solver, tolerance=tolerance)  # fmt: skip
     return update_summary(folder, {"check": result, "well_check": {"file": wells, **found.summary()}})

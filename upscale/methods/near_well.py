@@ -163,7 +163,8 @@ def _mean_faces(found: list[_Local]) -> dict[tuple[int, int, int, int], float]:
     return {key: float(np.mean(values)) for key, values in total.items()}
 
 
-def with_faces(trans: Transmissibilities, faces: dict[tuple[int, int, int, int], float]) -> Transmissibilities:
+def with_faces(trans: Transmissibilities, faces: dict[tuple[int, int, int, int], float]
+               ) -> Transmissibilities:  # fmt: skip
     """The coarse model with some face transmissibilities replaced.
 
     Parameters
@@ -195,11 +196,15 @@ class _Local:
 
 
 def _local_solve(fine: Field, coarse: Grid, well: Connections, on_fine: list[Connections], flow: WellFlow,
-                 ring: int, outer_pressure: float | None, solver: str, tolerance: float) -> _Local:  # fmt: skip
-    """WI_c of the well in each of its coarse blocks (NaN where undefined or not positive), and
-    T = Q / (p̄_I − p̄_J) of every coarse face inside its region (those that came out positive)."""
+                 ring: int, outer_pressure: float | None, solver: str,
+                 tolerance: float) -> _Local:  # fmt: skip
+    """One well's local fine solve (module docstring, steps 2 to 4).
+
+    Returns its WI_c in each of its coarse blocks (NaN where undefined or not
+    positive) and ``T = Q / (p̄_I − p̄_J)`` of the coarse faces inside its region.
+    """
     owner = [_owner(fine.grid.sizes(a), coarse.sizes(a)) for a in range(3)]
-    layers, rows, columns = np.unravel_index(well.cells, coarse.shape)
+    _, rows, columns = np.unravel_index(well.cells, coarse.shape)
     box = [_fine_span(owner[a], int(np.min(c)) - ring, int(np.max(c)) + ring)
            for a, c in ((1, rows), (2, columns))]  # fmt: skip
     part = fine.window(*box)
@@ -221,7 +226,7 @@ def _local_solve(fine: Field, coarse: Grid, well: Connections, on_fine: list[Con
     with np.errstate(divide="ignore", invalid="ignore"):
         index = q[mine] / (own.well.value - mean[mine])
     return _Local(np.where(np.isfinite(index) & (index > 0), index, np.nan),
-                  _face_values(local, found.pressure, number, blocks, coarse.shape))
+                  _face_values(local, found.pressure, number, mean, (blocks, coarse.shape)))
 
 
 def _block_means(pressure: np.ndarray, volume: np.ndarray, number: np.ndarray, count: int) -> np.ndarray:
@@ -233,8 +238,9 @@ def _block_means(pressure: np.ndarray, volume: np.ndarray, number: np.ndarray, c
         return np.where(weight > 0, total / weight, np.nan)
 
 
-def _face_values(local: Transmissibilities, pressure: np.ndarray, number: np.ndarray, blocks: np.ndarray,
-                 shape: tuple[int, int, int]) -> dict[tuple[int, int, int, int], float]:  # fmt: skip
+def _face_values(local: Transmissibilities, pressure: np.ndarray, number: np.ndarray, mean: np.ndarray,
+                 coarse: tuple[np.ndarray, tuple[int, int, int]]
+                 ) -> dict[tuple[int, int, int, int], float]:  # fmt: skip
     """``T = Q / (p̄_I − p̄_J)`` of the coarse faces inside a region, where it came out positive.
 
     Parameters
@@ -244,18 +250,18 @@ def _face_values(local: Transmissibilities, pressure: np.ndarray, number: np.nda
     pressure : ndarray of shape (L, m, n)
         The local fine pressures.
     number : ndarray of shape (L, m, n)
-        Each fine cell's block, numbered as `blocks`.
-    blocks : ndarray of int
-        The coarse flat ids of the region's blocks, in increasing order.
-    shape : (int, int, int)
-        The coarse grid's shape.
+        Each fine cell's block, numbered 0, 1, ... in the region.
+    mean : ndarray of shape (b,)
+        Each block's mean local pressure (`_block_means`).
+    coarse : (ndarray of int, (int, int, int))
+        The coarse flat id of each numbered block, and the coarse grid's shape.
 
     Returns
     -------
     dict
         Keyed by (array axis, layer, row, column of the block before the face).
     """
-    mean = _block_means(pressure, local.grid.cell_volumes(), number, blocks.size)
+    blocks, shape = coarse
     found = {}
     for a in range(3):
         n = pressure.shape[a]
@@ -311,8 +317,7 @@ def _region_faces(local: Transmissibilities, fine: Grid, coarse: Grid, box: list
         other_span = box[1] if axis == 1 else box[0]
         edges = np.concatenate([[0.0], np.cumsum(fine.sizes(axis))])
         across = _centres(fine.sizes(other))[other_span]
-        for side, (half, end, at) in enumerate(zip(local.boundary[axis], (0, shape[axis] - 1),
-                                                   (span.start, span.stop))):  # fmt: skip
+        for half, end, at in zip(local.boundary[axis], (0, shape[axis] - 1), (span.start, span.stop)):
             behind = np.take(index, [end], axis=axis).ravel()
             half = half.ravel()
             if at in (0, fine.shape[axis]):  # the domain's own outer face
