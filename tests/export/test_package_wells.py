@@ -100,11 +100,15 @@ def test_the_wells_tables_hold_the_well_checks_connections(run, units) -> None:
         assert int(face["id2"]) - int(face["id1"]) == step
 
 
-def test_peaceman_on_request_sets_no_face(run) -> None:
-    out, _ = run("--well-connection", "peaceman")
+def test_peaceman_on_request_sets_no_face(run, run_cli) -> None:
+    out, wells = run("--well-connection", "peaceman")
     assert {r["set_by"] for r in _read(out / "wells.csv")} == {"peaceman"}
     assert _read(out / "well_faces.csv") == []
     assert json.loads((out / "manifest.json").read_text())["wells"]["connection"] == "peaceman"
+    recorded = json.loads((out / "summary.json").read_text())["well_check"]
+    assert run_cli("check", out, "--wells", wells, "-q")[0] == 0  # an empty well_faces.csv read back
+    again = json.loads((out / "summary.json").read_text())["well_check"]
+    assert again["total_rate"]["coarse"] == pytest.approx(recorded["total_rate"]["coarse"], rel=1e-10)
 
 
 def _tell_manifest(out: Path, name: str) -> None:
@@ -152,6 +156,18 @@ def test_check_refuses_other_wells_than_the_packages(run, run_cli, change, messa
     code, stdout, stderr = run_cli("check", out, "--wells", wells)
     assert code == 2 and stdout == ""
     assert stderr.startswith("upscale: error: ") and message in stderr and len(stderr.splitlines()) == 1
+
+
+def test_check_refuses_a_face_between_cells_that_are_not_neighbours(run, run_cli) -> None:
+    out, wells = run()
+    table = (out / "well_faces.csv").read_text().splitlines()
+    first = table[1].split(",")
+    first[1] = str(int(first[1]) + 2)  # id2 two cells past id1
+    (out / "well_faces.csv").write_text("\n".join([table[0], ",".join(first), *table[2:]]) + "\n")
+    _tell_manifest(out, "well_faces.csv")
+    code, stdout, stderr = run_cli("check", out, "--wells", wells)
+    assert code == 2 and stdout == "" and len(stderr.splitlines()) == 1
+    assert "well_faces.csv: a face joins cells that are not neighbours along its axis" in stderr
 
 
 def test_package_written_without_wells_connects_them_by_the_option(run_cli, tmp_path: Path) -> None:

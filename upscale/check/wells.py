@@ -6,11 +6,14 @@ one steady solve on the fine grid and one on the coarse grid
 (`upscale.flow.wells.well_flow`): closed outer faces, or one outer pressure
 on the four sides. On the fine grid each well connects to the cells it
 crosses by Peaceman's well index; on the coarse grid to the blocks that hold
-it, by Peaceman's formula applied to the block with its upscaled kx, ky
-(full-tensor terms are left out of the index) and its size, and the blocks
-connect by the coarse model's own transmissibilities
+it, and the blocks connect by the coarse model's own transmissibilities
 (`upscale.Upscaled.transmissibilities`: harmonic half-block, or the faces a
-method upscaled directly).
+method upscaled directly). The coarse connection factors come from
+near-well upscaling (default; `upscale.methods.near_well`, which also sets
+the faces near each well), from Peaceman's formula applied to the block
+with its upscaled kx, ky (full-tensor terms are left out of the index) and
+its size (``connection="peaceman"``), or from a package's wells tables
+(`coarse_wells` with `given`).
 
 Pressure wells are compared by their rates, rate wells by their pressures
 (the drawdown from the reference pressure: the outer pressure, else the

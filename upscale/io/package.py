@@ -242,7 +242,13 @@ def read_package_wells(folder: str | Path, manifest: dict, shape: tuple[int, int
         ids = wells["id"].astype(np.int64)
         T = _numbers(faces["transmissibility"], "transmissibility", folder / "well_faces.csv", True) / tf
         axes = [_AXIS[str(a)] for a in faces["axis"]]
-        at = np.unravel_index(faces["id1"].astype(np.int64), shape)
+        first = faces["id1"].astype(np.int64)
+        at = np.unravel_index(first, shape)
+        step = np.array([(shape[1] * shape[2], shape[2], 1)[a] for a in axes], dtype=np.int64)
+        last = np.array([at[a][n] == shape[a] - 1 for n, a in enumerate(axes)], dtype=bool)
+        if np.any(faces["id2"].astype(np.int64) != first + step) or np.any(last):
+            raise InputError(f"{folder / 'well_faces.csv'}: a face joins cells that are not neighbours "
+                             "along its axis")  # fmt: skip
         mine = {n: np.array([w == n for w in names]) for n in dict.fromkeys(names)}
         return PackageWells(
             {n: ids[m] for n, m in mine.items()}, {n: factor[m] for n, m in mine.items()},
