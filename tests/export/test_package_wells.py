@@ -11,13 +11,17 @@ What is tested
   transmissibility factor (SI: the darcy's definition, 9.869233e-13 m² per D;
   field: mD·ft), as for connections.csv.
 * ``--well-connection peaceman`` sets every factor by Peaceman's formula and
-  no face.
+  no face; its empty well_faces.csv reads back.
+* In 3D, a well completed in layers 2-3 of 1, 2, 3, 4 m gets one row per
+  coarse layer it crosses, with the part of its interval in each (in ft
+  with ``--units field``, 0.3048 m each).
 * ``upscale check DIR --wells FILE`` connects the coarse wells as the
   package's tables say: after a face of well_faces.csv is edited (and the
   manifest told), the coarse rates change; unedited, they are the run's to
   1e-10 (the same equations from the same numbers, common practice). A
   wells file with other wells, or a well moved to another block, ends in one
-  line naming the mismatch.
+  line naming the mismatch; so does an edited face between cells that are
+  not neighbours.
 """
 
 from __future__ import annotations
@@ -185,3 +189,22 @@ def test_package_written_without_wells_connects_them_by_the_option(run_cli, tmp_
     assert all(np.array(found["near-well"]["wells"][w]["coarse"]["set_by"]) == "near-well" for w in "IPR")
     totals = [found[how]["total_rate"]["coarse"] for how in ("near-well", "peaceman")]
     assert totals[0] != pytest.approx(totals[1])
+
+
+def test_the_completed_interval_of_a_3d_well(run_cli, tmp_path: Path) -> None:
+    rng = np.random.default_rng(SEED)
+    field = write_raster(tmp_path / "k3.tif", np.exp(rng.normal(4.0, 0.5, size=(4, 16, 16))), cell_size=10.0)
+    wells = tmp_path / "wells.csv"
+    wells.write_text("name,x,y,layers,control,value,radius\n"
+                     f"I,{X0 + 45},{Y0 - 45},2-3,pressure,2,0.1\n"
+                     f"P,{X0 + 115},{Y0 - 115},,pressure,1,0.1\n")  # fmt: skip
+    out = tmp_path / "out"
+    code, _, stderr = run_cli("run", field, "--dz", "1,2,3,4", "--kv-kh", "0.1", "--block", "8x8x2",
+                              "--method", "geometric", "--wells", wells, "--units", "field", "--out", out,
+                              "-q")  # fmt: skip
+    assert code == 0, stderr
+    rows = [r for r in _read(out / "wells.csv") if r["well"] == "I"]
+    # layers 2-3 lie 1 to 6 m below the top: 1-3 m in coarse layer 0 (0-3 m), 3-6 m in layer 1 (3-10 m)
+    feet = [float(r[name]) for r in rows for name in ("z_top", "z_bottom")]
+    assert feet == pytest.approx([-1 / 0.3048, -3 / 0.3048, -3 / 0.3048, -6 / 0.3048], rel=1e-12)
+    assert [int(r["id"]) for r in rows] == [0, 4]  # column 0, row 0, layers 0 and 1 of 2 x 2 x 2 blocks

@@ -144,8 +144,8 @@ def print_well_check(check: dict) -> None:
     sides = "closed sides" if outer == "closed" else f"sides at pressure {number(outer['pressure'])}"
     how = {"near-well": "near-well upscaling", "peaceman": "Peaceman's index",
            "package": "the package's wells table"}.get(check.get("connection", "peaceman"))  # fmt: skip
-    click.echo(f"well check: the wells of {check['file']} on both grids, {sides}; coarse wells connected "
-               f"by {how}")
+    click.echo(f"well check: the wells of {check['file']} on both grids, {sides}")
+    click.echo(f"coarse wells connected by {how}")
     rows = []
     for name, w in check["wells"].items():
         shown = "rate" if w["control"] == "pressure" else "pressure"

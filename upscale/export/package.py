@@ -333,8 +333,9 @@ def well_columns(check: dict[str, Any], fine: Grid, coarse: Grid, factors: dict[
                                              well["coarse"]["set_by"]):  # fmt: skip
             top, bottom = max(tops[first - 1], edges[k]), min(tops[last], edges[k + 1])
             scale = 1.0 if well["control"] == "pressure" else tf
-            values = (name, i + N * (j + M * k), factor * tf, set_by, -top * length, -bottom * length,
-                      well["control"], well["value"] * scale)  # fmt: skip
+            depth = (0.0 - top * length, 0.0 - bottom * length)  # heights above the top, 0.0 not -0.0
+            values = (name, i + N * (j + M * k), factor * tf, set_by, *depth, well["control"],
+                      well["value"] * scale)  # fmt: skip
             for column, value in zip(WELL_COLUMNS, values):
                 rows[column].append(value)
     faces: dict[str, list[Any]] = {c: [] for c in FACE_COLUMNS}
