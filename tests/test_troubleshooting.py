@@ -47,6 +47,7 @@ NOT_DOCUMENTED = {
     "upscale/io/read.py: scale must be one of": _CLICK_FIRST,
     "upscale/units.py: unknown unit": _CLICK_FIRST,
     "upscale/methods/registry.py: unknown method": _CLICK_FIRST,
+    "upscale/check/wells.py: the well connection is": _CLICK_FIRST,  # --well-connection
     "upscale/methods/flow_based.py: unknown boundary condition": _CLICK_FIRST,
     "upscale/methods/flow_based.py: --border must be a whole number of fine cells, not": _CLICK_FIRST,
     "upscale/export/staging.py: exists and is not a folder": _CLICK_FIRST,  # --out names a file

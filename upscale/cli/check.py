@@ -17,7 +17,7 @@ from .report import print_check, print_well_check
 @global_options
 @click.pass_context
 def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_limit: int, wells: str | None,
-          outer_pressure: float | None) -> None:  # fmt: skip
+          outer_pressure: float | None, well_connection: str) -> None:  # fmt: skip
     """Check again that the coarse grid in FOLDER passes the fine model's flow.
 
     Reads the run's summary.json and its fine inputs (which must be
@@ -25,8 +25,10 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
     coarse-grid package alone (cells.csv, connections.csv, boundary.csv,
     manifest.json), applies the same pressure drop across each axis to both,
     prints the errors and records them in summary.json. With --wells, the
-    wells are also driven on both grids (the coarse blocks' kx, ky from
-    cells.csv) and the well check is recorded as well_check.
+    wells are also driven on both grids and the well check is recorded as
+    well_check: the coarse wells connect as the package's wells table says
+    (wells.csv, with its near-well faces, well_faces.csv), or, for a package
+    written without wells, as --well-connection sets them on its blocks.
 
     \b
     Example:
@@ -34,7 +36,7 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
       upscale check out/ --wells wells.csv
     """
     summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit, wells=wells,
-                           outer_pressure=outer_pressure)  # fmt: skip
+                           outer_pressure=outer_pressure, well_connection=well_connection)  # fmt: skip
     if not ctx.obj["quiet"]:
         print_check(FlowCheck.from_dict(summary["check"]))
         if wells is not None:

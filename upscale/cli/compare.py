@@ -52,8 +52,8 @@ from .report import number, print_notes, print_spread, table
 @click.pass_context
 def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
             bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
-            tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, out: str,
-            overwrite: bool, **options: object) -> None:  # fmt: skip
+            tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
+            well_connection: str, out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
     Several FIELDs or a glob (an ensemble of realizations on one grid): the
@@ -85,7 +85,8 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.cells), "solver": solver,
             "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
             "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
-            "say": say, "wells": wells, "outer_pressure": outer_pressure}  # fmt: skip
+            "say": say, "wells": wells, "outer_pressure": outer_pressure,
+            "well_connection": well_connection}  # fmt: skip
     if len(paths) > 1:
         content = compare_ensemble(paths, spec, chosen, out, **jobs)
         if not ctx.obj["quiet"]:

@@ -15,6 +15,7 @@ from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
+from ..methods.near_well import CONNECTIONS
 from ..methods.registry import METHODS
 from ..units import UNITS
 
@@ -286,6 +287,11 @@ def well_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--outer-pressure", type=float, default=None, metavar="PRESSURE",
                      help="Hold the four sides of the domain at this pressure in the well check "
                      "[default: closed sides]."),
+        click.option("--well-connection", type=click.Choice(CONNECTIONS), default=CONNECTIONS[0],
+                     show_default=True,
+                     help="How the coarse blocks that hold a well connect to it: near-well (a local "
+                     "fine solve around each well sets the connection factor and the faces near "
+                     "it) or peaceman (Peaceman's formula on the block's kx, ky)."),
     ]
     for option in reversed(options):
         command = option(command)

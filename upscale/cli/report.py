@@ -10,7 +10,7 @@ import click
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.records import SolveRecord
 from ..analysis.summary import FlowCheck, RunSummary
-from ..export.package import PACKAGE_FILES
+from ..export.package import PACKAGE_FILES, WELL_FILES
 from ..field import PERMEABILITY
 from ..methods.coarsen import Upscaled
 from ..report.verdict import bound_note, outside_band
@@ -102,7 +102,8 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     if summary.well_check is not None:
         print_well_check(summary.well_check)
     click.echo("")
-    files = [f for f in summary.files if not f.startswith("figures/") and f not in PACKAGE_FILES]
+    package = {*PACKAGE_FILES, *WELL_FILES}
+    files = [f for f in summary.files if not f.startswith("figures/") and f not in package]
     files.insert(len(files) - ("report.html" in files), "the coarse-grid package (manifest.json)")
     figures = sum(f.endswith(".png") for f in summary.files if f.startswith("figures/"))
     if figures:
@@ -141,7 +142,10 @@ def print_well_check(check: dict) -> None:
         return
     outer = check["outer_faces"]
     sides = "closed sides" if outer == "closed" else f"sides at pressure {number(outer['pressure'])}"
+    how = {"near-well": "near-well upscaling", "peaceman": "Peaceman's index",
+           "package": "the package's wells table"}.get(check.get("connection", "peaceman"))  # fmt: skip
     click.echo(f"well check: the wells of {check['file']} on both grids, {sides}")
+    click.echo(f"coarse wells connected by {how}")
     rows = []
     for name, w in check["wells"].items():
         shown = "rate" if w["control"] == "pressure" else "pressure"

@@ -70,7 +70,8 @@ _METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS
 def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float | None,
         bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
-        tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None, units: str,
+        tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
+        well_connection: str, units: str,
         workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
@@ -103,7 +104,8 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.cells),
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
         plot=plot, report=html_report, layer=None if layer is None else layer - 1,
-        wells=wells, outer_pressure=outer_pressure, command=ctx.obj["command"],
+        wells=wells, outer_pressure=outer_pressure, well_connection=well_connection,
+        command=ctx.obj["command"],
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]

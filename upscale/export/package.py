@@ -55,7 +55,11 @@ def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 _INTEGER = {"id", "i", "j", "k", "id1", "id2"}
-_TEXT = {"axis", "source", "face"}
+_TEXT = {"axis", "source", "face", "well", "set_by", "control"}
+#: The tables of a run with wells (docs/package.md): each well's coarse connections, and the faces
+#: near-well upscaling set.
+WELL_TABLES = ("wells", "well_faces")
+WELL_FILES = tuple(f"{t}.{x}" for t in WELL_TABLES for x in ("csv", "parquet"))
 
 
 def _pool() -> pa.MemoryPool:
@@ -247,8 +251,9 @@ def _face_areas(grid: Grid, a: int) -> np.ndarray:
     return sizes[0] * sizes[1]
 
 
-def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str) -> dict:
-    """The unit of every column of every table, for the manifest."""
+def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, *,
+                 wells: bool = False) -> dict:  # fmt: skip
+    """The unit of every column of every table (with `wells`, of the wells tables too), for the manifest."""
     length, k, t = factors["length_unit"], factors["k_unit"], factors["transmissibility_unit"]
     known = {
         "id": "1", "i": "1", "j": "1", "k": "1", "id1": "1", "id2": "1", "active": "1 (0 or 1)",
@@ -258,8 +263,14 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str) 
         "transmissibility": t, "half_transmissibility": t, "area": f"{length}²",
         "distance": length, "source": "harmonic, flow, global or local-global",
         "face": "x-, x+, y-, y+, z- or z+",
+        "well": "name", "factor": t, "set_by": "near-well or peaceman", "control": "pressure or rate",
+        "z_top": f"{length} above the top of the model", "z_bottom": f"{length} above the top of the model",
+        "value": f"unit of pressure (control pressure) or {t}·(unit of pressure) (control rate: q·μ)",
     }  # fmt: skip
-    return {name: {c: known.get(c, k) for c in tables.columns(name)} for name in TABLES}
+    columns = {name: tables.columns(name) for name in TABLES}
+    if wells:
+        columns.update(zip(WELL_TABLES, (WELL_COLUMNS, FACE_COLUMNS)))
+    return {name: {c: known.get(c, k) for c in names} for name, names in columns.items()}
 
 
 def write_tables(stage: Path, tables: PackageTables) -> dict[str, dict[str, Any]]:
@@ -273,17 +284,88 @@ def write_tables(stage: Path, tables: PackageTables) -> dict[str, dict[str, Any]
     """
     files = {}
     for name in TABLES:
-        schema = _schema(tables.columns(name))
-        csv, parquet = stage / f"{name}.csv", stage / f"{name}.parquet"
-        rows = 0
-        with pacsv.CSVWriter(csv, schema, memory_pool=_pool()) as text, \
-                pq.ParquetWriter(parquet, schema, memory_pool=_pool()) as columnar:  # fmt: skip
-            for batch in tables.batches(name):
-                text.write_table(batch)
-                columnar.write_table(batch)
-                rows += batch.num_rows
-        for path in (csv, parquet):
-            files[path.name] = {"rows": rows, "sha256": _sha256(path)}
+        files.update(_write_table(stage, name, tables.columns(name), tables.batches(name)))
+    return files
+
+
+def _write_table(stage: Path, name: str, columns: list[str], batches: Iterator[pa.Table]
+                 ) -> dict[str, dict[str, Any]]:  # fmt: skip
+    """One table as ``NAME.csv`` and ``NAME.parquet``; per file its ``rows`` and ``sha256``."""
+    schema = _schema(columns)
+    csv, parquet = stage / f"{name}.csv", stage / f"{name}.parquet"
+    rows = 0
+    with pacsv.CSVWriter(csv, schema, memory_pool=_pool()) as text, \
+            pq.ParquetWriter(parquet, schema, memory_pool=_pool()) as columnar:  # fmt: skip
+        for batch in batches:
+            text.write_table(batch)
+            columnar.write_table(batch)
+            rows += batch.num_rows
+    return {path.name: {"rows": rows, "sha256": _sha256(path)} for path in (csv, parquet)}
+
+
+def well_columns(check: dict[str, Any], fine: Grid, coarse: Grid, factors: dict[str, Any]
+                 ) -> dict[str, dict[str, np.ndarray]]:  # fmt: skip
+    """The rows of the wells tables, from the well check's record (`upscale.check.wells.WellCheck.summary`).
+
+    Parameters
+    ----------
+    check : dict
+        The ``well_check`` object of the summary (with its coarse ``factors``,
+        ``set_by`` and ``near_well_faces``).
+    fine, coarse : Grid
+        The grids the wells were solved on (layers are counted on the fine one).
+    factors : dict
+        From `upscale.units.unit_factors`.
+
+    Returns
+    -------
+    dict
+        ``wells`` and ``well_faces``: column name to values, in the package's units.
+    """
+    tf, length = factors["k"] * factors["length"], factors["length"]
+    L, M, N = coarse.shape
+    tops = np.concatenate([[0.0], np.cumsum(fine.dz)])
+    edges = np.concatenate([[0.0], np.cumsum(coarse.dz)])
+    rows: dict[str, list[Any]] = {c: [] for c in WELL_COLUMNS}
+    for name, well in check["wells"].items():
+        first, last = (1, fine.dz.size) if well["layers"] == "all" else well["layers"]
+        for (k, j, i), factor, set_by in zip(well["coarse"]["cells"], well["coarse"]["factors"],
+                                             well["coarse"]["set_by"]):  # fmt: skip
+            top, bottom = max(tops[first - 1], edges[k]), min(tops[last], edges[k + 1])
+            scale = 1.0 if well["control"] == "pressure" else tf
+            depth = (0.0 - top * length, 0.0 - bottom * length)  # heights above the top, 0.0 not -0.0
+            values = (name, i + N * (j + M * k), factor * tf, set_by, *depth, well["control"],
+                      well["value"] * scale)  # fmt: skip
+            for column, value in zip(WELL_COLUMNS, values):
+                rows[column].append(value)
+    faces: dict[str, list[Any]] = {c: [] for c in FACE_COLUMNS}
+    for face in check["near_well_faces"]:
+        k, j, i = face["cell"]
+        first = i + N * (j + M * k)
+        step = {"x": 1, "y": N, "z": N * M}[face["axis"]]
+        for column, value in zip(FACE_COLUMNS, (first, first + step, face["axis"],
+                                                face["transmissibility"] * tf)):  # fmt: skip
+            faces[column].append(value)
+    return {"wells": {c: _typed(c, v) for c, v in rows.items()},
+            "well_faces": {c: _typed(c, v) for c, v in faces.items()}}  # fmt: skip
+
+
+def _typed(name: str, values: list[Any]) -> np.ndarray:
+    """A column's values as the array its type in `_schema` needs (an empty column too)."""
+    return np.asarray(values, dtype=np.int64 if name in _INTEGER else str if name in _TEXT else np.float64)
+
+
+#: The columns of ``wells.csv`` and ``well_faces.csv``.
+WELL_COLUMNS = ["well", "id", "factor", "set_by", "z_top", "z_bottom", "control", "value"]
+FACE_COLUMNS = ["id1", "id2", "axis", "transmissibility"]
+
+
+def write_well_tables(stage: Path, columns: dict[str, dict[str, np.ndarray]]) -> dict[str, dict[str, Any]]:
+    """Write ``wells`` and ``well_faces`` (CSV and Parquet) from `well_columns`; per file rows and SHA-256."""
+    files = {}
+    for name, names in zip(WELL_TABLES, (WELL_COLUMNS, FACE_COLUMNS)):
+        schema = _schema(names)
+        files.update(_write_table(stage, name, names, iter([_batch(columns[name], schema)])))
     return files
 
 

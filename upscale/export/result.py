@@ -22,7 +22,15 @@ from ..units import unit_factors
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
 from .netcdf import crs_unit, write_netcdf
-from .package import FORMAT, PackageTables, bulk_volumes, column_units, write_tables
+from .package import (
+    FORMAT,
+    PackageTables,
+    bulk_volumes,
+    column_units,
+    well_columns,
+    write_tables,
+    write_well_tables,
+)
 from .slabs import Values
 from .staging import MARKER, staged_folder
 from .vtk import write_vtk
@@ -54,8 +62,12 @@ def _scaled(values: np.ndarray, factor: float) -> Values:
 
 
 def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str, Any] | None,
-                  command: list[str] | None) -> list[str]:  # fmt: skip
-    """Write the coarse-grid package (tables, NetCDF, VTK, manifest) into `stage`."""
+                  command: list[str] | None, wells: dict[str, Any] | None = None) -> list[str]:  # fmt: skip
+    """Write the coarse-grid package (tables, NetCDF, VTK, manifest) into `stage`.
+
+    A solved well check (`wells`, the summary's ``well_check``) adds the wells
+    tables (``wells``, ``well_faces``) and the manifest's ``wells``.
+    """
     coarse = result.coarse
     factors = unit_factors(coarse.unit, units)
     trans = result.transmissibilities()
@@ -64,6 +76,10 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     tables = PackageTables(properties, trans, factors=factors, source=source,
                            direct=result.direct_faces)  # fmt: skip
     table_files = write_tables(stage, tables)
+    solved = wells is not None and "wells" in wells
+    if solved:
+        columns = well_columns(wells, result.fine.grid, coarse.grid, factors)
+        table_files.update(write_well_tables(stage, columns))
     length = factors["length"]
     gridded: dict[str, tuple[Values, str, str]] = {}
     for name, values in properties.items():
@@ -87,7 +103,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     manifest = {
         "format": FORMAT,
         "units": {"system": units, "input_unit": coarse.unit, "factors": factors,
-                  "columns": column_units(tables, factors, crs_unit(grid))},  # fmt: skip
+                  "columns": column_units(tables, factors, crs_unit(grid), wells=solved)},  # fmt: skip
         "shape": {"layers": grid.shape[0], "rows": grid.shape[1], "columns": grid.shape[2]},
         "id": "i + columns * (j + rows * k); zero-based; layer 0 on top, row 0 the first raster row",
         "crs": grid.crs.to_wkt() if grid.crs is not None else None,
@@ -97,6 +113,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "block": result.block.summary(),
         "transmissibility_source": source,
         "check": check,
+        **({"wells": {key: wells[key] for key in ("outer_faces", "connection")}} if solved else {}),
         "files": files,
         "tables": table_files,
         "caution": CAUTION,
@@ -215,7 +232,7 @@ def write_result(
     with staged_folder(folder, overwrite) as stage:
         files = _write_geotiffs(stage, result, tags) if "geotiff" in formats else []
         if "package" in formats:
-            files += write_package(stage, result, units, check=check, command=command)
+            files += write_package(stage, result, units, check=check, command=command, wells=wells)
         if images:
             files += write_figures(stage, images)
         if page is not None:

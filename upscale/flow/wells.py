@@ -49,6 +49,8 @@ from .transmissibility import Transmissibilities
 
 #: The two controls of a well: its bottom-hole pressure or its total rate.
 CONTROLS = ("pressure", "rate")
+#: Fixed-pressure faces one by one: cell behind each (flat index), its half-cell t, the face pressure.
+FixedFaces = tuple[np.ndarray, np.ndarray, np.ndarray]
 
 
 @dataclass(frozen=True)
@@ -312,7 +314,7 @@ def refuse_shared_cells(connections: list[Connections]) -> None:
 
 
 def well_flow(trans: Transmissibilities, connections: list[Connections], *,
-              outer_pressure: float | None = None,
+              outer_pressure: float | None = None, faces: FixedFaces | None = None,
               solver: str = "auto", tolerance: float = 1e-10) -> WellFlow:  # fmt: skip
     """Solve the steady flow driven by the wells (module docstring) on one grid.
 
@@ -324,6 +326,10 @@ def well_flow(trans: Transmissibilities, connections: list[Connections], *,
         Each well's cells and well indices on this grid (`connect`).
     outer_pressure : float, optional
         Pressure held on the four side faces of the domain; None: closed.
+    faces : (ndarray of int, ndarray of float, ndarray of float), optional
+        Fixed-pressure outer faces given one by one, in place of `outer_pressure`:
+        the flat index of the cell behind each face, the cell's half-cell t
+        towards it ((unit of k) · m, positive) and the face's pressure.
     solver, tolerance
         As in `upscale.flow.steady.pressure_drop`.
 
@@ -353,7 +359,7 @@ def well_flow(trans: Transmissibilities, connections: list[Connections], *,
     """
     n = int(np.prod(trans.shape))
     first, second, T = trans.connections
-    fixed_cells, fixed_t, fixed_p = _outer_faces(trans, outer_pressure)
+    fixed_cells, fixed_t, fixed_p = _outer_faces(trans, outer_pressure) if faces is None else faces
     outer = fixed_cells.size  # the outer faces come first among the fixed pressures
     rate_wells = [c for c in connections if c.well.control == "rate"]
     for c in connections:

@@ -10,6 +10,7 @@ the run's input so the coarse k_eff compares with the fine one.
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -184,3 +185,77 @@ def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) 
     kx = np.where(trans.active, k["kx"].reshape(grid.shape) / float(factors["k"]), np.nan)
     ky = np.where(trans.active, k.get("ky", k["kx"]).reshape(grid.shape) / float(factors["k"]), np.nan)
     return Field(kx, ky, None, None, placed, unit)
+
+
+@dataclass(frozen=True, eq=False)
+class PackageWells:
+    """A package's wells tables (``wells.csv``, ``well_faces.csv``), in the unit of the run's input.
+
+    Attributes
+    ----------
+    cells : dict of str to ndarray of int
+        Each well's coarse cells (flat ids, as in ``cells.csv``), in the table's order.
+    factors : dict of str to ndarray of float
+        Its connection factor in each, (unit of k) · m.
+    set_by : dict of str to tuple of str
+        What set each factor: ``near-well`` or ``peaceman``.
+    faces : dict of (int, int, int, int) to float
+        The faces near-well upscaling set: T in (unit of k) · m, keyed by (array
+        axis, layer, row, column of the cell ``id1``).
+    """
+
+    cells: dict[str, np.ndarray]
+    factors: dict[str, np.ndarray]
+    set_by: dict[str, tuple[str, ...]]
+    faces: dict[tuple[int, int, int, int], float]
+
+
+def read_package_wells(folder: str | Path, manifest: dict, shape: tuple[int, int, int]
+                       ) -> PackageWells | None:  # fmt: skip
+    """The wells tables of a package, or None for a package written without wells.
+
+    Parameters
+    ----------
+    folder : str or Path
+        An output folder of ``upscale run``.
+    manifest : dict
+        Its manifest (`read_package`).
+    shape : (int, int, int)
+        The coarse grid's (layers, rows, columns).
+
+    Raises
+    ------
+    InputError
+        If a table the manifest lists is missing, changed, or does not hold what the format says.
+    """
+    folder = Path(folder)
+    recorded = dict(manifest["tables"])
+    if "wells.csv" not in recorded:
+        return None
+    factors = manifest["units"]["factors"]
+    tf = float(factors["k"]) * float(factors["length"])
+    wells = _table(folder / "wells.csv", recorded)
+    faces = _table(folder / "well_faces.csv", recorded)
+    try:
+        names = [str(n) for n in wells["well"]]
+        factor = _numbers(wells["factor"], "factor", folder / "wells.csv", True) / tf
+        ids = wells["id"].astype(np.int64)
+        T = _numbers(faces["transmissibility"], "transmissibility", folder / "well_faces.csv", True) / tf
+        axes = [_AXIS[str(a)] for a in faces["axis"]]
+        first = faces["id1"].astype(np.int64)
+        at = np.unravel_index(first, shape)
+        step = np.array([(shape[1] * shape[2], shape[2], 1)[a] for a in axes], dtype=np.int64)
+        last = np.array([at[a][n] == shape[a] - 1 for n, a in enumerate(axes)], dtype=bool)
+        if np.any(faces["id2"].astype(np.int64) != first + step) or np.any(last):
+            raise InputError(f"{folder / 'well_faces.csv'}: a face joins cells that are not neighbours "
+                             "along its axis")  # fmt: skip
+        mine = {n: np.array([w == n for w in names]) for n in dict.fromkeys(names)}
+        return PackageWells(
+            {n: ids[m] for n, m in mine.items()}, {n: factor[m] for n, m in mine.items()},
+            {n: tuple(str(s) for s in wells["set_by"][m]) for n, m in mine.items()},
+            {(a, int(k), int(j), int(i)): float(v) for a, k, j, i, v in zip(axes, *at, T)},
+        )  # fmt: skip
+    except (KeyError, ValueError, IndexError, TypeError) as exc:
+        raise InputError(
+            f"{folder}: the wells tables are incomplete or inconsistent ({_plain(exc)})"
+        ) from None

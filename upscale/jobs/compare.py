@@ -37,7 +37,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                  tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                  recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                  overwrite: bool = False, say: Say = silent, wells: str | None = None,
-                 outer_pressure: float | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
+                 outer_pressure: float | None = None,
+                 well_connection: str = "near-well") -> tuple[Comparison, Bundle]:  # fmt: skip
     """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
 
     Parameters
@@ -53,6 +54,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
         wells (one fine solve), and ranked on the error of their total rate too.
     outer_pressure : float, optional
         Pressure on the four side faces in the well check; None: closed.
+    well_connection : {'near-well', 'peaceman'}
+        How the coarse well connection factors are set (`upscale.methods.near_well`).
 
     Returns
     -------
@@ -67,7 +70,7 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     """
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.cells, **read)
     refuse_comparison(fine, check_limit, layer)
-    shared = _wells(fine, block, wells, outer_pressure, solver, tolerance, say)
+    shared = _wells(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say,
                              wells=shared)  # fmt: skip
@@ -77,15 +80,18 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     return result, made
 
 
-def _wells(fine: Field, block: BlockSpec, path: str | None, outer_pressure: float | None, solver: str,
+def _wells(fine: Field, block: BlockSpec, path: str | None, how: tuple[float | None, str], solver: str,
            tolerance: float, say: Say) -> FineWells | None:  # fmt: skip
-    """The wells of `path` solved on the fine field as the comparison uses it, or None without a file."""
+    """The wells of `path` solved on the fine field as the comparison uses it, or None without a file.
+
+    `how` is the outer pressure (None: closed) and the well connection.
+    """
     if path is None:
         return None
     wells = read_wells(path)
     with Steps(say)(None, f"solving the fine model driven by {len(wells)} wells"):
-        return fine_wells(fine.leading(block.used_shape(fine.shape)), wells, outer_pressure=outer_pressure,
-                          solver=solver, tolerance=tolerance)  # fmt: skip
+        return fine_wells(fine.leading(block.used_shape(fine.shape)), wells, outer_pressure=how[0],
+                          connection=how[1], solver=solver, tolerance=tolerance)  # fmt: skip
 
 
 def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate], out: str | Path, *,
@@ -93,7 +99,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                      tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                      overwrite: bool = False, say: Say = silent, wells: str | None = None,
-                     outer_pressure: float | None = None) -> EnsembleRanking:  # fmt: skip
+                     outer_pressure: float | None = None,
+                     well_connection: str = "near-well") -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
@@ -121,7 +128,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         Replace the results in a folder that holds some.
     say : callable, optional
         Receives progress lines (silent by default).
-    wells, outer_pressure : optional
+    wells, outer_pressure, well_connection : optional
         As in `compare_file`, for every realization.
 
     Returns
@@ -148,7 +155,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
                 told(progress_line(j, n, candidate, entry))
 
-            shared = _wells(fine, block, wells, outer_pressure, solver, tolerance, told)
+            shared = _wells(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, told)
             result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                                      report=report, say=told, wells=shared)  # fmt: skip
             _refuse_if_none_ran(result, paths[i - 1])

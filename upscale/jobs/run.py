@@ -68,6 +68,8 @@ class Settings:
         A wells file (``docs/wells.md``): the check also solves these wells on both grids.
     outer_pressure : float or None
         Pressure on the four side faces in the well check; None: closed.
+    well_connection : {'near-well', 'peaceman'}
+        How the coarse well connection factors are set (`upscale.methods.near_well`).
     command : list of str
         The command line, recorded in the outputs.
     """
@@ -88,6 +90,7 @@ class Settings:
     layer: int | None = None
     wells: str | None = None
     outer_pressure: float | None = None
+    well_connection: str = "near-well"
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
@@ -189,7 +192,8 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                 found = well_check(result.fine, result.coarse, wells,
                                    coarse_trans=result.transmissibilities(),
                                    fine_trans=next(iter(flows.values())).trans,
-                                   outer_pressure=settings.outer_pressure, solver=settings.solver,
+                                   outer_pressure=settings.outer_pressure,
+                                   connection=settings.well_connection, solver=settings.solver,
                                    tolerance=settings.tolerance)  # fmt: skip
                 wells_check = {"file": settings.wells, **found.summary()}
     made = None
