@@ -67,6 +67,26 @@ def test_methods_are_ranked_on_the_wells_too() -> None:
         assert canvas.y0 - 1 <= box.y0 and box.y1 <= canvas.y1 + 1, text.get_text()
     scale = min(1.0, PAGE_PX / (plot.figure.get_figwidth() * DPI))
     assert min(t.get_fontsize() for t, _ in texts) * DPI / 96 * scale >= SMALLEST
+    # the error chart ranks on the wells too, so it draws their error beside the flows' (one bar per method)
+    (errors,) = [p for p in build_figures(found, "mD") if p.name == "errors"]
+    labels = errors.figure.legends[0].get_texts()
+    assert [t.get_text() for t in labels][-1] == "wells (total rate)"
+    (ax,) = errors.figure.axes
+    drawn = [b.get_height() for c in ax.containers if c.get_label() == "wells (total rate)" for b in c]
+    assert drawn == pytest.approx([100 * e.wells.rel_error for e in found.ranked])
+
+
+def test_well_rates_of_sand_and_shale_are_read_on_a_log_axis() -> None:
+    # a producer in shale passes a hundredth of one in sand: on a linear axis its bars were invisible
+    k = _field()
+    k[22:29, 22:29] /= 300.0  # a shale lens around Q
+    field = Field.from_arrays(k, cell_size=(10.0, 10.0))
+    wells = [*WELLS, Well("Q", 255.0, -255.0, None, "pressure", 0.0, 0.1)]
+    found = compare_methods(field, "8x8", candidates(["geometric"]), wells=fine_wells(field, wells))
+    rates = [abs(r) for r in found.ranked[0].wells.fine.rates.values()]
+    assert max(rates) > 10 * min(rates)
+    (plot,) = [p for p in build_figures(found, "mD") if p.name == "wells"]
+    assert plot.figure.axes[0].get_yscale() == "log"
 
 
 @pytest.mark.slow  # about 7 s: the figures and the page of a comparison

@@ -58,7 +58,7 @@ def error_band(ax: Axes, largest: float) -> None:
 
 
 def readable_k_axis(ax: Axes) -> None:
-    """The y axis of effective permeabilities drawn on `ax`, with labelled ticks whatever their range.
+    """The y axis of effective permeabilities (or well rates) drawn on `ax`, labelled whatever their range.
 
     Linear while the largest value is under ten times the smallest (a log
     axis over less than a decade may carry no labelled tick at all); log
@@ -87,22 +87,28 @@ def warn_in(ax: Axes, text: str | None) -> None:
 
 
 def error_bars(comparison: Comparison) -> Figure:
-    """Check error per method and flow (axes, then corner to corner; %), ±5 % band, a warning if none in."""
+    """Check error per method and flow (axes, corner to corner, then the wells' total rate if given; %).
+
+    With the ±5 % band behind, and a warning if no method is within it.
+    """
     ran = comparison.ranked
     axes_names = list(check_names(comparison.fine.axes))
     alone = one_method(comparison)
     fig = Figure(figsize=(min(MAX_WIDTH, max(4.5 if alone else 6.0, 0.8 * len(ran) + 2.5)), 4.4),
                  layout="constrained")  # fmt: skip
     ax = fig.subplots()
-    width = 0.8 / len(axes_names)
     x = np.arange(len(ran))
     largest = 0.0
-    for i, axis in enumerate(axes_names):
-        errors = np.array([100 * e.checks[axis].rel_error for e in ran])
-        largest = max(largest, float(np.nanmax(np.abs(errors))) if errors.size else 0.0)
-        offset = (i - (len(axes_names) - 1) / 2) * width
-        ax.bar(x + offset, errors, width, color=PALETTE[i], hatch=("", "//", "..", "xx")[i],
-               edgecolor="black", linewidth=0.4, label=flow_label(axis))  # fmt: skip
+    series = [(flow_label(axis), [100 * e.checks[axis].rel_error for e in ran]) for axis in axes_names]
+    if any(e.wells is not None for e in ran):  # the wells' total rate, ranked on beside the flows
+        series.append(("wells (total rate)", [100 * e.wells.rel_error if e.wells else np.nan for e in ran]))
+    width = 0.8 / len(series)
+    for i, (label, values) in enumerate(series):
+        errors = np.array(values, dtype=float)
+        largest = max(largest, float(np.nanmax(np.abs(errors), initial=0.0)))
+        offset = (i - (len(series) - 1) / 2) * width
+        ax.bar(x + offset, errors, width, color=PALETTE[i], hatch=("", "//", "..", "xx", "\\\\")[i],
+               edgecolor="black", linewidth=0.4, label=label)  # fmt: skip
     error_band(ax, largest)
     ax.set_xticks(x, [entry_name(comparison, e) for e in ran], rotation=0 if alone else 30,
                   ha="center" if alone else "right")  # fmt: skip
@@ -144,6 +150,7 @@ def well_rates(comparison: Comparison) -> Figure | None:
         color = "#444444" if i == 0 else PALETTE[(i - 1) % len(PALETTE)]
         ax.bar(x + offset, rates, width, color=color, hatch=("", "//", "..", "xx", "\\\\")[i % 5],
                edgecolor="black", linewidth=0.4, label=label if i else "fine grid")  # fmt: skip
+    readable_k_axis(ax)  # rates of wells in sand and in shale can differ by decades: log beyond one
     ax.set_xticks(x, names)
     ax.set_xlabel("well (bottom-hole pressure fixed)")
     ax.set_ylabel(f"|rate| · μ ({comparison.fine.unit}·m × unit of pressure)")

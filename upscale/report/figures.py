@@ -78,7 +78,9 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
         whose = "the method" if alone else "the methods (the best and the worst beyond four)"
         plots.append(Plot("wells", rates,
                           f"Rate of each pressure-controlled well on the fine grid beside the coarse grid "
-                          f"of {whose} (Peaceman's well index in each cell and block; docs/wells.md): "
+                          f"of {whose} (Peaceman's well index in each fine cell, the coarse blocks "
+                          "connected as the check says; docs/wells.md), on a log scale when the rates "
+                          "span more than a decade: "
                           "unequal bars show how far the coarse model's wells are off, a difference "
                           "no axis check sees."))  # fmt: skip
     for axis in fine.axes[:2]:
