@@ -25,11 +25,13 @@ def test_demo_writes_the_fields_the_ensemble_and_a_listing(run_cli, tmp_path):
     out = tmp_path / "demo"
     code, stdout, err = run_cli("demo", "--out", out)
     assert (code, err) == (0, "")
-    assert stdout == f"wrote {len(DEMO_NAMES)} demo fields to {out}: {', '.join(DEMO_NAMES)}\n"
+    assert stdout == (f"wrote {len(DEMO_NAMES)} demo fields to {out}: {', '.join(DEMO_NAMES)}; "
+                      "wells: marrowfen_wells.csv\n")  # fmt: skip
     written = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
-    assert written == sorted([*DEMO_NAMES, LISTING])
+    assert written == sorted([*DEMO_NAMES, "marrowfen_wells.csv", LISTING])
     listing = json.loads((out / LISTING).read_text())
     assert listing["files"] == list(DEMO_NAMES)
+    assert list(listing["wells"]) == ["marrowfen_wells.csv"]
     for name in DEMO_NAMES:
         values, transform, crs, nodata, dtypes = _raster(out / name)
         entry = listing["fields"][name]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ..demo.scenario import write_demo_fields
+from ..demo.scenario import WELLS, write_demo_fields
 from .options import global_options
 
 
@@ -19,9 +19,9 @@ def demo(ctx: click.Context, out: str, overwrite: bool) -> None:  # fmt: skip
 
     The fields are generated from fixed seeds, so they are the same on every
     machine: a 2D lognormal map with its porosity, a 2D channel map, a 3D
-    layer cake with shale barriers and a 3D lognormal model. fields.json in
-    the folder describes each.
+    layer cake with shale barriers and a 3D lognormal model, and a table of
+    test wells for the channel map. fields.json in the folder describes each.
     """
     names = write_demo_fields(out, overwrite=overwrite)
     if not ctx.obj["quiet"]:
-        click.echo(f"wrote {len(names)} demo fields to {out}: {', '.join(names)}")
+        click.echo(f"wrote {len(names)} demo fields to {out}: {', '.join(names)}; wells: {', '.join(WELLS)}")
