@@ -11,7 +11,7 @@ from matplotlib.figure import Figure
 from ..analysis.compare import Comparison
 from .charts import bounds_chart, error_bars, histograms, well_rates
 from .layout import DPI
-from .maps import field_maps, mismatch_maps, pressure_maps
+from .maps import field_maps, mismatch_maps, pressure_maps, well_pressure_maps
 from .style import MISSING_LABEL
 from .verdict import BAND, one_method
 
@@ -83,6 +83,16 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
                           "span more than a decade: "
                           "unequal bars show how far the coarse model's wells are off, a difference "
                           "no axis check sees."))  # fmt: skip
+    pressures = well_pressure_maps(comparison, layer=layer)
+    if pressures is not None:
+        plots.append(Plot("well_pressure", pressures,
+                          f"Pressure driven by the wells on the fine grid beside the coarse grid of "
+                          f"{'the method' if alone else 'the best and the worst method'}, on one colour "
+                          "scale spanning the wells' bottom-hole pressures; each well is marked at its "
+                          "position (triangle up: injector, down: producer, as on the fine grid): the "
+                          "coarse map should carry the fine map's fall of pressure from well to well, "
+                          "and a coarse well block far from its well's fine pressure shows a connection "
+                          "that passes too much or too little."))  # fmt: skip
     for axis in fine.axes[:2]:
         plots.append(Plot(f"mismatch_{axis}", mismatch_maps(comparison, axis=axis, layer=layer),
                           f"Where {'the' if alone else 'each'} method errs under flow along {axis}: "

@@ -1,24 +1,28 @@
-"""Map figures: fine and coarse fields, pressures, and flux mismatches on coarse faces.
+"""Map figures: fine and coarse fields, pressures (under an axis drop, and driven by the wells), flux mismatches.
 
 Every map is drawn cell by cell on the cells' true edges in map
 coordinates (the raster's, or metres from the origin; `coordinates`), with
 one colour bar per figure that states the property and unit. Cells with no
 value show a hatched background (`style.missing_background`). For a 3D
 model a map shows one layer; `field_maps` with a row shows a vertical
-x–z section through it, on the true layer thicknesses.
+x–z section through it, on the true layer thicknesses. Wells are marked at
+their x, y by their name, injectors and producers by their own markers.
 """
 
 from __future__ import annotations
 
 import numpy as np
+from matplotlib.axes import Axes
 from matplotlib.colors import Normalize, TwoSlopeNorm
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 
 from ..analysis.compare import Comparison, Entry
 from ..field import Grid
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch
-from .layout import outer_labels, page_sizes, panel_grid, title
+from ..check.wells import WellCheck
+from .layout import LABEL, TICK, outer_labels, page_sizes, panel_grid, title
 from .style import (
     MISMATCH_MAP,
     PERMEABILITY_MAP,
@@ -126,6 +130,99 @@ def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
     title(fig, f"Pressure under a drop along {axis}")
     _finish(fig, axes, fine_flow.trans.grid, False, shown)
     return fig
+
+
+def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | None:
+    """Fine and coarse pressures of the well check, the wells marked: the best and the worst method, or the one.
+
+    One linear colour scale for all panels, spanning the wells' bottom-hole
+    pressures on both grids (and the outer pressure, if held): with the
+    wells as the only sources no cell lies beyond it, so each well's
+    pressure is an end or an inner colour of the bar.
+
+    Parameters
+    ----------
+    comparison : Comparison
+    layer : int
+        Fine layer shown (its coarse layer is the one holding it).
+
+    Returns
+    -------
+    Figure or None
+        None when no method was checked with wells.
+    """
+    ran = [e for e in comparison.ranked if e.wells is not None]
+    if not ran:
+        return None
+    chosen = [ran[0]] + ([ran[-1]] if len(ran) > 1 else [])
+    tags = [""] if one_method(comparison) else ["best: ", "worst: "]
+    bz = comparison.block.cells[0]
+    checks = [e.wells for e in chosen]
+    fine = checks[0]
+    shown = [fine.fine.pressure[layer]] + [c.coarse.pressure[layer // bz] for c in checks]
+    grids = [comparison.fine.grid] + [e.result.coarse.grid for e in chosen]
+    norm = _well_pressure_norm(checks)
+    cmap = with_missing(PRESSURE_MAP)
+    fig, axes = panel_grid(len(shown), width=3.0, share=True)
+    titles = ["fine"] + [f"{tag}{e.candidate.label}" for e, tag in zip(chosen, tags)]
+    for ax, values, grid, text in zip(axes, shown, grids, titles):
+        mesh = _draw(ax, values, plan_edges(grid), cmap=cmap, norm=norm)
+        ax.set_title(text)
+    extend = extend_of(norm, *shown)
+    fig.colorbar(mesh, ax=axes, label="pressure (unit of the wells file)", shrink=0.8, extend=extend)
+    _finish(fig, axes, comparison.fine.grid, False, shown)
+    kinds = {}
+    for ax in axes:
+        kinds |= _mark_wells(ax, fine)
+    fig.legend(handles=[kinds[k] for k in WELL_KINDS if k in kinds], loc="outside lower center",
+               ncols=len(kinds), fontsize=LABEL, frameon=False)  # fmt: skip
+    where = f", layer {layer + 1}" if comparison.fine.ndim == 3 else ""
+    title(fig, f"Pressure driven by the wells{where}")
+    return fig
+
+
+#: How each kind of well is marked: (marker, face, edge); the kind follows the sign of its fine rate. A face
+#: and an edge of opposite shades keep every marker visible on every colour of the pressure scale.
+WELL_KINDS = {"injector": ("^", "white", "black"), "producer": ("v", "black", "white"),
+              "no flow": ("s", "#999999", "black")}
+
+
+def _well_pressure_norm(checks: list[WellCheck]) -> Normalize:
+    """The span of the wells' bottom-hole pressures on every grid, and the outer pressure if held."""
+    values = [p for c in checks for flow in (c.fine, c.coarse) for p in flow.pressures.values()]
+    if checks[0].outer_pressure is not None:
+        values.append(checks[0].outer_pressure)
+    low, high = min(values), max(values)
+    return Normalize(low, high if high > low else low + 1.0)
+
+
+def _kind(check: WellCheck, name: str) -> str:
+    rate = check.fine.rates[name]
+    return "injector" if rate > 0 else "producer" if rate < 0 else "no flow"
+
+
+def _mark_wells(ax: Axes, check: WellCheck) -> dict[str, Line2D]:
+    """Each well of `check` at its x, y with its name, marked by its kind; returns one marker per kind drawn.
+
+    A name is written on the side of the marker towards the panel's centre,
+    so that it stays inside the panel.
+    """
+    (x0, x1), (y0, y1) = sorted(ax.get_xlim()), sorted(ax.get_ylim())
+    drawn = {}
+    for well in check.wells:
+        kind = _kind(check, well.name)
+        marker, face, edge = WELL_KINDS[kind]
+        look = {"marker": marker, "markersize": 7, "markerfacecolor": face, "markeredgecolor": edge,
+                "markeredgewidth": 0.9, "linestyle": "none"}
+        ax.plot([well.x], [well.y], label=well.name, **look)
+        east, north = well.x > (x0 + x1) / 2, well.y > (y0 + y1) / 2
+        ax.annotate(well.name, (well.x, well.y), xytext=(-6 if east else 6, -6 if north else 6),
+                    textcoords="offset points", ha="right" if east else "left",
+                    va="top" if north else "bottom", fontsize=TICK,
+                    bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
+                          "alpha": 0.8})  # fmt: skip
+        drawn[kind] = Line2D([], [], label=kind, **(look | {"markeredgecolor": "black"}))  # on white
+    return drawn
 
 
 def mismatch_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
