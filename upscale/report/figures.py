@@ -88,7 +88,7 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
         plots.append(Plot("well_pressure", pressures,
                           f"Pressure driven by the wells on the fine grid beside the coarse grid of "
                           f"{'the method' if alone else 'the best and the worst method'}, on one colour "
-                          "scale spanning the wells' bottom-hole pressures; each well is marked at its "
+                          "scale from the lowest to the highest cell pressure; each well is marked at its "
                           "position (triangle up: injector, down: producer, as on the fine grid): the "
                           "coarse map should carry the fine map's fall of pressure from well to well, "
                           "and a coarse well block far from its well's fine pressure shows a connection "

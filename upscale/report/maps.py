@@ -135,10 +135,11 @@ def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
 def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | None:
     """Fine and coarse pressures of the well check, the wells marked: the best and the worst method, or the one.
 
-    One linear colour scale for all panels, spanning the wells' bottom-hole
-    pressures on both grids (and the outer pressure, if held): with the
-    wells as the only sources no cell lies beyond it, so each well's
-    pressure is an end or an inner colour of the bar.
+    One linear colour scale for all panels, from the lowest to the highest
+    cell pressure shown: the cells beside the wells, where fine and coarse
+    differ most, keep their own colours (a percentile scale would clip
+    them), and no value lies beyond it. The wells' own bottom-hole pressures
+    lie beyond the cells' by the drawdown their well index carries.
 
     Parameters
     ----------
@@ -161,15 +162,16 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
     fine = checks[0]
     shown = [fine.fine.pressure[layer]] + [c.coarse.pressure[layer // bz] for c in checks]
     grids = [comparison.fine.grid] + [e.result.coarse.grid for e in chosen]
-    norm = _well_pressure_norm(checks)
+    finite = np.concatenate([v[np.isfinite(v)] for v in shown])
+    low, high = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    norm = Normalize(low, max(high, low + 1e-12 * max(1.0, abs(low))))
     cmap = with_missing(PRESSURE_MAP)
     fig, axes = panel_grid(len(shown), width=3.0, share=True)
     titles = ["fine"] + [f"{tag}{e.candidate.label}" for e, tag in zip(chosen, tags)]
     for ax, values, grid, text in zip(axes, shown, grids, titles):
         mesh = _draw(ax, values, plan_edges(grid), cmap=cmap, norm=norm)
         ax.set_title(text)
-    extend = extend_of(norm, *shown)
-    fig.colorbar(mesh, ax=axes, label="pressure (unit of the wells file)", shrink=0.8, extend=extend)
+    fig.colorbar(mesh, ax=axes, label="pressure (unit of the wells file)", shrink=0.8)
     _finish(fig, axes, comparison.fine.grid, False, shown)
     kinds = {}
     for ax in axes:
@@ -185,15 +187,6 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
 #: and an edge of opposite shades keep every marker visible on every colour of the pressure scale.
 WELL_KINDS = {"injector": ("^", "white", "black"), "producer": ("v", "black", "white"),
               "no flow": ("s", "#999999", "black")}
-
-
-def _well_pressure_norm(checks: list[WellCheck]) -> Normalize:
-    """The span of the wells' bottom-hole pressures on every grid, and the outer pressure if held."""
-    values = [p for c in checks for flow in (c.fine, c.coarse) for p in flow.pressures.values()]
-    if checks[0].outer_pressure is not None:
-        values.append(checks[0].outer_pressure)
-    low, high = min(values), max(values)
-    return Normalize(low, high if high > low else low + 1.0)
 
 
 def _kind(check: WellCheck, name: str) -> str:
