@@ -203,3 +203,21 @@ def test_a_run_draws_the_well_pressure_of_its_one_method(mapped) -> None:
     (plot,) = _well_maps(compare_methods(field, "8x8", candidates(["flow"], bc="periodic"), wells=shared))
     _layout_checked(plot.figure)
     assert [ax.get_title() for ax in plot.figure.axes[:2]] == ["fine", "flow (periodic)"]
+
+
+def test_a_3d_well_pressure_map_shows_the_layer_of_the_other_maps() -> None:
+    k = lognormal_field((4, 16, 16), (3.0, 3.0, 1.0), geometric_mean=100.0, sigma_ln=1.0, seed=SEED)
+    field = Field.from_arrays(k, cell_size=(10.0, 10.0), dz=[1.0, 2.0, 0.5, 2.0])
+    wells = [Well("I", 25.0, -25.0, None, "pressure", 1.0, 0.1),
+             Well("P", 135.0, -135.0, (1, 1), "pressure", 0.0, 0.1)]  # fmt: skip
+    found = compare_methods(field, "8x8x2", candidates(["arithmetic"]), wells=fine_wells(field, wells))
+    (plot,) = _well_maps(found)
+    _layout_checked(plot.figure)
+    fine, coarse = (ax.collections[0] for ax in plot.figure.axes[:2])
+    check = found.ranked[0].wells
+    np.testing.assert_array_equal(np.ma.filled(fine.get_array(), np.nan).ravel(), check.fine.pressure[2].ravel())
+    np.testing.assert_array_equal(np.ma.filled(coarse.get_array(), np.nan).ravel(),
+                                  check.coarse.pressure[1].ravel())  # fmt: skip
+    names = sorted(t.get_text() for t in plot.figure.axes[0].texts)
+    assert names == ["I", "P (layer 1)"]  # P is completed in the top layer only, not in layer 3 shown
+    assert plot.figure._suptitle.get_text().endswith("layer 3")

@@ -175,7 +175,7 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
     _finish(fig, axes, comparison.fine.grid, False, shown)
     kinds = {}
     for ax in axes:
-        kinds |= _mark_wells(ax, fine)
+        kinds |= _mark_wells(ax, fine, layer if comparison.fine.ndim == 3 else None)
     fig.legend(handles=[kinds[k] for k in WELL_KINDS if k in kinds], loc="outside lower center",
                ncols=len(kinds), fontsize=LABEL, frameon=False)  # fmt: skip
     where = f", layer {layer + 1}" if comparison.fine.ndim == 3 else ""
@@ -189,16 +189,33 @@ WELL_KINDS = {"injector": ("^", "white", "black"), "producer": ("v", "black", "w
               "no flow": ("s", "#999999", "black")}
 
 
+def _well_label(check: WellCheck, name: str, layer: int | None) -> str:
+    """The well's name, and its completed layers (1 = top) when `layer` is not one of them.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> check = SimpleNamespace(fine_cells={"B": [(0, 4, 7), (1, 4, 7)]})
+    >>> _well_label(check, "B", 1), _well_label(check, "B", 3), _well_label(check, "B", None)
+    ('B', 'B (layers 1–2)', 'B')
+    """
+    layers = sorted({cell[0] + 1 for cell in check.fine_cells[name]})
+    if layer is None or layer + 1 in layers:
+        return name
+    return f"{name} (layer {layers[0]})" if len(layers) == 1 else f"{name} (layers {layers[0]}–{layers[-1]})"
+
+
 def _kind(check: WellCheck, name: str) -> str:
     rate = check.fine.rates[name]
     return "injector" if rate > 0 else "producer" if rate < 0 else "no flow"
 
 
-def _mark_wells(ax: Axes, check: WellCheck) -> dict[str, Line2D]:
+def _mark_wells(ax: Axes, check: WellCheck, layer: int | None) -> dict[str, Line2D]:
     """Each well of `check` at its x, y with its name, marked by its kind; returns one marker per kind drawn.
 
     A name is written on the side of the marker towards the panel's centre,
-    so that it stays inside the panel.
+    so that it stays inside the panel. In a 3D model (`layer`: the fine
+    layer shown, zero-based) a well not completed in it says where it is.
     """
     (x0, x1), (y0, y1) = sorted(ax.get_xlim()), sorted(ax.get_ylim())
     drawn = {}
@@ -209,7 +226,7 @@ def _mark_wells(ax: Axes, check: WellCheck) -> dict[str, Line2D]:
                 "markeredgewidth": 0.9, "linestyle": "none"}
         ax.plot([well.x], [well.y], label=well.name, **look)
         east, north = well.x > (x0 + x1) / 2, well.y > (y0 + y1) / 2
-        ax.annotate(well.name, (well.x, well.y), xytext=(-6 if east else 6, -6 if north else 6),
+        ax.annotate(_well_label(check, well.name, layer), (well.x, well.y), xytext=(-6 if east else 6, -6 if north else 6),
                     textcoords="offset points", ha="right" if east else "left",
                     va="top" if north else "bottom", fontsize=TICK,
                     bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
