@@ -88,11 +88,11 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
         plots.append(Plot("well_pressure", pressures,
                           f"Pressure driven by the wells on the fine grid beside the coarse grid of "
                           f"{'the method' if alone else 'the best and the worst method'}, on one colour "
-                          "scale from the lowest to the highest cell pressure; each well is marked at its "
-                          "position (triangle up: injector, down: producer, as on the fine grid): the "
-                          "coarse map should carry the fine map's fall of pressure from well to well, "
-                          "and a coarse well block far from its well's fine pressure shows a connection "
-                          "that passes too much or too little."))  # fmt: skip
+                          "scale from the lowest to the highest cell pressure, each well marked at its "
+                          "position (triangle up: injector, down: producer): the coarse "
+                          f"map{'' if alone else 's'} should carry the fine map's fall of pressure from "
+                          "the injectors to the producers; where the colours differ, the coarse model "
+                          "sends the wells' flow another way."))  # fmt: skip
     for axis in fine.axes[:2]:
         plots.append(Plot(f"mismatch_{axis}", mismatch_maps(comparison, axis=axis, layer=layer),
                           f"Where {'the' if alone else 'each'} method errs under flow along {axis}: "
