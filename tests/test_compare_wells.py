@@ -36,8 +36,8 @@ from upscale.analysis.comparison_record import RANKING_WELLS, comparison_record
 from upscale.check.wells import fine_wells
 from upscale.flow.wells import Well
 from upscale.gallery.fields import lognormal_field
-from upscale.report.figures import build_figures
 from upscale.report.coordinates import plan_edges
+from upscale.report.figures import build_figures
 from upscale.report.layout import DPI
 
 SEED = 4_417_092_336
@@ -119,7 +119,7 @@ def test_compare_cli_with_wells(run_cli, tmp_path: Path) -> None:
 
 
 def _layout_checked(figure) -> list:
-    """Every text of `figure` on its canvas and readable at the page's width (as every figure's); its texts."""
+    """Every text of `figure` on its canvas and readable at the page's width, as in every figure."""
     texts, canvas = _drawn_texts(figure)
     renderer = figure.canvas.get_renderer()
     texts += [(t, t.get_window_extent(renderer)) for ax in figure.axes for t in ax.texts]  # the wells' names
@@ -215,9 +215,9 @@ def test_a_3d_well_pressure_map_shows_the_layer_of_the_other_maps() -> None:
     _layout_checked(plot.figure)
     fine, coarse = (ax.collections[0] for ax in plot.figure.axes[:2])
     check = found.ranked[0].wells
-    np.testing.assert_array_equal(np.ma.filled(fine.get_array(), np.nan).ravel(), check.fine.pressure[2].ravel())
-    np.testing.assert_array_equal(np.ma.filled(coarse.get_array(), np.nan).ravel(),
-                                  check.coarse.pressure[1].ravel())  # fmt: skip
+    drawn = [np.ma.filled(mesh.get_array(), np.nan).ravel() for mesh in (fine, coarse)]
+    np.testing.assert_array_equal(drawn[0], check.fine.pressure[2].ravel())  # the middle layer, 3 of 4
+    np.testing.assert_array_equal(drawn[1], check.coarse.pressure[1].ravel())  # the coarse layer holding it
     names = sorted(t.get_text() for t in plot.figure.axes[0].texts)
     assert names == ["I", "P (layer 1)"]  # P is completed in the top layer only, not in layer 3 shown
     assert plot.figure._suptitle.get_text().endswith("layer 3")

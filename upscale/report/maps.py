@@ -1,4 +1,4 @@
-"""Map figures: fine and coarse fields, pressures (under an axis drop, and driven by the wells), flux mismatches.
+"""Map figures: fine and coarse fields, pressures (under an axis drop or driven by wells), flux mismatches.
 
 Every map is drawn cell by cell on the cells' true edges in map
 coordinates (the raster's, or metres from the origin; `coordinates`), with
@@ -18,10 +18,10 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..analysis.compare import Comparison, Entry
+from ..check.wells import WellCheck
 from ..field import Grid
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch
-from ..check.wells import WellCheck
 from .layout import LABEL, TICK, outer_labels, page_sizes, panel_grid, title
 from .style import (
     MISMATCH_MAP,
@@ -108,11 +108,16 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     return fig
 
 
-def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
-    """Fine and coarse pressures of the check along `axis`: the best and the worst method, or the one."""
-    ran = comparison.ranked
+def _best_and_worst(comparison: Comparison, ran: list[Entry]) -> list[tuple[Entry, str]]:
+    """The best and the worst of `ran` (or its one method, alone) with their panel titles."""
     chosen = [ran[0]] + ([ran[-1]] if len(ran) > 1 else [])
     tags = [""] if one_method(comparison) else ["best: ", "worst: "]
+    return [(entry, f"{tag}{entry.candidate.label}") for entry, tag in zip(chosen, tags)]
+
+
+def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
+    """Fine and coarse pressures of the check along `axis`: the best and the worst method, or the one."""
+    chosen = _best_and_worst(comparison, comparison.ranked)
     bz = comparison.block.cells[0]
     fine_flow = comparison.fine_flows[axis]
     fig, axes = panel_grid(1 + len(chosen), width=3.0, share=True)
@@ -121,11 +126,11 @@ def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
     shown = [fine_flow.pressure[layer]]
     mesh = _draw(axes[0], shown[0], plan_edges(fine_flow.trans.grid), cmap=cmap, norm=norm)
     axes[0].set_title("fine")
-    for ax, entry, tag in zip(axes[1:], chosen, tags):
+    for ax, (entry, text) in zip(axes[1:], chosen):
         flow = entry.checks[axis].coarse
         shown.append(flow.pressure[layer // bz])
         _draw(ax, shown[-1], plan_edges(flow.trans.grid), cmap=cmap, norm=norm)
-        ax.set_title(f"{tag}{entry.candidate.label}")
+        ax.set_title(text)
     fig.colorbar(mesh, ax=axes, label="pressure (fraction of the drop, inlet = 1)", shrink=0.8)
     title(fig, f"Pressure under a drop along {axis}")
     _finish(fig, axes, fine_flow.trans.grid, False, shown)
@@ -133,7 +138,7 @@ def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
 
 
 def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | None:
-    """Fine and coarse pressures of the well check, the wells marked: the best and the worst method, or the one.
+    """Fine and coarse pressures of the well check, wells marked: the best and the worst method, or the one.
 
     One linear colour scale for all panels, from the lowest to the highest
     cell pressure shown: the cells beside the wells, where fine and coarse
@@ -155,19 +160,17 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
     ran = [e for e in comparison.ranked if e.wells is not None]
     if not ran:
         return None
-    chosen = [ran[0]] + ([ran[-1]] if len(ran) > 1 else [])
-    tags = [""] if one_method(comparison) else ["best: ", "worst: "]
+    chosen = _best_and_worst(comparison, ran)
     bz = comparison.block.cells[0]
-    checks = [e.wells for e in chosen]
-    fine = checks[0]
-    shown = [fine.fine.pressure[layer]] + [c.coarse.pressure[layer // bz] for c in checks]
-    grids = [comparison.fine.grid] + [e.result.coarse.grid for e in chosen]
+    fine = ran[0].wells
+    shown = [fine.fine.pressure[layer]] + [e.wells.coarse.pressure[layer // bz] for e, _ in chosen]
+    grids = [comparison.fine.grid] + [e.result.coarse.grid for e, _ in chosen]
     finite = np.concatenate([v[np.isfinite(v)] for v in shown])
     low, high = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
     norm = Normalize(low, max(high, low + 1e-12 * max(1.0, abs(low))))
     cmap = with_missing(PRESSURE_MAP)
     fig, axes = panel_grid(len(shown), width=3.0, share=True)
-    titles = ["fine"] + [f"{tag}{e.candidate.label}" for e, tag in zip(chosen, tags)]
+    titles = ["fine"] + [text for _, text in chosen]
     for ax, values, grid, text in zip(axes, shown, grids, titles):
         mesh = _draw(ax, values, plan_edges(grid), cmap=cmap, norm=norm)
         ax.set_title(text)
@@ -186,7 +189,7 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
 #: How each kind of well is marked: (marker, face, edge); the kind follows the sign of its fine rate. A face
 #: and an edge of opposite shades keep every marker visible on every colour of the pressure scale.
 WELL_KINDS = {"injector": ("^", "white", "black"), "producer": ("v", "black", "white"),
-              "no flow": ("s", "#999999", "black")}
+              "no flow": ("s", "#999999", "black")}  # fmt: skip
 
 
 def _well_label(check: WellCheck, name: str, layer: int | None) -> str:
@@ -223,11 +226,12 @@ def _mark_wells(ax: Axes, check: WellCheck, layer: int | None) -> dict[str, Line
         kind = _kind(check, well.name)
         marker, face, edge = WELL_KINDS[kind]
         look = {"marker": marker, "markersize": 7, "markerfacecolor": face, "markeredgecolor": edge,
-                "markeredgewidth": 0.9, "linestyle": "none"}
+                "markeredgewidth": 0.9, "linestyle": "none"}  # fmt: skip
         ax.plot([well.x], [well.y], label=well.name, **look)
         east, north = well.x > (x0 + x1) / 2, well.y > (y0 + y1) / 2
-        ax.annotate(_well_label(check, well.name, layer), (well.x, well.y), xytext=(-6 if east else 6, -6 if north else 6),
-                    textcoords="offset points", ha="right" if east else "left",
+        ax.annotate(_well_label(check, well.name, layer), (well.x, well.y),
+                    xytext=(-6 if east else 6, -6 if north else 6), textcoords="offset points",
+                    ha="right" if east else "left",
                     va="top" if north else "bottom", fontsize=TICK,
                     bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
                           "alpha": 0.8})  # fmt: skip
