@@ -23,6 +23,10 @@ What is tested
   ``--overwrite``.
 * The notes: a method that passes at a coarse block but not at a finer one
   is named; when no method passes at any block, a warning says so.
+* With wells: the wells' fine solve is shared by every block (done once),
+  each method's well error at each block equals the one a comparison at
+  that block alone finds, joins its largest error, and is written in
+  ``plan.json`` beside the flows' errors (``upscale plan --wells``).
 """
 
 from __future__ import annotations
@@ -206,6 +210,49 @@ def test_planner_answer_agrees_with_each_comparison_in_memory():
     for candidate in chosen:
         passing = [b for b, e in zip(blocks, plan.errors(candidate)) if e <= 0.1]
         assert plan.coarsest(candidate) == (passing[-1] if passing else None)
+
+
+def test_plan_with_wells_shares_their_fine_solve_and_ranks_on_them():
+    from upscale.analysis.compare import compare_methods
+    from upscale.check.wells import fine_wells
+    from upscale.flow.wells import Well
+
+    field = Field.from_arrays(uncorrelated_lognormal((32, 32), seed=918_224_067, sigma_ln=1.0),
+                              cell_size=(10.0, 10.0))  # fmt: skip
+    wells = [Well("I", 25.0, -25.0, None, "pressure", 1.0, 0.1), Well("P", 295.0, -295.0, None, "pressure",
+                                                                       0.0, 0.1)]  # fmt: skip
+    shared = fine_wells(field, wells)
+    chosen = candidates(["geometric", "flow"])
+    blocks = [BlockSpec.parse(b) for b in ("4x4", "8x8")]
+    plan = plan_blocks(field, blocks, chosen, max_error=0.1, wells=shared)
+    for block, found in zip(blocks, plan.comparisons):
+        alone = {e.candidate.label: e for e in compare_methods(field, block, chosen, wells=shared).entries}
+        for entry in found.entries:
+            assert entry.wells.fine is shared.flow  # the one fine solve, at every block
+            want = alone[entry.candidate.label].wells.rel_error
+            assert entry.wells.rel_error == pytest.approx(want, abs=1e-12)
+            assert entry.worst_error >= abs(entry.wells.rel_error)
+    record = plan_record(plan, command=[], read=None).to_dict()
+    assert record["measure"] == "largest |rel_error| over the checked flows and the wells' total rate"
+    for method in record["methods"]:
+        for check in method["blocks"]:
+            assert set(check["rel_error"]) == {"x", "y", "corner", "wells"}
+
+
+def test_plan_command_takes_a_wells_file(small_field, tmp_path, run_cli):
+    from conftest import ORIGIN
+
+    wells = tmp_path / "wells.csv"
+    x0, y0 = ORIGIN
+    wells.write_text(f"name,x,y,control,value,radius\nI,{x0 + 15},{y0 - 15},pressure,2,0.1\n"
+                     f"P,{x0 + 615},{y0 - 615},pressure,1,0.1\n")  # fmt: skip
+    out = tmp_path / "plan"
+    code, stdout, stderr = run_cli("plan", small_field, "--blocks", "8x8,16x16", "--methods", "geometric",
+                                   "--wells", wells, "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    assert "over the checked flows and the wells' total rate" in stdout
+    record = json.loads((out / "plan.json").read_text())
+    assert all("wells" in b["rel_error"] for m in record["methods"] for b in m["blocks"])
 
 
 # --- bad input -----------------------------------------------------------------------------------

@@ -4,8 +4,10 @@
 at each listed block size. The fine model does not change with the block, so
 its solves are done once and every block size and method is checked against
 them. For each method, the plan names the coarsest block whose largest check
-error over the checked flows (`Entry.worst_error`) is within the largest
-error accepted, or says that none is.
+error over the checked flows (`Entry.worst_error`; with wells, their total
+rate too) is within the largest error accepted, or says that none is. The
+wells' fine solve does not change with the block either, and is shared the
+same way.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from ..check.wells import FineWells
 from ..errors import InputError
 from ..field import Field
 from ..flow import AxisFlow
@@ -40,6 +43,8 @@ class Plan:
         The fine solves, one per checked flow.
     candidates : list of Candidate
         The methods, in the order given.
+    wells : FineWells or None
+        The wells' fine solve shared by every block, when the plan is also checked by wells.
     """
 
     fine: Field
@@ -48,6 +53,7 @@ class Plan:
     max_error: float
     fine_flows: dict[str, AxisFlow]
     candidates: list[Candidate]
+    wells: FineWells | None = None
 
     def entries(self, candidate: Candidate) -> list[Entry]:
         """The outcome of `candidate` at each block, finest first."""
@@ -181,6 +187,7 @@ def plan_blocks(
     tolerance: float = 1e-10,
     report: Callable[[str], None] | None = None,
     say: Say = silent,
+    wells: FineWells | None = None,
 ) -> Plan:
     """Check every candidate at every block size against one fine solve, and find the coarsest that passes.
 
@@ -200,6 +207,10 @@ def plan_blocks(
         Receives a progress line before and after each method at each block.
     say : callable, optional
         Told when the fine solves start and end (silent by default).
+    wells : FineWells, optional
+        Wells solved on the fine field as the plan uses it (cropped to the
+        blocks; `upscale.check.wells.fine_wells`): every method at every
+        block is also driven by them, and its well error joins its largest error.
 
     Returns
     -------
@@ -232,5 +243,5 @@ def plan_blocks(
                 report(f"{block} {progress_line(i, n, candidate, entry)}")
 
         comparisons.append(compare_methods(field, block, chosen, solver=solver, tolerance=tolerance,
-                                           report=told, fine_flows=flows))  # fmt: skip
-    return Plan(fine, tuple(blocks), tuple(comparisons), max_error, flows, list(chosen))
+                                           report=told, fine_flows=flows, wells=wells))  # fmt: skip
+    return Plan(fine, tuple(blocks), tuple(comparisons), max_error, flows, list(chosen), wells)

@@ -17,6 +17,8 @@ from .records import GridRecord, Leaf, Provenance, axis_results, grid_record, js
 
 #: What a plan compares with the largest error accepted, recorded beside it.
 MEASURE = "largest |rel_error| over the checked flows"
+#: The same with wells: their total rate's error counts too.
+MEASURE_WELLS = "largest |rel_error| over the checked flows and the wells' total rate"
 
 
 @dataclass(frozen=True)
@@ -200,7 +202,8 @@ def plan_record(plan: Plan, *, command: list[str] | None = None,
     blocks = tuple(_block(b, fine.shape) for b in plan.blocks)
     return PlanRecord(
         provenance(fine, command, read), fine.unit, fine.ndim, grid_record(fine.grid), jsonable(rules),
-        blocks, plan.max_error, MEASURE, jsonable({k: f.k_eff for k, f in plan.fine_flows.items()}),
+        blocks, plan.max_error, MEASURE if plan.wells is None else MEASURE_WELLS,
+        jsonable({k: f.k_eff for k, f in plan.fine_flows.items()}),
         tuple(_method(plan, c) for c in plan.candidates), CAUTION,
     )  # fmt: skip
 
@@ -215,6 +218,8 @@ def _method(plan: Plan, candidate: Candidate) -> MethodPlan:
     checks = []
     for block, entry, ok in zip(plan.blocks, plan.entries(candidate), plan.meets(candidate)):
         errors = None if entry.error else {k: r.rel_error for k, r in axis_results(entry.checks).items()}
+        if errors is not None and entry.wells is not None:
+            errors["wells"] = entry.wells.rel_error
         checks.append(BlockCheck(str(block), jsonable(entry.worst_error), ok, errors, entry.error,
                                  jsonable(entry.seconds)))  # fmt: skip
     coarsest = plan.coarsest(candidate)

@@ -7,7 +7,7 @@ import math
 import click
 
 from ..analysis.compare import candidates
-from ..analysis.plan_record import PlanRecord
+from ..analysis.plan_record import MEASURE_WELLS, PlanRecord
 from ..caution import CAUTION
 from ..export import check_destination
 from ..jobs.plan import plan_file
@@ -23,6 +23,7 @@ from .options import (
     parse_methods,
     read_options,
     recorded,
+    well_options,
 )
 from .progress import teller
 from .report import print_notes, table
@@ -65,6 +66,7 @@ def parse_max_error(text: str) -> float:
 @click.option("--chunk", default=None, metavar="SIZE",
               help="Memory per chunk: a size (64MB) or a number of the coarsest blocks (400blocks).")
 @check_options
+@well_options
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder for plan.json, figures/ and report.html.")
 @click.option("--overwrite", is_flag=True, help="Replace the results in a folder that holds some.")
@@ -72,8 +74,8 @@ def parse_max_error(text: str) -> float:
 @click.pass_context
 def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: str | None,
          exponent: float | None, bc: str | None, border: int | None, chunk: str | None, solver: str,
-         tolerance: float, check_limit: int, out: str, overwrite: bool,
-         **options: object) -> None:  # fmt: skip
+         tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
+         well_connection: str, out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """How coarse can FIELD go? Every method at every block size, against shared fine solves.
 
     Upscales FIELD with every method at every block size listed, checks each
@@ -81,7 +83,8 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
     shared, since the fine model does not change with the block; the corner
     flow once per block, since its regions are whole blocks — and names, per
     method, the coarsest block whose largest check error over the checked
-    flows is within --max-error, or says that none is. Writes plan.json,
+    flows (with --wells, and the wells' total rate) is within --max-error,
+    or says that none is. Writes plan.json,
     figures/error_by_block (PNG and SVG) and report.html (self-contained)
     into the output folder.
 
@@ -89,6 +92,7 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
     Examples:
       upscale plan map.tif --blocks 4x4,8x8,16x16,32x32 --methods geometric,flow-transmissibility --out plan/
       upscale plan map.tif --blocks 4x4,8x8,16x16 --max-error 2% --methods flow --bc periodic --out plan/
+      upscale plan map.tif --blocks 4x4,8x8,16x16 --methods global,local-global --wells wells.csv --out plan/
     """
     check_destination(out, overwrite)
     limit = parse_max_error(max_error)
@@ -98,7 +102,8 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
     _, record = plan_file(field, specs, chosen, out, read=read, max_error=limit,
                           chunk_bytes=parse_chunk(chunk, specs[-1].cells), solver=solver, tolerance=tolerance,
                           check_limit=check_limit, recorded_read=recorded(read), command=ctx.obj["command"],
-                          overwrite=overwrite, say=teller(ctx))  # fmt: skip
+                          overwrite=overwrite, say=teller(ctx), wells=wells, outer_pressure=outer_pressure,
+                          well_connection=well_connection)  # fmt: skip
     if not ctx.obj["quiet"]:
         _print(record)
         click.echo(f"wrote plan.json, report.html and 1 figure (PNG, SVG) to {out}")
@@ -110,8 +115,9 @@ def _print(record: PlanRecord) -> None:
     rows = [[m.name, *(_error(b.largest_error, b.error) for b in m.blocks), m.coarsest or "none"]
             for m in record.methods]  # fmt: skip
     click.echo(table(header, rows))
-    click.echo("(error = largest |k_coarse - k_fine| / k_fine over the checked flows; the fine axis flows "
-               "are solved once for every block, the corner flow once per block)")  # fmt: skip
+    wells = " and the wells' total rate" if record.measure == MEASURE_WELLS else ""
+    click.echo(f"(error = largest |k_coarse - k_fine| / k_fine over the checked flows{wells}; the fine axis "
+               "flows are solved once for every block, the corner flow once per block)")  # fmt: skip
     for m in record.methods:
         for b in m.blocks:
             if b.error:

@@ -70,7 +70,7 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     """
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.cells, **read)
     refuse_comparison(fine, check_limit, layer)
-    shared = _wells(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
+    shared = wells_of_file(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say,
                              wells=shared)  # fmt: skip
@@ -80,7 +80,7 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     return result, made
 
 
-def _wells(fine: Field, block: BlockSpec, path: str | None, how: tuple[float | None, str], solver: str,
+def wells_of_file(fine: Field, block: BlockSpec, path: str | None, how: tuple[float | None, str], solver: str,
            tolerance: float, say: Say) -> FineWells | None:  # fmt: skip
     """The wells of `path` solved on the fine field as the comparison uses it, or None without a file.
 
@@ -155,7 +155,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             def report(j: int, n: int, candidate: Candidate, entry: Entry | None) -> None:
                 told(progress_line(j, n, candidate, entry))
 
-            shared = _wells(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, told)
+            how = (outer_pressure, well_connection)
+            shared = wells_of_file(fine, block, wells, how, solver, tolerance, told)
             result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                                      report=report, say=told, wells=shared)  # fmt: skip
             _refuse_if_none_ran(result, paths[i - 1])

@@ -18,14 +18,16 @@ from ..export.comparison import PLAN, write_report_folder
 from ..grid import BlockSpec
 from ..io import read_field
 from ..steps import Say, Steps, silent
-from .compare import refuse_comparison
+from .compare import refuse_comparison, wells_of_file
 
 
 def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: str | Path, *,
               read: dict[str, Any], max_error: float = 0.05, chunk_bytes: int | None = None,
               solver: str = "auto", tolerance: float = 1e-10, check_limit: int = 20_000_000,
               recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
-              overwrite: bool = False, say: Say = silent) -> tuple[Plan, PlanRecord]:  # fmt: skip
+              overwrite: bool = False, say: Say = silent, wells: str | None = None,
+              outer_pressure: float | None = None,
+              well_connection: str = "near-well") -> tuple[Plan, PlanRecord]:  # fmt: skip
     """Plan the block size of the field in `path` and write ``plan.json``, the figure and the page.
 
     Parameters
@@ -50,6 +52,9 @@ def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: 
         Replace the results in a folder that holds some.
     say : callable, optional
         Receives progress lines (silent by default).
+    wells, outer_pressure, well_connection : optional
+        A wells file and how to drive its wells, as for a comparison: every
+        method at every block is also checked by them (one fine solve).
 
     Returns
     -------
@@ -66,8 +71,9 @@ def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: 
     fine = read_field(path, chunk_bytes=chunk_bytes, block=blocks[-1].cells if blocks else (1, 1, 1), **read)
     check_blocks(blocks, fine.shape, fine.ndim)
     refuse_comparison(fine, check_limit, None)
+    shared = wells_of_file(fine, blocks[0], wells, (outer_pressure, well_connection), solver, tolerance, say)
     plan = plan_blocks(fine, blocks, chosen, max_error=max_error, solver=solver, tolerance=tolerance,
-                       report=say, say=say)  # fmt: skip
+                       report=say, say=say, wells=shared)  # fmt: skip
     record = plan_record(plan, command=command or [], read=recorded_read)
     from ..report.bundle import plan_bundle  # matplotlib: the figures extra
 
