@@ -50,7 +50,6 @@ def in_copy(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
     return tmp_path
 
 
-@pytest.mark.slow
 @pytest.mark.parametrize("command,expected", _console_examples())
 def test_console_example_prints_what_the_readme_shows(
     in_copy: Path, capsys: pytest.CaptureFixture, command: list[str], expected: list[str]

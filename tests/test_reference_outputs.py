@@ -139,7 +139,6 @@ def _run_case(args: list[str], demo: Path, out: Path) -> Path:
     return out
 
 
-@pytest.mark.slow
 @pytest.mark.parametrize("case", list(CASES))
 def test_outputs_match_the_recorded_reference(case, demo_dir, tmp_path):
     recorded = json.loads(RECORD.read_text())

@@ -94,7 +94,6 @@ def test_a_grid_beyond_the_check_limit_is_checked_on_windows_with_a_reason(demo_
     assert "checked instead on" in stdout and len(check["windows"]) == 9
 
 
-@pytest.mark.slow
 def test_check_command_reproduces_the_run(demo_dir, tmp_path, run_cli):
     out = tmp_path / "out"
     run_cli("run", str(demo_dir / "marrowfen_3d.tif"), "--dz", "2", "--block", "8x8x4", "--remainder",

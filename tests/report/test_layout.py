@@ -85,7 +85,6 @@ def _drawn_texts(figure):
     return found, figure.bbox
 
 
-@pytest.mark.slow
 def test_every_text_lies_inside_the_canvas(plots):
     for plot in plots:
         texts, canvas = _drawn_texts(plot.figure)
@@ -96,7 +95,6 @@ def test_every_text_lies_inside_the_canvas(plots):
             assert inside, (plot.name, text.get_text(), box.bounds, canvas.bounds)
 
 
-@pytest.mark.slow
 def test_every_text_is_readable_at_the_page_width(plots):
     for plot in plots:
         figure = plot.figure

@@ -106,7 +106,6 @@ def verdict(report, chromium, tmp_path_factory):
 # --- in the browser ------------------------------------------------------------------------------
 
 
-@pytest.mark.slow
 def test_report_loads_without_errors(verdict):
     assert verdict["errors"] == []
 
