@@ -77,6 +77,7 @@ def test_methods_are_ranked_on_the_wells_too() -> None:
     assert min(t.get_fontsize() for t, _ in texts) * DPI / 96 * scale >= SMALLEST
     # the error chart ranks on the wells too, so it draws their error beside the flows' (one bar per method)
     (errors,) = [p for p in build_figures(found, "mD") if p.name == "errors"]
+    assert "and of the wells' total rate" in errors.caption
     labels = errors.figure.legends[0].get_texts()
     assert [t.get_text() for t in labels][-1] == "wells (total rate)"
     (ax,) = errors.figure.axes

@@ -62,7 +62,8 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
     plots += [
         Plot("errors", error_bars(comparison),
              f"Check error {'of the method' if alone else 'per method'} per axis and corner to corner "
-             "(the held-out flow); bars inside the grey "
+             "(the held-out flow)" + (", and of the wells' total rate" if _with_wells(comparison) else "")
+             + "; bars inside the grey "
              f"±{BAND:g} % band pass the fine model's flow closely, long bars mark "
              f"{'a coarse model' if alone else 'the methods'} to distrust on this field."),
         Plot("bounds", bounds_chart(comparison, unit),
@@ -121,3 +122,8 @@ def rendered(plot: Plot, dpi: int = DPI) -> tuple[bytes, bytes]:
 
 # fixed metadata and SVG ids, so the same figure gives the same bytes
 _METADATA = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None}}
+
+
+def _with_wells(comparison: Comparison) -> bool:
+    """Whether the methods were also checked by wells."""
+    return any(e.wells is not None for e in comparison.ranked)

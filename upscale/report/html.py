@@ -201,7 +201,8 @@ k is its rate over the rate of k = 1 on the same grid).{_WELLS if wells else ""}
 
 _WELLS = """
 With wells, each model is also driven by the wells of the wells file (Peaceman's well index in each
-cell and block; docs/wells.md): error wells is the error of the total well rate."""
+fine cell; each coarse block connected by near-well upscaling or Peaceman's formula, as the check records;
+docs/wells.md): error wells is the error of the total well rate."""
 
 
 def _verdict(comparison: Comparison, ranked: bool) -> str:
