@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -45,11 +46,20 @@ SMALL = ["run", str(DEMO / "marrowfen_lognormal.tif"), "--block", "8x8", "--meth
 FLOW = ["--block", "16x16", "--method", "flow", "--bc", "sealed", "--no-check", "-q"]
 
 
+#: CPU seconds (user and system) of each process `wall` ran, in order: less sensitive than wall time
+#: to the other loads of a shared machine, but blind to how many cores a process keeps busy.
+CPU: list[float] = []
+
+
 def wall(command: list[str]) -> float:
-    """Seconds a whole process takes, from its start to its exit."""
+    """Seconds a whole process takes, from its start to its exit (its CPU seconds go to `CPU`)."""
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     start = time.perf_counter()
     subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
-    return time.perf_counter() - start
+    seconds = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    CPU.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
+    return seconds
 
 
 def write_field(path: Path, size: int) -> None:
@@ -76,48 +86,51 @@ def agreement(tool: Path, loop: Path) -> float:
     return float(np.max(np.abs(np.stack(ours) - theirs) / np.abs(theirs)))
 
 
-def median_of(command: list[str], repeats: int) -> float:
-    wall(command)  # warm-up: numba's cache, the file system's
-    return statistics.median(wall(command) for _ in range(repeats))
+def median_of(command: list[str], repeats: int, out: Path | None = None) -> float:
+    """Median wall seconds of `command` after a warm-up run; each run writes to a new ``--out`` in `out`."""
+    runs = [[*command, "--out", str(out / f"run{i}")] if out else command for i in range(repeats + 1)]
+    wall(runs[0])  # warm-up: numba's cache, the file system's
+    return statistics.median(wall(run) for run in runs[1:])
+
+
+def flow_runs(size: int, repeats: int, work: Path) -> None:
+    """The tool and the loop, alternately, on a `size`² field; their agreement asserted."""
+    field = work / f"k{size}.tif"
+    write_field(field, size)
+    wall([UPSCALE, "run", str(field), *FLOW, "--out", str(work / "warm")])
+    tool_s, loop_s, tool_cpu, loop_cpu = [], [], [], []
+    for i in range(repeats):
+        tool_s.append(wall([UPSCALE, "run", str(field), *FLOW, "--out", str(work / f"tool{i}")]))
+        tool_cpu.append(CPU[-1])
+        loop_s.append(wall([sys.executable, str(HERE / "loop_spsolve.py"), str(field), "16", "16",
+                            str(work / f"loop{i}.tif")]))  # fmt: skip
+        loop_cpu.append(CPU[-1])
+    difference = agreement(work / "tool0", work / "loop0.tif")
+    assert difference <= 1e-10, f"the tool and the loop differ by {difference:.1e} relative"
+    tool, loop = statistics.median(tool_s), statistics.median(loop_s)
+    cpu_tool, cpu_loop = statistics.median(tool_cpu), statistics.median(loop_cpu)
+    for name, median, each, cpu in (("tool", tool, tool_s, cpu_tool), ("loop", loop, loop_s, cpu_loop)):
+        runs = " ".join(f"{t:.2f}" for t in each)
+        print(f"| {size}² flow 16x16 --no-check, {name} | {median:.2f} s ({runs}); CPU {cpu:.2f} s | |")
+    print(f"| loop / tool, wall | {loop / tool:.1f} (CPU {cpu_loop / cpu_tool:.1f}) | >= 8 |")
+    print(f"largest relative difference of kx, ky: {difference:.1e}")
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=3)
-    parser.add_argument("--size", type=int, default=2048)
+    parser.add_argument("--size", type=int, default=2048, help="Side of the flow run's field (0: skip it).")
     args = parser.parse_args()
     print(f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     with tempfile.TemporaryDirectory() as folder:
         work = Path(folder)
         help_s = median_of([UPSCALE, "--help"], max(args.repeats, 5))
         print(f"| `upscale --help` | {help_s:.2f} s | <= 0.3 s |", flush=True)
-        count = iter(range(1000))
-        small_s = median_of_outputs(SMALL, work, count, args.repeats)
-        print(f"| `upscale run` 256² geometric 8x8, with the check | {small_s:.2f} s | <= 1.0 s |", flush=True)
-
-        field = work / f"k{args.size}.tif"
-        write_field(field, args.size)
-        wall([UPSCALE, "run", str(field), *FLOW, "--out", str(work / "warm")])
-        tool_s, loop_s = [], []
-        for i in range(args.repeats):
-            tool_s.append(wall([UPSCALE, "run", str(field), *FLOW, "--out", str(work / f"tool{i}")]))
-            loop_s.append(wall([sys.executable, str(HERE / "loop_spsolve.py"), str(field), "16", "16",
-                                str(work / f"loop{i}.tif")]))  # fmt: skip
-        difference = agreement(work / "tool0", work / "loop0.tif")
-        assert difference <= 1e-10, f"the tool and the loop differ by {difference:.1e} relative"
-        tool, loop = statistics.median(tool_s), statistics.median(loop_s)
-        print(f"| whole process {args.size}² flow sealed 16x16 --no-check: tool | {tool:.2f} s "
-              f"({' '.join(f'{t:.2f}' for t in tool_s)}) | |")
-        print(f"| plain per-block spsolve loop | {loop:.2f} s ({' '.join(f'{t:.2f}' for t in loop_s)}) | |")
-        print(f"| loop / tool | {loop / tool:.1f} | >= 8 |  (largest relative difference {difference:.1e})")
+        small_s = median_of([UPSCALE, *SMALL], args.repeats, work / "small")
+        print(f"| `upscale run` 256² geometric 8x8, checked | {small_s:.2f} s | <= 1.0 s |", flush=True)
+        if args.size:
+            flow_runs(args.size, args.repeats, work)
     print(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
-
-
-def median_of_outputs(command: list[str], work: Path, count, repeats: int) -> float:
-    """As `median_of`, each run writing into a fresh folder under `work`."""
-    wall([UPSCALE, *command, "--out", str(work / f"small{next(count)}")])
-    return statistics.median(wall([UPSCALE, *command, "--out", str(work / f"small{next(count)}")])
-                             for _ in range(repeats))  # fmt: skip
 
 
 if __name__ == "__main__":
