@@ -9,6 +9,9 @@ What is tested
 * The summaries ``upscale --help`` lists without importing the commands are
   the first paragraphs of the commands' own help, and so print as click would
   print them from the commands.
+* A run without a cluster or figures (``upscale run ... --no-check``) loads
+  neither distributed nor matplotlib: dask is given its threaded scheduler,
+  and the memory limit is read without distributed.
 * A command imported on demand still ends a bad input with one
   ``upscale: error:`` line on stderr.
 
@@ -20,11 +23,14 @@ from __future__ import annotations
 
 import subprocess
 import sys
+from pathlib import Path
 
 import click
 import pytest
 
 from upscale.cli.main import COMMANDS, cli
+
+ROOT = Path(__file__).resolve().parents[2]
 
 #: What a command loads when it computes or writes, never to start or to print its help.
 HEAVY = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "numba", "dask", "dask.distributed",
@@ -51,6 +57,14 @@ def test_help_loads_no_heavy_library():
 
 def test_version_loads_no_heavy_library():
     assert _loaded_after("from upscale.cli.main import main\nassert main(['--version']) == 0") == []
+
+
+def test_a_run_without_a_cluster_loads_neither_distributed_nor_matplotlib(tmp_path):
+    args = ["-q", "run", str(ROOT / "demo-fields" / "marrowfen_lognormal.tif"), "--block", "8x8", "--method",
+            "geometric", "--no-check", "--out", str(tmp_path / "out")]  # fmt: skip
+    loaded = _loaded_after(f"from upscale.cli.main import main\nassert main({args!r}) == 0")
+    assert (tmp_path / "out" / "summary.json").exists()
+    assert not {"distributed", "dask.distributed", "matplotlib"} & set(loaded)
 
 
 @pytest.mark.parametrize("name", sorted(COMMANDS))
