@@ -2,7 +2,7 @@
 
 A library caller passes ``border=-1`` and should read about `border`, not
 about a ``--border`` option it never saw; the command line translates the
-backticked names to its options (`upscale.cli.options.command_line`).
+backticked names to its options (`upscale.cli.settings.command_line`).
 """
 
 from __future__ import annotations

@@ -21,8 +21,8 @@ from pathlib import Path
 import click
 import pytest
 
-import upscale.cli.main  # noqa: F401 - imports every module, so every error class is defined
-from upscale.cli.options import command_line
+from upscale.cli import check, compare, demo, info, plan, run  # noqa: F401 - every error class defined
+from upscale.cli.settings import command_line
 from upscale.errors import UpscaleError
 
 ROOT = Path(__file__).resolve().parents[1]

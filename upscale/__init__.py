@@ -28,35 +28,51 @@ Examples
 1.9801980198019802
 """
 
-from importlib.metadata import PackageNotFoundError, version
-
 from .caution import CAUTION
-from .check.axis import check_flow
 from .errors import InputError, UpscaleError
-from .field import Field, Grid
-from .grid import BlockSpec
-from .io import read_field
-from .methods.coarsen import Upscaled, coarsen
-from .methods.registry import METHODS
 
-#: Names loaded on first use, so that ``import upscale`` stays light (no Parquet, NetCDF or VTK writers).
-_LAZY = {"write_result": ".export"}
+#: The public names that live in the computing modules, each with its module: imported at first use
+#: (PEP 562), so that ``import upscale`` and the command line's start-up load neither numba, scipy nor
+#: dask, nor any writer of Parquet, NetCDF or VTK. tests/cli/test_startup.py checks what it loads.
+_LAZY = {
+    "BlockSpec": ".grid",
+    "Field": ".field",
+    "Grid": ".field",
+    "METHODS": ".methods.registry",
+    "Upscaled": ".methods.coarsen",
+    "check_flow": ".check.axis",
+    "coarsen": ".methods.coarsen",
+    "read_field": ".io",
+    "write_result": ".export",
+}
 
 
 def __getattr__(name: str):
-    if name in _LAZY:
+    if name == "__version__":
+        value = _version()
+    elif name in _LAZY:
         from importlib import import_module
 
         value = getattr(import_module(_LAZY[name], __name__), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    else:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    globals()[name] = value
+    return value
 
 
-try:
-    __version__ = version("upscale")
-except PackageNotFoundError:  # running from a source tree that is not installed
-    __version__ = "0+unknown"
+def __dir__() -> list[str]:
+    return sorted({*globals(), *_LAZY, "__version__"})
+
+
+def _version() -> str:
+    """The installed distribution's version (``importlib.metadata`` is read only when asked)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("upscale")
+    except PackageNotFoundError:  # running from a source tree that is not installed
+        return "0+unknown"
+
 
 __all__ = [
     "CAUTION",

@@ -8,7 +8,7 @@ keeps working for library users. The command line prints the message of an
 Messages name Python parameters in backticks, as a caller of the library
 passes them (`` `border` must be 0 or more``, `` `solver=direct` ``); the
 command line writes them as its options (``--border``, ``--solver direct``,
-`upscale.cli.options.command_line`).
+`upscale.cli.settings.command_line`).
 """
 
 from __future__ import annotations

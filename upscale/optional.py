@@ -11,8 +11,7 @@ check and the coarse GeoTIFFs. Extras add the rest (``pip install
 * ``xarray`` — xarray and rioxarray: `Field.to_xarray`, `Field.from_xarray`,
   `Upscaled.to_xarray` and `coarsen` of a DataArray (not in ``all``: the
   command line does not use them);
-* ``cluster`` — distributed: a local cluster or an existing scheduler, and
-  the memory limit of a container (`upscale.io.windows.available_memory`).
+* ``cluster`` — distributed: a local cluster or an existing scheduler.
 
 None of them is imported by ``import upscale``; a module that needs one
 imports it through `require`, or holds a `lazy` stand-in that imports it at

@@ -134,6 +134,16 @@ def test_block_counts_are_the_weights_of_block_sums(sub):
     assert np.array_equal(W, kern.block_sums(k, dz, sub, kern.LINEAR, True)[1])  # the same additions
 
 
+@pytest.mark.parametrize("sub", [(1, 1, 1), (1, 17, 1), (1, 1, 19), (1, 16, 6), (1, 5, 7), (1, 17, 19)])
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_active_volume_of_one_layer_blocks_is_the_kernels_to_the_bit(sub, dtype):
+    # NumPy since issue 18 for blocks one layer thick (the kernel is no longer compiled for a map);
+    # the same bits as the compiled block_counts: one exact count times dz per block
+    k, dz = random_field(739_114_203, (5, 17, 19), dtype=dtype)
+    dz = dz * np.pi  # weights whose products round
+    assert np.array_equal(active_volume(k, dz, sub), kern.block_counts(k, dz, sub))
+
+
 @pytest.mark.parametrize("mode", [kern.LINEAR, kern.RECIPROCAL])
 def test_block_sums_float32_reads_each_value_as_float64(mode):
     # The kernel promotes every float32 value to float64 before summing, so the

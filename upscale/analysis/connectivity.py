@@ -120,6 +120,30 @@ def span(k: np.ndarray, axis: str) -> Span:
     >>> along.spans, along.spanning_fraction, along.cross_section, along.straight, across.spans
     (True, 1.0, 1.0, True, False)
     """
+    return spans(k, [axis])[axis]
+
+
+def spans(k: Any, axes: list[str]) -> dict[str, Span]:
+    """The high-k bodies of `k` that span each of `axes`, labelled once for all of them.
+
+    Parameters
+    ----------
+    k : array of shape (L, M, N)
+        Permeability along each of `axes` (NaN = inactive; a dask array is computed once).
+    axes : list of {'x', 'y', 'z'}
+
+    Returns
+    -------
+    dict of str to Span
+        By axis, as `span` finds it.
+
+    Examples
+    --------
+    >>> k = np.ones((1, 4, 6))
+    >>> k[0, 1] = 100.0
+    >>> {axis: s.spans for axis, s in spans(k, ["x", "y"]).items()}
+    {'x': True, 'y': False}
+    """
     from skimage.measure import label
 
     # a damaged raster's signalling NaNs flag their cast; NaN all the same
@@ -133,26 +157,32 @@ def span(k: np.ndarray, axis: str) -> Span:
     if high.any() and low.any():
         contrast = float(np.exp(np.log(k[high]).mean() - np.log(k[low]).mean()))
     labels = label(high, connectivity=1)
-    a = AXES[axis]
-    ends = np.intersect1d(np.unique(labels.take(0, axis=a)), np.unique(labels.take(-1, axis=a)))
-    spanning = ends[ends > 0]
-    sizes = np.bincount(labels.ravel())[spanning]
     count = int(high.sum())
-    straight = False
-    if spanning.size:
-        largest = labels == spanning[np.argmax(sizes)]
-        straight = int(sizes.max()) == int(largest.any(axis=a).sum()) * k.shape[a]
-    return Span(axis=axis, cut=cut, high_fraction=count / max(1, int((~np.isnan(k)).sum())),
-                bodies=int(spanning.size), spanning_fraction=int(sizes.sum()) / count if count else 0.0,
-                cross_section=float(sizes.max()) / k.shape[a] if spanning.size else None,
-                contrast=contrast, straight=straight)  # fmt: skip
+    high_fraction = count / max(1, int((~np.isnan(k)).sum()))
+    found = {}
+    for axis in axes:
+        a = AXES[axis]
+        ends = np.intersect1d(np.unique(labels.take(0, axis=a)), np.unique(labels.take(-1, axis=a)))
+        spanning = ends[ends > 0]
+        sizes = np.bincount(labels.ravel())[spanning]
+        straight = False
+        if spanning.size:
+            largest = labels == spanning[np.argmax(sizes)]
+            straight = int(sizes.max()) == int(largest.any(axis=a).sum()) * k.shape[a]
+        found[axis] = Span(axis=axis, cut=cut, high_fraction=high_fraction, bodies=int(spanning.size),
+                           spanning_fraction=int(sizes.sum()) / count if count else 0.0,
+                           cross_section=float(sizes.max()) / k.shape[a] if spanning.size else None,
+                           contrast=contrast, straight=straight)  # fmt: skip
+    return found
 
 
 def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | None:
     """The spans of `fine` along each of its axes; None past `max_cells` cells.
 
     Each property is read whole (one byte and eight for the labels per cell
-    besides it); ky or kz that repeat kx, or a multiple of it, mark the same cells.
+    besides it), once: ky or kz that is kx itself (the default when a
+    field gives kx only) is read and labelled with it; ky or kz that is a
+    multiple of kx marks the same cells.
 
     Examples
     --------
@@ -162,7 +192,14 @@ def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | N
     """
     if math.prod(fine.shape) > max_cells:
         return None
-    return {axis: span(getattr(fine, PERMEABILITY[axis]), axis) for axis in fine.axes}
+    along: dict[int, tuple[Any, list[str]]] = {}  # by the identity of the array
+    for axis in fine.axes:
+        k = getattr(fine, PERMEABILITY[axis])
+        along.setdefault(id(k), (k, []))[1].append(axis)
+    found = {}
+    for k, axes in along.values():
+        found.update(spans(k, axes))
+    return {axis: found[axis] for axis in fine.axes}
 
 
 def struggle(spans: dict[str, Span] | None, block: BlockSpec) -> str | None:

@@ -6,8 +6,9 @@ import click
 
 from ..analysis.summary import FlowCheck
 from ..jobs.check import check_folder
-from .options import check_options, global_options, well_options
+from .options import check_options, well_options
 from .report import print_check, print_well_check
+from .settings import global_options
 
 
 @click.command()

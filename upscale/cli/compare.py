@@ -20,7 +20,6 @@ from .options import (
     block_spec,
     check_options,
     field_options,
-    global_options,
     method_options,
     parse_chunk,
     parse_methods,
@@ -30,6 +29,7 @@ from .options import (
 )
 from .progress import teller
 from .report import number, print_notes, print_spread, table
+from .settings import global_options
 
 
 @click.command(epilog=f"Caution: {CAUTION}")

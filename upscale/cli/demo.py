@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from ..demo.scenario import WELLS, write_demo_fields
-from .options import global_options
+from .settings import global_options
 
 
 @click.command()

@@ -10,9 +10,10 @@ from ..analysis.describe import describe_field
 from ..analysis.records import jsonable
 from ..io import read_field
 from ..stats import ValueScan, where
-from .options import field_options, global_options, read_options
+from .options import field_options, read_options
 from .progress import progress
 from .report import crs_text, dims, number, table
+from .settings import global_options
 
 
 @click.command()

@@ -21,6 +21,7 @@ Python's documentation, "Note on SIGPIPE" in the `signal` module).
 from __future__ import annotations
 
 import contextlib
+import importlib
 import logging
 import os
 import signal
@@ -33,10 +34,57 @@ import click
 
 from ..caution import CAUTION
 from ..errors import UpscaleError
-from .options import command_line, global_options
+from .settings import command_line, global_options
+
+#: Each command (defined in the module of `upscale.cli` of its name) and its summary: the first
+#: paragraph of its help, which `upscale --help` lists. A command's module, and the computing
+#: libraries behind it, is imported only when that command is given; tests/cli/test_startup.py holds
+#: the summaries to the commands' own help.
+COMMANDS = {
+    "check": "Check again that the coarse grid in FOLDER passes the fine model's flow.",
+    "compare": "Upscale FIELD with every method, check each against the fine model, and rank them.",
+    "demo": "Write the demo fields of the fictional Marrowfen Basin.",
+    "info": "Describe FIELD: grid, cell size, CRS, units, active cells and statistics of log k.",
+    "plan": "How coarse can FIELD go? Every method at every block size, against shared fine solves.",
+    "run": "Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).",
+}
+
+
+class _Commands(click.Group):
+    """The command group whose commands are imported when given, not to list them in ``--help``."""
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return sorted(COMMANDS)
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        if name not in COMMANDS:
+            return None
+        return getattr(importlib.import_module(f"{__package__}.{name}"), name)
+
+    def invoke(self, ctx: click.Context) -> object:
+        """Run the command on dask's threaded scheduler unless it starts a cluster (``--workers``).
+
+        The threads are what dask would use anyway, but given as its function:
+        without it (or with a scheduler's name) every compute first imports
+        distributed to look for a client, a third of a second. A cluster's
+        client still takes over while it runs.
+        """
+        import dask.threaded
+
+        with dask.config.set(scheduler=dask.threaded.get):
+            return super().invoke(ctx)
+
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        """List the commands as click does, with the summaries of `COMMANDS` (nothing imported)."""
+        limit = formatter.width - 6 - max(map(len, COMMANDS))
+        rows = [(name, click.Command(name, help=COMMANDS[name]).get_short_help_str(limit))
+                for name in self.list_commands(ctx)]  # fmt: skip
+        with formatter.section("Commands"):
+            formatter.write_dl(rows)
 
 
 @click.group(
+    cls=_Commands,
     context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
     epilog=f"Caution: {CAUTION}",
 )
@@ -59,21 +107,6 @@ def cli(ctx: click.Context) -> None:
       upscale run demo-fields/marrowfen_lognormal.tif --block 8x8 --method geometric --out out/
     """
     ctx.ensure_object(dict).setdefault("command", ["upscale", *sys.argv[1:]])
-
-
-def _register() -> None:
-    from .check import check
-    from .compare import compare
-    from .demo import demo
-    from .info import info
-    from .plan import plan
-    from .run import run
-
-    for command in (run, compare, plan, check, info, demo):
-        cli.add_command(command)
-
-
-_register()
 
 
 #: GDAL's block cache in MB for the command line. Windows are read once each, so

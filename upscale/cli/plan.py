@@ -17,7 +17,6 @@ from .options import (
     block_specs,
     check_options,
     field_options,
-    global_options,
     method_options,
     parse_chunk,
     parse_methods,
@@ -27,6 +26,7 @@ from .options import (
 )
 from .progress import teller
 from .report import print_notes, table
+from .settings import global_options
 
 
 def parse_max_error(text: str) -> float:

@@ -15,9 +15,7 @@ from .options import (
     block_options,
     block_spec,
     check_options,
-    command_line,
     field_options,
-    global_options,
     parse_chunk,
     read_options,
     recorded,
@@ -25,6 +23,7 @@ from .options import (
 )
 from .progress import progress, teller
 from .report import print_ensemble, print_result
+from .settings import command_line, global_options
 
 _METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS.values())
 

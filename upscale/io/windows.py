@@ -14,6 +14,7 @@ import threading
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -49,18 +50,10 @@ def available_memory() -> int:
 
     * the machine's available memory (psutil's ``virtual_memory().available``:
       free memory plus what the kernel can reclaim);
-    * the memory limit dask finds (`distributed.system.memory_limit`) less
-      this process's resident memory. Dask takes the least of the machine's
-      total memory, the cgroup limits it reads at the top of
-      ``/sys/fs/cgroup`` — v1 ``memory/memory.limit_in_bytes`` and
-      ``memory.soft_limit_in_bytes``, v2 ``memory.max``, ``memory.high`` and
-      ``memory.low`` — and the hard ``RLIMIT_RSS``. The top of
-      ``/sys/fs/cgroup`` is a container's own cgroup (Docker, Podman,
-      Kubernetes): its limit counts. A cgroup deeper in the host's tree,
-      seen without a cgroup namespace (a batch scheduler's job cgroup on
-      the host), is not read. What other processes of the same container
-      hold is not counted: this process is taken as the one that fills it.
-      Without the ``cluster`` extra (distributed) this room is not known;
+    * the memory limit (`memory_limit`, found as dask's distributed finds
+      it) less this process's resident memory. What other processes of the
+      same container hold is not counted: this process is taken as the one
+      that fills it;
     * an address-space limit (``RLIMIT_AS``, ``ulimit -v``), which dask does
       not read, less this process's virtual size.
 
@@ -71,13 +64,7 @@ def available_memory() -> int:
     import psutil
 
     held = psutil.Process().memory_info()
-    rooms = [psutil.virtual_memory().available]
-    try:
-        from distributed.system import memory_limit
-    except ImportError:  # pragma: no cover - the cluster extra is not installed
-        pass
-    else:
-        rooms.append(memory_limit() - held.rss)
+    rooms = [psutil.virtual_memory().available, memory_limit() - held.rss]
     try:
         import resource
     except ImportError:  # pragma: no cover - Windows has no address-space limits
@@ -87,6 +74,45 @@ def available_memory() -> int:
         rooms.append(soft - held.vms)
     return max(0, int(min(rooms)))
 
+
+
+#: The cgroup limits read, at the top of ``/sys/fs/cgroup``: v1 hard and soft, v2 hard, soft, softest.
+CGROUP_LIMITS = ("memory/memory.limit_in_bytes", "memory/memory.soft_limit_in_bytes", "memory.max",
+                 "memory.high", "memory.low")  # fmt: skip
+
+
+def memory_limit() -> int:
+    """Bytes of memory this machine or container allows, as `distributed.system.memory_limit` finds them.
+
+    The least of the machine's total memory, the cgroup limits of
+    `CGROUP_LIMITS` that hold a positive number, and the hard ``RLIMIT_RSS``.
+    The top of ``/sys/fs/cgroup`` is a container's own cgroup (Docker,
+    Podman, Kubernetes): its limit counts. A cgroup deeper in the host's
+    tree, seen without a cgroup namespace (a batch scheduler's job cgroup on
+    the host), is not read. Dask's rule, read here so that its distributed
+    package (a third of a second to import) is not loaded to start every
+    command.
+
+    Examples
+    --------
+    >>> import psutil
+    >>> 0 < memory_limit() <= psutil.virtual_memory().total
+    True
+    """
+    import psutil
+
+    limits = [psutil.virtual_memory().total]
+    for name in CGROUP_LIMITS:
+        try:
+            limits.append(int(Path("/sys/fs/cgroup", name).read_text()))
+        except (OSError, ValueError):  # absent, or "max": no limit
+            continue
+    try:
+        import resource
+    except ImportError:  # pragma: no cover - Windows has no resource limits
+        return min(limit for limit in limits if limit > 0)
+    limits.append(resource.getrlimit(resource.RLIMIT_RSS)[1])
+    return min(limit for limit in limits if limit > 0)
 
 _reading = threading.local()
 #: Held while this module changes the process's warning filters (`open_raster`).

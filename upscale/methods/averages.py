@@ -158,6 +158,27 @@ def active_volume(
 ) -> np.ndarray:
     """Active volume of each block, in units of (cell area × m): the sum of dz over active cells.
 
+    Blocks one layer thick (every 2D map) are counted with NumPy, not the
+    compiled `_kernels.block_counts`, which a run would compile for nothing
+    else: the active cells of each block are counted (exactly) and multiplied
+    by the layer's dz, the kernel's one rounding. Thicker blocks keep the
+    kernel: it adds layer after layer with fused multiply-adds, whose
+    roundings NumPy does not reproduce.
+
     Parameters and returns as `arithmetic_mean`.
+
+    Examples
+    --------
+    >>> k = np.array([[[1.0, np.nan, 2.0], [3.0, 4.0, np.nan]]])
+    >>> active_volume(k, np.array([2.0]), (1, 2, 2))
+    array([[[6., 2.]]])
     """
-    return kern.block_counts(k, dz, block)
+    if block[0] != 1:
+        return kern.block_counts(k, dz, block)
+    layers, rows, columns = k.shape
+    _, sy, sx = block
+    down, across = -(-rows // sy), -(-columns // sx)
+    active = np.zeros((layers, down * sy, across * sx), dtype=bool)
+    active[:, :rows, :columns] = ~np.isnan(k)
+    counts = active.reshape(layers, down, sy, across, sx).sum(axis=(2, 4))
+    return dz[:, None, None] * counts
