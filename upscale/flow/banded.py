@@ -49,16 +49,17 @@ def factor(ab: np.ndarray) -> None:
     for i in range(n):
         d = ab[i, 0]
         top = min(width, n - 1 - i)
+        pivot = ab[i]
         for j in range(1, top + 1):
-            e = ab[i, j]
+            e = pivot[j]
             if e == 0.0:
                 continue
             f = e / d
-            row = i + j
-            for k in range(j, top + 1):
-                ab[row, k - j] -= f * ab[i, k]
+            row, source = ab[i + j], pivot[j : top + 1]
+            for k in range(top + 1 - j):  # from 0: no negative-index wrap, so it vectorises
+                row[k] -= f * source[k]
         for j in range(1, top + 1):
-            ab[i, j] /= d
+            pivot[j] /= d
 
 
 @nb.njit(**EXACT_JIT)
