@@ -51,8 +51,8 @@ from concurrent.futures import ThreadPoolExecutor
 import numba as nb
 import numpy as np
 
-from .banded import EXACT_JIT, factor, solve
-from .paths import all_whole, every_face, live_faces, next_cell
+from .banded import EXACT_JIT, factor, solve, solve_three
+from .paths import all_whole, cells, every_face, live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
 #: Boundary condition name -> code used by the compiled kernels.
@@ -107,12 +107,12 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     parent = np.arange(n)
     grounded = np.zeros(n, np.bool_)
     wrapped = np.zeros(n, np.bool_)
-    for c in range(n):
+    for c, at in cells(shape):
         i = order[c]
         for a in range(3):
             if not axes[a]:
                 continue
-            pos = (c // stride[a]) % shape[a]
+            pos = at[a]
             ta = t[a, c]
             if _fixed(bc, fixed_axis, a):
                 if pos == 0:
@@ -203,18 +203,18 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
 
 
 @nb.njit(**EXACT_JIT)
-def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
-    """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
+def _load(t, shape, order, pinned, bc, axes, a, centre, length):
+    """Right-hand side (matrix order) of the box for a unit gradient along `a`."""
     n = t.shape[1]
     stride = (shape[1] * shape[2], shape[2], 1)
     x = np.zeros(n)
-    for c in range(n):
+    for c, at in cells(shape):
         i = order[c]
+        pos_a = at[a]
         for b in range(3):
             if not axes[b]:
                 continue
-            pos = (c // stride[b]) % shape[b]
-            pos_a = (c // stride[a]) % shape[a]
+            pos = at[b]
             if _fixed(bc, a, b):
                 if pos == 0:
                     x[i] += t[b, c] * _boundary_pressure(pos_a, b, 0, a, centre, length)
@@ -228,12 +228,26 @@ def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
     for c in range(n):
         if pinned[c]:
             x[order[c]] = 0.0
-    solve(ab, x)
+    return x
+
+
+@nb.njit(**EXACT_JIT)
+def _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length):
+    """Pressures in lexicographic order from the solution `x` (matrix order), refined (`_refine`)."""
+    n = t.shape[1]
     p = np.empty(n)
     for c in range(n):
         p[c] = x[order[c]]
     _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length)
     return p
+
+
+@nb.njit(**EXACT_JIT)
+def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
+    """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
+    x = _load(t, shape, order, pinned, bc, axes, a, centre, length)
+    solve(ab, x)
+    return _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length)
 
 
 #: Refinement steps of a local solve at most. Each gains about -log10(eps x contrast) digits.
@@ -252,16 +266,16 @@ def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, throug
     returns the largest ratio of a cell's net inflow to that sum.
     """
     n = t.shape[1]
-    stride = (shape[1] * shape[2], shape[2], 1)
     r[:] = 0.0
     through[:] = 0.0
-    for c in range(n):
+    for c, at in cells(shape):
         i = order[c]
-        pos_a = (c // stride[a]) % shape[a]
+        pos_a = at[a]
         for b in range(3):
             if not axes[b] or t[b, c] <= 0.0:
                 continue
-            pos, m = next_cell(c, b, shape, bc == PERIODIC)
+            pos = at[b]
+            m = next_cell(c, pos, b, shape, bc == PERIODIC)
             last = shape[b] - 1
             if _fixed(bc, a, b):
                 for side in range(2):
@@ -324,7 +338,7 @@ def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
         last_change = change
 
 
-@nb.njit(**EXACT_JIT)
+@nb.njit(inline="always", **EXACT_JIT)
 def _face(t, p, floating, shape, c, at, b, side, bc, a, centre, length, inner, outer):
     """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
 
@@ -362,17 +376,15 @@ def _face(t, p, floating, shape, c, at, b, side, bc, a, centre, length, inner, o
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def _inner_face(t, p, floating, b, m, c, inner):
-    """`_face` of the face between cell `m` and its next cell `c` along b, inside the box.
+def _inner_flux(t, p, b, m, c, inner):
+    """`_face`'s flux from cell `m` to its next cell `c` along b, inside the box, bit for bit."""
+    return _series(t[b, m], t[b, c]) * (p[m] - p[c]) if inner[b, m] else 0.0
 
-    Returns (flux towards +b, pressure, pressure defined): the values `_face`
-    gives on c's side 0 and on m's side 1, bit for bit, without its tests of
-    the box's ends.
-    """
-    pm = p[m]
-    value, defined = _combine(pm, t[b, m], floating[m], p[c], t[b, c], floating[c])
-    flux = _series(t[b, m], t[b, c]) * (pm - p[c]) if inner[b, m] else 0.0
-    return flux, value, defined
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _inner_pressure(t, p, floating, b, m, c):
+    """`_face`'s pressure of the face between cell `m` and its next cell `c` along b: (value, defined)."""
+    return _combine(p[m], t[b, m], floating[m], p[c], t[b, c], floating[c])
 
 
 #: A net flux below this fraction of the sum of the magnitudes it adds up is rounding: flows
@@ -409,22 +421,27 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
                     c = (iz * shape[1] + iy) * shape[2] + ix
                     at = (iz, iy, ix)
                     pos = at[b]
-                    area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
-                    if pos > 0:  # inside the box: the short way, same values
-                        flux, value, defined = _inner_face(t, p, floating, b, c - s, c, inner)
+                    # inside the box the short way (same values), pressures only where averaged
+                    if pos > 0:
+                        flux = _inner_flux(t, p, b, c - s, c, inner)
+                        if pos == lo[b]:
+                            value, defined = _inner_pressure(t, p, floating, b, c - s, c)
                     else:
                         flux, value, defined = _face(
                             t, p, floating, shape, c, at, b, near, bc, a, centre, length, inner, outer
                         )
                     before = h[b, pos - 1] if pos > lo[b] else 0.0
-                    integral += 0.5 * (before + h[b, pos]) * flux
-                    magnitude += 0.5 * (before + h[b, pos]) * abs(flux)
+                    weight = 0.5 * (before + h[b, pos])
+                    integral += weight * flux
+                    magnitude += weight * abs(flux)
                     if pos == lo[b] and defined:
+                        area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
                         p_lo += area * value
                         a_lo += area
                     if pos == hi[b] - 1:
                         if pos < shape[b] - 1:
-                            flux, value, defined = _inner_face(t, p, floating, b, c, c + s, inner)
+                            flux = _inner_flux(t, p, b, c, c + s, inner)
+                            value, defined = _inner_pressure(t, p, floating, b, c, c + s)
                         else:
                             flux, value, defined = _face(
                                 t, p, floating, shape, c, at, b, far, bc, a, centre, length, inner, outer
@@ -432,6 +449,7 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
                         integral += 0.5 * h[b, pos] * flux
                         magnitude += 0.5 * h[b, pos] * abs(flux)
                         if defined:
+                            area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
                             p_hi += area * value
                             a_hi += area
         U[a, b] = _net(integral, magnitude) / volume
@@ -462,19 +480,31 @@ def _every(t, shape, bc, axes, a):
 @nb.njit(inline="always", **EXACT_JIT)
 def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G, faces):
     n = t.shape[1]
-    ab = np.empty((n, width + 1))
-    floating = np.empty(n, np.bool_)
+    ab = np.empty((3, n, width + 1))
+    floating = np.empty((3, n), np.bool_)
+    pinned = np.zeros((3, n), np.bool_)
+    x = np.zeros((3, n))
     centre, length = _geometry(h, shape)
-    pinned = np.empty(0, np.bool_)
+    factors = np.full(3, -1)  # the axis whose factors serve each axis; sealed: its own
     for a in range(3):
         if not axes[a]:
             continue
-        if bc == SEALED or pinned.size == 0:
-            pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
-            factor(ab)
-        p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
+        if bc == SEALED or factors.max() < 0:
+            pinned[a] = _assemble(t, shape, order, bc, axes, a, ab[a], floating[a])
+            factor(ab[a])
+            factors[a] = a
+        else:
+            factors[a] = factors.max()
+            pinned[a], floating[a] = pinned[factors[a]], floating[factors[a]]
+        x[a] = _load(t, shape, order, pinned[a], bc, axes, a, centre, length)
+    factors[factors < 0] = factors.max()  # a map's z: solves zeros alongside, unused
+    solve_three(ab[factors[0]], ab[factors[1]], ab[factors[2]], x[0], x[1], x[2])
+    for a in range(3):
+        if not axes[a]:
+            continue
+        p = _refined(x[a], t, shape, order, ab[factors[a]], pinned[a], bc, axes, a, centre, length)
         inner, outer = faces(t, shape, bc, axes, a)
-        _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
+        _block_averages(t, h, p, floating[a], shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                         U, G)  # fmt: skip
 
 
