@@ -62,7 +62,7 @@ def factor(ab: np.ndarray) -> None:
             pivot[j] /= d
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(**EXACT_JIT)
 def _forward(ab, x):
     """``x <- D⁻¹ U⁻ᵀ x``: the first half of `solve`."""
     n, width = ab.shape[0], ab.shape[1] - 1

@@ -52,7 +52,7 @@ import numba as nb
 import numpy as np
 
 from .banded import EXACT_JIT, factor, solve, solve_three
-from .paths import all_whole, cells, every_face, live_faces, next_cell
+from .paths import all_whole, every_face, live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
 #: Boundary condition name -> code used by the compiled kernels.
@@ -94,10 +94,10 @@ def _combine(pi, ti, fi, pj, tj, fj):
 
 
 @nb.njit(**EXACT_JIT)
-def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
+def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating, pinned):
     """Matrix of one box into `ab`; pins the level of groups without fixed pressure.
 
-    Returns the pinned cells (flag per cell, lexicographic order). Sets
+    Flags the pinned cells in `pinned` (lexicographic order). Sets
     `floating` for cells whose pressure level means nothing (no fixed
     pressure and, under periodic conditions, no periodic connection).
     """
@@ -107,12 +107,12 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
     parent = np.arange(n)
     grounded = np.zeros(n, np.bool_)
     wrapped = np.zeros(n, np.bool_)
-    for c, at in cells(shape):
+    for c in range(n):
         i = order[c]
         for a in range(3):
             if not axes[a]:
                 continue
-            pos = at[a]
+            pos = (c // stride[a]) % shape[a]
             ta = t[a, c]
             if _fixed(bc, fixed_axis, a):
                 if pos == 0:
@@ -134,7 +134,7 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
             T = _series(ta, t[a, m])
             if T > 0.0:
                 connect(ab, parent, order, c, m, T)
-    return pin(parent, grounded, wrapped, order, ab, floating)
+    pin(parent, grounded, wrapped, order, ab, floating, pinned)
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -153,8 +153,8 @@ def connect(ab, parent, order, c, m, T):
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def pin(parent, grounded, wrapped, order, ab, floating):
-    """Pin the level of every group of cells with no fixed pressure; returns the pinned cells.
+def pin(parent, grounded, wrapped, order, ab, floating, pinned):
+    """Pin the level of every group of cells with no fixed pressure; flags them in `pinned`.
 
     A group's first cell gets the identity row and column in `ab`; `floating`
     flags the cells of groups with neither a fixed pressure (`grounded`) nor a
@@ -166,7 +166,7 @@ def pin(parent, grounded, wrapped, order, ab, floating):
         grounded[r] |= grounded[c]
         wrapped[r] |= wrapped[c]
     width = ab.shape[1] - 1
-    pinned = np.zeros(n, np.bool_)
+    pinned[:] = False
     for c in range(n):
         r = _root(parent, c)
         floating[c] = not grounded[r] and not wrapped[r]
@@ -177,7 +177,6 @@ def pin(parent, grounded, wrapped, order, ab, floating):
             for j in range(1, min(width, i) + 1):
                 ab[i - j, j] = 0.0
             ab[i, 0] = 1.0
-    return pinned
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -203,18 +202,18 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
 
 
 @nb.njit(**EXACT_JIT)
-def _load(t, shape, order, pinned, bc, axes, a, centre, length):
-    """Right-hand side (matrix order) of the box for a unit gradient along `a`."""
+def _load(t, shape, order, pinned, bc, axes, a, centre, length, x):
+    """Right-hand side (matrix order) of the box for a unit gradient along `a`, into `x`."""
     n = t.shape[1]
     stride = (shape[1] * shape[2], shape[2], 1)
-    x = np.zeros(n)
-    for c, at in cells(shape):
+    x[:] = 0.0
+    for c in range(n):
         i = order[c]
-        pos_a = at[a]
+        pos_a = (c // stride[a]) % shape[a]
         for b in range(3):
             if not axes[b]:
                 continue
-            pos = at[b]
+            pos = (c // stride[b]) % shape[b]
             if _fixed(bc, a, b):
                 if pos == 0:
                     x[i] += t[b, c] * _boundary_pressure(pos_a, b, 0, a, centre, length)
@@ -228,7 +227,6 @@ def _load(t, shape, order, pinned, bc, axes, a, centre, length):
     for c in range(n):
         if pinned[c]:
             x[order[c]] = 0.0
-    return x
 
 
 @nb.njit(**EXACT_JIT)
@@ -245,7 +243,8 @@ def _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length):
 @nb.njit(**EXACT_JIT)
 def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
     """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
-    x = _load(t, shape, order, pinned, bc, axes, a, centre, length)
+    x = np.empty(t.shape[1])
+    _load(t, shape, order, pinned, bc, axes, a, centre, length, x)
     solve(ab, x)
     return _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length)
 
@@ -266,16 +265,16 @@ def _residual(t, p, shape, order, pinned, bc, axes, a, centre, length, r, throug
     returns the largest ratio of a cell's net inflow to that sum.
     """
     n = t.shape[1]
+    stride = (shape[1] * shape[2], shape[2], 1)
     r[:] = 0.0
     through[:] = 0.0
-    for c, at in cells(shape):
+    for c in range(n):
         i = order[c]
-        pos_a = at[a]
+        pos_a = (c // stride[a]) % shape[a]
         for b in range(3):
             if not axes[b] or t[b, c] <= 0.0:
                 continue
-            pos = at[b]
-            m = next_cell(c, pos, b, shape, bc == PERIODIC)
+            pos, m = next_cell(c, b, shape, bc == PERIODIC)
             last = shape[b] - 1
             if _fixed(bc, a, b):
                 for side in range(2):
@@ -338,7 +337,7 @@ def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
         last_change = change
 
 
-@nb.njit(inline="always", **EXACT_JIT)
+@nb.njit(**EXACT_JIT)
 def _face(t, p, floating, shape, c, at, b, side, bc, a, centre, length, inner, outer):
     """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
 
@@ -482,29 +481,36 @@ def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G, faces):
     n = t.shape[1]
     ab = np.empty((3, n, width + 1))
     floating = np.empty((3, n), np.bool_)
-    pinned = np.zeros((3, n), np.bool_)
+    pinned = np.empty((3, n), np.bool_)
     x = np.zeros((3, n))
     centre, length = _geometry(h, shape)
-    factors = np.full(3, -1)  # the axis whose factors serve each axis; sealed: its own
+    # the axis whose factors serve each axis: its own under sealed conditions (the
+    # matrix changes with the axis), else the first flow axis's
+    source = np.full(3, -1)
+    first = -1
     for a in range(3):
         if not axes[a]:
             continue
-        if bc == SEALED or factors.max() < 0:
-            pinned[a] = _assemble(t, shape, order, bc, axes, a, ab[a], floating[a])
+        if bc == SEALED or first < 0:
+            _assemble(t, shape, order, bc, axes, a, ab[a], floating[a], pinned[a])
             factor(ab[a])
-            factors[a] = a
+            first = a if first < 0 else first
+            source[a] = a
         else:
-            factors[a] = factors.max()
-            pinned[a], floating[a] = pinned[factors[a]], floating[factors[a]]
-        x[a] = _load(t, shape, order, pinned[a], bc, axes, a, centre, length)
-    factors[factors < 0] = factors.max()  # a map's z: solves zeros alongside, unused
-    solve_three(ab[factors[0]], ab[factors[1]], ab[factors[2]], x[0], x[1], x[2])
+            source[a] = first
+        f = source[a]
+        _load(t, shape, order, pinned[f], bc, axes, a, centre, length, x[a])
+    for a in range(3):
+        if not axes[a]:
+            source[a] = first  # a map's z: solves zeros alongside, unused
+    solve_three(ab[source[0]], ab[source[1]], ab[source[2]], x[0], x[1], x[2])
     for a in range(3):
         if not axes[a]:
             continue
-        p = _refined(x[a], t, shape, order, ab[factors[a]], pinned[a], bc, axes, a, centre, length)
+        f = source[a]
+        p = _refined(x[a], t, shape, order, ab[f], pinned[f], bc, axes, a, centre, length)
         inner, outer = faces(t, shape, bc, axes, a)
-        _block_averages(t, h, p, floating[a], shape, lo, hi, bc, axes, a, centre, length, inner, outer,
+        _block_averages(t, h, p, floating[f], shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                         U, G)  # fmt: skip
 
 
@@ -590,7 +596,8 @@ def block_tensors(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarra
 def _one_pair(tq, hq, shape, lo, m, hi, a, order, width, axes, ab, floating, out, faces):
     bc, (near, far) = _SEALED, _SIDES
     centre, length = _geometry(hq, shape)
-    pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
+    pinned = np.empty(tq.shape[1], np.bool_)
+    _assemble(tq, shape, order, bc, axes, a, ab, floating, pinned)
     factor(ab)
     p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
     inner, outer = faces(tq, shape, bc, axes, a)

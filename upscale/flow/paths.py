@@ -32,33 +32,17 @@ from .banded import EXACT_JIT
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def cells(shape):
-    """Every cell of a box as (index, (z, y, x)), in lexicographic order.
-
-    The positions come from counting rather than from dividing the index:
-    integer divisions cost more than most of what the kernels do per cell.
-    """
-    out = []
-    c = 0
-    for iz in range(shape[0]):
-        for iy in range(shape[1]):
-            for ix in range(shape[2]):
-                out.append((c, (iz, iy, ix)))
-                c += 1
-    return out
-
-
-@nb.njit(inline="always", **EXACT_JIT)
-def next_cell(c, pos, b, shape, periodic):
-    """The next cell of cell `c` along `b` (-1 if none), given its position `pos` along b.
+def next_cell(c, b, shape, periodic):
+    """Position of cell `c` along `b`, and its next cell along b (-1 if none).
 
     Under periodic conditions the next cell of the last one is the first
     (itself when the box is one cell long).
     """
     s = (shape[1] * shape[2], shape[2], 1)[b]
+    pos = (c // s) % shape[b]
     if pos < shape[b] - 1:
-        return c + s
-    return c - pos * s if periodic else -1
+        return pos, c + s
+    return pos, c - pos * s if periodic else -1
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -80,6 +64,7 @@ def _edges(t, shape, fixed, periodic, axes, a):
     is its own periodic image along b.
     """
     n = t.shape[1]
+    stride = (shape[1] * shape[2], shape[2], 1)
     size = 9 * n
     u = np.empty(size, np.int64)
     v = np.empty(size, np.int64)
@@ -88,13 +73,12 @@ def _edges(t, shape, fixed, periodic, axes, a):
     outer = np.full((2, 3, n), -1, np.int64)
     looped = np.zeros((3, n), np.bool_)
     count = 0
-    for c, at in cells(shape):
-        pos_a = at[a]
+    for c in range(n):
+        pos_a = (c // stride[a]) % shape[a]
         for b in range(3):
             if not axes[b] or t[b, c] <= 0.0:
                 continue
-            pos = at[b]
-            m = next_cell(c, pos, b, shape, periodic)
+            pos, m = next_cell(c, b, shape, periodic)
             last = shape[b] - 1
             if fixed[b]:
                 for side in range(2):
