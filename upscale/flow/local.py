@@ -13,8 +13,9 @@ written ``p = -x_a + p'`` for an imposed unit mean gradient along axis `a`
 
 Cells connect by the harmonic face rule of `upscale.flow.transmissibility`,
 written with the same half-cell transmissibilities ``t`` (0 for an inactive
-cell). Every box is assembled into a banded matrix, factored once and
-solved for each imposed gradient (`upscale.flow.banded`), then refined
+cell). Every box is assembled into a banded matrix, factored once (once
+per axis under sealed conditions, whose matrix changes with the axis) and
+solved for the imposed gradients together (`upscale.flow.banded`), then refined
 against the residual written in face fluxes, which removes the error of
 eps x contrast the factors leave across strong contrasts; problems run in
 parallel threads. A group of cells with no fixed pressure (an island, or
