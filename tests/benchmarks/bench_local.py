@@ -544,7 +544,7 @@ def main() -> None:
     parser.add_argument("--timeout", type=float, default=900.0, help="s allowed to any other child")
     parser.add_argument("--json", default=None, help="also write the results to this file")
     parser.add_argument("--only", choices=["2D", "3D"], default=None,
-                        help="run this case's comparison alone (no other variants, no memory runs)")  # fmt: skip
+                        help="one case's comparison alone (no other variants, no memory runs)")  # fmt: skip
     parser.add_argument("--one", default=None, help=argparse.SUPPRESS)
     args = parser.parse_args()
     DZ[0] = args.dz

@@ -203,8 +203,10 @@ def before_cases() -> dict[str, np.ndarray]:
             order, width = band_order(shape, False)
             for a in np.flatnonzero(axes):
                 mid = np.full(count, shape[a] // 2)
-                out[f"{name} pairs {a}"] = pair_fluxes(t, h, size, np.zeros((count, 3), int), mid,
-                                                       np.tile(size, (count, 1)), int(a), order, width, axes)  # fmt: skip
+                first, last = np.zeros((count, 3), int), np.tile(size, (count, 1))
+                out[f"{name} pairs {a}"] = pair_fluxes(
+                    t, h, size, first, mid, last, int(a), order, width, axes
+                )
     return out
 
 
