@@ -3,7 +3,7 @@
 Run on demand (not collected by pytest)::
 
     python tests/benchmarks/bench_local.py [--repeats 3] [--dz 10] [--loop-blocks-3d 0]
-                                           [--timeout 900] [--json results.json]
+                                           [--timeout 900] [--json results.json] [--only 3D]
 
 Fields: lognormal (geometric mean 100 mD, sigma_ln 1, exponential
 covariance, correlation lengths 8 cells across and 2 layers down), 10 m
@@ -543,6 +543,8 @@ def main() -> None:
                         help="s allowed to a loop over all blocks before it is sampled instead")  # fmt: skip
     parser.add_argument("--timeout", type=float, default=900.0, help="s allowed to any other child")
     parser.add_argument("--json", default=None, help="also write the results to this file")
+    parser.add_argument("--only", choices=["2D", "3D"], default=None,
+                        help="one case's comparison alone (no other variants, no memory runs)")  # fmt: skip
     parser.add_argument("--one", default=None, help=argparse.SUPPRESS)
     args = parser.parse_args()
     DZ[0] = args.dz
@@ -557,11 +559,14 @@ def main() -> None:
     report: dict[str, Any] = {"dz": args.dz, "repeats": args.repeats}
     failures: list[str] = []
     try:
-        paths = {case: field_file(case, work, args.timeout) for case in ("2D", "3D")}
-        failures += comparison("2D", args, paths, work, report)
-        other_methods(args, paths, report)
-        failures += comparison("3D", args, paths, work, report)
-        memory_runs(args, paths, work, report)
+        cases = [args.only] if args.only else ["2D", "3D"]
+        paths = {case: field_file(case, work, args.timeout) for case in cases}
+        for case in cases:
+            failures += comparison(case, args, paths, work, report)
+            if case == "2D" and not args.only:
+                other_methods(args, paths, report)
+        if not args.only:
+            memory_runs(args, paths, work, report)
     finally:
         shutil.rmtree(work, ignore_errors=True)
     total = time.perf_counter() - started

@@ -96,7 +96,7 @@ def _assemble(t, shape, order, fixed, axes, ab, floating):
                 T = _series(t[a, c], t[a, c + stride[a]])
                 if T > 0.0:
                     connect(ab, parent, order, c, c + stride[a], T)
-    pin(parent, grounded, np.zeros(n, np.bool_), order, ab, floating)
+    pin(parent, grounded, np.zeros(n, np.bool_), order, ab, floating, np.empty(n, np.bool_))
 
 
 @nb.njit(**EXACT_JIT)

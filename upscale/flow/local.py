@@ -13,8 +13,9 @@ written ``p = -x_a + p'`` for an imposed unit mean gradient along axis `a`
 
 Cells connect by the harmonic face rule of `upscale.flow.transmissibility`,
 written with the same half-cell transmissibilities ``t`` (0 for an inactive
-cell). Every box is assembled into a banded matrix, factored once and
-solved for each imposed gradient (`upscale.flow.banded`), then refined
+cell). Every box is assembled into a banded matrix, factored once (once
+per axis under sealed conditions, whose matrix changes with the axis) and
+solved for the imposed gradients together (`upscale.flow.banded`), then refined
 against the residual written in face fluxes, which removes the error of
 eps x contrast the factors leave across strong contrasts; problems run in
 parallel threads. A group of cells with no fixed pressure (an island, or
@@ -51,7 +52,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numba as nb
 import numpy as np
 
-from .banded import EXACT_JIT, factor, solve
+from .banded import EXACT_JIT, factor, solve, solve_three
 from .paths import all_whole, every_face, live_faces, next_cell
 
 SEALED, LINEAR, PERIODIC = 0, 1, 2
@@ -94,10 +95,10 @@ def _combine(pi, ti, fi, pj, tj, fj):
 
 
 @nb.njit(**EXACT_JIT)
-def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
+def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating, pinned):
     """Matrix of one box into `ab`; pins the level of groups without fixed pressure.
 
-    Returns the pinned cells (flag per cell, lexicographic order). Sets
+    Flags the pinned cells in `pinned` (lexicographic order). Sets
     `floating` for cells whose pressure level means nothing (no fixed
     pressure and, under periodic conditions, no periodic connection).
     """
@@ -134,7 +135,7 @@ def _assemble(t, shape, order, bc, axes, fixed_axis, ab, floating):
             T = _series(ta, t[a, m])
             if T > 0.0:
                 connect(ab, parent, order, c, m, T)
-    return pin(parent, grounded, wrapped, order, ab, floating)
+    pin(parent, grounded, wrapped, order, ab, floating, pinned)
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -153,8 +154,8 @@ def connect(ab, parent, order, c, m, T):
 
 
 @nb.njit(inline="always", **EXACT_JIT)
-def pin(parent, grounded, wrapped, order, ab, floating):
-    """Pin the level of every group of cells with no fixed pressure; returns the pinned cells.
+def pin(parent, grounded, wrapped, order, ab, floating, pinned):
+    """Pin the level of every group of cells with no fixed pressure; flags them in `pinned`.
 
     A group's first cell gets the identity row and column in `ab`; `floating`
     flags the cells of groups with neither a fixed pressure (`grounded`) nor a
@@ -166,7 +167,7 @@ def pin(parent, grounded, wrapped, order, ab, floating):
         grounded[r] |= grounded[c]
         wrapped[r] |= wrapped[c]
     width = ab.shape[1] - 1
-    pinned = np.zeros(n, np.bool_)
+    pinned[:] = False
     for c in range(n):
         r = _root(parent, c)
         floating[c] = not grounded[r] and not wrapped[r]
@@ -177,7 +178,6 @@ def pin(parent, grounded, wrapped, order, ab, floating):
             for j in range(1, min(width, i) + 1):
                 ab[i - j, j] = 0.0
             ab[i, 0] = 1.0
-    return pinned
 
 
 @nb.njit(inline="always", **EXACT_JIT)
@@ -203,18 +203,18 @@ def _boundary_pressure(pos_a, b, side, a, centre, length):
 
 
 @nb.njit(**EXACT_JIT)
-def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
-    """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
+def _load(t, shape, order, pinned, bc, axes, a, centre, length, x):
+    """Right-hand side (matrix order) of the box for a unit gradient along `a`, into `x`."""
     n = t.shape[1]
     stride = (shape[1] * shape[2], shape[2], 1)
-    x = np.zeros(n)
+    x[:] = 0.0
     for c in range(n):
         i = order[c]
+        pos_a = (c // stride[a]) % shape[a]
         for b in range(3):
             if not axes[b]:
                 continue
             pos = (c // stride[b]) % shape[b]
-            pos_a = (c // stride[a]) % shape[a]
             if _fixed(bc, a, b):
                 if pos == 0:
                     x[i] += t[b, c] * _boundary_pressure(pos_a, b, 0, a, centre, length)
@@ -228,12 +228,26 @@ def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
     for c in range(n):
         if pinned[c]:
             x[order[c]] = 0.0
-    solve(ab, x)
+
+
+@nb.njit(**EXACT_JIT)
+def _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length):
+    """Pressures in lexicographic order from the solution `x` (matrix order), refined (`_refine`)."""
+    n = t.shape[1]
     p = np.empty(n)
     for c in range(n):
         p[c] = x[order[c]]
     _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length)
     return p
+
+
+@nb.njit(**EXACT_JIT)
+def _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length):
+    """Solve the factored box for a unit gradient along `a`; pressures in lexicographic order."""
+    x = np.empty(t.shape[1])
+    _load(t, shape, order, pinned, bc, axes, a, centre, length, x)
+    solve(ab, x)
+    return _refined(x, t, shape, order, ab, pinned, bc, axes, a, centre, length)
 
 
 #: Refinement steps of a local solve at most. Each gains about -log10(eps x contrast) digits.
@@ -325,23 +339,23 @@ def _refine(t, p, shape, order, ab, pinned, bc, axes, a, centre, length):
 
 
 @nb.njit(**EXACT_JIT)
-def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer):
+def _face(t, p, floating, shape, c, at, b, side, bc, a, centre, length, inner, outer):
     """Flux (towards +b) and pressure of the face of cell `c` on `side` (0 = -b, 1 = +b).
 
-    Returns (flux, pressure, pressure defined); the flux is 0 on a face that
-    cannot carry flow (`inner`, `outer`: `upscale.flow.paths`).
+    `at` is the cell's position (z, y, x) in the box, given rather than
+    divided out of `c` (integer divisions cost more than the face). Returns
+    (flux, pressure, pressure defined); the flux is 0 on a face that cannot
+    carry flow (`inner`, `outer`: `upscale.flow.paths`).
     """
-    stride = (shape[1] * shape[2], shape[2], 1)
-    s = stride[b]
-    pos = (c // s) % shape[b]
+    s = (shape[1] * shape[2], shape[2], 1)[b]
+    pos = at[b]
     last = shape[b] - 1
     shift = length[a] if a == b else 0.0
     if side == 0 and pos > 0 or side == 1 and pos < last:
         m = c - s if side == 0 else c + s
         pm = p[m]
     elif _fixed(bc, a, b):
-        pos_a = (c // stride[a]) % shape[a]
-        pb = _boundary_pressure(pos_a, b, side, a, centre, length)
+        pb = _boundary_pressure(at[a], b, side, a, centre, length)
         if not outer[side, b, c]:
             return 0.0, pb, True
         flux = t[b, c] * (pb - p[c]) if side == 0 else t[b, c] * (p[c] - pb)
@@ -359,6 +373,18 @@ def _face(t, p, floating, shape, c, b, side, bc, a, centre, length, inner, outer
     T = _series(t[b, m], t[b, c])
     flux = T * (pm - p[c]) if side == 0 else T * (p[c] - pm)
     return flux, value, defined
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _inner_flux(t, p, b, m, c, inner):
+    """`_face`'s flux from cell `m` to its next cell `c` along b, inside the box, bit for bit."""
+    return _series(t[b, m], t[b, c]) * (p[m] - p[c]) if inner[b, m] else 0.0
+
+
+@nb.njit(inline="always", **EXACT_JIT)
+def _inner_pressure(t, p, floating, b, m, c):
+    """`_face`'s pressure of the face between cell `m` and its next cell `c` along b: (value, defined)."""
+    return _combine(p[m], t[b, m], floating[m], p[c], t[b, c], floating[c])
 
 
 #: A net flux below this fraction of the sum of the magnitudes it adds up is rounding: flows
@@ -386,30 +412,44 @@ def _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, lengt
     for b in range(3):
         if not axes[b]:
             continue
+        s = (shape[1] * shape[2], shape[2], 1)[b]
         integral = magnitude = 0.0
         p_lo = a_lo = p_hi = a_hi = 0.0
         for iz in range(lo[0], hi[0]):
             for iy in range(lo[1], hi[1]):
                 for ix in range(lo[2], hi[2]):
                     c = (iz * shape[1] + iy) * shape[2] + ix
-                    pos = (iz, iy, ix)[b]
-                    area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
-                    flux, value, defined = _face(
-                        t, p, floating, shape, c, b, near, bc, a, centre, length, inner, outer
-                    )
+                    at = (iz, iy, ix)
+                    pos = at[b]
+                    # inside the box the short way (same values), pressures only where averaged
+                    if pos > 0:
+                        flux = _inner_flux(t, p, b, c - s, c, inner)
+                        if pos == lo[b]:
+                            value, defined = _inner_pressure(t, p, floating, b, c - s, c)
+                    else:
+                        flux, value, defined = _face(
+                            t, p, floating, shape, c, at, b, near, bc, a, centre, length, inner, outer
+                        )
                     before = h[b, pos - 1] if pos > lo[b] else 0.0
-                    integral += 0.5 * (before + h[b, pos]) * flux
-                    magnitude += 0.5 * (before + h[b, pos]) * abs(flux)
+                    weight = 0.5 * (before + h[b, pos])
+                    integral += weight * flux
+                    magnitude += weight * abs(flux)
                     if pos == lo[b] and defined:
+                        area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
                         p_lo += area * value
                         a_lo += area
                     if pos == hi[b] - 1:
-                        flux, value, defined = _face(
-                            t, p, floating, shape, c, b, far, bc, a, centre, length, inner, outer
-                        )
+                        if pos < shape[b] - 1:
+                            flux = _inner_flux(t, p, b, c, c + s, inner)
+                            value, defined = _inner_pressure(t, p, floating, b, c, c + s)
+                        else:
+                            flux, value, defined = _face(
+                                t, p, floating, shape, c, at, b, far, bc, a, centre, length, inner, outer
+                            )
                         integral += 0.5 * h[b, pos] * flux
                         magnitude += 0.5 * h[b, pos] * abs(flux)
                         if defined:
+                            area = h[0, iz] * h[1, iy] * h[2, ix] / h[b, pos]
                             p_hi += area * value
                             a_hi += area
         U[a, b] = _net(integral, magnitude) / volume
@@ -440,19 +480,38 @@ def _every(t, shape, bc, axes, a):
 @nb.njit(inline="always", **EXACT_JIT)
 def _one_box(t, h, shape, lo, hi, order, width, bc, axes, U, G, faces):
     n = t.shape[1]
-    ab = np.empty((n, width + 1))
-    floating = np.empty(n, np.bool_)
+    ab = np.empty((3, n, width + 1))
+    floating = np.empty((3, n), np.bool_)
+    pinned = np.empty((3, n), np.bool_)
+    x = np.zeros((3, n))
     centre, length = _geometry(h, shape)
-    pinned = np.empty(0, np.bool_)
+    # the axis whose factors serve each axis: its own under sealed conditions (the
+    # matrix changes with the axis), else the first flow axis's
+    source = np.full(3, -1)
+    first = -1
     for a in range(3):
         if not axes[a]:
             continue
-        if bc == SEALED or pinned.size == 0:
-            pinned = _assemble(t, shape, order, bc, axes, a, ab, floating)
-            factor(ab)
-        p = _pressure(t, shape, order, ab, pinned, bc, axes, a, centre, length)
+        if bc == SEALED or first < 0:
+            _assemble(t, shape, order, bc, axes, a, ab[a], floating[a], pinned[a])
+            factor(ab[a])
+            first = a if first < 0 else first
+            source[a] = a
+        else:
+            source[a] = first
+        f = source[a]
+        _load(t, shape, order, pinned[f], bc, axes, a, centre, length, x[a])
+    for a in range(3):
+        if not axes[a]:
+            source[a] = first  # a map's z: solves zeros alongside, unused
+    solve_three(ab[source[0]], ab[source[1]], ab[source[2]], x[0], x[1], x[2])
+    for a in range(3):
+        if not axes[a]:
+            continue
+        f = source[a]
+        p = _refined(x[a], t, shape, order, ab[f], pinned[f], bc, axes, a, centre, length)
         inner, outer = faces(t, shape, bc, axes, a)
-        _block_averages(t, h, p, floating, shape, lo, hi, bc, axes, a, centre, length, inner, outer,
+        _block_averages(t, h, p, floating[f], shape, lo, hi, bc, axes, a, centre, length, inner, outer,
                         U, G)  # fmt: skip
 
 
@@ -538,7 +597,8 @@ def block_tensors(t: np.ndarray, h: np.ndarray, shape: np.ndarray, lo: np.ndarra
 def _one_pair(tq, hq, shape, lo, m, hi, a, order, width, axes, ab, floating, out, faces):
     bc, (near, far) = _SEALED, _SIDES
     centre, length = _geometry(hq, shape)
-    pinned = _assemble(tq, shape, order, bc, axes, a, ab, floating)
+    pinned = np.empty(tq.shape[1], np.bool_)
+    _assemble(tq, shape, order, bc, axes, a, ab, floating, pinned)
     factor(ab)
     p = _pressure(tq, shape, order, ab, pinned, bc, axes, a, centre, length)
     inner, outer = faces(tq, shape, bc, axes, a)
@@ -548,12 +608,13 @@ def _one_pair(tq, hq, shape, lo, m, hi, a, order, width, axes, ab, floating, out
         for iy in range(lo[1], hi[1]):
             for ix in range(lo[2], hi[2]):
                 c = (iz * shape[1] + iy) * shape[2] + ix
-                pos = (iz, iy, ix)[a]
+                at = (iz, iy, ix)
+                pos = at[a]
                 f = 0.0
                 if pos == m:
-                    f = _face(tq, p, floating, shape, c, a, near, bc, a, centre, length, inner, outer)[0]
+                    f = _face(tq, p, floating, shape, c, at, a, near, bc, a, centre, length, inner, outer)[0]
                 elif m == shape[a] and pos == m - 1:  # the box's last face: the domain's
-                    f = _face(tq, p, floating, shape, c, a, far, bc, a, centre, length, inner, outer)[0]
+                    f = _face(tq, p, floating, shape, c, at, a, far, bc, a, centre, length, inner, outer)[0]
                 flux += f
                 magnitude += abs(f)
                 conducting = tq[0, c] + tq[1, c] + tq[2, c] > 0.0
