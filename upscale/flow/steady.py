@@ -25,7 +25,7 @@ from scipy import sparse
 
 from ..field import AXES
 from .islands import anchored
-from .solvers import Solver, make_solver
+from .solvers import SharedAggregation, Solver, aggregation, make_solver, resolved
 from .transmissibility import Transmissibilities
 
 
@@ -84,7 +84,8 @@ class AxisFlow(SteadyFlow):
 
 
 def pressure_drop(
-    trans: Transmissibilities, axis: str, *, solver: str = "auto", tolerance: float = 1e-10
+    trans: Transmissibilities, axis: str, *, solver: str = "auto", tolerance: float = 1e-10,
+    shared: SharedAggregation | None = None,
 ) -> AxisFlow:
     """Solve steady flow with p = 1 on the inlet face and p = 0 on the outlet face of `axis`.
 
@@ -99,6 +100,9 @@ def pressure_drop(
         See `upscale.flow.solvers.Solver`.
     tolerance : float
         Relative residual required of the linear solve.
+    shared : SharedAggregation, optional
+        Multigrid aggregates made for several flows of this grid
+        (`shared_aggregation`), used by a multigrid solve instead of its own.
 
     Returns
     -------
@@ -115,16 +119,89 @@ def pressure_drop(
     1.6
     """
     a = AXES[axis]
-    shape = trans.shape
-    index = np.arange(int(np.prod(shape))).reshape(shape)
-    t_in, t_out = (t.ravel() for t in trans.boundary[a])
-    inlet = np.take(index, [0], axis=a).ravel(), t_in
-    outlet = np.take(index, [shape[a] - 1], axis=a).ravel(), t_out
-    solved = fixed_pressures(trans, inlet, outlet, solver=solver, tolerance=tolerance)
+    solved = fixed_pressures(trans, *axis_faces(trans, axis), solver=solver, tolerance=tolerance,
+                             shared=shared, guess=_linear(trans, a))  # fmt: skip
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
     k_eff = float(solved.outflow * length / (sizes[0] * sizes[1]))
     return AxisFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, axis=axis, k_eff=k_eff)
+
+
+def axis_faces(trans: Transmissibilities, axis: str) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
+    """The inlet and the outlet faces across `axis`: (cells, half-cell t) each, for `fixed_pressures`."""
+    a = AXES[axis]
+    shape = trans.shape
+    index = np.arange(int(np.prod(shape))).reshape(shape)
+    t_in, t_out = (t.ravel() for t in trans.boundary[a])
+    return (np.take(index, [0], axis=a).ravel(), t_in), (np.take(index, [shape[a] - 1], axis=a).ravel(), t_out)
+
+
+def _linear(trans: Transmissibilities, axis: int) -> np.ndarray:
+    """The pressure of a uniform field across `axis`: 1 at the inlet face falling to 0 at the outlet, flat."""
+    sizes = trans.grid.sizes(axis)
+    centres = np.cumsum(sizes) - 0.5 * sizes
+    shape = [1, 1, 1]
+    shape[axis] = sizes.size
+    return np.broadcast_to((1.0 - centres / sizes.sum()).reshape(shape), trans.shape).ravel()
+
+
+def shared_aggregation(
+    trans: Transmissibilities, flows: list[tuple[tuple[np.ndarray, np.ndarray], ...]], *, solver: str = "auto"
+) -> SharedAggregation | None:
+    """One aggregation for the multigrid of all of `flows` on this grid (`upscale.flow.solvers.SharedAggregation`).
+
+    Parameters
+    ----------
+    trans : Transmissibilities
+        The grid's transmissibilities.
+    flows : list of (inlet, outlet)
+        The fixed-pressure faces of every flow, as `fixed_pressures` takes them.
+    solver : {'auto', 'amg', 'direct'}
+        As in `pressure_drop`.
+
+    Returns
+    -------
+    SharedAggregation or None
+        Made on the cells of every flow, with every outer face closed; None
+        if `solver` means a direct solve of this many unknowns.
+    """
+    faces = [np.concatenate(parts) for parts in zip(*(side for flow in flows for side in flow))]
+    keep = anchored(trans.regions, faces[0][faces[1] > 0], faces[0][faces[1] > 0])[0]
+    m = int(keep.sum())
+    if resolved(solver, m) != "amg" or not m:
+        return None
+    A, number = _assembled(trans, keep, [])[:2]  # every outer face closed (see SharedAggregation)
+    return SharedAggregation(aggregation(A), number)
+
+
+def _assembled(trans: Transmissibilities, keep: np.ndarray, fixed: list[tuple[np.ndarray, np.ndarray]]) -> tuple:
+    """The matrix of the cells `keep` with fixed pressures on the faces `fixed`: [(cells, t > 0), ...].
+
+    Returns
+    -------
+    A : csr_matrix of shape (m, m)
+    number : ndarray of int, shape (cells,)
+        Position of every cell among the unknowns, -1 if not one.
+    faces : (ndarray, ndarray, ndarray)
+        The two unknowns and T of every face inside the solved set.
+    """
+    n = keep.size
+    first, second, T = trans.connections
+    number = np.full(n, -1)
+    m = int(keep.sum())
+    number[keep] = np.arange(m)
+    # faces inside the solved set (a face joins two cells of the same region)
+    inside = keep[first]
+    i, j, T = number[first[inside]], number[second[inside]], T[inside]
+    diagonal = np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
+    for cells, t in fixed:  # added in turn: the same sums, bit for bit, as ever
+        diagonal = diagonal + np.bincount(number[cells], t, minlength=m)
+    A = sparse.coo_matrix(
+        (np.concatenate([diagonal, -T, -T]),
+         (np.concatenate([np.arange(m), i, j]), np.concatenate([np.arange(m), j, i]))),
+        shape=(m, m),
+    ).tocsr()  # fmt: skip
+    return A, number, (i, j, T)
 
 
 def fixed_pressures(
@@ -134,6 +211,8 @@ def fixed_pressures(
     *,
     solver: str = "auto",
     tolerance: float = 1e-10,
+    shared: SharedAggregation | None = None,
+    guess: np.ndarray | None = None,
 ) -> SteadyFlow:
     """Solve steady flow with p = 1 on the inlet faces and p = 0 on the outlet faces, the rest closed.
 
@@ -146,8 +225,11 @@ def fixed_pressures(
         the half-cell transmissibility t of that cell towards the face
         ((unit of k) · m; from ``trans.boundary``). A cell may appear more than
         once (a corner cell with two inlet faces); faces with t = 0 are left out.
-    solver, tolerance
+    solver, tolerance, shared
         As in `pressure_drop`.
+    guess : ndarray of shape (cells,), optional
+        First pressures of a multigrid solve, flat over the grid (e.g. the
+        linear fall of a uniform field); the result is the same to the tolerance.
 
     Returns
     -------
@@ -159,33 +241,19 @@ def fixed_pressures(
     inlet_cells, t_in = inlet_cells[t_in > 0], t_in[t_in > 0]
     outlet_cells, t_out = outlet_cells[t_out > 0], t_out[t_out > 0]
 
-    first, second, T = trans.connections
     # inactive cells have t = 0 on every face: regions of their own that are never anchored
     keep, connected = anchored(trans.regions, inlet_cells, outlet_cells)
     isolated = int(trans.active.sum() - keep.sum())
-    number = np.full(n, -1)
-    number[keep] = np.arange(int(keep.sum()))
-
-    # faces inside the solved set (a face joins two cells of the same region)
-    inside = keep[first]
-    i, j, T = number[first[inside]], number[second[inside]], T[inside]
     m = int(keep.sum())
+    A, number, faces = _assembled(trans, keep, [(inlet_cells, t_in), (outlet_cells, t_out)])
     inlet, outlet = number[inlet_cells], number[outlet_cells]
     rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet faces, p = 0 on the outlet faces
-    diagonal = (
-        np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
-        + rhs + np.bincount(outlet, t_out, minlength=m)
-    )  # fmt: skip
-    A = sparse.coo_matrix(
-        (np.concatenate([diagonal, -T, -T]),
-         (np.concatenate([np.arange(m), i, j]), np.concatenate([np.arange(m), j, i]))),
-        shape=(m, m),
-    ).tocsr()  # fmt: skip
-
-    solve = make_solver(A, solver, tolerance)
-    p, info = solve.solve(rhs)
+    cells = np.flatnonzero(keep)
+    cycle = shared.cycle(A, cells) if shared is not None and resolved(solver, m) == "amg" else None
+    solve = make_solver(A, solver, tolerance, precondition=cycle)
+    p, info = solve.solve(rhs, None if guess is None else guess[cells])
     if m and connected:
-        p = _refined(p, solve, tolerance, (i, j, T), (inlet, t_in), (outlet, t_out))
+        p = _refined(p, solve, tolerance, faces, (inlet, t_in), (outlet, t_out))
     inflow = float(np.sum(t_in * (1.0 - p[inlet]))) if m else 0.0
     outflow = float(np.sum(t_out * p[outlet])) if m else 0.0
     if not connected:  # no path joins the faces: nothing flows, the rates are rounding
