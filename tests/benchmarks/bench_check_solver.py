@@ -43,7 +43,6 @@ CASES = {
     "2D 4M channel": ("channel", (1, 2048, 2048), (1.0, 1.0, 1.0)),
     "3D 1M lognormal cubic": ("lognormal", (64, 128, 128), (1.0, 1.0, 1.0)),
     "3D 1M lognormal thin": ("lognormal", (64, 128, 128), (1.0, 10.0, 10.0)),
-    "tiny": ("lognormal", (1, 200, 200), (1.0, 1.0, 1.0)),
 }
 
 
