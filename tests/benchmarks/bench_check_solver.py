@@ -11,7 +11,8 @@ its own: with this worktree's default solver, with the code of the git
 revision `--base` (extracted with ``git archive``; "today's code"), and with
 ``solver="direct"`` (SuperLU) under a time limit. Wall and CPU seconds,
 iterations per flow, the largest relative difference of k_eff from the
-base code and the peak resident memory of the child are printed per case,
+base code and the child's peak resident memory above what it held before the check
+(bytes per cell) are printed per case,
 and the ratios from the same run. The machine is shared: the load average
 is printed with every case, and CPU seconds are the steadier measure.
 
@@ -75,10 +76,11 @@ def one(case: str, solver: str) -> dict:
     field = field_of(case)
     g = field.grid
     coarse = Grid(dz=[g.dz.sum()], dy=[g.dy.sum() / 16] * 16, dx=[g.dx.sum() / 16] * 16)
+    before = int(Path("/proc/self/statm").read_text().split()[1]) * os.sysconf("SC_PAGE_SIZE")
     wall, cpu = time.perf_counter(), time.process_time()
     flows = fine_solves(field, field.axes, coarse_grid=coarse, solver=solver)
     wall, cpu = time.perf_counter() - wall, time.process_time() - cpu
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024 - before  # the check's own peak
     return {"wall": wall, "cpu": cpu, "peak": peak, "cells": int(np.prod(field.shape)),
             "k_eff": {name: f.k_eff for name, f in flows.items()},
             "iterations": {name: f.iterations for name, f in flows.items()},

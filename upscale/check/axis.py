@@ -23,9 +23,7 @@ from typing import Any
 from ..errors import InputError
 from ..field import Field, Grid
 from ..flow import AxisFlow, Transmissibilities, pressure_drop, transmissibilities
-from ..flow.corner import CornerFlow, Corners, corner_faces, corner_flow, corners_of
-from ..flow.solvers import SharedAggregation
-from ..flow.steady import axis_faces, shared_aggregation
+from ..flow.corner import CornerFlow, Corners, corner_flow, corners_of
 from .limits import DEFAULT_LIMIT, too_large
 
 #: The held-out flows every check solves beside the axes, in this order (see the module docstring).
@@ -189,15 +187,12 @@ def fine_solves(
         Per axis, then (with `coarse_grid`) ``"corner"``.
     """
     fine_t = transmissibilities(fine)
-    corners = None if coarse_grid is None else corners_of(fine.grid, coarse_grid)[0]
-    faces = [axis_faces(fine_t, axis) for axis in axes] + ([] if corners is None else [corner_faces(fine_t, corners)])
-    # one multigrid hierarchy for every fine flow: their matrices differ only on boundary cells
-    shared = shared_aggregation(fine_t, faces, solver=solver)
     flows: dict[str, AxisFlow | CornerFlow] = {
-        axis: pressure_drop(fine_t, axis, solver=solver, tolerance=tolerance, shared=shared) for axis in axes
+        axis: pressure_drop(fine_t, axis, solver=solver, tolerance=tolerance) for axis in axes
     }
-    if corners is not None:
-        flows.update(_held_out(fine_t, corners, solver=solver, tolerance=tolerance, shared=shared))
+    if coarse_grid is not None:
+        corners = corners_of(fine.grid, coarse_grid)[0]
+        flows.update(_held_out(fine_t, corners, solver=solver, tolerance=tolerance))
     return flows
 
 
@@ -210,10 +205,10 @@ def held_out_solves(trans: Transmissibilities, coarse_grid: Grid, *, solver: str
     return _held_out(trans, corners_of(trans.grid, coarse_grid)[0], solver=solver, tolerance=tolerance)
 
 
-def _held_out(trans: Transmissibilities, corners: Corners, *, solver: str, tolerance: float,
-              shared: SharedAggregation | None = None) -> dict[str, CornerFlow]:  # fmt: skip
+def _held_out(trans: Transmissibilities, corners: Corners, *, solver: str, tolerance: float
+              ) -> dict[str, CornerFlow]:  # fmt: skip
     """The held-out flows (`HELD_OUT`) on one grid, with its corner regions."""
-    return {"corner": corner_flow(trans, corners, solver=solver, tolerance=tolerance, shared=shared)}
+    return {"corner": corner_flow(trans, corners, solver=solver, tolerance=tolerance)}
 
 
 def coarse_check(

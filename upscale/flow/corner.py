@@ -44,7 +44,6 @@ import numpy as np
 
 from ..errors import InputError
 from ..field import Field, Grid
-from .solvers import SharedAggregation
 from .steady import SteadyFlow, fixed_pressures
 from .transmissibility import Transmissibilities, transmissibilities
 
@@ -146,8 +145,7 @@ def _cells(sizes: np.ndarray, extent: float, axis: int) -> int:
 
 
 def corner_flow(
-    trans: Transmissibilities, corners: Corners, *, solver: str = "auto", tolerance: float = 1e-10,
-    shared: SharedAggregation | None = None,
+    trans: Transmissibilities, corners: Corners, *, solver: str = "auto", tolerance: float = 1e-10
 ) -> CornerFlow:
     """Solve the corner-to-corner flow (module docstring) on one grid.
 
@@ -157,9 +155,8 @@ def corner_flow(
         The grid's transmissibilities.
     corners : Corners
         The regions, in cells of this grid (from `corners_of`).
-    solver, tolerance, shared
-        As in `upscale.flow.steady.pressure_drop` (`shared` serves the flow on
-        `trans`, not the one with k = 1).
+    solver, tolerance
+        As in `upscale.flow.steady.pressure_drop`.
 
     Returns
     -------
@@ -175,8 +172,7 @@ def corner_flow(
     >>> round(flow.mass_balance, 12), flow.rate > 0
     (0.0, True)
     """
-    solved = fixed_pressures(trans, *corner_faces(trans, corners), solver=solver, tolerance=tolerance,
-                             shared=shared)  # fmt: skip
+    solved = fixed_pressures(trans, *corner_faces(trans, corners), solver=solver, tolerance=tolerance)
     unit = unit_rate(trans.grid, corners, solver=solver, tolerance=tolerance)
     return CornerFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, corners=corners,
                       k_eff=solved.outflow / unit)  # fmt: skip

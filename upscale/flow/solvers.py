@@ -70,16 +70,10 @@ class Solver:
         Required scaled residual ``max |b - A x| / diag(A)`` (see `solve`).
     max_iterations : int
         Conjugate-gradient iterations allowed for ``amg``.
-    precondition : callable, optional
-        For ``amg``: a V-cycle set up already (`multigrid_cycle`) on `A` or on a matrix close to it, used
-        instead of setting one up here. Any symmetric positive-definite
-        preconditioner keeps the conjugate gradients valid; a closer one
-        needs fewer iterations.
     """
 
     def __init__(
-        self, A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300,
-        precondition: Callable[[np.ndarray], np.ndarray] | None = None,
+        self, A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300
     ) -> None:
         if method not in SOLVERS:
             raise ValueError(f"solver must be one of {', '.join(SOLVERS)}, got {method!r}")
@@ -87,7 +81,7 @@ class Solver:
         self.tolerance = tolerance
         self.max_iterations = max_iterations
         n = self.A.shape[0]
-        self.method = resolved(method, n)
+        self.method = ("direct" if n <= DIRECT_LIMIT else "amg") if method == "auto" else method
         if self.method == "direct":
             try:
                 self._factor = linalg.splu(self.A.tocsc()) if n else None
@@ -98,7 +92,7 @@ class Solver:
                     "(contrasts of about 1e16 between neighbouring cells); mark such cells as nodata"
                 ) from None
         else:
-            self._cycle = precondition or multigrid_cycle(self.A)
+            self._cycle = multigrid_cycle(self.A)
 
     def solve(self, b: np.ndarray, guess: np.ndarray | None = None) -> tuple[np.ndarray, SolveInfo]:
         """Solve ``A x = b`` until the scaled residual ``max |b - A x| / diag(A)`` meets the tolerance.
@@ -235,13 +229,8 @@ def conjugate_gradients(
     return x, max_iterations
 
 
-def resolved(method: str, n: int) -> str:
-    """The solver `method` means for `n` unknowns: ``auto`` is ``direct`` up to `DIRECT_LIMIT`, else ``amg``."""
-    return ("direct" if n <= DIRECT_LIMIT else "amg") if method == "auto" else method
-
-
-def aggregation(A: sparse.csr_matrix) -> list[sparse.csr_matrix]:
-    """The prolongators of a smoothed-aggregation hierarchy for `A`, finest first.
+def aggregation(A: sparse.csr_matrix) -> tuple[list[tuple[sparse.csr_matrix, sparse.csr_matrix]], sparse.csr_matrix]:
+    """A smoothed-aggregation hierarchy for `A`: (matrix, prolongator) per level, finest first, and the coarsest matrix.
 
     Smoothed aggregation (Vaněk, Mandel & Brezina 1996, "Algebraic
     multigrid by smoothed aggregation for second and fourth order elliptic
@@ -264,33 +253,28 @@ def aggregation(A: sparse.csr_matrix) -> list[sparse.csr_matrix]:
             break  # nothing left to coarsen
         sizes = np.bincount(aggregates.indices, minlength=aggregates.shape[1])
         tentative = aggregates @ sparse.diags(1.0 / np.sqrt(np.maximum(sizes, 1)))
-        row_sums = np.asarray(abs(A).sum(axis=1)).ravel()
+        rows = np.repeat(np.arange(A.shape[0]), np.diff(A.indptr))
+        row_sums = np.bincount(rows, np.abs(A.data), minlength=A.shape[0])
+        del rows
         weights = np.divide(4.0 / 3.0, row_sums, out=np.zeros_like(row_sums), where=row_sums > 0)
-        P = (tentative - sparse.diags(weights) @ (A @ tentative)).tocsr()
-        found.append(P)
+        smoothed = A @ tentative  # scaled row by row in place: fewer copies of the largest matrix
+        smoothed.data *= np.repeat(weights, np.diff(smoothed.indptr))
+        P = (tentative - smoothed).tocsr()
+        del smoothed
+        found.append((A, P))
         A = (P.T @ A @ P).tocsr()
-    return found
+    return found, A
 
 
 #: Unknowns of the coarsest multigrid level at most (solved by its pseudo-inverse).
 COARSEST = 500
 
 
-def multigrid_cycle(
-    A: sparse.csr_matrix, prolongators: list[sparse.csr_matrix] | None = None
-) -> Callable[[np.ndarray], np.ndarray]:
+def multigrid_cycle(A: sparse.csr_matrix) -> Callable[[np.ndarray], np.ndarray]:
     """A multigrid V-cycle for `A` as a preconditioner ``z = M r`` (symmetric positive definite).
 
-    Parameters
-    ----------
-    A : csr_matrix of shape (n, n)
-    prolongators : list of csr_matrix, optional
-        From `aggregation` of `A` (the default) or of a matrix with the same
-        couplings (see `SharedAggregation`); each level's matrix is ``P^T A P``
-        of this `A` either way.
+    The levels are those of `aggregation`.
 
-    Notes
-    -----
     One forward Gauss–Seidel sweep on the way down and one backward sweep
     on the way up make the cycle symmetric, a valid preconditioner for
     conjugate gradients, at half the cost of symmetric sweeps both ways
@@ -302,71 +286,25 @@ def multigrid_cycle(
     from pyamg.amg_core import gauss_seidel
     from scipy.linalg import pinv
 
-    levels = []
-    for P in aggregation(A) if prolongators is None else prolongators:
-        R = P.T.tocsr()
-        levels.append((A, P, R))
-        A = (R @ A @ P).tocsr()
-    coarsest = pinv(A.toarray())
+    levels, last = aggregation(A)
+    coarsest = pinv(last.toarray())
 
     def cycle(b: np.ndarray, level: int = 0) -> np.ndarray:
         if level == len(levels):
             return coarsest @ b
-        A, P, R = levels[level]
+        A, P = levels[level]
         n = A.shape[0]
         x = np.zeros_like(b)
         gauss_seidel(A.indptr, A.indices, A.data, x, b, 0, n, 1)
-        x += P @ cycle(R @ (b - A @ x), level + 1)
+        x += P @ cycle(P.T @ (b - A @ x), level + 1)  # P.T: a view (CSC), no copy held
         gauss_seidel(A.indptr, A.indices, A.data, x, b, n - 1, -1, -1)
         return x
 
     return cycle
 
 
-@dataclass(frozen=True, eq=False)
-class SharedAggregation:
-    """One aggregation for several solves whose matrices differ only on the diagonal of some cells.
-
-    The flows of a check (one per axis, and the corner flow) differ only in
-    which outer faces hold a fixed pressure, i.e. in diagonal entries of the
-    boundary cells. The aggregates and smoothed prolongators — most of a
-    hierarchy's set-up — are made once on the matrix with every outer face
-    closed (`upscale.flow.steady.shared_aggregation`), whose prolongators
-    keep the constant pressure at every boundary, closed or not; each flow
-    then forms its own coarse matrices ``P^T A P``, so its cycle is the
-    Galerkin hierarchy of its own matrix. Measured on a 1 M-cell lognormal
-    field (issue 18): the same iterations as an aggregation per flow. Lost:
-    prolongators made with every fixed face of every flow (4 to 5 times the
-    iterations: near a face closed in one flow they drop the constant), and
-    a whole hierarchy shared as preconditioner (the corner flow, with most
-    faces closed, did not reach 1e-10 in 300 iterations).
-
-    Attributes
-    ----------
-    prolongators : list of csr_matrix
-        From `aggregation`.
-    number : ndarray of int, shape (cells,)
-        Position of every cell of the grid among the shared unknowns, -1 if not one.
-    """
-
-    prolongators: list[sparse.csr_matrix]
-    number: np.ndarray
-
-    def cycle(self, A: sparse.csr_matrix, cells: np.ndarray) -> Callable[[np.ndarray], np.ndarray]:
-        """A V-cycle for the matrix `A` of `cells` (flat cell indices, in the matrix's order).
-
-        A solve of fewer cells than the shared ones (a region anchored in
-        another flow only) sets up its own aggregation.
-        """
-        shared = self.number[cells]
-        if cells.size == self.number.max() + 1 and np.array_equal(shared, np.arange(cells.size)):
-            return multigrid_cycle(A, self.prolongators)
-        return multigrid_cycle(A)
-
-
 def make_solver(
-    A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300,
-    precondition: Callable[[np.ndarray], np.ndarray] | None = None,
+    A: sparse.spmatrix, method: str = "auto", tolerance: float = 1e-10, max_iterations: int = 300
 ) -> Solver:
     """Set up a `Solver` for `A` (see `Solver` for the parameters).
 
@@ -378,4 +316,4 @@ def make_solver(
     >>> info.method, np.round(x, 6).tolist()
     ('direct', [2.0, 3.0, 3.0, 2.0])
     """
-    return Solver(A, method, tolerance, max_iterations, precondition)
+    return Solver(A, method, tolerance, max_iterations)

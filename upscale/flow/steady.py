@@ -25,7 +25,7 @@ from scipy import sparse
 
 from ..field import AXES
 from .islands import anchored
-from .solvers import SharedAggregation, Solver, aggregation, make_solver, resolved
+from .solvers import Solver, make_solver
 from .transmissibility import Transmissibilities
 
 
@@ -84,8 +84,7 @@ class AxisFlow(SteadyFlow):
 
 
 def pressure_drop(
-    trans: Transmissibilities, axis: str, *, solver: str = "auto", tolerance: float = 1e-10,
-    shared: SharedAggregation | None = None,
+    trans: Transmissibilities, axis: str, *, solver: str = "auto", tolerance: float = 1e-10
 ) -> AxisFlow:
     """Solve steady flow with p = 1 on the inlet face and p = 0 on the outlet face of `axis`.
 
@@ -100,9 +99,6 @@ def pressure_drop(
         See `upscale.flow.solvers.Solver`.
     tolerance : float
         Relative residual required of the linear solve.
-    shared : SharedAggregation, optional
-        Multigrid aggregates made for several flows of this grid
-        (`shared_aggregation`), used by a multigrid solve instead of its own.
 
     Returns
     -------
@@ -120,7 +116,7 @@ def pressure_drop(
     """
     a = AXES[axis]
     solved = fixed_pressures(trans, *axis_faces(trans, axis), solver=solver, tolerance=tolerance,
-                             shared=shared, guess=_linear(trans, a))  # fmt: skip
+                             guess=_linear(trans, a))  # fmt: skip
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
     k_eff = float(solved.outflow * length / (sizes[0] * sizes[1]))
@@ -143,35 +139,6 @@ def _linear(trans: Transmissibilities, axis: int) -> np.ndarray:
     shape = [1, 1, 1]
     shape[axis] = sizes.size
     return np.broadcast_to((1.0 - centres / sizes.sum()).reshape(shape), trans.shape).ravel()
-
-
-def shared_aggregation(
-    trans: Transmissibilities, flows: list[tuple[tuple[np.ndarray, np.ndarray], ...]], *, solver: str = "auto"
-) -> SharedAggregation | None:
-    """One aggregation for the multigrid of all of `flows` on this grid (`upscale.flow.solvers.SharedAggregation`).
-
-    Parameters
-    ----------
-    trans : Transmissibilities
-        The grid's transmissibilities.
-    flows : list of (inlet, outlet)
-        The fixed-pressure faces of every flow, as `fixed_pressures` takes them.
-    solver : {'auto', 'amg', 'direct'}
-        As in `pressure_drop`.
-
-    Returns
-    -------
-    SharedAggregation or None
-        Made on the cells of every flow, with every outer face closed; None
-        if `solver` means a direct solve of this many unknowns.
-    """
-    faces = [np.concatenate(parts) for parts in zip(*(side for flow in flows for side in flow))]
-    keep = anchored(trans.regions, faces[0][faces[1] > 0], faces[0][faces[1] > 0])[0]
-    m = int(keep.sum())
-    if resolved(solver, m) != "amg" or not m:
-        return None
-    A, number = _assembled(trans, keep, [])[:2]  # every outer face closed (see SharedAggregation)
-    return SharedAggregation(aggregation(A), number)
 
 
 def _assembled(trans: Transmissibilities, keep: np.ndarray, fixed: list[tuple[np.ndarray, np.ndarray]]) -> tuple:
@@ -211,7 +178,6 @@ def fixed_pressures(
     *,
     solver: str = "auto",
     tolerance: float = 1e-10,
-    shared: SharedAggregation | None = None,
     guess: np.ndarray | None = None,
 ) -> SteadyFlow:
     """Solve steady flow with p = 1 on the inlet faces and p = 0 on the outlet faces, the rest closed.
@@ -225,7 +191,7 @@ def fixed_pressures(
         the half-cell transmissibility t of that cell towards the face
         ((unit of k) · m; from ``trans.boundary``). A cell may appear more than
         once (a corner cell with two inlet faces); faces with t = 0 are left out.
-    solver, tolerance, shared
+    solver, tolerance
         As in `pressure_drop`.
     guess : ndarray of shape (cells,), optional
         First pressures of a multigrid solve, flat over the grid (e.g. the
@@ -248,10 +214,8 @@ def fixed_pressures(
     A, number, faces = _assembled(trans, keep, [(inlet_cells, t_in), (outlet_cells, t_out)])
     inlet, outlet = number[inlet_cells], number[outlet_cells]
     rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet faces, p = 0 on the outlet faces
-    cells = np.flatnonzero(keep)
-    cycle = shared.cycle(A, cells) if shared is not None and resolved(solver, m) == "amg" else None
-    solve = make_solver(A, solver, tolerance, precondition=cycle)
-    p, info = solve.solve(rhs, None if guess is None else guess[cells])
+    solve = make_solver(A, solver, tolerance)
+    p, info = solve.solve(rhs, None if guess is None else guess[keep])
     if m and connected:
         p = _refined(p, solve, tolerance, faces, (inlet, t_in), (outlet, t_out))
     inflow = float(np.sum(t_in * (1.0 - p[inlet]))) if m else 0.0
