@@ -115,60 +115,16 @@ def pressure_drop(
     1.6
     """
     a = AXES[axis]
-    solved = fixed_pressures(trans, *axis_faces(trans, axis), solver=solver, tolerance=tolerance,
-                             guess=_linear(trans, a))  # fmt: skip
+    shape = trans.shape
+    index = np.arange(int(np.prod(shape))).reshape(shape)
+    t_in, t_out = (t.ravel() for t in trans.boundary[a])
+    inlet = np.take(index, [0], axis=a).ravel(), t_in
+    outlet = np.take(index, [shape[a] - 1], axis=a).ravel(), t_out
+    solved = fixed_pressures(trans, inlet, outlet, solver=solver, tolerance=tolerance)
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
     k_eff = float(solved.outflow * length / (sizes[0] * sizes[1]))
     return AxisFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, axis=axis, k_eff=k_eff)
-
-
-def axis_faces(trans: Transmissibilities, axis: str) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
-    """The inlet and the outlet faces across `axis`: (cells, half-cell t) each, for `fixed_pressures`."""
-    a = AXES[axis]
-    shape = trans.shape
-    index = np.arange(int(np.prod(shape))).reshape(shape)
-    t_in, t_out = (t.ravel() for t in trans.boundary[a])
-    return (np.take(index, [0], axis=a).ravel(), t_in), (np.take(index, [shape[a] - 1], axis=a).ravel(), t_out)
-
-
-def _linear(trans: Transmissibilities, axis: int) -> np.ndarray:
-    """The pressure of a uniform field across `axis`: 1 at the inlet face falling to 0 at the outlet, flat."""
-    sizes = trans.grid.sizes(axis)
-    centres = np.cumsum(sizes) - 0.5 * sizes
-    shape = [1, 1, 1]
-    shape[axis] = sizes.size
-    return np.broadcast_to((1.0 - centres / sizes.sum()).reshape(shape), trans.shape).ravel()
-
-
-def _assembled(trans: Transmissibilities, keep: np.ndarray, fixed: list[tuple[np.ndarray, np.ndarray]]) -> tuple:
-    """The matrix of the cells `keep` with fixed pressures on the faces `fixed`: [(cells, t > 0), ...].
-
-    Returns
-    -------
-    A : csr_matrix of shape (m, m)
-    number : ndarray of int, shape (cells,)
-        Position of every cell among the unknowns, -1 if not one.
-    faces : (ndarray, ndarray, ndarray)
-        The two unknowns and T of every face inside the solved set.
-    """
-    n = keep.size
-    first, second, T = trans.connections
-    number = np.full(n, -1)
-    m = int(keep.sum())
-    number[keep] = np.arange(m)
-    # faces inside the solved set (a face joins two cells of the same region)
-    inside = keep[first]
-    i, j, T = number[first[inside]], number[second[inside]], T[inside]
-    diagonal = np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
-    for cells, t in fixed:  # added in turn: the same sums, bit for bit, as ever
-        diagonal = diagonal + np.bincount(number[cells], t, minlength=m)
-    A = sparse.coo_matrix(
-        (np.concatenate([diagonal, -T, -T]),
-         (np.concatenate([np.arange(m), i, j]), np.concatenate([np.arange(m), j, i]))),
-        shape=(m, m),
-    ).tocsr()  # fmt: skip
-    return A, number, (i, j, T)
 
 
 def fixed_pressures(
@@ -178,7 +134,6 @@ def fixed_pressures(
     *,
     solver: str = "auto",
     tolerance: float = 1e-10,
-    guess: np.ndarray | None = None,
 ) -> SteadyFlow:
     """Solve steady flow with p = 1 on the inlet faces and p = 0 on the outlet faces, the rest closed.
 
@@ -193,9 +148,6 @@ def fixed_pressures(
         once (a corner cell with two inlet faces); faces with t = 0 are left out.
     solver, tolerance
         As in `pressure_drop`.
-    guess : ndarray of shape (cells,), optional
-        First pressures of a multigrid solve, flat over the grid (e.g. the
-        linear fall of a uniform field); the result is the same to the tolerance.
 
     Returns
     -------
@@ -207,17 +159,33 @@ def fixed_pressures(
     inlet_cells, t_in = inlet_cells[t_in > 0], t_in[t_in > 0]
     outlet_cells, t_out = outlet_cells[t_out > 0], t_out[t_out > 0]
 
+    first, second, T = trans.connections
     # inactive cells have t = 0 on every face: regions of their own that are never anchored
     keep, connected = anchored(trans.regions, inlet_cells, outlet_cells)
     isolated = int(trans.active.sum() - keep.sum())
+    number = np.full(n, -1)
+    number[keep] = np.arange(int(keep.sum()))
+
+    # faces inside the solved set (a face joins two cells of the same region)
+    inside = keep[first]
+    i, j, T = number[first[inside]], number[second[inside]], T[inside]
     m = int(keep.sum())
-    A, number, faces = _assembled(trans, keep, [(inlet_cells, t_in), (outlet_cells, t_out)])
     inlet, outlet = number[inlet_cells], number[outlet_cells]
     rhs = np.bincount(inlet, t_in, minlength=m)  # p = 1 on the inlet faces, p = 0 on the outlet faces
+    diagonal = (
+        np.bincount(i, T, minlength=m) + np.bincount(j, T, minlength=m)
+        + rhs + np.bincount(outlet, t_out, minlength=m)
+    )  # fmt: skip
+    A = sparse.coo_matrix(
+        (np.concatenate([diagonal, -T, -T]),
+         (np.concatenate([np.arange(m), i, j]), np.concatenate([np.arange(m), j, i]))),
+        shape=(m, m),
+    ).tocsr()  # fmt: skip
+
     solve = make_solver(A, solver, tolerance)
-    p, info = solve.solve(rhs, None if guess is None else guess[keep])
+    p, info = solve.solve(rhs)
     if m and connected:
-        p = _refined(p, solve, tolerance, faces, (inlet, t_in), (outlet, t_out))
+        p = _refined(p, solve, tolerance, (i, j, T), (inlet, t_in), (outlet, t_out))
     inflow = float(np.sum(t_in * (1.0 - p[inlet]))) if m else 0.0
     outflow = float(np.sum(t_out * p[outlet])) if m else 0.0
     if not connected:  # no path joins the faces: nothing flows, the rates are rounding
