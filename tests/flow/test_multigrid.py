@@ -14,6 +14,9 @@ What is tested
   for the corner flow (the channel fields along the channels only: across
   them neither this nor the earlier multigrid reaches 1e-10 in 300
   iterations on these narrow channels, measured; see docs/performance.md).
+* The coarsening follows the spread of the couplings: smoothed
+  aggregation on a lognormal field (σ ln k 1) and on uniform k, classical
+  coarsening on a channel field of 1e8 contrast.
 * The fine half of a check (`fine_solves`) agrees with direct solves where
   one flow anchors a region another does not (an island touching one face).
 """
@@ -28,8 +31,7 @@ from upscale.check.axis import fine_solves
 from upscale.field import Field, Grid
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.corner import corner_flow, corners_of
-from upscale.flow.solvers import Solver, aggregation, multigrid_cycle
-from upscale.flow.steady import axis_faces, fixed_pressures
+from upscale.flow.solvers import SPREAD_LIMIT, aggregation, coupling_spread, multigrid_cycle
 from upscale.gallery.fields import channel_field, lognormal_field
 
 N = np.nan
@@ -56,22 +58,10 @@ def _holes(k):
     return k
 
 
-def _system(k):
-    trans = transmissibilities(Field.from_arrays(k))
-    (cells_in, t_in), (cells_out, t_out) = axis_faces(trans, "x")
-    flow = fixed_pressures(trans, (cells_in, t_in), (cells_out, t_out), solver="direct")
-    return trans, flow
-
-
 def test_the_v_cycle_is_symmetric_and_positive_definite():
     # on a field of moderate contrast: at 1e8 round-off alone breaks the symmetry at 1e-8
-    trans = transmissibilities(Field.from_arrays(_lognormal()))
-    first, second, T = trans.connections
-    n = trans.active.size
-    diagonal = np.bincount(first, T, minlength=n) + np.bincount(second, T, minlength=n)
-    diagonal[: trans.shape[2]] += 1.0  # a fixed pressure on the first row: nonsingular
-    A = sparse.csr_matrix(sparse.diags(diagonal) - sparse.coo_matrix((T, (first, second)), shape=(n, n))
-                          - sparse.coo_matrix((T, (second, first)), shape=(n, n)))  # fmt: skip
+    A = _matrix(_lognormal())
+    n = A.shape[0]
     assert len(aggregation(A)[0]) >= 2  # a real hierarchy, not only the coarsest solve
     cycle = multigrid_cycle(A)
     rng = np.random.default_rng(18_003)
@@ -108,3 +98,20 @@ def test_multigrid_agrees_with_a_direct_solve(name):
         corners = corners_of(field.grid, Grid(dz=[1.0], dy=[10.0] * 16, dx=[10.0] * 16))[0]
         amg, direct = (corner_flow(trans, corners, solver=s) for s in ("amg", "direct"))
         assert amg.k_eff == pytest.approx(direct.k_eff, rel=AGREE)
+
+
+def _matrix(k):
+    """The two-point matrix of a 2D map with p fixed on the face x = 0."""
+    trans = transmissibilities(Field.from_arrays(k))
+    first, second, T = trans.connections
+    n = trans.active.size
+    diagonal = np.bincount(first, T, minlength=n) + np.bincount(second, T, minlength=n)
+    diagonal[:: trans.shape[2]] += trans.boundary[2][0].ravel()
+    return sparse.csr_matrix(sparse.diags(diagonal) - sparse.coo_matrix((T, (first, second)), shape=(n, n))
+                             - sparse.coo_matrix((T, (second, first)), shape=(n, n)))  # fmt: skip
+
+
+def test_the_coarsening_follows_the_spread_of_the_couplings():
+    assert coupling_spread(_matrix(np.ones((40, 40)))) == pytest.approx(1.0)
+    assert coupling_spread(_matrix(_lognormal())) < SPREAD_LIMIT
+    assert coupling_spread(_matrix(_channels())) > 1e6
