@@ -2,14 +2,22 @@
 
 `make_solver` chooses a sparse direct factorisation for small systems and
 algebraic multigrid as a preconditioner of conjugate gradients for large
-ones: pyamg's classical Ruge–Stüben coarsening, which suits the M-matrices
-of two-point flux, with a strength threshold of 0.1. Measured: on the demo
-layer cake (82 000 cells, 0.01 mD shales between 500 mD sands, cells 25
-times wider than thick) 12 iterations and 0.2 s where smoothed aggregation
-needed 138 iterations and 5 s; on the 3D demo (136 000 cells, 10 times
-wider than thick) 29 iterations and 0.9 s against 69 and 1.8 s with the
-default threshold of 0.25; on a 2D lognormal field of 1 million cells
-4.1 s against 5.8 s (default threshold) and 4.9 s (smoothed aggregation). Every solve checks
+ones. From `EARLIER_BELOW` (200 000) unknowns the multigrid is
+`multigrid_cycle` (issue 18): smoothed aggregation set up in CSR where no
+cell's couplings spread over more than `SPREAD_LIMIT` (1e3; lognormal
+fields, thin cells, uniform k), pyamg's classical Ruge–Stüben coarsening
+(strength threshold 0.1) beyond (channels, layers and shales of high
+contrast), both run by our own V-cycle. Measured on 1 M-cell fields, the
+fine half of a check (two or three axes and the corner flow) in 1.6 times
+less CPU than the earlier cycle on a 2D lognormal field (details and the
+whole table in docs/performance.md). Below 200 000 unknowns, the earlier
+cycle (pyamg's classical hierarchy and its ``aspreconditioner``) keeps the
+numbers of earlier versions bit for bit. What the classical choice rests
+on (issue 3): on the demo layer cake (82 000 cells, 0.01 mD shales between
+500 mD sands, cells 25 times wider than thick) 12 iterations and 0.2 s
+where pyamg's smoothed aggregation needed 138 iterations and 5 s; on the 3D
+demo (136 000 cells, 10 times wider than thick) 29 iterations and 0.9 s
+against 69 and 1.8 s with the default threshold of 0.25. Every solve checks
 its residual and raises `ConvergenceError` rather than return a pressure
 that does not satisfy the equations.
 
