@@ -4,10 +4,10 @@
 algebraic multigrid as a preconditioner of conjugate gradients for large
 ones. From `EARLIER_BELOW` (200 000) unknowns the multigrid is
 `multigrid_cycle` (issue 18): smoothed aggregation set up in CSR where no
-cell's couplings spread over more than `SPREAD_LIMIT` (1e3; lognormal
-fields, thin cells, uniform k), pyamg's classical Ruge–Stüben coarsening
-(strength threshold 0.1) beyond (channels, layers and shales of high
-contrast), both run by our own V-cycle. Measured on 1 M-cell fields, the
+cell's couplings spread over more than `SPREAD_LIMIT` (100; lognormal
+fields on cubic cells, uniform k), pyamg's classical Ruge–Stüben
+coarsening (strength threshold 0.1) beyond (thin cells, channels, layers
+and shales of high contrast), both run by our own V-cycle. Measured on 1 M-cell fields, the
 fine half of a check (two or three axes and the corner flow) in 1.6 times
 less CPU than the earlier cycle on a 2D lognormal field (details and the
 whole table in docs/performance.md). Below 200 000 unknowns, the earlier
@@ -311,8 +311,10 @@ def classical(A: sparse.csr_matrix) -> tuple[list[tuple[sparse.csr_matrix, spars
 
 
 #: Largest spread of the couplings of one cell (strongest over weakest) that `multigrid_cycle`
-#: coarsens by smoothed aggregation; beyond it, by classical coarsening (see there).
-SPREAD_LIMIT = 1e3
+#: coarsens by smoothed aggregation; beyond it, by classical coarsening (see there). Measured
+#: spreads: 2D lognormal σ 1 9, 3D 39 (cubic cells), 715 (cells 10 x 10 x 1, where aggregation
+#: needed twice the iterations of classical coarsening), channels of 1e6 1.3e6.
+SPREAD_LIMIT = 100.0
 
 
 def coupling_spread(A: sparse.csr_matrix) -> float:
@@ -337,11 +339,11 @@ def multigrid_cycle(A: sparse.csr_matrix) -> Callable[[np.ndarray], np.ndarray]:
     """A multigrid V-cycle for `A` as a preconditioner ``z = M r`` (symmetric positive definite).
 
     The levels are those of `aggregation` where no cell's couplings spread
-    over more than `SPREAD_LIMIT` (fields of moderate contrast, uniform k:
-    a cheaper set-up and cycle), else those of `classical` (layers, channels
-    and shales of high contrast, where aggregates that straddle a contrast
-    need several times the iterations or did not converge: measured on
-    rows of 1e8 contrast, issue 18).
+    over more than `SPREAD_LIMIT` (fields of moderate contrast on cells of
+    about equal sides, uniform k: a cheaper set-up and cycle), else those of
+    `classical` (thin cells, layers, channels and shales of high contrast,
+    where aggregates that straddle a contrast need twice the iterations or
+    more, or did not converge: measured on rows of 1e8 contrast, issue 18).
 
     One forward Gauss–Seidel sweep on the way down and one backward sweep
     on the way up make the cycle symmetric, a valid preconditioner for
