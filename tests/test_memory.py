@@ -216,7 +216,7 @@ def test_the_memory_found_and_the_default_chunk_follow_a_containers_limit(contai
 
 def test_a_check_that_would_not_fit_in_a_container_is_refused_before_any_work(container, tmp_path):
     raster = write_raster(tmp_path / "k.tif", uncorrelated_lognormal((1024, 1024), 2_906_117_473))
-    limit = 640 * 2**20  # a whole check of 1024² cells needs about 0.85 GB; the machine has 24 GiB
+    limit = 640 * 2**20  # a whole check of 1024² cells needs about 0.65 GB; the machine has 24 GiB
     args = ["run", raster, "--block", "16x16", "--method", "geometric"]
     out = tmp_path / "refused"
     done = container(limit, [UPSCALE_EXE, *args, "--out", out])

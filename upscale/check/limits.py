@@ -14,18 +14,15 @@ from ..errors import InputError
 from ..field import Field
 from ..io.windows import available_memory
 
-#: Fine cells solved at once by the check at most, by default (about 17 GB of solver data in 2D).
+#: Fine cells solved at once by the check at most, by default (about 13 GB of solver data in 2D).
 DEFAULT_LIMIT = 20_000_000
 #: Peak memory of the check per fine cell solved at once (multigrid set-up, pressures and fluxes
-#: of every axis), measured on lognormal fields of 1-2 M cells: 2D 600-620 B, 3D 960 B with the
-#: multigrid of issue 3; the multigrid of issue 18 peaks up to 28 % (2D, a channel field) and 17 %
-#: (3D) higher on 1 M cells (tests/benchmarks/bench_check_solver.py): about 830 B and 1 125 B,
-#: rounded up.
-BYTES_PER_CELL = {2: 850, 3: 1200}
+#: of every axis), measured on lognormal fields of 1-2 M cells: 2D 600-620 B, 3D 960 B, rounded up.
+BYTES_PER_CELL = {2: 650, 3: 1000}
 
 
 #: What to do about a refusal by `too_large`.
-RAISE_LIMIT = "raise `check_limit` if the memory allows (about 0.85 kB per cell in 2D, 1.2 kB in 3D)"
+RAISE_LIMIT = "raise `check_limit` if the memory allows (about 0.65 kB per cell in 2D, 1 kB in 3D)"
 
 
 def too_large(shape: tuple[int, int, int], max_cells: int) -> str | None:
@@ -58,7 +55,7 @@ def short_of_memory(shape: tuple[int, int, int], ndim: int, max_cells: int, avai
 
     Examples
     --------
-    >>> short_of_memory((1, 1000, 1000), 2, 20_000_000, 2**30) is None   # 0.85 GB of 1 GiB
+    >>> short_of_memory((1, 1000, 1000), 2, 20_000_000, 2**30) is None   # 0.65 GB of 1 GiB
     True
     >>> short_of_memory((1, 10_000, 10_000), 2, 20_000_000, 2**30)[:40]
     'the flow check would solve 20000000 fine'
