@@ -14,14 +14,9 @@ What is tested
   for the corner flow (the channel fields along the channels only: across
   them neither this nor the earlier multigrid reaches 1e-10 in 300
   iterations on these narrow channels, measured; see docs/performance.md).
-* Grids below `EARLIER_BELOW` unknowns keep the cycle of earlier versions
-  (their digests are in tests/test_reference_outputs.py); here the limit
-  is lowered to 0 so that these small grids exercise `multigrid_cycle`.
 * The coarsening follows the spread of the couplings: smoothed
   aggregation on a lognormal field (σ ln k 1) and on uniform k, classical
   coarsening on a channel field of 1e8 contrast.
-* The fine half of a check (`fine_solves`) agrees with direct solves where
-  one flow anchors a region another does not (an island touching one face).
 """
 
 from __future__ import annotations
@@ -30,11 +25,9 @@ import numpy as np
 import pytest
 from scipy import sparse
 
-from upscale.check.axis import fine_solves
 from upscale.field import Field, Grid
 from upscale.flow import pressure_drop, transmissibilities
 from upscale.flow.corner import corner_flow, corners_of
-from upscale.flow import solvers
 from upscale.flow.solvers import SPREAD_LIMIT, aggregation, coupling_spread, multigrid_cycle
 from upscale.gallery.fields import channel_field, lognormal_field
 
@@ -42,12 +35,6 @@ N = np.nan
 #: Agreement asked of k_eff between an iterative and a direct solve: the scaled residual is 1e-10
 #: of the pressure drop, and k_eff sums the flux through a face of cells (common practice).
 AGREE = 1e-7
-
-
-@pytest.fixture(autouse=True)
-def _multigrid_of_issue_18_at_any_size(monkeypatch):
-    """The grids here are small; ``amg`` sets up `multigrid_cycle` at any size, not only from 200 000."""
-    monkeypatch.setattr(solvers, "EARLIER_BELOW", 0)
 
 
 def _lognormal(shape=(160, 160), sigma=1.0, seed=18_001):

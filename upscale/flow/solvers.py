@@ -2,22 +2,23 @@
 
 `make_solver` chooses a sparse direct factorisation for small systems and
 algebraic multigrid as a preconditioner of conjugate gradients for large
-ones. From `EARLIER_BELOW` (200 000) unknowns the multigrid is
-`multigrid_cycle` (issue 18): smoothed aggregation set up in CSR where no
-cell's couplings spread over more than `SPREAD_LIMIT` (100; lognormal
-fields on cubic cells, uniform k), pyamg's classical Ruge–Stüben
-coarsening (strength threshold 0.1) beyond (thin cells, channels, layers
-and shales of high contrast), both run by our own V-cycle. Measured on 1 M-cell fields, the
-fine half of a check (two or three axes and the corner flow) in 1.6 times
-less CPU than the earlier cycle on a 2D lognormal field (details and the
-whole table in docs/performance.md). Below 200 000 unknowns, the earlier
-cycle (pyamg's classical hierarchy and its ``aspreconditioner``) keeps the
-numbers of earlier versions bit for bit. What the classical choice rests
-on (issue 3): on the demo layer cake (82 000 cells, 0.01 mD shales between
-500 mD sands, cells 25 times wider than thick) 12 iterations and 0.2 s
-where pyamg's smoothed aggregation needed 138 iterations and 5 s; on the 3D
-demo (136 000 cells, 10 times wider than thick) 29 iterations and 0.9 s
-against 69 and 1.8 s with the default threshold of 0.25. Every solve checks
+ones. The multigrid is `multigrid_cycle` (issue 18): smoothed
+aggregation set up in CSR where no cell's couplings spread over more than
+`SPREAD_LIMIT` (100; lognormal fields on cubic cells, uniform k), pyamg's
+classical Ruge–Stüben coarsening (strength threshold 0.1) beyond (thin
+cells, channels, layers and shales of high contrast), both run by our own
+V-cycle. Measured on 1 M-cell fields, the fine half of a check (two or
+three axes and the corner flow) takes 1.6 times less CPU than the cycle of
+earlier versions (pyamg's classical hierarchy and its
+``aspreconditioner``) on a 2D lognormal field and 2 times less on a 3D one;
+on the demo fields (65 000 to 147 000 cells), one BLAS thread, 1.04 to 1.9
+times less wall time (details and the whole table in docs/performance.md).
+What the classical choice rests on (issue 3): on the demo layer cake
+(82 000 cells, 0.01 mD shales between 500 mD sands, cells 25 times wider
+than thick) 12 iterations and 0.2 s where pyamg's smoothed aggregation
+needed 138 iterations and 5 s; on the 3D demo (136 000 cells, 10 times
+wider than thick) 29 iterations and 0.9 s against 69 and 1.8 s with the
+default threshold of 0.25. Every solve checks
 its residual and raises `ConvergenceError` rather than return a pressure
 that does not satisfy the equations.
 
@@ -42,6 +43,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import sparse
 from scipy.sparse import linalg
+from threadpoolctl import threadpool_limits
 
 from ..errors import UpscaleError
 
@@ -99,10 +101,9 @@ class Solver:
                     "joined to the rest only through transmissibilities below float64 precision "
                     "(contrasts of about 1e16 between neighbouring cells); mark such cells as nodata"
                 ) from None
-        elif n < EARLIER_BELOW:
-            self._cycle, self._fraction = _earlier_cycle(self.A), 0.1
         else:
-            self._cycle, self._fraction = multigrid_cycle(self.A), 1 / 30
+            with threadpool_limits(limits=1, user_api="blas"):  # see `solve`
+                self._cycle = multigrid_cycle(self.A)
 
     def solve(self, b: np.ndarray) -> tuple[np.ndarray, SolveInfo]:
         """Solve ``A x = b`` until the scaled residual ``max |b - A x| / diag(A)`` meets the tolerance.
@@ -138,24 +139,29 @@ class Solver:
             if not scaled(x) <= self.tolerance:
                 x = x + self._factor.solve(b - self.A @ x)
         else:
-            # the 2-norm of r relative to |b| at a fraction of the tolerance usually meets the scaled
-            # residual in one pass (a restart costs the Krylov space built so far): a tenth with
-            # the earlier cycle; a thirtieth with `multigrid_cycle`, which keeps k_eff within 1e-10
-            # across thin layers (a tenth let 1.2e-10 through). Stopping on the scaled residual
-            # itself saved 2-3 iterations but let the mass balance grow to 1e-6 on a channel field.
+            # the 2-norm of r relative to |b| at a thirtieth of the tolerance usually meets the
+            # scaled residual in one pass (a restart costs the Krylov space built so far) and keeps
+            # k_eff within 1e-10 across thin layers (a tenth let 1.2e-10 through). Stopping on the
+            # scaled residual itself saved 2-3 iterations but let the mass balance grow to 1e-6 on
+            # a channel field.
             x, best, norm = np.zeros_like(b), np.inf, np.linalg.norm(b)
-            target = self._fraction * self.tolerance
-            while iterations < self.max_iterations:
-                with np.errstate(all="ignore"):  # a breakdown is caught by the residual below
-                    x, steps = conjugate_gradients(self.A, b, x, self._cycle, target,
-                                                   self.max_iterations - iterations)  # fmt: skip
-                iterations += max(steps, 1)
-                residual = scaled(x)
-                if residual <= self.tolerance or not residual < 0.5 * best:
-                    break  # met, or no longer improving (round-off)
-                best = residual
-                # not met: ask for a thousandfold reduction of the current |r|
-                target = max(1e-3 * np.linalg.norm(b - self.A @ x) / norm, 1e-16)
+            target = self.tolerance / 30
+            # one BLAS thread: the iterations' dot products and norms of 1e5-1e6 entries ran
+            # slower split over threads (0.74 s against 0.65 s for the fine half of the check of
+            # the 256² demo, idle machine; 7.3 s against 6.1 s for a whole run on a busy one), and
+            # their sums then no longer depend on how many cores the machine has
+            with threadpool_limits(limits=1, user_api="blas"):
+                while iterations < self.max_iterations:
+                    with np.errstate(all="ignore"):  # a breakdown is caught by the residual below
+                        x, steps = conjugate_gradients(self.A, b, x, self._cycle, target,
+                                                       self.max_iterations - iterations)  # fmt: skip
+                    iterations += max(steps, 1)
+                    residual = scaled(x)
+                    if residual <= self.tolerance or not residual < 0.5 * best:
+                        break  # met, or no longer improving (round-off)
+                    best = residual
+                    # not met: ask for a thousandfold reduction of the current |r|
+                    target = max(1e-3 * np.linalg.norm(b - self.A @ x) / norm, 1e-16)
         residual = scaled(x)
         if not residual <= self.tolerance:  # also catches NaN
             raise ConvergenceError(
@@ -234,27 +240,12 @@ def conjugate_gradients(
     return x, max_iterations
 
 
-#: Unknowns from which ``amg`` sets up `multigrid_cycle` (issue 18); below, the cycle of earlier
-#: versions (`_earlier_cycle`), so that the checks of grids up to this size (the demo fields, up to
-#: 147 456 cells) give the same numbers, bit for bit, as before.
-EARLIER_BELOW = 200_000
+#: A multigrid hierarchy: (matrix, prolongator) per level, finest first, and the coarsest matrix.
+Hierarchy = tuple[list[tuple[sparse.csr_matrix, sparse.csr_matrix]], sparse.csr_matrix]
 
 
-def _earlier_cycle(A: sparse.csr_matrix) -> Callable[[np.ndarray], np.ndarray]:
-    """The V-cycle of earlier versions: pyamg's classical hierarchy and its ``aspreconditioner``."""
-    import pyamg
-
-    hierarchy = pyamg.ruge_stuben_solver(
-        A,
-        strength=("classical", {"theta": 0.1}),
-        presmoother=("gauss_seidel", {"sweep": "forward"}),
-        postsmoother=("gauss_seidel", {"sweep": "backward"}),
-    )
-    return hierarchy.aspreconditioner(cycle="V").matvec
-
-
-def aggregation(A: sparse.csr_matrix) -> tuple[list[tuple[sparse.csr_matrix, sparse.csr_matrix]], sparse.csr_matrix]:
-    """A smoothed-aggregation hierarchy for `A`: (matrix, prolongator) per level, finest first, and the coarsest matrix.
+def aggregation(A: sparse.csr_matrix) -> Hierarchy:
+    """A smoothed-aggregation hierarchy for `A`: (matrix, prolongator) per level and the coarsest matrix.
 
     Smoothed aggregation (Vaněk, Mandel & Brezina 1996, "Algebraic
     multigrid by smoothed aggregation for second and fourth order elliptic
@@ -294,8 +285,8 @@ def aggregation(A: sparse.csr_matrix) -> tuple[list[tuple[sparse.csr_matrix, spa
 COARSEST = 500
 
 
-def classical(A: sparse.csr_matrix) -> tuple[list[tuple[sparse.csr_matrix, sparse.csr_matrix]], sparse.csr_matrix]:
-    """pyamg's classical Ruge–Stüben hierarchy for `A` (strength threshold 0.1), as `aggregation` returns one.
+def classical(A: sparse.csr_matrix) -> Hierarchy:
+    """The classical Ruge–Stüben hierarchy of pyamg for `A` (strength threshold 0.1), as `aggregation` gives.
 
     Measured while building the solver (issue 3): on the demo layer cake
     (0.01 mD shales between 500 mD sands, cells 25 times wider than thick)
