@@ -52,7 +52,7 @@ from ..errors import InputError
 
 #: kz contrast (ratio) below the typical layer from which a run of layers is a barrier.
 BARRIER_CONTRAST = 100.0
-_SIZES = re.compile(r"^\s*\d+\s*(,\s*\d+\s*)*$")
+_SIZES = re.compile(r"^\s*-?\d+\s*(,\s*-?\d+\s*)*$")  # signs are read, to be refused by name
 _AUTO = re.compile(r"^\s*auto\s*:\s*(?:(\d+)|(\d+(?:\.\d*)?)\s*%)\s*$", re.IGNORECASE)
 
 
@@ -105,8 +105,8 @@ def parse_sizes(text: str) -> tuple[int, ...] | None:
 
     Examples
     --------
-    >>> parse_sizes("2, 2,4,8"), parse_sizes("8"), parse_sizes("auto:3")
-    ((2, 2, 4, 8), (8,), None)
+    >>> parse_sizes("2, 2,4,8"), parse_sizes("8"), parse_sizes("2,-1"), parse_sizes("auto:3")
+    ((2, 2, 4, 8), (8,), (2, -1), None)
     """
     if not _SIZES.match(text):
         return None

@@ -143,7 +143,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     settings.require_libraries()
     steps = Steps(say, prefix)
     with steps("read_s", f"reading {path}"):
-        fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
+        fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.chunk_cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
     wells = _wells(settings, fine)
