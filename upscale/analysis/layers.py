@@ -7,6 +7,9 @@ thousandth of the smallest positive value of that property (the floor of
 rather than minus infinity. `choose_groups` passes the profile to the exact
 optimal grouping of `upscale.grid.layers` and says, for every boundary it
 keeps, why: the barrier it holds apart or the contrast between the groups.
+`resolve_layers` does both for a block whose layers are ``auto:N`` or
+``auto:P%`` and returns the block with the grouping chosen, and the record
+of the choice (`LayerChoice`) that a run prints and keeps in summary.json.
 """
 
 from __future__ import annotations
@@ -17,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from ..field import Field
-from ..grid.blocks import RELATIVE_FLOOR
+from ..grid.blocks import RELATIVE_FLOOR, BlockSpec
 from ..grid.layers import Grouping, LayerRequest, barrier_runs, group_edges, optimal_groups
 from ..parallel import compute_together
 
@@ -193,3 +196,84 @@ def _group_means(profile: LayerProfile, start: int, stop: int) -> tuple[float, f
 def _ratio(a: float, b: float) -> float:
     """exp|a - b|: how many times the larger geometric mean exceeds the smaller one."""
     return float(np.exp(abs(a - b)))
+
+
+@dataclass(frozen=True)
+class LayerChoice:
+    """An automatic grouping of the layers as chosen, and why.
+
+    Attributes
+    ----------
+    request : LayerRequest
+        What was asked (``auto:N`` or ``auto:P%``).
+    grouping : Grouping
+        The grouping chosen, its loss and the barriers.
+    boundaries : list of Boundary
+        Every boundary between coarse layers and its reason.
+    """
+
+    request: LayerRequest
+    grouping: Grouping
+    boundaries: list[Boundary]
+
+    def summary(self) -> dict[str, Any]:
+        """As summary.json records it: layers numbered from 1; loss: share of the between-layer variance."""
+        g = self.grouping
+        return {"request": str(self.request), "sizes": list(g.sizes), "loss": g.loss,
+                "buried_barriers": g.buried,
+                "barriers": [{"first": a + 1, "last": b} for a, b in g.barriers],
+                "boundaries": [{"after_layer": b.after, "reason": b.reason, "text": b.text}
+                               for b in self.boundaries]}  # fmt: skip
+
+
+def choice_lines(layers: dict[str, Any]) -> list[str]:
+    """Lines for people from `LayerChoice.summary`: the grouping, its loss and each boundary's reason.
+
+    Examples
+    --------
+    >>> choice_lines({"request": "auto:2", "sizes": [1, 2], "loss": 0.25, "buried_barriers": 0,
+    ...               "boundaries": [{"after_layer": 1, "text": "contrast: ..."}]})
+    ... # doctest: +NORMALIZE_WHITESPACE
+    ['auto:2 chose 1,2 fine layers per coarse layer (top down), losing 25 % of the between-layer variance',
+     'after layer 1: contrast: ...']
+    """
+    sizes = ",".join(map(str, layers["sizes"]))
+    head = (f"{layers['request']} chose {sizes} fine layers per coarse layer (top down), losing "
+            f"{100 * layers['loss']:.3g} % of the between-layer variance")  # fmt: skip
+    if layers["buried_barriers"]:
+        head += f"; {layers['buried_barriers']} barrier(s) inside a coarse layer (too few layers for all)"
+    return [head] + [f"after layer {b['after_layer']}: {b['text']}" for b in layers["boundaries"]]
+
+
+def resolve_layers(spec: BlockSpec, field: Field) -> tuple[BlockSpec, LayerChoice | None]:
+    """`spec` with its automatic layers chosen from `field`; unchanged (and None) without a request.
+
+    Parameters
+    ----------
+    spec : BlockSpec
+        A block whose z part may be ``auto:N`` or ``auto:P%``.
+    field : Field
+        The fine 3D model.
+
+    Returns
+    -------
+    (BlockSpec, LayerChoice or None)
+
+    Raises
+    ------
+    InputError
+        If `spec` does not fit the field (a 2D map, more coarse layers than fine ones...).
+
+    Examples
+    --------
+    >>> k = np.stack([np.full((2, 2), v) for v in (100.0, 120.0, 0.01, 90.0, 110.0)])
+    >>> field = Field.from_arrays(k, dz=1.0, three_d=True)
+    >>> spec, choice = resolve_layers(BlockSpec.parse("2x2xauto:3"), field)
+    >>> str(spec), [b.reason for b in choice.boundaries]
+    ('2x2x2,1,2', ['barrier', 'barrier'])
+    """
+    if spec.request is None or spec.groups is not None:
+        return spec, None
+    spec.check(field.shape, field.ndim)
+    grouping, boundaries = choose_groups(layer_profile(field), spec.request)
+    return spec.resolved(grouping.sizes), LayerChoice(spec.request, grouping, boundaries)

@@ -241,7 +241,13 @@ class BlockSpec:
 
     @property
     def chunk_cells(self) -> tuple[int, int, int]:
-        """Cells along ``(layers, rows, columns)`` that every chunk of the data must hold whole (`span`)."""
+        """Cells along ``(layers, rows, columns)`` that every chunk of the data must hold whole (`span`).
+
+        Layers still to be chosen (``auto``) ask for none: the chunks are
+        aligned to the grouping when it is applied.
+        """
+        if self.groups is None and self.request is not None:
+            return (1, self.ny, self.nx)
         return (span(self._z), self.ny, self.nx)
 
     @property
