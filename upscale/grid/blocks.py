@@ -278,9 +278,11 @@ class BlockSpec:
         ndim : int
             2 for a map, 3 for a 3D model.
         """
-        if ndim == 2 and (self.nz > 1 or self.groups is not None or self.request is not None):
-            what = "a z size" if self.nz > 1 else "a grouping of the layers"
-            raise InputError(f"block {self} has {what} but the field is a 2D map; use NXxNY")
+        if ndim == 2 and self.nz > 1:
+            raise InputError(f"block {self} has a z size but the field is a 2D map; use NXxNY")
+        if ndim == 2 and (self.groups is not None or self.request is not None):
+            raise InputError(f"block {self} has a grouping of the layers but the field is a 2D map; "
+                             "use NXxNY")  # fmt: skip
         if self.groups is not None:
             check_sizes(self.groups, shape[0])
         count = self.request.count if self.request is not None and self.groups is None else None
