@@ -131,8 +131,10 @@ def test_dask_chunks_give_the_same_bits_as_numpy_with_a_grouping(method):
         assert np.array_equal(getattr(whole.coarse, name), getattr(chunked.coarse, name), equal_nan=True)
 
 
-@pytest.mark.parametrize("method, why", [("renormalization", "it halves every block at each step"),
-                                         ("local-global", "its regions interpolate between blocks")])  # fmt: skip
+@pytest.mark.parametrize("method, why", [
+    ("renormalization", "it halves every block at each step"),
+    ("local-global", "its regions interpolate between blocks"),
+])  # fmt: skip
 def test_methods_that_cannot_take_a_grouping_say_why(method, why):
     _, _, field = _layered()
     with pytest.raises(InputError, match=rf"^method {method} cannot take coarse layers of unequal thickness "
