@@ -123,3 +123,14 @@ def test_a_grouping_on_a_map_and_automatic_layers_for_an_ensemble_are_one_error_
                               tmp_path / "ensemble")  # fmt: skip
     assert code != 0 and stderr.startswith("upscale: error: block 4x4xauto:2: automatic layers are chosen "
                                            "from one field; for an ensemble give the grouping")  # fmt: skip
+
+
+def test_an_ensemble_takes_an_explicit_grouping(run_cli, tmp_path):
+    rng = np.random.default_rng(7)
+    fields = [write_raster(tmp_path / f"r{i}.tif", rng.lognormal(3.0, 1.0, (6, 8, 8))) for i in range(2)]
+    out = tmp_path / "ensemble"
+    code, _, stderr = run_cli("run", *fields, "--dz", _dz(), "--block", "4x4x1,3,2", "--method", "geometric",
+                              "--report", "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    assert json.loads((out / "ensemble.json").read_text())["block"]["z"] == list(GROUPS)
+    assert "Blocks: 4x4x1,3,2 fine cells (x first)" in (out / "report.html").read_text()
