@@ -142,7 +142,7 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
     coarse, files = result.coarse, []
     for name, values in {**coarse.properties(), **result.tensor}.items():
         unit = PROPERTY_UNITS.get(name, coarse.unit)
-        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
+        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags, depths=True)
         files.append(f"{name}.tif")
     direct = result.transmissibilities() if result.faces is not None else None
     for axis in "xyz"[: coarse.ndim] if direct is not None else ():
@@ -151,7 +151,7 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
         shifted = coarse.grid.transform @ half if coarse.grid.transform and axis != "z" else None
         write_property(stage / FACE_FILES[axis], face_raster(direct, a), coarse.grid,
                        f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
-                       transform=shifted)  # fmt: skip
+                       transform=shifted, depths=True)  # fmt: skip
         files.append(FACE_FILES[axis])
     return files
 
