@@ -149,6 +149,9 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     block, layers = resolve_layers(settings.block, fine)
     settings = replace(settings, block=block)
+    if layers is not None:  # opened again (lazily) in chunks that hold every layer within the chunk budget
+        fine = replace(read_field(path, chunk_bytes=settings.chunk_bytes, block=block.chunk_cells,
+                                  checksum=False, **settings.read), sources=fine.sources)  # fmt: skip
     wells = _wells(settings, fine)
     fits_flows = METHODS[settings.method].global_flows
     if fits_flows:
