@@ -6,8 +6,8 @@ What is tested
   mean and spread of ln kx and ln kz, zeros counted at the floor, a layer
   without active cells; the same from a dask array in chunks.
 * The demo layer cake (0.01 mD shales every fifth layer): the interior
-  shales are found as barriers and, from 4 coarse layers up, every one is
-  kept (none buried), each boundary at a barrier saying so.
+  shales are found as barriers and, from 8 coarse layers up, every one is
+  kept as coarse layers of their own (none merged), each boundary at a barrier saying so.
 """
 
 from __future__ import annotations
@@ -57,13 +57,14 @@ def test_profile_matches_numpy(chunks):
 def test_layer_cake_keeps_its_shales():
     fine = read_field("demo-fields/marrowfen_layered.tif", dz=1.0, kv_kh=0.1)
     profile = layer_profile(fine)
-    # the story of the demo: a 0.01 mD shale every fifth layer; the last one has nothing below it
-    assert profile.barriers == [(4, 5), (9, 10), (14, 15)]
-    for count in range(4, 12):
+    # the story of the demo: a 0.01 mD shale every fifth layer, the last one at the base
+    assert profile.barriers == [(4, 5), (9, 10), (14, 15), (19, 20)]
+    for count in range(8, 13):  # three inner shales need two boundaries each, the base one
         grouping, boundaries = choose_groups(profile, LayerRequest(count=count))
-        assert grouping.buried == 0 and len(grouping.sizes) == count
+        assert grouping.merged == 0 and len(grouping.sizes) == count
         kept = {b.after for b in boundaries if b.reason == "barrier"}
         for start, stop in profile.barriers:
-            assert start in kept or stop in kept
+            assert {start, stop} - {20} <= kept
+    assert choose_groups(profile, LayerRequest(count=7))[0].merged == 1
     summary = profile.summary()
     assert len(summary["layers"]) == 20 and summary["barriers"][0] == {"first": 5, "last": 5}

@@ -92,7 +92,7 @@ def test_automatic_layers_keep_the_shale_are_printed_and_recorded_with_wells(run
     summary = json.loads((out / "summary.json").read_text())
     layers = summary["layers"]
     assert layers["request"] == "auto:3" and layers["sizes"] == [2, 1, 3]  # the shale alone
-    assert layers["barriers"] == [{"first": 3, "last": 3}] and layers["buried_barriers"] == 0
+    assert layers["barriers"] == [{"first": 3, "last": 3}] and layers["merged_barriers"] == 0
     assert [b["reason"] for b in layers["boundaries"]] == ["barrier", "barrier"]
     assert summary["block"]["z"] == [2, 1, 3] and summary["block"]["layers"] == "auto:3"
     assert "layers       auto:3 chose 2,1,3 fine layers per coarse layer" in stdout

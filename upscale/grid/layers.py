@@ -27,13 +27,15 @@ Barriers
 --------
 A barrier is a run of consecutive layers whose z_l lies at least
 ``ln BARRIER_CONTRAST`` below the typical layer's (the w-weighted median of
-z_l), with layers that are not tight above and below it: a shale that holds
-vertical flow back between two permeable units. A group that holds layers
-on both sides of a barrier *buries* it: the coarse cells join the rock above
-and below as if the shale were not there. `optimal_groups` buries as few
+z_l): a shale that holds vertical flow back, inside the model or at its top
+or base (there it controls the flow across the model as much). A barrier is
+*kept* when its layers make coarse layers of their own; a group that holds
+some of its layers together with other layers *merges* it, and the averages
+of a merged block let flow through the barrier (measured: a 0.01 mD shale
+at the edge of a group of 100-200 mD sands turns a z check error of 0.01 %
+into 10^4 % with the geometric mean). `optimal_groups` merges as few
 barriers as the number of groups allows, and among those groupings it
-returns one of least loss (lexicographic order, our choice): a barrier is
-kept as a coarse layer of its own or at the boundary of two groups.
+returns one of least loss (lexicographic order, our choice).
 
 The optimum over every contiguous grouping is found exactly by dynamic
 programming over the layer sequence (Bellman 1957; the optimal partition of
@@ -144,7 +146,7 @@ def group_edges(sizes: tuple[int, ...]) -> np.ndarray:
 
 
 def barrier_runs(weight: np.ndarray, z: np.ndarray) -> list[tuple[int, int]]:
-    """The barriers of a layer profile: runs ``[start, stop)`` of tight layers with open layers on both sides.
+    """The barriers of a layer profile: runs ``[start, stop)`` of tight layers.
 
     Parameters
     ----------
@@ -157,13 +159,13 @@ def barrier_runs(weight: np.ndarray, z: np.ndarray) -> list[tuple[int, int]]:
     -------
     list of (int, int)
         Fine-layer ranges, top down. A layer without active cells is neither
-        tight nor open: it neither starts nor ends a run nor closes one.
+        tight nor open: it does not end a run, and a run does not end with it.
 
     Examples
     --------
     >>> z = np.log([100.0, 100.0, 0.01, 0.01, 100.0, 100.0, 0.01])
-    >>> barrier_runs(np.ones(7), z)  # the last layer has nothing below it
-    [(2, 4)]
+    >>> barrier_runs(np.ones(7), z)
+    [(2, 4), (6, 7)]
     """
     present = weight > 0
     if not present.any():
@@ -171,12 +173,11 @@ def barrier_runs(weight: np.ndarray, z: np.ndarray) -> list[tuple[int, int]]:
     tight = present & (z <= _weighted_median(z[present], weight[present]) - np.log(BARRIER_CONTRAST))
     open_ = present & ~tight
     runs, start = [], None
-    for layer in range(z.size):
-        if tight[layer] and start is None:
+    for layer in range(z.size + 1):
+        if layer < z.size and tight[layer] and start is None:
             start = layer
-        elif open_[layer] and start is not None:
-            if open_[:start].any():
-                runs.append((start, _last(tight, layer) + 1))
+        elif start is not None and (layer == z.size or open_[layer]):
+            runs.append((start, _last(tight, layer) + 1))
             start = None
     return runs
 
@@ -204,15 +205,16 @@ class Grouping:
     loss : float
         Loss of the grouping as a fraction of the whole between-layer
         variance (0 keeps every contrast; 0 also when the layers do not differ).
-    buried : int
-        Barriers held inside a group with layers on both sides.
+    merged : int
+        Barriers whose layers share a coarse layer with other layers, counted
+        once per such coarse layer.
     barriers : list of (int, int)
         Every barrier of the profile, ``[start, stop)`` fine layers.
     """
 
     sizes: tuple[int, ...]
     loss: float
-    buried: int
+    merged: int
     barriers: list[tuple[int, int]]
 
 
@@ -241,17 +243,17 @@ def group_costs(weight: np.ndarray, x: np.ndarray, z: np.ndarray) -> np.ndarray:
     return cost
 
 
-def _burials(size: int, runs: list[tuple[int, int]]) -> np.ndarray:
-    """``count[i, j]``: barriers that the group of layers ``[i, j)`` buries, shape (L + 1, L + 1)."""
-    starts = np.arange(size + 1)
+def _mergers(size: int, runs: list[tuple[int, int]]) -> np.ndarray:
+    """``count[i, j]``: barriers the group of layers ``[i, j)`` merges with other layers, (L + 1, L + 1)."""
+    first, end = np.arange(size + 1)[:, None], np.arange(size + 1)[None, :]
     count = np.zeros((size + 1, size + 1))
     for start, stop in runs:
-        count += (starts[:, None] < start) & (starts[None, :] > stop)
+        count += (first < stop) & (end > start) & ((first < start) | (end > stop))
     return count
 
 
 def optimal_groups(weight: np.ndarray, x: np.ndarray, z: np.ndarray, request: LayerRequest) -> Grouping:
-    """The grouping of the layers that buries the fewest barriers and then loses the least.
+    """The grouping of the layers that merges the fewest barriers and then loses the least.
 
     Parameters
     ----------
@@ -261,8 +263,7 @@ def optimal_groups(weight: np.ndarray, x: np.ndarray, z: np.ndarray, request: La
         Mean ln kx and ln kz of each layer (any one unit of k).
     request : LayerRequest
         ``count`` coarse layers, or the fewest that keep ``keep`` of the
-        between-layer variance (and bury no more barriers than one group per
-        layer would, i.e. none).
+        between-layer variance and merge no barrier.
 
     Returns
     -------
@@ -285,8 +286,8 @@ def optimal_groups(weight: np.ndarray, x: np.ndarray, z: np.ndarray, request: La
     runs = barrier_runs(weight, z)
     cost = group_costs(weight, x, z)
     total = float(cost[0, layers])
-    # lexicographic: a buried barrier outweighs any loss (every grouping loses at most `total`)
-    key = cost + _burials(layers, runs) * (2.0 * total + 1.0)
+    # lexicographic: a merged barrier outweighs any loss (every grouping loses at most `total`)
+    key = cost + _mergers(layers, runs) * (2.0 * total + 1.0)
     most = request.count if request.count is not None else layers
     best = key[0].copy()  # best[j]: least key of layers [0, j) in one group
     choices = []
@@ -300,8 +301,8 @@ def optimal_groups(weight: np.ndarray, x: np.ndarray, z: np.ndarray, request: La
     sizes = _traced(choices, layers)
     edges = group_edges(sizes)
     found = sum(float(cost[a, b]) for a, b in zip(edges[:-1], edges[1:]))
-    buried = int(sum(_burials(layers, runs)[a, b] for a, b in zip(edges[:-1], edges[1:])))
-    return Grouping(sizes=sizes, loss=_loss(found, total), buried=buried, barriers=runs)
+    merged = int(sum(_mergers(layers, runs)[a, b] for a, b in zip(edges[:-1], edges[1:])))
+    return Grouping(sizes=sizes, loss=_loss(found, total), merged=merged, barriers=runs)
 
 
 def _loss(found: float, total: float) -> float:
