@@ -14,14 +14,19 @@ from typing import Any
 
 import numpy as np
 
+from .grid.blocks import Size, axis_edges, span
+
 
 def is_dask(array: Any) -> bool:
     """True for a dask array (checked without importing dask)."""
     return type(array).__module__.startswith("dask.")
 
 
-def align_chunks(array: Any, block: tuple[int, int, int], least: tuple[int, int, int] = (0, 0, 0)) -> Any:
+def align_chunks(array: Any, block: tuple[Size, int, int], least: tuple[int, int, int] = (0, 0, 0)) -> Any:
     """Rechunk a dask array so every chunk holds whole blocks (the last may be smaller).
+
+    A grouping of the layers (`upscale.grid.blocks.Size`) is held whole: one
+    chunk along z.
 
     Chunks already aligned are left alone; otherwise each axis gets chunks of
     the block multiple nearest its current typical chunk size. With `least`,
@@ -30,7 +35,7 @@ def align_chunks(array: Any, block: tuple[int, int, int], least: tuple[int, int,
     chunks need.
     """
     new = []
-    for chunks, b, m in zip(array.chunks, block, least):
+    for chunks, b, m in zip(array.chunks, map(span, block), least):
         n = sum(chunks)
         if not (all(c % b == 0 for c in chunks[:-1]) and min(chunks) >= min(m, n)):
             size = max(b, round(max(chunks) / b) * b, -(-m // b) * b)
@@ -47,7 +52,7 @@ def _run_chunk(
     *,
     kernel: Callable[..., np.ndarray],
     dz: np.ndarray,
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     axis: int,
     options: dict,
     block_info: dict | None = None,
@@ -60,7 +65,7 @@ def apply_blocks(
     kernel: Callable[..., np.ndarray],
     k: Any,
     dz: np.ndarray,
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     axis: int = 2,
     **options: Any,
 ) -> Any:
@@ -74,8 +79,9 @@ def apply_blocks(
         Fine values; NaN marks inactive cells.
     dz : ndarray of shape (L,)
         Layer thicknesses in m.
-    block : (int, int, int)
-        Cells per block ``(layers, rows, columns)``.
+    block : (Size, int, int)
+        Cells per block ``(layers, rows, columns)``; layers may be a grouping
+        (`upscale.grid.blocks.Size`).
     axis : int
         Flow axis in array order (0 = z, 1 = y, 2 = x).
     **options
@@ -100,7 +106,7 @@ def apply_blocks(
     import dask.array as da
 
     k = align_chunks(k, block)
-    out_chunks = tuple(tuple(-(-c // b) for c in cs) for cs, b in zip(k.chunks, block))
+    out_chunks = _coarse_chunks(k.chunks, block)
     return da.map_blocks(
         _run_chunk,
         k,
@@ -113,6 +119,12 @@ def apply_blocks(
         dtype=np.float64,
         meta=np.empty((0, 0, 0), dtype=np.float64),
     )
+
+
+def _coarse_chunks(chunks: tuple[tuple[int, ...], ...], block: tuple[Size, int, int]
+                   ) -> tuple[tuple[int, ...], ...]:  # fmt: skip
+    """Coarse blocks of each chunk of aligned `chunks` (a grouping's axis is one chunk)."""
+    return tuple(tuple(axis_edges(b, c).size - 1 for c in cs) for cs, b in zip(chunks, block))
 
 
 def _place(location: tuple[int, ...], core_chunks: tuple[tuple[int, ...], ...],
@@ -132,7 +144,7 @@ def _run_region_chunk(
     dz: np.ndarray,
     depth: tuple[int, int, int],
     core_chunks: tuple[tuple[int, ...], ...],
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     options: dict,
     block_info: dict | None = None,
 ) -> np.ndarray:
@@ -172,7 +184,7 @@ def apply_regions(
     function: Callable[..., np.ndarray],
     arrays: list[Any],
     dz: np.ndarray,
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     depth: tuple[int, int, int],
     outputs: int,
     **options: Any,
@@ -190,8 +202,9 @@ def apply_regions(
         Inputs on the same grid (NaN marks inactive cells).
     dz : ndarray of shape (L,)
         Layer thicknesses in m (the chunk's own slice is passed on).
-    block : (int, int, int)
-        Cells per block ``(layers, rows, columns)``.
+    block : (Size, int, int)
+        Cells per block ``(layers, rows, columns)``; layers may be a grouping
+        (`upscale.grid.blocks.Size`).
     depth : (int, int, int)
         Cells of the neighbouring chunks each chunk sees along each axis.
     outputs : int
@@ -210,9 +223,7 @@ def apply_regions(
     import dask.array as da
 
     widened, core_chunks, sides = _overlapping(arrays, block, depth)
-    out_chunks = ((outputs,),) + tuple(
-        tuple(-(-c // b) for c in cs) for cs, b in zip(core_chunks, block)
-    )
+    out_chunks = ((outputs,),) + _coarse_chunks(core_chunks, block)
     return da.map_blocks(
         _run_region_chunk,
         *widened,
@@ -233,7 +244,7 @@ def map_regions(
     function: Callable[..., Any],
     arrays: list[Any],
     dz: np.ndarray,
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     depth: tuple[int, int, int],
     **options: Any,
 ) -> Any:

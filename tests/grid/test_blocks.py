@@ -12,6 +12,13 @@ What is tested
   leave no gap.
 * `coarse_grid`: block sizes are the sums of the fine sizes (edge blocks
   keep their true size), the transform is scaled by the block, the CRS kept.
+* Groupings of the layers (issue 19): ``NXxNYxS1,S2,...`` and ``auto:N`` /
+  ``auto:P%`` parse, print back and round-trip through `summary`; `edges`,
+  `coarse_shape` and `coarse_grid` give the true coarse thicknesses; a
+  uniform grouping written out (``2,2,2``) is the same partition as ``NZ``;
+  every bad grouping is refused in one line (sizes that do not add up, a
+  zero or negative group, a grouping or ``auto`` on a 2D map, more coarse
+  layers than fine ones); remainder policies leave grouped layers whole.
 """
 
 from __future__ import annotations
@@ -240,3 +247,69 @@ def test_coarse_transform_is_scaled_by_the_block():
     # coarse pixel (1, 2) starts where fine pixel (4, 6) starts
     assert coarse.transform @ (1, 2) == transform @ (4, 6)
     assert BlockSpec(4, 3).coarse_grid(_grid((1, 12, 20), 228_404_517)).transform is None
+
+
+# --------------------------------------------------------------------------------------
+# groupings of the layers (issue 19)
+# --------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("text", ["8x8x2,2,4,8", "4x2x1,3", "8x8xauto:4", "8x8xauto:90%"])
+def test_grouping_parses_prints_back_and_round_trips_through_the_summary(text):
+    spec = BlockSpec.parse(text)
+    assert str(spec) == text and BlockSpec.parse(str(spec)) == spec
+    assert BlockSpec.from_summary(spec.summary()) == spec
+
+
+def test_grouping_summary_records_the_sizes_and_the_request():
+    assert BlockSpec.parse("8x8x2,2,4,8").summary()["z"] == [2, 2, 4, 8]
+    auto = BlockSpec.parse("8x8xauto:4")
+    assert auto.summary()["layers"] == "auto:4"
+    chosen = auto.resolved((1, 3, 4, 8))
+    assert chosen.summary()["z"] == [1, 3, 4, 8] and chosen.summary()["layers"] == "auto:4"
+    assert BlockSpec.from_summary(chosen.summary()) == chosen
+    assert BlockSpec.parse("8x8x2").summary()["z"] == 2  # a uniform NZ is recorded as before
+
+
+def test_grouping_edges_shape_and_true_thicknesses():
+    spec = BlockSpec.parse("2x2x1,3,2")
+    assert spec.cells == ((1, 3, 2), 2, 2)
+    assert spec.edges(6, 0).tolist() == [0, 1, 4, 6]
+    assert spec.coarse_shape((6, 4, 4)) == (3, 2, 2)
+    dz = np.array([1.0, 0.5, 2.0, 3.0, 0.25, 4.0])
+    grid = Grid(dz=dz, dy=np.ones(4), dx=np.ones(4))
+    np.testing.assert_array_equal(spec.coarse_grid(grid).dz, [1.0, 5.5, 4.25])
+
+
+def test_uniform_grouping_written_out_is_the_same_partition_as_nz():
+    grid = Grid(dz=np.arange(1.0, 7.0), dy=np.ones(4), dx=np.ones(4))
+    uniform, written = BlockSpec.parse("2x2x2"), BlockSpec.parse("2x2x2,2,2")
+    assert np.array_equal(uniform.edges(6, 0), written.edges(6, 0))
+    assert np.array_equal(uniform.coarse_grid(grid).dz, written.coarse_grid(grid).dz)
+
+
+@pytest.mark.parametrize("remainder", REMAINDER_POLICIES[1:])
+def test_remainder_policies_leave_grouped_layers_whole(remainder):
+    spec = BlockSpec.parse("4x4x1,2", remainder=remainder)
+    spec.check((3, 10, 10), 3)  # 10 is no multiple of 4: x and y follow the policy
+    assert spec.used_shape((3, 10, 10))[0] == 3 and spec.coarse_shape((3, 10, 10))[0] == 2
+
+
+@pytest.mark.parametrize("text, shape, ndim, message", [
+    ("8x8x2,2", (5, 8, 8), 3, r"^the layer groups 2,2 hold 4 fine layers but the model has 5; they must"),
+    ("8x8x2,0,3", (5, 8, 8), 3, r"^the layer groups 2,0,3 hold a group of 0 layers; every group needs"),
+    ("8x8x2,-1,4", (5, 8, 8), 3, r"^the layer groups 2,-1,4 hold a group of -1 layers"),
+    ("8x8x2,2", (1, 8, 8), 2, r"^block 8x8x2,2 has a grouping of the layers but the field is a 2D map"),
+    ("8x8xauto:2", (1, 8, 8), 2, r"^block 8x8xauto:2 has a grouping of the layers but the field is a 2D map"),
+    ("8x8xauto:9", (5, 8, 8), 3, r"^block 8x8xauto:9: 9 coarse layers asked for but the model has 5 fine"),
+    ("8x8xauto:0", (5, 8, 8), 3, r"^automatic layers 'auto:0': the number of coarse layers must be"),
+])  # fmt: skip
+def test_bad_groupings_are_refused_in_one_line(text, shape, ndim, message):
+    with pytest.raises(InputError, match=message) as caught:
+        BlockSpec.parse(text).check(shape, ndim)
+    assert "\n" not in str(caught.value)
+
+
+def test_automatic_layers_must_be_chosen_before_the_blocks_are_used():
+    with pytest.raises(InputError, match=r"the automatic layers are chosen from the field first"):
+        BlockSpec.parse("8x8xauto:3").cells  # noqa: B018

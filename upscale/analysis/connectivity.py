@@ -225,7 +225,9 @@ def struggle(spans: dict[str, Span] | None, block: BlockSpec) -> str | None:
     """
     thin = []
     for axis, s in (spans or {}).items():
-        across = math.prod(n for i, n in enumerate(block.cells) if i != AXES[axis])
+        # a grouping of the layers counts its mean coarse layer
+        across = math.prod(n if isinstance(n, int) else float(np.mean(n))
+                           for i, n in enumerate(block.cells) if i != AXES[axis])  # fmt: skip
         wide = s.cross_section is None or s.cross_section >= across
         if not (wide or s.straight or s.contrast < CONTRAST):
             thin.append(f"along {axis} ({s.cross_section:.3g} fine cells in its cross-section on average, "

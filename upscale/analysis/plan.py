@@ -138,7 +138,7 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
     ------
     InputError
         No block; a block that does not fit the grid (`BlockSpec.check`); a
-        block that does not hold more cells than the one before it; blocks
+        grouping of the layers; a block that does not hold more cells than the one before it; blocks
         that crop the grid to different extents (``remainder='crop'``).
 
     Examples
@@ -152,6 +152,9 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
         raise InputError("a plan needs at least one block, e.g. `blocks=4x4,8x8,16x16`")
     for block in blocks:
         block.check(shape, ndim)
+        if block.groups is not None or block.request is not None:
+            raise InputError(f"block {block}: a plan compares blocks of uniform size; coarse layers of "
+                             "unequal thickness are for upscale run and compare")  # fmt: skip
     for finer, coarser in zip(blocks, blocks[1:]):
         if _cells(coarser) <= _cells(finer):
             raise InputError(

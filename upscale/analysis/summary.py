@@ -307,6 +307,9 @@ class RunSummary:
     well_check : dict or None
         The well-driven check (`upscale.check.wells.WellCheck.summary`, with the
         wells file), JSON-ready; None when no wells were given.
+    layers : dict or None
+        How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`);
+        None when the block's layers were not automatic.
     """
 
     provenance: Provenance
@@ -325,6 +328,7 @@ class RunSummary:
     tensor: TensorSummary | None = None
     transmissibility: FaceRule | None = None
     well_check: dict[str, Any] | None = None
+    layers: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``summary.json``, key for key."""
@@ -340,6 +344,8 @@ class RunSummary:
             found["transmissibility"] = self.transmissibility.to_dict()
         if self.well_check is not None:
             found["well_check"] = self.well_check
+        if self.layers is not None:
+            found["layers"] = self.layers
         return found
 
     @classmethod
@@ -353,7 +359,8 @@ class RunSummary:
                    None if check is None else FlowCheck.from_dict(check), tuple(data["files"]),
                    data["timings_s"], data["caution"],
                    None if tensor is None else TensorSummary.from_dict(tensor),
-                   None if faces is None else FaceRule.from_dict(faces), data.get("well_check"))  # fmt: skip
+                   None if faces is None else FaceRule.from_dict(faces), data.get("well_check"),
+                   data.get("layers"))  # fmt: skip
 
 
 def build_summary(
@@ -365,6 +372,7 @@ def build_summary(
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
     wells: dict[str, Any] | None = None,
+    layers: dict[str, Any] | None = None,
 ) -> RunSummary:
     """Describe a run.
 
@@ -386,6 +394,8 @@ def build_summary(
         cell size, kv/kh), so the run can be checked again later.
     wells : dict, optional
         The well-driven check (`upscale.check.wells.WellCheck.summary`).
+    layers : dict, optional
+        How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`).
 
     Returns
     -------
@@ -401,7 +411,7 @@ def build_summary(
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
-        None if wells is None else jsonable(wells),
+        None if wells is None else jsonable(wells), None if layers is None else jsonable(layers),
     )  # fmt: skip
 
 

@@ -82,7 +82,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     read = read_options(options)
     say = teller(ctx)
     paths = expand(list(field))
-    jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.cells), "solver": solver,
+    jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.chunk_cells), "solver": solver,
             "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
             "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
             "say": say, "wells": wells, "outer_pressure": outer_pressure,

@@ -152,14 +152,22 @@ def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:
 
 def block_spec(options: dict[str, Any]) -> BlockSpec:
     """Turn the values of `block_options` into the `BlockSpec` they describe."""
-    return block_specs(options.pop("block"), options)[0]
+    return BlockSpec.parse(options.pop("block"), **_block_rules(options))
 
 
 def block_specs(text: str, options: dict[str, Any]) -> list[BlockSpec]:
-    """``"4x4,8x8"`` and the values of `block_rule_options` (taken from `options`) -> one `BlockSpec` each."""
-    rules = {"remainder": options.pop("remainder"), "min_active": options.pop("min_active"),
-             "zero_k": options.pop("zero_k")}  # fmt: skip
-    return [BlockSpec.parse(part, **rules) for part in text.split(",")]
+    """``"4x4,8x8"`` and the values of `block_rule_options` (taken from `options`) -> one `BlockSpec` each.
+
+    A comma starts a new block only where a block follows (``NXx...``), so a
+    grouping of the layers (``8x8x2,2,4``) stays one block.
+    """
+    rules = _block_rules(options)
+    return [BlockSpec.parse(part, **rules) for part in re.split(r",(?=\s*\d+\s*x)", text, flags=re.I)]
+
+
+def _block_rules(options: dict[str, Any]) -> dict[str, Any]:
+    """The values of `block_rule_options`, taken from `options`."""
+    return {name: options.pop(name) for name in ("remainder", "min_active", "zero_k")}
 
 
 def method_options(command: Callable[..., Any]) -> Callable[..., Any]:

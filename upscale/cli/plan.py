@@ -100,7 +100,8 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
     specs = block_specs(blocks, options)
     read = read_options(options)
     _, record = plan_file(field, specs, chosen, out, read=read, max_error=limit,
-                          chunk_bytes=parse_chunk(chunk, specs[-1].cells), solver=solver, tolerance=tolerance,
+                          chunk_bytes=parse_chunk(chunk, specs[-1].chunk_cells), solver=solver,
+                          tolerance=tolerance,
                           check_limit=check_limit, recorded_read=recorded(read), command=ctx.obj["command"],
                           overwrite=overwrite, say=teller(ctx), wells=wells, outer_pressure=outer_pressure,
                           well_connection=well_connection)  # fmt: skip

@@ -60,6 +60,13 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
         f"{summary.active.coarse_blocks} active"
     )
     click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
+    if summary.layers is not None:
+        from ..analysis.layers import choice_lines
+
+        head, *boundaries = choice_lines(summary.layers)
+        click.echo(f"layers       {head}")
+        for line in boundaries:
+            click.echo(f"               {line}")
     if result.dropped_cells:
         click.echo(f"cropped      {result.dropped_cells} fine cells beyond the last whole block")
     zeros = result.zeros.line(fine.unit)

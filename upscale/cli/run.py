@@ -100,7 +100,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
     read = read_options(options)
     settings = Settings(
         block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},
-        read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.cells),
+        read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.chunk_cells),
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
         plot=plot, report=html_report, layer=None if layer is None else layer - 1,
         wells=wells, outer_pressure=outer_pressure, well_connection=well_connection,

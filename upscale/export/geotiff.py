@@ -1,4 +1,11 @@
-"""Coarse properties as GeoTIFFs: one file per property, one band per coarse layer."""
+"""Coarse properties as GeoTIFFs: one file per property, one band per coarse layer.
+
+With ``depths=True`` (the coarse outputs of a run) each band carries its
+layer's true top and base as band tags of our own, ``top_depth_m`` and
+``base_depth_m``: m below the top of the model (coarse layers may be of
+unequal thickness). The demo fields are written without them, byte for byte
+as before.
+"""
 
 from __future__ import annotations
 
@@ -24,6 +31,7 @@ def write_property(
     dtype: str = "float64",
     nodata: float = float("nan"),
     transform: Any = None,
+    depths: bool = False,
 ) -> None:
     """Write one coarse property to a GeoTIFF.
 
@@ -49,6 +57,20 @@ def write_property(
         Value stored for NaN cells and declared as the file's nodata value.
     transform : affine.Affine, optional
         Georeference of the raster if not the grid's (face rasters sit half a block off).
+    depths : bool
+        Tag each band with its layer's top and base depth (when the bands are the grid's layers).
+
+    Examples
+    --------
+    >>> import tempfile, rasterio
+    >>> from affine import Affine
+    >>> north_up = Affine(1, 0, 0, 0, -1, 0)
+    >>> grid = Grid(dz=np.array([2.0, 6.0]), dy=np.ones(1), dx=np.ones(1), transform=north_up)
+    >>> path = Path(tempfile.mkdtemp()) / "k.tif"
+    >>> write_property(path, np.ones((2, 1, 1)), grid, "kx", "mD", depths=True)
+    >>> with rasterio.open(path) as raster:
+    ...     [(raster.tags(b)["top_depth_m"], raster.tags(b)["base_depth_m"]) for b in (1, 2)]
+    [('0', '2'), ('2', '8')]
     """
     import rasterio
 
@@ -73,7 +95,22 @@ def write_property(
         stored = values if np.isnan(nodata) else np.where(np.isnan(values), nodata, values)
         dst.write(stored.astype(dtype, copy=False))
         dst.update_tags(property=name, unit=unit, **(tags or {}))
+        bounds = layer_depths(grid) if depths and layers == grid.dz.size else None
         for band in range(1, layers + 1):
             dst.set_band_description(band, f"{name}, layer {band} of {layers} (top first)")
             dst.set_band_unit(band, unit)
             dst.update_tags(band, units=unit)
+            if bounds is not None:
+                dst.update_tags(band, top_depth_m=f"{bounds[band - 1]:.17g}",
+                                base_depth_m=f"{bounds[band]:.17g}")  # fmt: skip
+
+
+def layer_depths(grid: Grid) -> np.ndarray:
+    """Depth of every layer's top, and of the last one's base: m below the model's top, shape (L + 1,).
+
+    Examples
+    --------
+    >>> layer_depths(Grid(dz=np.array([2.0, 6.0]), dy=np.ones(1), dx=np.ones(1))).tolist()
+    [0.0, 2.0, 8.0]
+    """
+    return np.concatenate([[0.0], np.cumsum(grid.dz)])

@@ -2,7 +2,9 @@
 
 Variables on (layer, row, column) with coordinate variables ``x`` and ``y``
 (cell centres in the CRS's units) and ``z`` (cell-centre height above the
-top of the model, negative downward), a ``crs`` grid-mapping variable with
+top of the model, negative downward; with coarse layers of unequal
+thickness also ``z_bounds``, each layer's top and base, named by the ``bounds``
+attribute of ``z``, CF §7.1 cell boundaries), a ``crs`` grid-mapping variable with
 the CF attributes of the CRS (``grid_mapping_name`` and its parameters, and
 ``crs_wkt``; from pyproj) when there is a CRS, and the unit of every variable (Eaton et al., "NetCDF
 Climate and Forecast (CF) Metadata Conventions", version 1.8: §4 coordinate
@@ -19,6 +21,7 @@ import numpy as np
 
 from ..field import Grid
 from ..optional import require
+from .geotiff import layer_depths
 from .package import _centres
 from .slabs import Values, slabs
 
@@ -72,6 +75,12 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
         var.positive = "up"
         var.long_name = "cell-centre height above the top of the model"
         var.axis = "Z"
+        if np.ptp(grid.dz) > 0:  # equal layers keep the file they always had (centres say it all)
+            var.bounds = "z_bounds"
+            nc.createDimension("nv", 2)
+            bounds = nc.createVariable("z_bounds", "f8", ("layer", "nv"))
+            depths = layer_depths(grid)
+            bounds[:] = (0.0 - np.stack([depths[:-1], depths[1:]], axis=1)) * length  # 0.0 - : no -0
         for name, (values, unit, long_name) in properties.items():
             var = nc.createVariable(name, "f8", ("layer", "row", "column"), fill_value=np.nan,
                                     zlib=True)  # fmt: skip

@@ -142,7 +142,7 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
     coarse, files = result.coarse, []
     for name, values in {**coarse.properties(), **result.tensor}.items():
         unit = PROPERTY_UNITS.get(name, coarse.unit)
-        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags)
+        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags, depths=True)
         files.append(f"{name}.tif")
     direct = result.transmissibilities() if result.faces is not None else None
     for axis in "xyz"[: coarse.ndim] if direct is not None else ():
@@ -151,7 +151,7 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
         shifted = coarse.grid.transform @ half if coarse.grid.transform and axis != "z" else None
         write_property(stage / FACE_FILES[axis], face_raster(direct, a), coarse.grid,
                        f"transmissibility_{axis}", f"{coarse.unit}·m", tags,
-                       transform=shifted)  # fmt: skip
+                       transform=shifted, depths=True)  # fmt: skip
         files.append(FACE_FILES[axis])
     return files
 
@@ -166,6 +166,7 @@ def write_result(
     check: dict[str, Any] | None = None,
     read: dict[str, Any] | None = None,
     wells: dict[str, Any] | None = None,
+    layers: dict[str, Any] | None = None,
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
     units: str = "si",
@@ -190,6 +191,9 @@ def write_result(
         `upscale.analysis.summary.build_summary`).
     wells : dict, optional
         The well-driven check, recorded as ``well_check`` in the summary.
+    layers : dict, optional
+        How the automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`),
+        recorded as ``layers`` in the summary.
     images : list of (str, bytes, bytes), optional
         Figures to write as ``figures/NAME.png`` and ``.svg``.
     page : str, optional
@@ -239,7 +243,8 @@ def write_result(
             (stage / "report.html").write_text(page, encoding="utf-8")
             files.append("report.html")
         summary = build_summary(
-            result, files=files, command=command, timings=timings, check=check, read=read, wells=wells
+            result, files=files, command=command, timings=timings, check=check, read=read, wells=wells,
+            layers=layers,
         )
         (stage / MARKER).write_text(json.dumps(summary.to_dict(), indent=2, allow_nan=False) + "\n")
     return summary

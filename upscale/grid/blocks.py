@@ -7,6 +7,15 @@ remainder policy decides: ``stop`` refuses, ``crop`` drops the last cells
 (east columns, last rows, bottom layers), ``keep`` keeps smaller edge blocks
 whose true sizes are used in every computation.
 
+The z part may also group the layers unevenly (`upscale.grid.layers`):
+``8x8x2,2,4,8`` lists the fine layers of each coarse layer, top down, and
+``8x8xauto:4`` asks for the 4 coarse layers that keep the most of the
+contrast between layers (chosen from the field, `upscale.analysis.layers`).
+A grouping covers every layer, so the remainder policy applies along x and
+y only. Inside, a block's size along an axis is a whole number (blocks of
+that many cells, the last one possibly smaller) or the tuple of the sizes
+of every block along it (`Size`); `axis_edges` turns either into edges.
+
 Two rules decide which coarse blocks stay active: ``min_active`` (the
 smallest active volume fraction of a block) and the zero-k rule, for blocks
 whose upscaled permeability is 0 along some axis — many simulators refuse an
@@ -29,7 +38,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from affine import Affine
@@ -37,12 +46,55 @@ from affine import Affine
 from .._checks import check_fraction
 from ..errors import InputError
 from ..field import Grid
+from .layers import LayerRequest, check_sizes, group_edges, parse_sizes
 
 REMAINDER_POLICIES = ("stop", "crop", "keep")
 ZERO_RULES = ("auto", "inactive", "floor", "keep")
 #: The floor of ``floor`` and ``auto`` without a value, relative to the tightest flowing block.
 RELATIVE_FLOOR = 1e-3
-_SYNTAX = re.compile(r"^\s*(\d+)\s*x\s*(\d+)\s*(?:x\s*(\d+))?\s*$", re.IGNORECASE)
+_SYNTAX = re.compile(r"^\s*(\d+)\s*x\s*(\d+)\s*(?:x\s*([^x]+?))?\s*$", re.IGNORECASE)
+#: Fine cells per block along one axis: a whole number (the last block may be smaller), or every block's size.
+Size = int | tuple[int, ...]
+
+
+def axis_edges(size: Size, n: int) -> np.ndarray:
+    """Fine-cell indices where the blocks of one axis of `n` cells start, and the end.
+
+    Parameters
+    ----------
+    size : int or tuple of int
+        Cells per block (the last block takes what is left), or the size of
+        every block (adding up to `n`).
+    n : int
+        Cells along the axis.
+
+    Returns
+    -------
+    ndarray of shape (blocks + 1,)
+
+    Examples
+    --------
+    >>> axis_edges(4, 10).tolist(), axis_edges((1, 3, 6), 10).tolist()
+    ([0, 4, 8, 10], [0, 1, 4, 10])
+    """
+    if isinstance(size, tuple):
+        return group_edges(size)
+    return np.append(np.arange(0, n, size), n)
+
+
+def span(size: Size) -> int:
+    """Cells a chunk must hold whole along an axis: the block size, or the whole grouping.
+
+    A grouping adds up to the axis, so a chunk that holds it whole spans the
+    axis: chunks then never split a coarse layer (our choice, the simplest
+    correct rule).
+
+    Examples
+    --------
+    >>> span(8), span((2, 2, 4))
+    (8, 8)
+    """
+    return sum(size) if isinstance(size, tuple) else size
 
 
 @dataclass(frozen=True)
@@ -54,7 +106,8 @@ class BlockSpec:
     nx, ny, nz : int
         Fine cells per block along x (columns), y (rows) and z (layers).
     remainder : {'stop', 'crop', 'keep'}
-        What to do when the grid does not divide into whole blocks.
+        What to do when the grid does not divide into whole blocks (along x
+        and y only with a grouping of the layers, which covers them all).
     min_active : float
         A block whose active volume fraction is below this becomes inactive.
         With 0, a block is active as soon as one of its cells is.
@@ -62,6 +115,12 @@ class BlockSpec:
         What becomes of blocks with k = 0 along some axis: ``auto``,
         ``inactive``, ``floor``, ``floor:VALUE`` (unit of k) or ``keep`` (see
         the module docstring).
+    groups : tuple of int or None
+        Fine layers of each coarse layer, top down (then `nz` is 1): coarse
+        layers of unequal thickness.
+    request : LayerRequest or None
+        The automatic grouping asked for (``auto:N``, ``auto:P%``); `groups`
+        is None until it is chosen from the field (`resolved`).
 
     Examples
     --------
@@ -70,6 +129,9 @@ class BlockSpec:
     (1, 4, 8)
     >>> spec.coarse_shape((1, 16, 32))
     (1, 4, 4)
+    >>> layered = BlockSpec.parse("8x8x2,2,4")
+    >>> layered.cells, layered.coarse_shape((8, 16, 16)), str(layered)
+    (((2, 2, 4), 8, 8), (3, 2, 2), '8x8x2,2,4')
     """
 
     nx: int
@@ -78,6 +140,8 @@ class BlockSpec:
     remainder: str = "stop"
     min_active: float = 0.0
     zero_k: str = "auto"
+    groups: tuple[int, ...] | None = None
+    request: LayerRequest | None = None
 
     def __post_init__(self) -> None:
         for name in ("nx", "ny", "nz"):
@@ -89,6 +153,8 @@ class BlockSpec:
                 f"remainder must be one of {', '.join(REMAINDER_POLICIES)}, got {self.remainder!r}"
             )
         check_fraction(self.min_active, "min_active")
+        if self.groups is not None:
+            check_sizes(self.groups, sum(self.groups))
         self.zero_rule  # noqa: B018 - refuses a bad rule at construction
 
     @property
@@ -114,28 +180,93 @@ class BlockSpec:
     @classmethod
     def parse(cls, text: str, *, remainder: str = "stop", min_active: float = 0.0,
               zero_k: str = "auto") -> BlockSpec:  # fmt: skip
-        """Read a block written as ``NXxNY`` or ``NXxNYxNZ`` (fine cells, x first)."""
-        match = _SYNTAX.match(text)
-        if not match:
-            raise InputError(
-                f"block {text!r} is not of the form NXxNY or NXxNYxNZ "
-                "(fine cells per block, x first, e.g. 8x8 or 8x8x2)"
-            )
-        nx, ny, nz = (int(g) if g else 1 for g in match.groups())
-        return cls(nx, ny, nz, remainder=remainder, min_active=min_active, zero_k=zero_k)
+        """Read a block: ``NXxNY``, ``NXxNYxNZ``, ``NXxNYxS1,S2,...`` or ``NXxNYxauto:N`` / ``auto:P%``.
 
-    def summary(self) -> dict[str, int | float | str]:
-        """The partition as plain data, as outputs record it (x first, like the command line)."""
-        return {"x": self.nx, "y": self.ny, "z": self.nz, "remainder": self.remainder,
-                "min_active": self.min_active, "zero_k": self.zero_k}  # fmt: skip
+        Examples
+        --------
+        >>> BlockSpec.parse("8x8xauto:4").request, BlockSpec.parse("8x8x3").nz
+        (LayerRequest(count=4, keep=None), 3)
+        """
+        match = _SYNTAX.match(text)
+        z = match.group(3) if match else None
+        sizes = parse_sizes(z) if z is not None else None
+        request = LayerRequest.parse(z) if z is not None and sizes is None else None
+        if not match or (z is not None and sizes is None and request is None):
+            raise InputError(
+                f"block {text!r} is not of the form NXxNY or NXxNYxNZ, with NZ a number of layers, "
+                "the layers of each coarse layer (2,2,4) or auto:N / auto:P% "
+                "(fine cells per block, x first, e.g. 8x8, 8x8x2 or 8x8x2,2,4)"
+            )
+        nx, ny = int(match.group(1)), int(match.group(2))
+        rules = {"remainder": remainder, "min_active": min_active, "zero_k": zero_k}
+        if sizes is not None and len(sizes) > 1:
+            return cls(nx, ny, groups=sizes, **rules)
+        if request is not None:
+            return cls(nx, ny, request=request, **rules)
+        return cls(nx, ny, sizes[0] if sizes else 1, **rules)
+
+    def resolved(self, groups: tuple[int, ...]) -> BlockSpec:
+        """The same block with its layers grouped by `groups` (an automatic request stays, for the record)."""
+        return replace(self, nz=1, groups=tuple(int(g) for g in groups))
+
+    def summary(self) -> dict[str, int | float | str | list[int]]:
+        """The partition as plain data, as outputs record it (x first, like the command line).
+
+        ``z`` is the layers per block, or the list of the layers of each
+        coarse layer; ``layers`` records an automatic request.
+        """
+        z: int | list[int] | str = list(self.groups) if self.groups is not None else self.nz
+        if self.groups is None and self.request is not None:
+            z = str(self.request)
+        found = {"x": self.nx, "y": self.ny, "z": z, "remainder": self.remainder,
+                 "min_active": self.min_active, "zero_k": self.zero_k}  # fmt: skip
+        if self.request is not None:
+            found["layers"] = str(self.request)
+        return found
+
+    @classmethod
+    def from_summary(cls, block: dict) -> BlockSpec:
+        """The block that `summary` recorded (runs recorded before the zero-k rule kept their zeros)."""
+        z = block["z"]
+        groups = tuple(z) if isinstance(z, list) else None
+        request = LayerRequest.parse(block["layers"]) if "layers" in block else None
+        nz = z if isinstance(z, int) else 1
+        return cls(block["x"], block["y"], nz, block["remainder"], block["min_active"],
+                   block.get("zero_k", "keep"), groups=groups, request=request)  # fmt: skip
 
     @property
-    def cells(self) -> tuple[int, int, int]:
-        """Fine cells per block in array order ``(layers, rows, columns)``."""
-        return (self.nz, self.ny, self.nx)
+    def cells(self) -> tuple[Size, int, int]:
+        """Fine cells per block in array order ``(layers, rows, columns)``; layers may be grouped (`Size`)."""
+        return (self._z, self.ny, self.nx)
+
+    @property
+    def chunk_cells(self) -> tuple[int, int, int]:
+        """Cells along ``(layers, rows, columns)`` that every chunk of the data must hold whole (`span`).
+
+        Layers still to be chosen (``auto``) ask for none: the chunks are
+        aligned to the grouping when it is applied.
+        """
+        if self.groups is None and self.request is not None:
+            return (1, self.ny, self.nx)
+        return (span(self._z), self.ny, self.nx)
+
+    @property
+    def _z(self) -> Size:
+        if self.groups is not None:
+            return self.groups
+        if self.request is not None:
+            raise InputError(f"block {self}: the automatic layers are chosen from the field first "
+                             "(upscale run does; in Python, upscale.analysis.layers.resolve_layers)")
+        return self.nz
 
     def __str__(self) -> str:
-        return f"{self.nx}x{self.ny}" + (f"x{self.nz}" if self.nz > 1 else "")
+        if self.groups is not None:
+            z = "x" + ",".join(map(str, self.groups))
+        elif self.request is not None:
+            z = f"x{self.request}"
+        else:
+            z = f"x{self.nz}" if self.nz > 1 else ""
+        return f"{self.nx}x{self.ny}{z}"
 
     def check(self, shape: tuple[int, int, int], ndim: int) -> None:
         """Raise `InputError` if this block cannot partition a grid of `shape`.
@@ -149,16 +280,23 @@ class BlockSpec:
         """
         if ndim == 2 and self.nz > 1:
             raise InputError(f"block {self} has a z size but the field is a 2D map; use NXxNY")
+        if ndim == 2 and (self.groups is not None or self.request is not None):
+            raise InputError(f"block {self} has a grouping of the layers but the field is a 2D map; "
+                             "use NXxNY")  # fmt: skip
+        if self.groups is not None:
+            check_sizes(self.groups, shape[0])
+        count = self.request.count if self.request is not None and self.groups is None else None
+        if count is not None and count > shape[0]:
+            raise InputError(f"block {self}: {count} coarse layers asked for but the model has "
+                             f"{shape[0]} fine layers")  # fmt: skip
         names = ("z (layers)", "y (rows)", "x (columns)")
-        for n, b, name in zip(shape, self.cells, names):
+        along = [(n, b, name) for n, b, name in zip(shape, (self.nz, self.ny, self.nx), names)
+                 if not (name.startswith("z") and (self.groups or self.request))]  # fmt: skip
+        for n, b, name in along:
             if b > n:
                 raise InputError(f"block {self} is larger than the grid along {name}: {b} > {n}")
         if self.remainder == "stop":
-            odd = [
-                f"{name}: {n} cells = {n // b} blocks + {n % b}"
-                for n, b, name in zip(shape, self.cells, names)
-                if n % b
-            ]
+            odd = [f"{name}: {n} cells = {n // b} blocks + {n % b}" for n, b, name in along if n % b]
             if odd:
                 raise InputError(
                     f"the grid does not divide into whole {self} blocks ({'; '.join(odd)}); "
@@ -166,15 +304,18 @@ class BlockSpec:
                 )
 
     def used_shape(self, shape: tuple[int, int, int]) -> tuple[int, int, int]:
-        """Fine cells used per axis: the whole grid, or whole blocks only with ``crop``."""
+        """Fine cells used per axis: the whole grid, or only whole blocks with ``crop``.
+
+        Grouped layers are all used: a grouping covers them.
+        """
         if self.remainder == "crop":
-            return tuple(n - n % b for n, b in zip(shape, self.cells))  # type: ignore[return-value]
+            whole = (1 if self.groups or self.request else self.nz, self.ny, self.nx)
+            return tuple(n - n % b for n, b in zip(shape, whole))  # type: ignore[return-value]
         return tuple(shape)  # type: ignore[return-value]
 
     def coarse_shape(self, shape: tuple[int, int, int]) -> tuple[int, int, int]:
         """Number of coarse blocks per axis for a fine grid of `shape`."""
-        used = self.used_shape(shape)
-        return tuple(-(-n // b) for n, b in zip(used, self.cells))  # type: ignore[return-value]
+        return tuple(self.edges(n, axis).size - 1 for axis, n in enumerate(shape))  # type: ignore[return-value]
 
     def edges(self, n: int, axis: int) -> np.ndarray:
         """Fine-cell indices where the coarse blocks start and end along `axis`.
@@ -184,9 +325,20 @@ class BlockSpec:
         ndarray of shape (n_blocks + 1,)
             ``edges[i]:edges[i+1]`` are the fine cells of block ``i``.
         """
-        b = self.cells[axis]
-        used = n - n % b if self.remainder == "crop" else n
-        return np.append(np.arange(0, used, b), used)
+        size = self.cells[axis]
+        used = self.used_shape((n, n, n))[axis]
+        return axis_edges(size, used)
+
+    def coarse_index(self, fine: int, n: int, axis: int) -> int:
+        """The coarse block along `axis` holding fine cell `fine` (of `n` cells; the last block if past it).
+
+        Examples
+        --------
+        >>> BlockSpec.parse("2x2x1,3").coarse_index(2, 4, 0), BlockSpec(2, 2, 2).coarse_index(2, 4, 0)
+        (1, 1)
+        """
+        edges = self.edges(n, axis)
+        return int(min(np.searchsorted(edges, fine, side="right") - 1, edges.size - 2))
 
     def coarse_grid(self, grid: Grid) -> Grid:
         """The coarse grid: block sizes are the sums of their fine cell sizes (m).

@@ -97,7 +97,8 @@ def read_realizations(paths: list[str], chunk_bytes: int | None, block: BlockSpe
                       checksum: bool = True) -> tuple[list[str], dict[str, Field]]:  # fmt: skip
     """Open every realization (lazily) under its name, refusing clashing names and differing grids."""
     names = names_of(paths)
-    fields = {name: read_field(path, chunk_bytes=chunk_bytes, block=block.cells, checksum=checksum, **read)
+    fields = {name: read_field(path, chunk_bytes=chunk_bytes, block=block.chunk_cells, checksum=checksum,
+                               **read)
               for name, path in zip(names, paths)}  # fmt: skip
     check_same_grid(fields)
     return names, fields

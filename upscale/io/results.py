@@ -59,7 +59,6 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
     paths = {role: inputs[role]["resolved"] if role in inputs else None for role in ("ky", "kz")}
     fine = read_field(inputs["kx"]["resolved"], checksum=False, **paths, **read)
     # runs recorded before the zero-k rule kept their zeros
-    spec = BlockSpec(block["x"], block["y"], block["z"], block["remainder"], block["min_active"],
-                     block.get("zero_k", "keep"))  # fmt: skip
+    spec = BlockSpec.from_summary(block)
     fine = fine.leading(spec.used_shape(fine.shape))
     return summary, fine

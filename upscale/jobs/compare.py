@@ -68,7 +68,7 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
         A field past `check_limit` or the memory, a `layer` the model does not
         have (before any work), or no method that ran.
     """
-    fine = read_field(path, chunk_bytes=chunk_bytes, block=block.cells, **read)
+    fine = read_field(path, chunk_bytes=chunk_bytes, block=block.chunk_cells, **read)
     refuse_comparison(fine, check_limit, layer)
     shared = wells_of_file(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,

@@ -68,7 +68,8 @@ def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: 
         refuses, a `max_error` out of range (all before any work).
     """
     check_max_error(max_error)
-    fine = read_field(path, chunk_bytes=chunk_bytes, block=blocks[-1].cells if blocks else (1, 1, 1), **read)
+    chunk = blocks[-1].chunk_cells if blocks else (1, 1, 1)
+    fine = read_field(path, chunk_bytes=chunk_bytes, block=chunk, **read)
     check_blocks(blocks, fine.shape, fine.ndim)
     refuse_comparison(fine, check_limit, None)
     shared = wells_of_file(fine, blocks[0], wells, (outer_pressure, well_connection), solver, tolerance, say)

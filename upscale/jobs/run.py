@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import logging
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 from ..analysis.compare import single
 from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import EnsembleSummary, ensemble_summary
+from ..analysis.layers import resolve_layers
 from ..analysis.summary import RunSummary
 from ..check.axis import coarse_check, fine_solves
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
@@ -143,9 +144,14 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     settings.require_libraries()
     steps = Steps(say, prefix)
     with steps("read_s", f"reading {path}"):
-        fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.cells,
+        fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.chunk_cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
+    block, layers = resolve_layers(settings.block, fine)
+    settings = replace(settings, block=block)
+    if layers is not None:  # opened again (lazily) in chunks that hold every layer within the chunk budget
+        fine = replace(read_field(path, chunk_bytes=settings.chunk_bytes, block=block.chunk_cells,
+                                  checksum=False, **settings.read), sources=fine.sources)  # fmt: skip
     wells = _wells(settings, fine)
     fits_flows = METHODS[settings.method].global_flows
     if fits_flows:
@@ -208,7 +214,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     with steps(None, "writing the coarse grid and the summary"):
         summary = write_result(result, out, overwrite=overwrite, command=settings.command,
                                timings=steps.timings, check=check, read=settings.recorded_read,
-                               wells=wells_check,
+                               wells=wells_check, layers=layers.summary() if layers else None,
                                images=made.images if made and settings.plot else None,
                                page=made.page if made and settings.report else None,
                                units=settings.units)  # fmt: skip
@@ -265,6 +271,9 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         If two realizations share a name or the grids differ (checked before any work).
     """
     settings.require_libraries()
+    if settings.block.request is not None and settings.block.groups is None:
+        raise InputError(f"block {settings.block}: automatic layers are chosen from one field; for an "
+                         "ensemble give the grouping (e.g. 8x8x2,2,4,8, as one realization's run chose)")
     names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
     done = []

@@ -16,6 +16,14 @@ sums then run over the cells that exist.
 NaN marks an inactive cell. With ``skip=True`` inactive cells are left out
 (nodata-aware averages); with ``skip=False`` they count as impermeable
 cells, k = 0, which is what the flow bounds need.
+
+Layers may be grouped unevenly (``sub[0]`` the sizes of the groups, see
+`upscale.grid.blocks.Size`): the compiled loops take the coarse layer of
+every fine layer, so a block's layers are added one after the other in the
+same order (and with the same fused multiply-adds) whether its layers are
+written ``2`` or ``2,2,...``. Adding the sums of single layers afterwards
+(`numpy.add.reduceat`) would not give the same bits: the compiled loops
+contract ``S += w * s`` into a fused multiply-add (measured).
 """
 
 from __future__ import annotations
@@ -27,17 +35,24 @@ import numpy as np
 
 from .._elementary import JIT as _JIT
 from .._elementary import LN2, MANTISSA, UNIT_EXPONENT, as_float, as_int, exp, ln
+from ..grid.blocks import axis_edges
 
 #: f(k) selectors for `block_sums`: k, 1/k, k**exponent.
 LINEAR, RECIPROCAL, POWER = 1, -1, 2
 
 @nb.njit(**_JIT)
-def _coarse_shape(shape, sub):
+def _coarse_shape(shape, layer_of, sy, sx):
     return (
-        (shape[0] + sub[0] - 1) // sub[0],
-        (shape[1] + sub[1] - 1) // sub[1],
-        (shape[2] + sub[2] - 1) // sub[2],
+        layer_of[-1] + 1 if shape[0] else 0,
+        (shape[1] + sy - 1) // sy,
+        (shape[2] + sx - 1) // sx,
     )
+
+
+def _layer_of(size, layers):
+    """The coarse layer of each of `layers` fine layers, int64 of shape (layers,), for a `Size`."""
+    edges = axis_edges(size, layers)
+    return np.repeat(np.arange(edges.size - 1, dtype=np.int64), np.diff(edges))
 
 
 @nb.njit(inline="always", **_JIT)
@@ -71,7 +86,6 @@ def _add_active(row, acc):
         acc[j] += np.float64(row[j] == row[j])
 
 
-@nb.njit(**_JIT)
 def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     """Weighted sums of f(k) over sub-blocks of `k`.
 
@@ -81,8 +95,9 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
         Cell values; NaN marks inactive cells.
     wz : ndarray of shape (L,)
         Weight of every cell of each layer (its thickness in m).
-    sub : (int, int, int)
-        Sub-block size in cells ``(layers, rows, columns)``.
+    sub : (int or tuple of int, int, int)
+        Sub-block size in cells ``(layers, rows, columns)``; layers a whole
+        number or the sizes of the groups, top down.
     mode : int
         ``LINEAR`` (f = k), ``RECIPROCAL`` (f = 1/k) or
         ``POWER`` (f = k**exponent, for positive k).
@@ -93,12 +108,17 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
 
     Returns
     -------
-    S, W : ndarray of shape (ceil(L/sz), ceil(M/sy), ceil(N/sx))
-        ``sum(w * f(k))`` and ``sum(w)`` over each sub-block.
+    S, W : ndarray of shape (L', ceil(M/sy), ceil(N/sx))
+        ``sum(w * f(k))`` and ``sum(w)`` over each sub-block; L' = ceil(L/sz)
+        or the number of groups.
     """
+    return _block_sums(k, wz, _layer_of(sub[0], k.shape[0]), sub[1], sub[2], mode, skip, exponent)
+
+
+@nb.njit(**_JIT)
+def _block_sums(k, wz, layer_of, sy, sx, mode, skip, exponent):
     L, M, N = k.shape
-    sz, sy, sx = sub
-    S = np.zeros(_coarse_shape(k.shape, sub))
+    S = np.zeros(_coarse_shape(k.shape, layer_of, sy, sx))
     W = np.zeros(S.shape)
     fill = np.inf if (mode == RECIPROCAL and not skip) else 0.0  # an inactive cell in series blocks flow
     row_s = np.zeros(N)
@@ -106,7 +126,7 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     scratch = np.empty(N)
     rows = 0
     for layer in range(L):
-        cl = layer // sz
+        cl = layer_of[layer]
         for i in range(M):
             row = k[layer, i]
             # one branch per row keeps every inner loop simple enough to vectorise
@@ -141,7 +161,6 @@ def block_sums(k, wz, sub, mode, skip, exponent=1.0):
     return S, W
 
 
-@nb.njit(**_JIT)
 def block_counts(k, wz, sub):
     """``W`` of `block_sums` with ``skip=True`` alone: the weight of the active cells of each sub-block.
 
@@ -153,15 +172,19 @@ def block_counts(k, wz, sub):
 
     Returns
     -------
-    W : ndarray of shape (ceil(L/sz), ceil(M/sy), ceil(N/sx))
+    W : ndarray of shape (L', ceil(M/sy), ceil(N/sx))
         ``sum(w)`` over the active cells of each sub-block.
     """
+    return _block_counts(k, wz, _layer_of(sub[0], k.shape[0]), sub[1], sub[2])
+
+
+@nb.njit(**_JIT)
+def _block_counts(k, wz, layer_of, sy, sx):
     L, M, N = k.shape
-    sz, sy, sx = sub
-    W = np.zeros(_coarse_shape(k.shape, sub))
+    W = np.zeros(_coarse_shape(k.shape, layer_of, sy, sx))
     row_w = np.zeros(N)
     for layer in range(L):
-        cl = layer // sz
+        cl = layer_of[layer]
         for i in range(M):
             _add_active(k[layer, i], row_w)
             if (i + 1) % sy == 0 or i == M - 1:
@@ -176,7 +199,6 @@ def block_counts(k, wz, sub):
     return W
 
 
-@nb.njit(**_JIT)
 def block_log_sums(k, wz, sub):
     """Weighted sums of ln k over sub-blocks of `k`, skipping inactive cells.
 
@@ -188,16 +210,20 @@ def block_log_sums(k, wz, sub):
 
     Parameters and returns as `block_sums` with f = ln k and ``skip=True``.
     """
+    return _block_log_sums(k, wz, _layer_of(sub[0], k.shape[0]), sub[1], sub[2])
+
+
+@nb.njit(**_JIT)
+def _block_log_sums(k, wz, layer_of, sy, sx):
     L, M, N = k.shape
-    sz, sy, sx = sub
-    S = np.zeros(_coarse_shape(k.shape, sub))
+    S = np.zeros(_coarse_shape(k.shape, layer_of, sy, sx))
     W = np.zeros(S.shape)
     mant = np.ones(N)
     expo = np.zeros(N, np.int64)
     count = np.zeros(N)
     rows_in_product = 0
     for layer in range(L):
-        cl = layer // sz
+        cl = layer_of[layer]
         for i in range(M):
             row = k[layer, i]
             for j in range(N):
@@ -236,3 +262,4 @@ def block_log_sums(k, wz, sub):
                 expo[:] = 0
                 count[:] = 0.0
     return S, W
+

@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..grid.blocks import Size, axis_edges
 from . import _kernels as kern
 
 
@@ -35,9 +36,9 @@ def _across(block: tuple[int, int, int], axis: int) -> tuple[int, int, int]:
     return tuple(1 if a == axis else b for a, b in enumerate(block))  # type: ignore[return-value]
 
 
-def _weights_after(dz: np.ndarray, first_stage: tuple[int, int, int]) -> np.ndarray:
+def _weights_after(dz: np.ndarray, first_stage: tuple[Size, int, int]) -> np.ndarray:
     # Layer weights still matter after the first stage only where it kept the layers apart.
-    layers = -(-dz.size // first_stage[0])
+    layers = axis_edges(first_stage[0], dz.size).size - 1
     return dz if first_stage[0] == 1 else np.ones(layers)
 
 

@@ -37,6 +37,7 @@ from ..errors import InputError
 from ..field import Field, Grid
 from ..flow.local import CONDITIONS, PERIODIC, SEALED, band_order, block_tensors, pair_fluxes
 from ..flow.transmissibility import half_cell
+from ..grid.blocks import Size, axis_edges, span
 from ..parallel import apply_regions
 
 #: Names of the nine tensor terms in the order of the flattened 3 x 3 tensor (z, y, x).
@@ -51,13 +52,24 @@ def _half_cells(
     return [half_cell(k, grid, axis) for axis, k in enumerate((kz, ky, kx))], grid
 
 
-def _blocks(core: tuple[tuple[int, int], ...], block: tuple[int, int, int]
+def _blocks(core: tuple[tuple[int, int], ...], block: tuple[Size, int, int]
             ) -> tuple[np.ndarray, np.ndarray, list[int]]:  # fmt: skip
     """First and end cells (P, 3) of every block of the chunk's own cells, and the block counts."""
-    starts = [np.arange(c0, c1, b) for (c0, c1), b in zip(core, block)]
-    mesh = np.stack(np.meshgrid(*starts, indexing="ij"), axis=-1).reshape(-1, 3)
-    ends = np.minimum(mesh + np.array(block), [c1 for _, c1 in core])
-    return mesh, ends, [len(s) for s in starts]
+    edges = [c0 + axis_edges(b, c1 - c0) for (c0, c1), b in zip(core, block)]
+    mesh = np.stack(np.meshgrid(*(e[:-1] for e in edges), indexing="ij"), axis=-1).reshape(-1, 3)
+    ends = np.stack(np.meshgrid(*(e[1:] for e in edges), indexing="ij"), axis=-1).reshape(-1, 3)
+    return mesh, ends, [e.size - 1 for e in edges]
+
+
+def _before(starts: np.ndarray, size: Size) -> np.ndarray:
+    """First cell of the block before each block that starts at `starts` along an axis; 0 for the first.
+
+    A grouping (`Size` a tuple) is held by one chunk, so chunk cells are the domain's.
+    """
+    if isinstance(size, tuple):
+        edges = axis_edges(size, sum(size))
+        return edges[np.maximum(np.searchsorted(edges, starts) - 1, 0)]
+    return np.maximum(starts - size, 0)
 
 
 def _gather(t: list[np.ndarray], grid: Grid, origin: np.ndarray, shape: tuple) -> tuple:
@@ -173,7 +185,7 @@ def block_tensor_chunk(
     *,
     dz: np.ndarray,
     core: tuple[tuple[int, int], ...],
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     cell: tuple[float, float],
     bc: str,
     border: int,
@@ -190,8 +202,9 @@ def block_tensor_chunk(
         Layer thicknesses in m.
     core : ((int, int), (int, int), (int, int))
         The chunk's own cells along z, y, x; its blocks start at the first.
-    block : (int, int, int)
-        Cells per block (layers, rows, columns).
+    block : (Size, int, int)
+        Cells per block (layers, rows, columns); layers may be a grouping
+        (`upscale.grid.blocks.Size`), held by one chunk.
     cell : (float, float)
         Row height dy and column width dx in m.
     bc : {'sealed', 'linear', 'periodic'}
@@ -228,7 +241,7 @@ def face_transmissibility_chunk(
     *,
     dz: np.ndarray,
     core: tuple[tuple[int, int], ...],
-    block: tuple[int, int, int],
+    block: tuple[Size, int, int],
     cell: tuple[float, float],
     border: int,
     axes: tuple[bool, bool, bool],
@@ -266,7 +279,7 @@ def face_transmissibility_chunk(
     out = np.full((6, len(mesh)), np.nan)
     for a in np.flatnonzero(axes):
         before = mesh.copy()
-        before[:, a] = np.maximum(before[:, a] - block[a], 0)  # the first block pairs with the face
+        before[:, a] = _before(before[:, a], block[a])  # the first block pairs with the face
         mid = mesh[:, a].copy()
         out[a] = _pairs(t, grid, before, mid, ends, border, a, axes, kx.shape)
         last = np.flatnonzero(ends[:, a] == kx.shape[a])
@@ -296,6 +309,13 @@ def _pairs(t: list[np.ndarray], grid: Grid, first: np.ndarray, mid: np.ndarray, 
     return T
 
 
+def refuse_grouping(cells: tuple[Size, int, int], method: str, why: str) -> None:
+    """Raise `InputError` if `cells` groups the layers unevenly, which `method` cannot take (`why`)."""
+    if isinstance(cells[0], tuple):
+        raise InputError(f"method {method} cannot take coarse layers of unequal thickness ({why}); "
+                         "use a uniform NZ, or another method such as flow or flow-transmissibility")
+
+
 def options_for(field_grid: Grid, ndim: int) -> dict[str, Any]:
     """Options every chunk function needs from the fine grid."""
     return {
@@ -322,7 +342,7 @@ def _inputs(field: Field) -> tuple[list[Any], dict[str, Any]]:
     return arrays, options_for(field.grid, field.ndim)
 
 
-def flow_properties(field: Field, cells: tuple[int, int, int], bc: str = "sealed",
+def flow_properties(field: Field, cells: tuple[Size, int, int], bc: str = "sealed",
                     border: int = 0) -> dict[str, Any]:  # fmt: skip
     """Flow-based tensor of every block of a field, lazily for dask arrays.
 
@@ -330,8 +350,9 @@ def flow_properties(field: Field, cells: tuple[int, int, int], bc: str = "sealed
     ----------
     field : Field
         The fine field, cropped to the blocks it is upscaled to.
-    cells : (int, int, int)
-        Cells per block (layers, rows, columns).
+    cells : (Size, int, int)
+        Cells per block (layers, rows, columns); layers may be a grouping
+        (`upscale.grid.blocks.Size`).
     bc : {'sealed', 'linear', 'periodic'}
         Boundary conditions of the local problems.
     border : int
@@ -352,7 +373,7 @@ def flow_properties(field: Field, cells: tuple[int, int, int], bc: str = "sealed
     return {"tensor": tensor}
 
 
-def direct_properties(field: Field, cells: tuple[int, int, int], bc: str = "sealed",
+def direct_properties(field: Field, cells: tuple[Size, int, int], bc: str = "sealed",
                       border: int = 0) -> dict[str, Any]:  # fmt: skip
     """Flow-based block tensors plus coarse face transmissibilities upscaled directly.
 
@@ -372,7 +393,7 @@ def direct_properties(field: Field, cells: tuple[int, int, int], bc: str = "seal
     """
     properties = flow_properties(field, cells, bc, border)
     arrays, opts = _inputs(field)
-    depth = tuple(b + border if (a > 0 or field.ndim == 3) else 0 for a, b in enumerate(cells))
+    depth = tuple(span(b) + border if (a > 0 or field.ndim == 3) else 0 for a, b in enumerate(cells))
     properties["faces"] = apply_regions(face_transmissibility_chunk, arrays, field.grid.dz, cells,
                                         depth, 6, border=border, **opts)  # fmt: skip
     return properties

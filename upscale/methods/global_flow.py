@@ -44,6 +44,7 @@ import numpy as np
 from ..errors import InputError
 from ..field import AXES, Field
 from ..flow import AxisFlow, pressure_drop, transmissibilities
+from ..grid.blocks import Size, axis_edges
 from .flow_based import flow_properties
 
 #: A flow's coarse pressure difference at a face counts only above this fraction of the flow's
@@ -52,7 +53,7 @@ from .flow_based import flow_properties
 NEGLIGIBLE = 1e-6
 
 
-def global_properties(field: Field, cells: tuple[int, int, int], *,
+def global_properties(field: Field, cells: tuple[Size, int, int], *,
                       flows: dict[str, AxisFlow] | None = None) -> dict[str, Any]:  # fmt: skip
     """Sealed flow-based block tensors, and face transmissibilities fitted to global fine flows.
 
@@ -105,7 +106,7 @@ def _axis_flows(field: Field, flows: dict[str, AxisFlow] | None) -> list[AxisFlo
     return [flows[axis] if axis in flows else pressure_drop(trans, axis) for axis in field.axes]
 
 
-def fitted_faces(flows: list[AxisFlow], cells: tuple[int, int, int]) -> np.ndarray:
+def fitted_faces(flows: list[AxisFlow], cells: tuple[Size, int, int]) -> np.ndarray:
     """Coarse face transmissibilities, least-squares fits of the fine fluxes to coarse pressure drops.
 
     Parameters
@@ -113,8 +114,9 @@ def fitted_faces(flows: list[AxisFlow], cells: tuple[int, int, int]) -> np.ndarr
     flows : list of AxisFlow
         Pressure-drop solves along the axes of one fine grid (p = 1 on the
         inlet face, p = 0 on the outlet face).
-    cells : (int, int, int)
-        Cells per block (layers, rows, columns).
+    cells : (Size, int, int)
+        Cells per block (layers, rows, columns); layers may be a grouping
+        (`upscale.grid.blocks.Size`).
 
     Returns
     -------
@@ -127,7 +129,7 @@ def fitted_faces(flows: list[AxisFlow], cells: tuple[int, int, int]) -> np.ndarr
     """
     trans = flows[0].trans
     shape = trans.shape
-    starts = [np.arange(0, n, b) for n, b in zip(shape, cells)]
+    starts = [axis_edges(b, n)[:-1] for n, b in zip(shape, cells)]
     counts = [len(s) for s in starts]
     volume = trans.grid.dz[:, None, None]  # cell volume over dx dy (uniform), broadcast
     means = [_block_means(flow.pressure, volume, starts) for flow in flows]

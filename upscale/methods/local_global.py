@@ -79,7 +79,7 @@ import numpy as np
 from ..errors import InputError
 from ..field import AXES, Field
 from ..flow import ConvergenceError, Transmissibilities, pressure_drop
-from .flow_based import direct_properties
+from .flow_based import direct_properties, refuse_grouping
 from .local_global_regions import Regions, assemble, lazy_regions
 
 #: Default largest relative change of a face transmissibility between two iterations at convergence
@@ -139,6 +139,7 @@ def local_global_properties(field: Field, cells: tuple[int, int, int], bc: str =
         functionals of every chunk (`upscale.methods.local_global_regions`),
         with which `couple` iterates on the faces once the coarse model is built.
     """
+    refuse_grouping(cells, "local-global", "its regions interpolate between blocks of one size per axis")
     _check_options(sides, max_change, max_iterations)
     properties = direct_properties(field, cells, bc, border)
     properties["regions"] = lazy_regions(field, cells, border, sides)

@@ -24,7 +24,7 @@ import numpy as np
 from ..errors import InputError
 from ..field import Field
 from ..parallel import apply_regions
-from .flow_based import block_tensor_chunk, options_for
+from .flow_based import block_tensor_chunk, options_for, refuse_grouping
 
 
 def renormalized_chunk(
@@ -88,6 +88,7 @@ def renormalized_properties(field: Field, cells: tuple[int, int, int]) -> dict[s
         If a block size is not a power of two or the grid does not divide
         into whole blocks.
     """
+    refuse_grouping(cells, "renormalization", "it halves every block at each step, the same for all")
     wrong = [n for n in cells if n & (n - 1)]
     if wrong:
         block = "x".join(map(str, cells[::-1][: field.ndim]))

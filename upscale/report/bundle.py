@@ -230,4 +230,6 @@ def _size(size: float | dict[str, float]) -> float:
 
 
 def _block(block: dict[str, Any], axes: str) -> str:
-    return "x".join(str(block[a]) for a in axes) + " fine cells (x first)"
+    # a grouping of the layers is recorded as the list of its sizes, written 2,2,4 like --block
+    sizes = (",".join(map(str, block[a])) if isinstance(block[a], list) else str(block[a]) for a in axes)
+    return "x".join(sizes) + " fine cells (x first)"

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..flow import AxisFlow
+from ..grid.blocks import Size, axis_edges
 
 
 def face_fluxes(flow: AxisFlow, axis: int) -> np.ndarray:
@@ -37,7 +38,7 @@ def face_fluxes(flow: AxisFlow, axis: int) -> np.ndarray:
 
 
 def coarse_face_mismatch(
-    fine: AxisFlow, coarse: AxisFlow, block: tuple[int, int, int], axis: int
+    fine: AxisFlow, coarse: AxisFlow, block: tuple[Size, int, int], axis: int
 ) -> np.ndarray:
     """Coarse-face flux minus the summed fine flux through the same face, over the fine flow rate.
 
@@ -45,8 +46,8 @@ def coarse_face_mismatch(
     ----------
     fine, coarse : AxisFlow
         The fine and the coarse solve of one check axis.
-    block : (int, int, int)
-        Fine cells per block (layers, rows, columns).
+    block : (Size, int, int)
+        Fine cells per block (layers, rows, columns; `upscale.grid.blocks.Size`).
     axis : int
         Array axis of the faces (0 = z, 1 = y, 2 = x).
 
@@ -67,12 +68,11 @@ def coarse_face_mismatch(
     True
     """
     fine_faces = face_fluxes(fine, axis)
-    n = fine.pressure.shape[axis]
-    on_coarse = np.arange(block[axis] - 1, n - 1, block[axis])
+    on_coarse = axis_edges(block[axis], fine.pressure.shape[axis])[1:-1] - 1
     summed = np.take(fine_faces, on_coarse, axis=axis)
     for other in range(3):
         if other != axis:
-            starts = np.arange(0, summed.shape[other], block[other])
+            starts = axis_edges(block[other], summed.shape[other])[:-1]
             summed = np.add.reduceat(summed, starts, axis=other)
     total = fine.outflow if fine.outflow else 1.0
     return (face_fluxes(coarse, axis) - summed) / total

@@ -86,9 +86,10 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     """
     fine = comparison.fine
     ran = comparison.ranked
-    bz, by, _ = comparison.block.cells
+    spec = comparison.block
     where = (None, row) if row is not None else (layer, None)
-    coarse_where = (None, row // by) if row is not None else (layer // bz, None)
+    coarse_where = ((None, spec.coarse_index(row, fine.shape[1], 1)) if row is not None
+                    else (spec.coarse_index(layer, fine.shape[0], 0), None))  # fmt: skip
     fine_values = _slice(np.asarray(fine.kx, dtype=float), *where)
     coarse_values = [_slice(e.result.coarse.kx, *coarse_where) for e in ran]
     norm = log_norm(fine_values, *coarse_values)
@@ -118,8 +119,8 @@ def _best_and_worst(comparison: Comparison, ran: list[Entry]) -> list[tuple[Entr
 def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) -> Figure:
     """Fine and coarse pressures of the check along `axis`: the best and the worst method, or the one."""
     chosen = _best_and_worst(comparison, comparison.ranked)
-    bz = comparison.block.cells[0]
     fine_flow = comparison.fine_flows[axis]
+    coarse_layer = comparison.block.coarse_index(layer, fine_flow.pressure.shape[0], 0)
     fig, axes = panel_grid(1 + len(chosen), width=3.0, share=True)
     norm = Normalize(0.0, 1.0)
     cmap = with_missing(PRESSURE_MAP)
@@ -128,7 +129,7 @@ def pressure_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
     axes[0].set_title("fine")
     for ax, (entry, text) in zip(axes[1:], chosen):
         flow = entry.checks[axis].coarse
-        shown.append(flow.pressure[layer // bz])
+        shown.append(flow.pressure[coarse_layer])
         _draw(ax, shown[-1], plan_edges(flow.trans.grid), cmap=cmap, norm=norm)
         ax.set_title(text)
     fig.colorbar(mesh, ax=axes, label="pressure (fraction of the drop, inlet = 1)", shrink=0.8)
@@ -161,9 +162,9 @@ def well_pressure_maps(comparison: Comparison, *, layer: int = 0) -> Figure | No
     if not ran:
         return None
     chosen = _best_and_worst(comparison, ran)
-    bz = comparison.block.cells[0]
     fine = ran[0].wells
-    shown = [fine.fine.pressure[layer]] + [e.wells.coarse.pressure[layer // bz] for e, _ in chosen]
+    coarse_layer = comparison.block.coarse_index(layer, fine.fine.pressure.shape[0], 0)
+    shown = [fine.fine.pressure[layer]] + [e.wells.coarse.pressure[coarse_layer] for e, _ in chosen]
     grids = [comparison.fine.grid] + [e.result.coarse.grid for e, _ in chosen]
     finite = np.concatenate([v[np.isfinite(v)] for v in shown])
     low, high = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
@@ -248,8 +249,7 @@ def mismatch_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
     """
     a = {"x": 2, "y": 1, "z": 0}[axis]
     ran = comparison.ranked
-    block = comparison.block.cells
-    maps = [100 * _mismatch(e, comparison, axis, a, block, layer) for e in ran]
+    maps = [100 * _mismatch(e, comparison, axis, a, layer) for e in ran]
     largest = max([np.nanmax(np.abs(m)) for m in maps if np.isfinite(m).any()] + [1e-10])
     norm = TwoSlopeNorm(0.0, -largest, largest)
     fig, axes = panel_grid(len(ran), width=3.0 if len(ran) == 1 else 2.6, share=True)
@@ -266,13 +266,14 @@ def mismatch_maps(comparison: Comparison, *, axis: str = "x", layer: int = 0) ->
     return fig
 
 
-def _mismatch(entry: Entry, comparison: Comparison, axis: str, a: int, block, layer: int) -> np.ndarray:
+def _mismatch(entry: Entry, comparison: Comparison, axis: str, a: int, layer: int) -> np.ndarray:
     """One layer of the mismatch on the coarse faces normal to array axis `a`; NaN beside inactive blocks."""
     check = entry.checks[axis]
-    values = coarse_face_mismatch(comparison.fine_flows[axis], check.coarse, block, a)
+    fine = comparison.fine_flows[axis]
+    values = coarse_face_mismatch(fine, check.coarse, comparison.block.cells, a)
     k = np.asarray(entry.result.coarse.kx, dtype=float)
     n = k.shape[a]
     active = np.isfinite(k)
     beside = np.take(active, np.arange(n - 1), axis=a) & np.take(active, np.arange(1, n), axis=a)
     values = np.where(beside, values, np.nan)
-    return values[min(layer // block[0], values.shape[0] - 1)]
+    return values[min(comparison.block.coarse_index(layer, fine.pressure.shape[0], 0), values.shape[0] - 1)]
