@@ -5,8 +5,9 @@ What is tested
 * Every drawn text of every figure (titles, axis and tick labels, legends,
   colour bars) lies inside the canvas: for a comparison of one method (the
   figures of ``upscale run --plot``, whose one-panel titles were clipped at
-  both ends), of three, of all twelve candidates (a 3 x 4 grid of maps) and
-  of a 3D model.
+  both ends), of three, of all twelve candidates (a 3 x 4 grid of maps), of
+  a 3D model, and of one method on a 3D model (whose error chart's legend
+  ran off both sides in one row).
 * Every drawn text is at least 8 points on the report page. The page shows
   a figure at most 1100 CSS pixels wide (``max-width`` in
   ``upscale/report/html.py``) and the PNG is rendered at 130 dpi
@@ -42,7 +43,8 @@ def _comparison(methods: list[str] | None, seed: int, shape=(32, 32), block="8x8
     return compare_methods(field, block, candidates(methods, **options))
 
 
-@pytest.fixture(scope="module", params=["one method", "three methods", "twelve candidates", "3D"])
+@pytest.fixture(scope="module",
+                params=["one method", "three methods", "twelve candidates", "3D", "one method, 3D"])
 def plots(request):
     """The figures of a comparison: what ``upscale run --plot`` and ``upscale compare`` draw."""
     cases = {
@@ -52,9 +54,12 @@ def plots(request):
         "twelve candidates": lambda: _comparison(None, 7413),
         "3D": lambda: _comparison(["arithmetic", "flow"], 7414, shape=(4, 16, 16), block="8x8x2",
                                   dz=[1.0, 2.0, 0.5, 2.0]),
+        # a narrow chart with five legend entries (band, x, y, z, corner): in one row they ran off both sides
+        "one method, 3D": lambda: _comparison(["arithmetic"], 7415, shape=(4, 16, 16), block="8x8x2",
+                                              dz=[1.0, 2.0, 0.5, 2.0]),
     }  # fmt: skip
     comparison = cases[request.param]()
-    if request.param == "one method":  # one candidate: the figures of a run
+    if request.param.startswith("one method"):  # one candidate: the figures of a run
         assert len(comparison.candidates) == 1
     return build_figures(comparison, "mD")
 

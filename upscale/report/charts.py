@@ -20,7 +20,7 @@ from ..analysis.plan_record import PlanRecord
 from ..check.axis import check_names, flow_label
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
-from .layout import LABEL, MAX_WIDTH, outer_labels, page_sizes, panel_grid, title
+from .layout import LABEL, MAX_WIDTH, legend_below, outer_labels, page_sizes, panel_grid, title
 from .style import PALETTE, style_of
 from .verdict import BAND, entry_name, no_block_warning, one_method, outside_band
 
@@ -116,8 +116,7 @@ def error_bars(comparison: Comparison) -> Figure:
     best = comparison.best
     warn_in(ax, best and outside_band(best.candidate.label, best.worst_error, several=not alone))
     # below the panel: inside it, "best" still hid bars once thirteen methods and three flows filled it
-    handles, labels = ax.get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside lower center", ncols=len(handles), fontsize=LABEL, frameon=False)
+    legend_below(fig, ax)
     title(fig, f"Flow check error of {ran[0].candidate.label} per flow" if alone
           else "Flow check error per method and flow")  # fmt: skip
     page_sizes(fig)
@@ -154,8 +153,7 @@ def well_rates(comparison: Comparison) -> Figure | None:
     ax.set_xticks(x, names)
     ax.set_xlabel("well (bottom-hole pressure fixed)")
     ax.set_ylabel(f"|rate| · μ ({comparison.fine.unit}·m × unit of pressure)")
-    handles, labels = ax.get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside lower center", ncols=len(handles), fontsize=LABEL, frameon=False)
+    legend_below(fig, ax)
     title(fig, "Well rates on the fine grid and on the coarse grid")
     page_sizes(fig)
     return fig

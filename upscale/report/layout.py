@@ -109,3 +109,19 @@ def page_sizes(figure: Figure) -> None:
 def title(figure: Figure, text: str) -> None:
     """The figure's title, wrapped to the figure's width so it never runs off the canvas."""
     figure.suptitle(text, fontsize=SUPTITLE, wrap=True)
+
+
+def legend_below(figure: Figure, ax: Axes) -> None:
+    """The legend of `ax` centred below the panels, in one row if it fits the figure's width, else more.
+
+    A one-method chart is narrow: its five or six entries in one row ran off
+    both sides of the canvas ("5 %", "corner to" cut). The columns are cut
+    until the legend's measured width fits.
+    """
+    handles, labels = ax.get_legend_handles_labels()
+    for columns in range(len(handles), 0, -1):
+        legend = figure.legend(handles, labels, loc="outside lower center", ncols=columns, fontsize=LABEL,
+                               frameon=False)  # fmt: skip
+        if columns == 1 or legend.get_window_extent().width <= figure.bbox.width:
+            return
+        legend.remove()
