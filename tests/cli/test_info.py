@@ -254,3 +254,24 @@ def test_a_clean_field_shows_no_flag(run_cli, write_tif):
     assert not any(line.startswith(("problems", "hint")) for line in stdout.splitlines())
     description = _info_json(run_cli, path)
     assert description["suspect_values"] == [] and description["suggested_nodata"] is None
+
+
+def test_layer_profile_of_the_layer_cake(run_cli, demo_dir):
+    # the demo's story: a 0.01 mD shale every fifth layer (kz = 0.1 kx); the profile's geometric means
+    # are checked against NumPy on the raster, the barriers against that story
+    path = demo_dir / "marrowfen_layered.tif"
+    code, stdout, err = run_cli("info", path, "--dz", "1", "--kv-kh", "0.1")
+    assert (code, err) == (0, "")
+    assert "barriers     layers 5, 10, 15, 20: kz 100 times or more below the typical layer" in stdout
+    layers = _info_json(run_cli, path, "--dz", "1", "--kv-kh", "0.1")["layers"]
+    k = read_raster(path).astype(np.float64)
+    assert [row["layer"] for row in layers["layers"]] == list(range(1, 21))
+    for row, values in zip(layers["layers"], k):
+        assert row["ln_kx_mean"] == pytest.approx(np.log(values).mean(), rel=1e-12)
+        assert row["ln_kz_mean"] == pytest.approx(np.log(0.1 * values).mean(), rel=1e-6)  # float32 kv/kh
+        assert row["active_fraction"] == 1.0 and row["thickness_m"] == 1.0
+    assert layers["barriers"] == [{"first": f, "last": f} for f in (5, 10, 15, 20)]
+
+
+def test_a_map_has_no_layer_profile(run_cli, map_path):
+    assert "layers" not in _info_json(run_cli, map_path)

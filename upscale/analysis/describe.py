@@ -13,6 +13,7 @@ from ..field import Field
 from ..parallel import compute_together
 from ..stats import ValueScan, scan_each
 from .connectivity import HIGH_K, connectivity
+from .layers import layer_profile
 
 
 def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, ValueScan]]:
@@ -25,7 +26,9 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
         ``active_cells``, ``active_fraction``, ``statistics`` (per property),
         ``log10_k``, ``problems``, ``suspect_values``, ``suggested_nodata`` and
         ``connectivity`` (the high-k bodies per axis, `upscale.analysis.connectivity`;
-        None past its cell limit).
+        None past its cell limit) and, for a 3D model, ``layers``: the layer
+        profile (`upscale.analysis.layers.LayerProfile.summary`, with the
+        barrier runs).
     scans : dict of str to ValueScan
         Per property.
     """
@@ -58,6 +61,8 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
     spans = connectivity(fine)
     description["connectivity"] = None if spans is None else {
         "high_k": HIGH_K, "axes": {axis: s.summary() for axis, s in spans.items()}}  # fmt: skip
+    if fine.ndim == 3:
+        description["layers"] = layer_profile(fine).summary()
     return description, scans
 
 

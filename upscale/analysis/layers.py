@@ -76,7 +76,7 @@ def _sums(k: Any) -> dict[str, Any]:
     """Per-layer counts and sums of ln k of one property, lazily for dask arrays."""
     active = k == k
     positive = k > 0
-    ln = np.log(np.where(positive, k, 1.0))
+    ln = np.log(np.where(positive, k, 1.0).astype(np.float64))  # a float32 raster's ln in full precision
     return {
         "active": active.sum(axis=(1, 2)),
         "zero": (active & ~positive).sum(axis=(1, 2)),

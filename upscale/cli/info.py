@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import json
+import math
 
 import click
 
 from ..analysis.describe import describe_field
 from ..analysis.records import jsonable
+from ..grid.layers import BARRIER_CONTRAST
 from ..io import read_field
 from ..stats import ValueScan, where
 from .options import field_options, read_options
@@ -64,6 +66,8 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     ]  # fmt: skip
     click.echo("")
     click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
+    if "layers" in description:
+        _print_layers(description["layers"], fine.unit)
 
 
 def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: float | None) -> None:
@@ -88,6 +92,31 @@ def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: fl
     elif suspects:
         click.echo("hint         if these values mark cells without data, give --nodata VALUE; "
                    "'upscale run' refuses what a method cannot take")
+
+
+def _print_layers(profile: dict, unit: str) -> None:
+    """The layer profile, top down (thickness, active share, mean and spread of ln k), and the barriers."""
+
+    def geo(row: dict, name: str) -> str:
+        return "-" if row[f"ln_{name}_mean"] is None else number(math.exp(row[f"ln_{name}_mean"]))
+
+    def spread(row: dict, name: str) -> str:
+        return "-" if row[f"ln_{name}_std"] is None else number(row[f"ln_{name}_std"], ".2f")
+
+    rows = [[str(row["layer"]), f"{row['thickness_m']:g}", f"{100 * row['active_fraction']:.0f} %",
+             geo(row, "kx"), spread(row, "kx"), geo(row, "kz"), spread(row, "kz")]
+            for row in profile["layers"]]  # fmt: skip
+    click.echo("")
+    click.echo(table(["layer", "dz m", "active", "kx geo", "sd ln kx", "kz geo", "sd ln kz"], rows))
+    click.echo(f"(top down; kx, kz in {unit}; geo: geometric mean over the layer's active cells)")
+    runs = [f"{b['first']}-{b['last']}" if b["last"] > b["first"] else str(b["first"])
+            for b in profile["barriers"]]
+    if runs:
+        click.echo(f"barriers     layers {', '.join(runs)}: kz {BARRIER_CONTRAST:g} times or more below the "
+                   "typical layer; --block NXxNYxauto:N keeps them as coarse layers of their "
+                   "own")  # fmt: skip
+    else:
+        click.echo(f"barriers     none (no layer's kz is {BARRIER_CONTRAST:g} times below the typical layer)")
 
 
 def _print_connectivity(found: dict | None) -> None:
