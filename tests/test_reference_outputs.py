@@ -51,6 +51,8 @@ CASES = {
                               "--block", "8x8", "--method", "geometric"],
     "flow-transmissibility-3d": ["run", "@marrowfen_3d.tif", "--dz", "2", "--kv-kh", "0.1", "--block",
                                  "8x8x4", "--method", "flow-transmissibility", "--border", "2"],
+    "geometric-3d-auto-layers": ["run", "@marrowfen_3d.tif", "--dz", "2", "--kv-kh", "0.1", "--block",
+                                 "8x8xauto:4", "--method", "geometric"],
     "flow-periodic-figures": ["run", "@marrowfen_channels.tif", "--block", "16x16", "--method", "flow",
                               "--bc", "periodic", "--border", "2", "--plot"],
     "compare-lognormal": ["compare", "@marrowfen_lognormal.tif", "--block", "16x16", "--methods",

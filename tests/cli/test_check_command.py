@@ -99,7 +99,9 @@ def test_check_command_reproduces_the_run(demo_dir, tmp_path, run_cli):
     run_cli("run", str(demo_dir / "marrowfen_3d.tif"), "--dz", "2", "--block", "8x8x4", "--remainder",
             "keep", "--method", "geometric", "--out", str(out))  # fmt: skip
     before = _summary(out)["check"]
-    status, stdout, _ = run_cli("check", str(out), "--tolerance", "1e-12")
+    # 1e-11, not tighter: across the demo's mudstone (contrast near 1e4) the multigrid stalls near a
+    # scaled residual of 2e-12 (measured), the floating-point floor of that contrast
+    status, stdout, _ = run_cli("check", str(out), "--tolerance", "1e-11")
     assert status == 0
     after = _summary(out)["check"]
     for axis in ("x", "y", "z"):

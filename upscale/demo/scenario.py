@@ -46,6 +46,14 @@ def _outline(shape: tuple[int, int]) -> np.ndarray:
     return (x - 1.0) ** 2 + y**2 < 0.3**2 + 0.05 * np.sin(12 * x)
 
 
+def _windows(shape: tuple[int, int]) -> np.ndarray:
+    """True in two erosional windows of the mudstone, where the sands above and below it touch."""
+    rows, cols = np.mgrid[0 : shape[0], 0 : shape[1]]
+    west = ((rows - 62) / 9.0) ** 2 + ((cols - 22) / 14.0) ** 2 < 1.0
+    east = ((rows - 30) / 6.0) ** 2 + ((cols - 58) / 8.0) ** 2 < 1.0
+    return west | east
+
+
 def fields() -> dict[str, dict]:
     """Every demo field: its array ``(L, M, N)``, cell size (m), layer thickness and story."""
     lognormal_gauss = gaussian_field((256, 256), (6.0, 12.0), seed=73_019_241)
@@ -59,6 +67,8 @@ def fields() -> dict[str, dict]:
         (16, 96, 96), (2.0, 6.0, 10.0), geometric_mean=60.0, sigma_ln=1.2, seed=52_884_107
     )
     three_d *= np.geomspace(0.5, 2.0, 16)[:, None, None]  # coarsening-upward trend
+    mudstone = lognormal_field((2, 96, 96), (1.0, 8.0, 8.0), geometric_mean=0.02, sigma_ln=0.5, seed=52_884_108)
+    three_d[8:10] = np.where(_windows((96, 96)), three_d[8:10], mudstone)  # layers 9-10
     three_d[:, _outline((96, 96))] = NODATA
 
     realizations = {
@@ -120,7 +130,9 @@ def fields() -> dict[str, dict]:
             "dz": 2.0,
             "unit": "mD",
             "story": "3D lognormal model, 16 layers of 2 m, geometric mean 60 mD coarsening "
-            "upward, sigma(ln k) = 1.2; the north-east corner is outside the model (use --dz 2).",
+            "upward, sigma(ln k) = 1.2, cut by a 4 m mudstone (layers 9-10, about 0.02 mD) that the "
+            "sands cross only in two erosional windows; the north-east corner is outside the model "
+            "(use --dz 2).",
         },
         **realizations,
     }
