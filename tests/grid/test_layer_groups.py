@@ -124,6 +124,10 @@ def test_dynamic_programme_is_the_brute_force_optimum(profile):
     best = min((_merged(s, runs), _direct_loss(weight, x, z, s)) for s in _compositions(weight.size, count))
     assert found.merged == best[0] == _merged(found.sizes, runs)
     assert found.loss * total == pytest.approx(best[1], rel=1e-9, abs=1e-9)
+    # the count it names as enough to keep every barrier apart is the least that merges none
+    apart = next(c for c in range(1, weight.size + 1) if any(_merged(s, runs) == 0 for s in
+                                                             _compositions(weight.size, c)))  # fmt: skip
+    assert found.apart == apart
 
 
 def _shale_profile(layers=16, shale=6):

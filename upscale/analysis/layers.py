@@ -220,7 +220,7 @@ class LayerChoice:
         """As summary.json records it: layers numbered from 1; loss: share of the between-layer variance."""
         g = self.grouping
         return {"request": str(self.request), "sizes": list(g.sizes), "loss": g.loss,
-                "merged_barriers": g.merged,
+                "merged_barriers": g.merged, "fewest_keeping_barriers": g.apart,
                 "barriers": [{"first": a + 1, "last": b} for a, b in g.barriers],
                 "boundaries": [{"after_layer": b.after, "reason": b.reason, "text": b.text}
                                for b in self.boundaries]}  # fmt: skip
@@ -232,6 +232,7 @@ def choice_lines(layers: dict[str, Any]) -> list[str]:
     Examples
     --------
     >>> choice_lines({"request": "auto:2", "sizes": [1, 2], "loss": 0.25, "merged_barriers": 0,
+    ...               "fewest_keeping_barriers": 1,
     ...               "boundaries": [{"after_layer": 1, "text": "contrast: ..."}]})
     ... # doctest: +NORMALIZE_WHITESPACE
     ['auto:2 chose 1,2 fine layers per coarse layer (top down), losing 25 % of the between-layer variance',
@@ -241,8 +242,8 @@ def choice_lines(layers: dict[str, Any]) -> list[str]:
     head = (f"{layers['request']} chose {sizes} fine layers per coarse layer (top down), losing "
             f"{100 * layers['loss']:.3g} % of the between-layer variance")  # fmt: skip
     if layers["merged_barriers"]:
-        head += (f"; {layers['merged_barriers']} barrier(s) share a coarse layer with other layers (too few "
-                 "coarse layers to keep them all apart)")  # fmt: skip
+        head += (f"; {layers['merged_barriers']} barrier(s) share a coarse layer with other layers (keeping "
+                 f"them all apart takes {layers['fewest_keeping_barriers']} coarse layers)")  # fmt: skip
     return [head] + [f"after layer {b['after_layer']}: {b['text']}" for b in layers["boundaries"]]
 
 

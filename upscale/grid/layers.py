@@ -210,12 +210,16 @@ class Grouping:
         once per such coarse layer.
     barriers : list of (int, int)
         Every barrier of the profile, ``[start, stop)`` fine layers.
+    apart : int
+        The fewest coarse layers that keep every barrier apart: one per
+        barrier and one per stretch of other layers above, between and below.
     """
 
     sizes: tuple[int, ...]
     loss: float
     merged: int
     barriers: list[tuple[int, int]]
+    apart: int
 
 
 def group_costs(weight: np.ndarray, x: np.ndarray, z: np.ndarray) -> np.ndarray:
@@ -302,7 +306,21 @@ def optimal_groups(weight: np.ndarray, x: np.ndarray, z: np.ndarray, request: La
     edges = group_edges(sizes)
     found = sum(float(cost[a, b]) for a, b in zip(edges[:-1], edges[1:]))
     merged = int(sum(_mergers(layers, runs)[a, b] for a, b in zip(edges[:-1], edges[1:])))
-    return Grouping(sizes=sizes, loss=_loss(found, total), merged=merged, barriers=runs)
+    return Grouping(sizes=sizes, loss=_loss(found, total), merged=merged, barriers=runs,
+                    apart=_fewest_apart(layers, runs))  # fmt: skip
+
+
+def _fewest_apart(layers: int, runs: list[tuple[int, int]]) -> int:
+    """Coarse layers needed to keep every barrier run apart: the runs and the stretches between them.
+
+    Examples
+    --------
+    >>> _fewest_apart(16, [(8, 10)]), _fewest_apart(20, [(4, 5), (9, 10), (19, 20)]), _fewest_apart(3, [])
+    (3, 6, 1)
+    """
+    bounds = [0, *(edge for run in runs for edge in run), layers]
+    stretches = sum(b > a for a, b in zip(bounds[::2], bounds[1::2]))
+    return max(len(runs) + stretches, 1)
 
 
 def _loss(found: float, total: float) -> float:
