@@ -63,7 +63,7 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
         "unit": fine.unit,
         "grid": f"{_dims(fine.shape, fine.ndim)} cells of {grid.dx[0]:g} m × {grid.dy[0]:g} m"
         + (f", {grid.dz.sum():g} m thick in all" if fine.ndim == 3 else ""),
-        "block": f"{comparison.block} fine cells (x first)",
+        "block": f"{comparison.block.label} fine cells (x first)",
         "caution": CAUTION,
         "versions": versions(),
     }

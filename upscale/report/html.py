@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from ..analysis.compare import Comparison, Entry
+from ..analysis.layers import choice_lines
 from ..check.axis import HELD_OUT, check_names, flow_label
 from ..field import PERMEABILITY
 from .figures import Plot
@@ -183,7 +184,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
-<h2>{heading}</h2>
+{_layers(comparison)}<h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.
 It also applies a held-out flow no method is fitted to: pressure fixed on the outer faces of one
@@ -203,6 +204,15 @@ _WELLS = """
 With wells, each model is also driven by the wells of the wells file (Peaceman's well index in each
 fine cell; each coarse block connected by near-well upscaling or Peaceman's formula, as the check records;
 docs/wells.md): error wells is the error of the total well rate."""
+
+
+def _layers(comparison: Comparison) -> str:
+    """A paragraph on how the automatic layers were chosen: the grouping, its loss, each boundary's reason."""
+    if comparison.layers is None:
+        return ""
+    head, *boundaries = choice_lines(comparison.layers.summary())
+    items = "".join(f"<li>{_e(line)}</li>" for line in boundaries)
+    return f"<p>Layers: {_e(head)}.</p>\n" + (f"<ul>{items}</ul>\n" if items else "")
 
 
 def _verdict(comparison: Comparison, ranked: bool) -> str:
