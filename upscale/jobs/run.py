@@ -249,6 +249,8 @@ def with_layers(path: str, blocks: list[BlockSpec], fine: Field, *, chunk_bytes:
     """
     found = [resolve_layers(block, fine) for block in blocks]
     resolved = [block for block, _ in found]
+    if not resolved:
+        return [], [], fine
     grouped = any(block.groups is not None for block in resolved)
     chunk = (fine.shape[0] if grouped else resolved[-1].chunk_cells[0], *resolved[-1].chunk_cells[1:])
     if chunk != blocks[-1].chunk_cells:  # within the chunk budget
