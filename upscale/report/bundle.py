@@ -211,7 +211,9 @@ def plan_bundle(plan: PlanRecord, *, title: str, command: list[str]) -> Bundle:
                   "Largest check error of each method (one line each) against the fine cells per block, "
                   f"with the largest error accepted ({limit}, dashed): a method's answer is the rightmost "
                   "point inside the grey band. A line that dips back into the band at a coarser block "
-                  "owes that to errors that cancel.")]  # fmt: skip
+                  "owes that to errors that cancel."
+                  + (" Blocks with grouped layers: dotted, open markers, at their mean fine cells per block."
+                     if any(isinstance(b.z, list) for b in plan.blocks) else ""))]  # fmt: skip
     images, shown = _rendered(plots)
     shape, fine = plan.fine.shape, plan.fine
     job = {

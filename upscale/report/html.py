@@ -184,7 +184,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
-{_layers(comparison)}<h2>{heading}</h2>
+{layers_html(None if comparison.layers is None else comparison.layers.summary())}<h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.
 It also applies a held-out flow no method is fitted to: pressure fixed on the outer faces of one
@@ -206,11 +206,12 @@ fine cell; each coarse block connected by near-well upscaling or Peaceman's form
 docs/wells.md): error wells is the error of the total well rate."""
 
 
-def _layers(comparison: Comparison) -> str:
-    """A paragraph on how the automatic layers were chosen: the grouping, its loss, each boundary's reason."""
-    if comparison.layers is None:
+def layers_html(layers: dict[str, Any] | None) -> str:
+    """How automatic layers were chosen (`LayerChoice.summary`): the grouping and its loss, then each
+    boundary's reason as a list; empty for None."""
+    if layers is None:
         return ""
-    head, *boundaries = choice_lines(comparison.layers.summary())
+    head, *boundaries = choice_lines(layers)
     items = "".join(f"<li>{_e(line)}</li>" for line in boundaries)
     return f"<p>Layers: {_e(head)}.</p>\n" + (f"<ul>{items}</ul>\n" if items else "")
 
