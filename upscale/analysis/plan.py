@@ -74,7 +74,7 @@ class Plan:
         return [block_cells(block, self.fine.shape) for block in self.blocks]
 
     def coarsest(self, candidate: Candidate) -> BlockSpec | None:
-        """The coarsest block at which `candidate` is within `max_error` (None: at no block; `coarsest_passing`)."""
+        """The coarsest block at which `candidate` is within `max_error`, or None (`coarsest_passing`)."""
         index = coarsest_passing(self.meets(candidate), self.cells, self.errors(candidate))
         return None if index is None else self.blocks[index]
 
@@ -88,7 +88,8 @@ def block_cells(block: BlockSpec, shape: tuple[int, int, int]) -> float:
 
     Examples
     --------
-    >>> block_cells(BlockSpec.parse("4x4x2"), (8, 16, 16)), block_cells(BlockSpec.parse("4x4x1,3,2,2"), (8, 16, 16))
+    >>> shape = (8, 16, 16)
+    >>> block_cells(BlockSpec.parse("4x4x2"), shape), block_cells(BlockSpec.parse("4x4x1,3,2,2"), shape)
     (32, 32.0)
     """
     if block.groups is None:
@@ -97,8 +98,10 @@ def block_cells(block: BlockSpec, shape: tuple[int, int, int]) -> float:
 
 
 def coarsest_passing(passes: list[bool], cells: list[float], errors: list[float]) -> int | None:
-    """Index of the coarsest block that passes (blocks finest first); between equally coarse ones, the
-    one with the smaller error (then the first listed).
+    """Index of the coarsest block that passes (blocks finest first), or None.
+
+    Between blocks as coarse as one another, the one with the smaller error
+    (then the first listed).
 
     Parameters
     ----------
@@ -113,8 +116,10 @@ def coarsest_passing(passes: list[bool], cells: list[float], errors: list[float]
     --------
     >>> coarsest_passing([True, False, True, False], [4, 16, 64, 256], [0.01, 0.1, 0.02, 0.2])
     2
-    >>> coarsest_passing([True, True, True], [4, 16, 16], [0.01, 0.04, 0.02]), coarsest_passing([False], [4], [1])
-    (2, None)
+    >>> coarsest_passing([True, True, True], [4, 16, 16], [0.01, 0.04, 0.02])
+    2
+    >>> coarsest_passing([False], [4], [1.0]) is None
+    True
     """
     ran = [i for i, ok in enumerate(passes) if ok]
     return min(ran, key=lambda i: (-cells[i], errors[i], i), default=None)
@@ -212,9 +217,10 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
 
 
 def _side_by_side(one: BlockSpec, other: BlockSpec, shape: tuple[int, int, int]) -> bool:
-    """Whether two blocks make the same coarse cells but for their layer boundaries (one at least grouped)."""
-    return ((one.nx, one.ny) == (other.nx, other.ny) and (one.groups or other.groups) is not None
-            and one.coarse_shape(shape) == other.coarse_shape(shape) and one.cells != other.cells)  # fmt: skip
+    """Whether two blocks make the same coarse cells but for their layer boundaries (one grouped at least)."""
+    grouped = (one.groups or other.groups) is not None
+    return ((one.nx, one.ny) == (other.nx, other.ny) and grouped and one.cells != other.cells
+            and one.coarse_shape(shape) == other.coarse_shape(shape))  # fmt: skip
 
 
 def _extent(shape: tuple[int, int, int], ndim: int) -> str:

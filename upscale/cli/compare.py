@@ -8,7 +8,6 @@ import click
 import numpy as np
 
 from ..analysis.compare import Entry, candidates
-from ..analysis.layers import choice_lines
 from ..caution import CAUTION
 from ..check.axis import HELD_OUT
 from ..export import check_destination
@@ -29,7 +28,7 @@ from .options import (
     well_options,
 )
 from .progress import teller
-from .report import number, print_notes, print_spread, table
+from .report import number, print_layers, print_notes, print_spread, table
 from .settings import global_options
 
 
@@ -98,7 +97,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     fine = result.fine
     if not quiet:
         if result.layers is not None:
-            _print_layers(result.layers.summary())
+            print_layers(result.layers.summary())
         _print(result.entries, fine.axes, fine.unit)
         for line in result.zero_k_notes():
             click.echo(f"zero k: {line}")
@@ -141,14 +140,6 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     for e in entries:
         if e.error:
             click.echo(f"{e.candidate.label} did not run: {e.error}")
-
-
-def _print_layers(layers: dict) -> None:
-    """The automatic grouping chosen and why each boundary is kept (`choice_lines`), before the table."""
-    head, *boundaries = choice_lines(layers)
-    click.echo(f"layers: {head}")
-    for line in boundaries:
-        click.echo(f"  {line}")
 
 
 def _percent(error: float) -> str:

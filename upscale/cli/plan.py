@@ -24,9 +24,8 @@ from .options import (
     recorded,
     well_options,
 )
-from .compare import _print_layers
 from .progress import teller
-from .report import print_notes, table
+from .report import print_layers, print_notes, table
 from .settings import global_options
 
 
@@ -109,7 +108,7 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
     if not ctx.obj["quiet"]:
         for block in record.blocks:
             if block.layers is not None:
-                _print_layers(block.layers)
+                print_layers(block.layers)
         _print(record)
         click.echo(f"wrote plan.json, report.html and 1 figure (PNG, SVG) to {out}")
 

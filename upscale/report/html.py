@@ -207,8 +207,10 @@ docs/wells.md): error wells is the error of the total well rate."""
 
 
 def layers_html(layers: dict[str, Any] | None) -> str:
-    """How automatic layers were chosen (`LayerChoice.summary`): the grouping and its loss, then each
-    boundary's reason as a list; empty for None."""
+    """How automatic layers were chosen (`LayerChoice.summary`) as HTML; empty for None.
+
+    The grouping and its loss in a paragraph, then each boundary's reason in a list.
+    """
     if layers is None:
         return ""
     head, *boundaries = choice_lines(layers)
