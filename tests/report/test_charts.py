@@ -19,7 +19,9 @@ What is tested
   its largest error at each block, on a log axis of the fine cells per block
   labelled with the blocks, the largest error accepted drawn as a line, the
   errors in plain percent on a symmetric-log axis; a warning when no method
-  passes at any block.
+  passes at any block. Blocks whose layers are grouped stand beside the
+  uniform block as coarse: one tick names both, and each method's grouped
+  blocks get a dotted line of their own with open markers.
 
 Data come from real comparisons (`compare_methods`) or, for the ensemble
 charts, from hand-built records of ``ensemble.json``.
@@ -183,7 +185,8 @@ def _plan_chart(field: np.ndarray, methods: list[str], blocks: list[str], max_er
     from upscale.grid import BlockSpec
     from upscale.report.charts import error_by_block_chart
 
-    plan = plan_blocks(Field.from_arrays(field), [BlockSpec.parse(b) for b in blocks], candidates(methods),
+    fine = Field.from_arrays(field, dz=1.0, three_d=True) if field.ndim == 3 else Field.from_arrays(field)
+    plan = plan_blocks(fine, [BlockSpec.parse(b) for b in blocks], candidates(methods),
                        max_error=max_error)  # fmt: skip
     record = plan_record(plan)
     (ax,) = error_by_block_chart(record).axes
@@ -219,6 +222,23 @@ def test_error_by_block_chart_labels_errors_below_the_accepted_one():
     low, high = ax.get_ylim()
     shown = [t for t in ax.get_yticks() if low <= t <= high]
     assert {1.0, 2.0, 5.0, 10.0} <= set(shown) and 0.0 in shown
+
+
+def test_error_by_block_chart_sets_grouped_layers_beside_uniform_ones():
+    k = np.full((12, 4, 4), 100.0)
+    k[5] = 0.01  # one continuous shale: uniform layers of 4 average it away, auto:3 keeps it alone
+    record, ax = _plan_chart(k, ["geometric"], ["2x2x4", "2x2xauto:3"])
+    FigureCanvasAgg(ax.figure).draw()
+    assert list(ax.get_xticks()) == [16]  # 2 · 2 · 12/3 fine cells per block, both
+    assert [t.get_text() for t in ax.get_xticklabels()] == ["2x2x4\n2x2xauto:3\n(16)"]
+    (planned,) = record.methods
+    uniform, grouped = [100 * b.largest_error for b in planned.blocks]
+    solid, dotted = [line for line in ax.get_lines() if list(line.get_xdata()) == [16]]
+    assert list(solid.get_ydata()) == pytest.approx([uniform]) and solid.get_linestyle() == "-"
+    assert list(dotted.get_ydata()) == pytest.approx([grouped]) and dotted.get_linestyle() == ":"
+    assert dotted.get_markerfacecolor() == "white" and grouped < 1e-6 < uniform
+    labels = ax.figure.legends[0].get_texts()
+    assert {"uniform layers", "grouped layers"} <= {t.get_text() for t in labels}
 
 
 def test_error_by_block_chart_warns_when_no_method_passes_at_any_block():

@@ -34,6 +34,7 @@ from ..grid import BlockSpec
 from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import METHODS, check_exponent
 from ..steps import Say, Steps, silent
+from .layers import LayerChoice, resolve_layers
 
 #: Boundary conditions a comparison tries for ``flow`` unless one is chosen.
 ALL_CONDITIONS = ("sealed", "linear", "periodic")
@@ -119,6 +120,8 @@ class Comparison:
         The candidates in the order given (which breaks ties).
     wells : FineWells or None
         The wells' fine solve, when the methods were also checked by wells.
+    layers : LayerChoice or None
+        How the block's automatic layers were chosen (None: not automatic).
     """
 
     fine: Field
@@ -127,6 +130,7 @@ class Comparison:
     fine_flows: dict[str, AxisFlow | CornerFlow]
     candidates: list[Candidate]
     wells: FineWells | None = None
+    layers: LayerChoice | None = None
 
     @property
     def ranked(self) -> list[Entry]:
@@ -232,6 +236,7 @@ def compare_methods(
     say: Say = silent,
     fine_flows: dict[str, AxisFlow] | None = None,
     wells: FineWells | None = None,
+    layers: LayerChoice | None = None,
 ) -> Comparison:
     """Upscale `field` with every candidate, check each against one fine solve, and rank.
 
@@ -240,7 +245,8 @@ def compare_methods(
     field : Field
         The fine field.
     block : BlockSpec or str
-        The block partition.
+        The block partition; automatic layers (``auto:N``, ``auto:P%``) are
+        chosen from `field` first (`upscale.analysis.layers.resolve_layers`).
     chosen : list of Candidate
         From `candidates`.
     solver, tolerance
@@ -257,6 +263,9 @@ def compare_methods(
     wells : FineWells, optional
         Wells solved on the fine field as used here (`upscale.check.wells.fine_wells`):
         each method's coarse model is driven by them too, and ranked on them.
+    layers : LayerChoice, optional
+        How the layers of `block` were chosen, when it was resolved before
+        (`upscale.jobs.run.with_layers`), for the record.
 
     Returns
     -------
@@ -272,7 +281,7 @@ def compare_methods(
     >>> [(e.candidate.label, e.rank) for e in found.entries]   # -36 % along x beats +56 % along y
     [('harmonic', 1), ('arithmetic', 2)]
     """
-    spec = BlockSpec.parse(block) if isinstance(block, str) else block
+    spec, chosen_layers = resolve_layers(BlockSpec.parse(block) if isinstance(block, str) else block, field)
     spec.check(field.shape, field.ndim)
     fine = field.leading(spec.used_shape(field.shape))
     if fine_flows is None:
@@ -307,7 +316,7 @@ def compare_methods(
     ran = sorted((e for e in entries if e.error is None), key=lambda e: _tied(e.worst_error))
     ranked = [dataclasses.replace(e, rank=r + 1) for r, e in enumerate(ran)]
     failed = [e for e in entries if e.error is not None]
-    return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen), wells)
+    return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen), wells, layers or chosen_layers)
 
 
 def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 1e-10,

@@ -143,6 +143,10 @@ class ComparisonRecord:
         The caution every output carries.
     files : tuple of str
         The files written beside ``compare.json`` (empty until written).
+    layers : dict or None
+        How the block's automatic layers were chosen
+        (`upscale.analysis.layers.LayerChoice.summary`); None (and absent
+        from the file) when they were not automatic.
     """
 
     provenance: Provenance
@@ -156,6 +160,7 @@ class ComparisonRecord:
     best_along: dict[str, str | None]
     caution: str
     files: tuple[str, ...] = ()
+    layers: dict[str, Any] | None = None
 
     @property
     def axes(self) -> str:
@@ -168,7 +173,8 @@ class ComparisonRecord:
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``compare.json``, key for key."""
-        return {**self.provenance.to_dict(), "unit": self.unit, "block": self.block,
+        layers = {} if self.layers is None else {"layers": self.layers}
+        return {**self.provenance.to_dict(), "unit": self.unit, "block": self.block, **layers,
                 "dimensions": self.dimensions, "fine": self.fine.to_dict(), "ranking": self.ranking,
                 "methods": [m.to_dict() for m in self.methods], "best": self.best,
                 "best_along": self.best_along, "caution": self.caution,
@@ -180,7 +186,8 @@ class ComparisonRecord:
         return cls(Provenance.from_dict(data), data["unit"], data["block"], data["dimensions"],
                    GridRecord.from_dict(data["fine"]), data["ranking"],
                    tuple(MethodRecord.from_dict(m) for m in data["methods"]), data["best"],
-                   data["best_along"], data["caution"], tuple(data.get("files", ())))  # fmt: skip
+                   data["best_along"], data["caution"], tuple(data.get("files", ())),
+                   data.get("layers"))  # fmt: skip
 
 
 def comparison_record(comparison: Comparison, *, command: list[str] | None = None,
@@ -202,6 +209,7 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
         grid_record(fine.grid), RANKING if comparison.wells is None else RANKING_WELLS,
         tuple(_method(e, fine.axes) for e in comparison.entries),
         _label(comparison.best), {axis: _label(comparison.best_along(axis)) for axis in fine.axes}, CAUTION,
+        layers=None if comparison.layers is None else jsonable(comparison.layers.summary()),
     )  # fmt: skip
 
 

@@ -23,6 +23,7 @@ from ..flow import AxisFlow
 from ..grid import BlockSpec
 from ..steps import Say, silent
 from .compare import Candidate, Comparison, Entry, compare_methods, progress_line, shared_fine_solves
+from .layers import LayerChoice, resolve_layers
 
 
 @dataclass(frozen=True, eq=False)
@@ -67,41 +68,82 @@ class Plan:
         """Whether `candidate` is within `max_error` at each block."""
         return [meets(error, self.max_error) for error in self.errors(candidate)]
 
+    @property
+    def cells(self) -> list[float]:
+        """Fine cells per block of each block (`block_cells`): how coarse each is."""
+        return [block_cells(block, self.fine.shape) for block in self.blocks]
+
     def coarsest(self, candidate: Candidate) -> BlockSpec | None:
-        """The coarsest block at which `candidate` is within `max_error` (None: at no block)."""
-        index = coarsest_passing(self.meets(candidate))
+        """The coarsest block at which `candidate` is within `max_error`, or None (`coarsest_passing`)."""
+        index = coarsest_passing(self.meets(candidate), self.cells, self.errors(candidate))
         return None if index is None else self.blocks[index]
 
     def finer_all_meet(self, candidate: Candidate) -> bool:
         """Whether every block finer than the coarsest within `max_error` is within too (`finer_all_pass`)."""
-        return finer_all_pass(self.meets(candidate))
+        return finer_all_pass(self.meets(candidate), self.cells, self.errors(candidate))
 
 
-def coarsest_passing(passes: list[bool]) -> int | None:
-    """Index of the last True in `passes` (blocks finest first): the coarsest block that passes.
+def block_cells(block: BlockSpec, shape: tuple[int, int, int]) -> float:
+    """Fine cells per block: the coarsening factor; with grouped layers, the mean over the coarse layers.
 
     Examples
     --------
-    >>> coarsest_passing([True, False, True, False]), coarsest_passing([False, False])
-    (2, None)
+    >>> shape = (8, 16, 16)
+    >>> block_cells(BlockSpec.parse("4x4x2"), shape), block_cells(BlockSpec.parse("4x4x1,3,2,2"), shape)
+    (32, 32.0)
     """
-    return max((i for i, ok in enumerate(passes) if ok), default=None)
+    if block.groups is None:
+        return block.nx * block.ny * block.nz
+    return block.nx * block.ny * shape[0] / len(block.groups)
 
 
-def finer_all_pass(passes: list[bool]) -> bool:
+def coarsest_passing(passes: list[bool], cells: list[float], errors: list[float]) -> int | None:
+    """Index of the coarsest block that passes (blocks finest first), or None.
+
+    Between blocks as coarse as one another, the one with the smaller error
+    (then the first listed).
+
+    Parameters
+    ----------
+    passes : list of bool
+        Whether each block passes.
+    cells : list of float
+        Fine cells per block of each (`block_cells`).
+    errors : list of float
+        The largest check error at each block.
+
+    Examples
+    --------
+    >>> coarsest_passing([True, False, True, False], [4, 16, 64, 256], [0.01, 0.1, 0.02, 0.2])
+    2
+    >>> coarsest_passing([True, True, True], [4, 16, 16], [0.01, 0.04, 0.02])
+    2
+    >>> coarsest_passing([False], [4], [1.0]) is None
+    True
+    """
+    ran = [i for i, ok in enumerate(passes) if ok]
+    return min(ran, key=lambda i: (-cells[i], errors[i], i), default=None)
+
+
+def finer_all_pass(passes: list[bool], cells: list[float], errors: list[float]) -> bool:
     """Whether some block passes and every block finer than the coarsest that passes does too.
 
     When not, the error does not grow steadily with the block for this
     method on this field: the coarsest passing block may owe its small error
-    to errors that cancel.
+    to errors that cancel. A block as coarse as that one (the same number
+    of coarse cells, other layer boundaries) is not finer.
 
     Examples
     --------
-    >>> finer_all_pass([True, True, False]), finer_all_pass([True, False, True]), finer_all_pass([False])
-    (True, False, False)
+    >>> finer_all_pass([True, True, False], [4, 16, 64], [0.01, 0.02, 0.1])
+    True
+    >>> finer_all_pass([True, False, True], [4, 16, 64], [0.01, 0.1, 0.02]), finer_all_pass([False], [4], [1])
+    (False, False)
+    >>> finer_all_pass([True, False, True], [4, 16, 16], [0.01, 0.4, 0.02])   # 16 and 16: side by side
+    True
     """
-    last = coarsest_passing(passes)
-    return last is not None and all(passes[: last + 1])
+    last = coarsest_passing(passes, cells, errors)
+    return last is not None and all(ok for ok, c in zip(passes, cells) if c < cells[last])
 
 
 def meets(error: float, max_error: float) -> bool:
@@ -128,7 +170,11 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
     Parameters
     ----------
     blocks : list of BlockSpec
-        Finest first: each block must hold more fine cells than the one before.
+        Finest first: each block must hold more fine cells (`block_cells`)
+        than the one before, or as many when the two differ only in their
+        layer boundaries (``8x8x4`` beside ``8x8xauto:5`` on 20 layers:
+        uniform and automatic grouping side by side). Automatic layers must
+        be chosen first (`upscale.analysis.layers.resolve_layers`).
     shape : (int, int, int)
         The fine grid ``(L, M, N)``.
     ndim : int
@@ -138,7 +184,8 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
     ------
     InputError
         No block; a block that does not fit the grid (`BlockSpec.check`); a
-        grouping of the layers; a block that does not hold more cells than the one before it; blocks
+        block that holds fewer cells than the one before it, or as many but
+        not as the same coarse cells with other layer boundaries; blocks
         that crop the grid to different extents (``remainder='crop'``).
 
     Examples
@@ -152,15 +199,13 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
         raise InputError("a plan needs at least one block, e.g. `blocks=4x4,8x8,16x16`")
     for block in blocks:
         block.check(shape, ndim)
-        if block.groups is not None or block.request is not None:
-            raise InputError(f"block {block}: a plan compares blocks of uniform size; coarse layers of "
-                             "unequal thickness are for upscale run and compare")  # fmt: skip
     for finer, coarser in zip(blocks, blocks[1:]):
-        if _cells(coarser) <= _cells(finer):
+        many, few = block_cells(coarser, shape), block_cells(finer, shape)
+        if many < few or (many == few and not _side_by_side(finer, coarser, shape)):
             raise InputError(
                 f"the blocks must grow from the finest to the coarsest (in fine cells per block), but "
-                f"{coarser} ({_cells(coarser)} cells) follows {finer} ({_cells(finer)} cells); list them "
-                "finest first, e.g. 4x4,8x8,16x16"
+                f"{coarser} ({many:g} cells) follows {finer} ({few:g} cells); list them finest first, e.g. "
+                "4x4,8x8,16x16"
             )
     used = {block.used_shape(shape) for block in blocks}
     if len(used) > 1:
@@ -171,8 +216,11 @@ def check_blocks(blocks: list[BlockSpec], shape: tuple[int, int, int], ndim: int
         )
 
 
-def _cells(block: BlockSpec) -> int:
-    return block.nx * block.ny * block.nz
+def _side_by_side(one: BlockSpec, other: BlockSpec, shape: tuple[int, int, int]) -> bool:
+    """Whether two blocks make the same coarse cells but for their layer boundaries (one grouped at least)."""
+    grouped = (one.groups or other.groups) is not None
+    return ((one.nx, one.ny) == (other.nx, other.ny) and grouped and one.cells != other.cells
+            and one.coarse_shape(shape) == other.coarse_shape(shape))  # fmt: skip
 
 
 def _extent(shape: tuple[int, int, int], ndim: int) -> str:
@@ -191,6 +239,7 @@ def plan_blocks(
     report: Callable[[str], None] | None = None,
     say: Say = silent,
     wells: FineWells | None = None,
+    layers: list[LayerChoice | None] | None = None,
 ) -> Plan:
     """Check every candidate at every block size against one fine solve, and find the coarsest that passes.
 
@@ -199,7 +248,8 @@ def plan_blocks(
     field : Field
         The fine field.
     blocks : list of BlockSpec
-        Block sizes, finest first (see `check_blocks`).
+        Block sizes, finest first (see `check_blocks`); automatic layers are
+        chosen from `field` first, once each (`upscale.analysis.layers.resolve_layers`).
     chosen : list of Candidate
         From `upscale.analysis.compare.candidates`.
     max_error : float
@@ -214,6 +264,9 @@ def plan_blocks(
         Wells solved on the fine field as the plan uses it (cropped to the
         blocks; `upscale.check.wells.fine_wells`): every method at every
         block is also driven by them, and its well error joins its largest error.
+    layers : list of (LayerChoice or None), optional
+        How the layers of each block were chosen, when they were chosen
+        before (`upscale.jobs.run.with_layers`), for the record.
 
     Returns
     -------
@@ -236,15 +289,19 @@ def plan_blocks(
     ['4x1']
     """
     check_max_error(max_error)
+    found = [resolve_layers(block, field) for block in blocks]
+    blocks = [block for block, _ in found]
+    layers = layers or [choice for _, choice in found]
     check_blocks(blocks, field.shape, field.ndim)
     fine = field.leading(blocks[0].used_shape(field.shape))
     flows = shared_fine_solves(fine, solver=solver, tolerance=tolerance, say=say)
     comparisons = []
-    for block in blocks:
+    for block, choice in zip(blocks, layers):
         def told(i: int, n: int, candidate: Candidate, entry: Entry | None, block: BlockSpec = block) -> None:
             if report:
-                report(f"{block} {progress_line(i, n, candidate, entry)}")
+                report(f"{block.label} {progress_line(i, n, candidate, entry)}")
 
         comparisons.append(compare_methods(field, block, chosen, solver=solver, tolerance=tolerance,
-                                           report=told, fine_flows=flows, wells=wells))  # fmt: skip
+                                           report=told, fine_flows=flows, wells=wells,
+                                           layers=choice))  # fmt: skip
     return Plan(fine, tuple(blocks), tuple(comparisons), max_error, flows, list(chosen), wells)

@@ -11,8 +11,10 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..caution import CAUTION
+from ..grid import BlockSpec
 from .compare import Candidate
-from .plan import Plan
+from .layers import LayerChoice
+from .plan import Plan, block_cells
 from .records import GridRecord, Leaf, Provenance, axis_results, grid_record, jsonable, provenance
 
 #: What a plan compares with the largest error accepted, recorded beside it.
@@ -28,21 +30,47 @@ class BlockRecord(Leaf):
     Attributes
     ----------
     name : str
-        As on the command line, x first: ``8x8`` or ``8x8x2``.
-    x, y, z : int
-        Fine cells per block along each axis.
-    cells : int
-        Fine cells per block: the coarsening factor.
+        As on the command line, x first: ``8x8``, ``8x8x2``, ``8x8x2,2,4``,
+        or ``8x8xauto:3 (= 8x8x1,4,3)`` with the grouping chosen (`upscale.BlockSpec.label`).
+    x, y : int
+        Fine cells per block along x and y.
+    z : int or list of int
+        Fine layers per block, or of each coarse layer (top down) when they are grouped.
+    cells : int or float
+        Fine cells per block: the coarsening factor (with grouped layers, the
+        mean over the coarse layers; `upscale.analysis.plan.block_cells`).
     coarse_shape : dict of str to int
         ``layers``, ``rows`` and ``columns`` of the coarse grid.
+    layers : dict or None
+        How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`);
+        None (and absent from the file) when they were not automatic.
     """
 
     name: str
     x: int
     y: int
-    z: int
-    cells: int
+    z: int | list[int]
+    cells: int | float
     coarse_shape: dict[str, int]
+    layers: dict[str, Any] | None = None
+
+    @property
+    def short(self) -> str:
+        """The name without the grouping an automatic request chose: ``8x8xauto:3``, for tight labels."""
+        return self.name.split(" (= ")[0]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The block's object in ``plan.json`` (``layers`` only for automatic layers)."""
+        found = super().to_dict()
+        if self.layers is None:
+            del found["layers"]
+        return found
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> BlockRecord:
+        """A block's object of ``plan.json``."""
+        return cls(data["name"], data["x"], data["y"], data["z"], data["cells"], data["coarse_shape"],
+                   data.get("layers"))  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -199,7 +227,7 @@ def plan_record(plan: Plan, *, command: list[str] | None = None,
     fine = plan.fine
     first = plan.blocks[0].summary()
     rules = {key: first[key] for key in ("remainder", "min_active", "zero_k")}
-    blocks = tuple(_block(b, fine.shape) for b in plan.blocks)
+    blocks = tuple(_block(b, fine.shape, c.layers) for b, c in zip(plan.blocks, plan.comparisons))
     return PlanRecord(
         provenance(fine, command, read), fine.unit, fine.ndim, grid_record(fine.grid), jsonable(rules),
         blocks, plan.max_error, MEASURE if plan.wells is None else MEASURE_WELLS,
@@ -208,10 +236,12 @@ def plan_record(plan: Plan, *, command: list[str] | None = None,
     )  # fmt: skip
 
 
-def _block(block: Any, shape: tuple[int, int, int]) -> BlockRecord:
+def _block(block: BlockSpec, shape: tuple[int, int, int], choice: LayerChoice | None) -> BlockRecord:
     layers, rows, columns = block.coarse_shape(shape)
-    return BlockRecord(str(block), block.nx, block.ny, block.nz, block.nx * block.ny * block.nz,
-                       {"layers": layers, "rows": rows, "columns": columns})  # fmt: skip
+    z = block.nz if block.groups is None else list(block.groups)
+    return BlockRecord(block.label, block.nx, block.ny, z, block_cells(block, shape),
+                       {"layers": layers, "rows": rows, "columns": columns},
+                       None if choice is None else jsonable(choice.summary()))  # fmt: skip
 
 
 def _method(plan: Plan, candidate: Candidate) -> MethodPlan:
@@ -220,9 +250,9 @@ def _method(plan: Plan, candidate: Candidate) -> MethodPlan:
         errors = None if entry.error else {k: r.rel_error for k, r in axis_results(entry.checks).items()}
         if errors is not None and entry.wells is not None:
             errors["wells"] = entry.wells.rel_error
-        checks.append(BlockCheck(str(block), jsonable(entry.worst_error), ok, errors, entry.error,
+        checks.append(BlockCheck(block.label, jsonable(entry.worst_error), ok, errors, entry.error,
                                  jsonable(entry.seconds)))  # fmt: skip
     coarsest = plan.coarsest(candidate)
-    name = None if coarsest is None else str(coarsest)
+    name = None if coarsest is None else coarsest.label
     return MethodPlan(candidate.label, candidate.method, jsonable(candidate.options), tuple(checks), name,
                       plan.finer_all_meet(candidate))  # fmt: skip

@@ -28,7 +28,7 @@ from .options import (
     well_options,
 )
 from .progress import teller
-from .report import number, print_notes, print_spread, table
+from .report import number, print_layers, print_notes, print_spread, table
 from .settings import global_options
 
 
@@ -96,6 +96,8 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     quiet = ctx.obj["quiet"]
     fine = result.fine
     if not quiet:
+        if result.layers is not None:
+            print_layers(result.layers.summary())
         _print(result.entries, fine.axes, fine.unit)
         for line in result.zero_k_notes():
             click.echo(f"zero k: {line}")

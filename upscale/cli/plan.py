@@ -25,7 +25,7 @@ from .options import (
     well_options,
 )
 from .progress import teller
-from .report import print_notes, table
+from .report import print_layers, print_notes, table
 from .settings import global_options
 
 
@@ -106,6 +106,9 @@ def plan(ctx: click.Context, field: str, blocks: str, max_error: str, methods: s
                           overwrite=overwrite, say=teller(ctx), wells=wells, outer_pressure=outer_pressure,
                           well_connection=well_connection)  # fmt: skip
     if not ctx.obj["quiet"]:
+        for block in record.blocks:
+            if block.layers is not None:
+                print_layers(block.layers)
         _print(record)
         click.echo(f"wrote plan.json, report.html and 1 figure (PNG, SVG) to {out}")
 

@@ -201,6 +201,16 @@ def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
                f"ensemble.json to {Path(out)}")  # fmt: skip
 
 
+def print_layers(layers: dict) -> None:
+    """How automatic layers were chosen (`LayerChoice.summary`): the grouping, then each boundary's reason."""
+    from ..analysis.layers import choice_lines
+
+    head, *boundaries = choice_lines(layers)
+    click.echo(f"layers: {head}")
+    for line in boundaries:
+        click.echo(f"  {line}")
+
+
 def print_notes(warning: str | None, note: str | None = None) -> None:
     """A warning (the ±5 % band) and a note (a bound ranked first) under a ranking, when there are any."""
     if warning:

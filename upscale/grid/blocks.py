@@ -209,6 +209,19 @@ class BlockSpec:
         """The same block with its layers grouped by `groups` (an automatic request stays, for the record)."""
         return replace(self, nz=1, groups=tuple(int(g) for g in groups))
 
+    @property
+    def label(self) -> str:
+        """The block for people: as written, with the grouping chosen beside an automatic request.
+
+        Examples
+        --------
+        >>> BlockSpec.parse("8x8xauto:3").resolved((2, 1, 2)).label, BlockSpec.parse("8x8x2").label
+        ('8x8xauto:3 (= 8x8x2,1,2)', '8x8x2')
+        """
+        if self.request is None or self.groups is None:
+            return str(self)
+        return f"{self.nx}x{self.ny}x{self.request} (= {self})"
+
     def summary(self) -> dict[str, int | float | str | list[int]]:
         """The partition as plain data, as outputs record it (x first, like the command line).
 

@@ -26,7 +26,7 @@ from ..io.realizations import read_realizations
 from ..io.wells import read_wells
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
-from .run import refuse_layer
+from .run import refuse_automatic_layers, refuse_layer, with_layers
 
 if TYPE_CHECKING:
     from ..report.bundle import Bundle
@@ -46,7 +46,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     path : str
         The fine field.
     block, chosen, out, read, chunk_bytes, solver, tolerance, check_limit, layer
-        As in `compare_ensemble`, for one field (`out` is the comparison's folder).
+        As in `compare_ensemble`, for one field (`out` is the comparison's folder);
+        automatic layers of `block` are chosen from the field (`upscale.jobs.run.with_layers`).
     recorded_read, command, overwrite, say
         As in `compare_ensemble`.
     wells : str, optional
@@ -70,10 +71,11 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     """
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.chunk_cells, **read)
     refuse_comparison(fine, check_limit, layer)
+    (block,), (layers,), fine = with_layers(path, [block], fine, chunk_bytes=chunk_bytes, read=read)
     shared = wells_of_file(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say,
-                             wells=shared)  # fmt: skip
+                             wells=shared, layers=layers)  # fmt: skip
     _refuse_if_none_ran(result)
     record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
     write_comparison(out, record, made.images, made.page, overwrite=overwrite)
@@ -114,6 +116,9 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     paths : list of str
         The realizations (on one grid).
     block : BlockSpec
+        Its layers may be grouped explicitly, not automatically: one grouping
+        for every realization is chosen from one field (``upscale compare`` or
+        ``upscale run`` of one realization).
     chosen : list of Candidate
         From `upscale.analysis.compare.candidates`.
     out : str or Path
@@ -140,8 +145,10 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     ------
     InputError
         Realizations sharing a name or on different grids, a field past
-        `check_limit`, a `layer` the model does not have (all before any work).
+        `check_limit`, a `layer` the model does not have, automatic layers
+        (all before any work).
     """
+    refuse_automatic_layers(block)
     command = command or []
     names, fields = read_realizations(paths, chunk_bytes, block, read)
     first = next(iter(fields.values()))

@@ -19,6 +19,7 @@ from ..grid import BlockSpec
 from ..io import read_field
 from ..steps import Say, Steps, silent
 from .compare import refuse_comparison, wells_of_file
+from .run import with_layers
 
 
 def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: str | Path, *,
@@ -35,7 +36,8 @@ def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: 
     path : str
         The fine field.
     blocks : list of BlockSpec
-        Block sizes, finest first, with the same rules.
+        Block sizes, finest first, with the same rules; their layers may be
+        grouped, explicitly or automatically (chosen from the field, once each).
     chosen : list of Candidate
         From `upscale.analysis.compare.candidates`.
     out : str or Path
@@ -70,11 +72,12 @@ def plan_file(path: str, blocks: list[BlockSpec], chosen: list[Candidate], out: 
     check_max_error(max_error)
     chunk = blocks[-1].chunk_cells if blocks else (1, 1, 1)
     fine = read_field(path, chunk_bytes=chunk_bytes, block=chunk, **read)
-    check_blocks(blocks, fine.shape, fine.ndim)
     refuse_comparison(fine, check_limit, None)
+    blocks, layers, fine = with_layers(path, blocks, fine, chunk_bytes=chunk_bytes, read=read)
+    check_blocks(blocks, fine.shape, fine.ndim)
     shared = wells_of_file(fine, blocks[0], wells, (outer_pressure, well_connection), solver, tolerance, say)
     plan = plan_blocks(fine, blocks, chosen, max_error=max_error, solver=solver, tolerance=tolerance,
-                       report=say, say=say, wells=shared)  # fmt: skip
+                       report=say, say=say, wells=shared, layers=layers)  # fmt: skip
     record = plan_record(plan, command=command or [], read=recorded_read)
     from ..report.bundle import plan_bundle  # matplotlib: the figures extra
 

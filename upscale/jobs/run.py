@@ -16,7 +16,7 @@ from typing import Any
 from ..analysis.compare import single
 from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import EnsembleSummary, ensemble_summary
-from ..analysis.layers import resolve_layers
+from ..analysis.layers import LayerChoice, resolve_layers
 from ..analysis.summary import RunSummary
 from ..check.axis import coarse_check, fine_solves
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
@@ -147,11 +147,9 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.chunk_cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
-    block, layers = resolve_layers(settings.block, fine)
+    (block,), (layers,), fine = with_layers(path, [settings.block], fine, chunk_bytes=settings.chunk_bytes,
+                                            read=settings.read)  # fmt: skip
     settings = replace(settings, block=block)
-    if layers is not None:  # opened again (lazily) in chunks that hold every layer within the chunk budget
-        fine = replace(read_field(path, chunk_bytes=settings.chunk_bytes, block=block.chunk_cells,
-                                  checksum=False, **settings.read), sources=fine.sources)  # fmt: skip
     wells = _wells(settings, fine)
     fits_flows = METHODS[settings.method].global_flows
     if fits_flows:
@@ -221,6 +219,53 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     return result, summary
 
 
+def with_layers(path: str, blocks: list[BlockSpec], fine: Field, *, chunk_bytes: int | None,
+                read: dict[str, Any]) -> tuple[list[BlockSpec], list[LayerChoice | None], Field]:  # fmt: skip
+    """`blocks` with their automatic layers chosen from `fine` (once each), and the field to upscale them in.
+
+    Parameters
+    ----------
+    path : str
+        The fine field's file, as `fine` was read from it.
+    blocks : list of BlockSpec
+        The blocks, `fine` read in chunks of whole blocks of the last one.
+    fine : Field
+        The fine field.
+    chunk_bytes, read
+        As `fine` was read (`upscale.read_field`).
+
+    Returns
+    -------
+    (list of BlockSpec, list of LayerChoice or None, Field)
+        The blocks with their layers chosen, the choice of each (None: not
+        automatic), and `fine` — opened again (lazily, without a second
+        checksum) when a grouping of the layers needs chunks that hold every
+        layer, so that no chunk splits a coarse layer.
+
+    Raises
+    ------
+    InputError
+        A block that does not fit the field (`upscale.analysis.layers.resolve_layers`).
+    """
+    found = [resolve_layers(block, fine) for block in blocks]
+    resolved = [block for block, _ in found]
+    if not resolved:
+        return [], [], fine
+    grouped = any(block.groups is not None for block in resolved)
+    chunk = (fine.shape[0] if grouped else resolved[-1].chunk_cells[0], *resolved[-1].chunk_cells[1:])
+    if chunk != blocks[-1].chunk_cells:  # within the chunk budget
+        fine = replace(read_field(path, chunk_bytes=chunk_bytes, block=chunk, checksum=False, **read),
+                       sources=fine.sources)  # fmt: skip
+    return resolved, [choice for _, choice in found], fine
+
+
+def refuse_automatic_layers(block: BlockSpec) -> None:
+    """Refuse, before any work, automatic layers for an ensemble: one grouping is chosen from one field."""
+    if block.request is not None and block.groups is None:
+        raise InputError(f"block {block}: automatic layers are chosen from one field; for an ensemble give "
+                         "the grouping (e.g. 8x8x2,2,4,8, as one realization's run chose)")
+
+
 def _wells(settings: Settings, fine: Field) -> tuple:
     """The wells of `settings`, read and placed on the fine grid (refused before any work), or ().
 
@@ -271,9 +316,7 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         If two realizations share a name or the grids differ (checked before any work).
     """
     settings.require_libraries()
-    if settings.block.request is not None and settings.block.groups is None:
-        raise InputError(f"block {settings.block}: automatic layers are chosen from one field; for an "
-                         "ensemble give the grouping (e.g. 8x8x2,2,4,8, as one realization's run chose)")
+    refuse_automatic_layers(settings.block)
     names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
     done = []

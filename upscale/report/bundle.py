@@ -63,7 +63,7 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
         "unit": fine.unit,
         "grid": f"{_dims(fine.shape, fine.ndim)} cells of {grid.dx[0]:g} m × {grid.dy[0]:g} m"
         + (f", {grid.dz.sum():g} m thick in all" if fine.ndim == 3 else ""),
-        "block": f"{comparison.block} fine cells (x first)",
+        "block": f"{comparison.block.label} fine cells (x first)",
         "caution": CAUTION,
         "versions": versions(),
     }
@@ -211,7 +211,9 @@ def plan_bundle(plan: PlanRecord, *, title: str, command: list[str]) -> Bundle:
                   "Largest check error of each method (one line each) against the fine cells per block, "
                   f"with the largest error accepted ({limit}, dashed): a method's answer is the rightmost "
                   "point inside the grey band. A line that dips back into the band at a coarser block "
-                  "owes that to errors that cancel.")]  # fmt: skip
+                  "owes that to errors that cancel."
+                  + (" Blocks with grouped layers: dotted, open markers, at their mean fine cells per block."
+                     if any(isinstance(b.z, list) for b in plan.blocks) else ""))]  # fmt: skip
     images, shown = _rendered(plots)
     shape, fine = plan.fine.shape, plan.fine
     job = {

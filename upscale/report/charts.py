@@ -241,11 +241,18 @@ def histograms(comparison: Comparison, unit: str) -> Figure:
     return fig
 
 
+def _count(cells: float) -> str:
+    """Fine cells per block in a label: whole numbers as such, a mean of grouped layers to 3 digits."""
+    return str(int(cells)) if float(cells).is_integer() else f"{cells:.3g}"
+
+
 def error_by_block_chart(plan: PlanRecord) -> Figure:
     """Largest check error of each method against the coarsening factor, with the largest error accepted.
 
-    One line per method; the x axis is the fine cells per block (log scale,
-    labelled with the blocks), the y axis the largest check error over the
+    One line per method (and a dotted one with open markers through the
+    blocks whose layers are grouped, at their mean fine cells per block,
+    beside the uniform blocks as coarse); the x axis is the fine cells per
+    block (log scale, labelled with the blocks), the y axis the largest check error over the
     checked flows in % (linear up to the accepted error, logarithmic beyond,
     so that errors of 1e-12 % and of 100 % share one axis; ticks at 1, 2 and
     5 × 10^k on both parts). A method that did not run at a block has no
@@ -253,7 +260,8 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
     """
     fig = Figure(figsize=(7.6, 4.8), layout="constrained")
     ax = fig.subplots()
-    cells = [b.cells for b in plan.blocks]
+    cells = np.array([b.cells for b in plan.blocks], dtype=float)
+    grouped = np.array([isinstance(b.z, list) for b in plan.blocks])
     limit = 100 * plan.max_error
     ax.axhspan(0.0, limit, color="#d9d9d9", alpha=0.6, zorder=0, label=f"within {limit:g} %")
     ax.axhline(limit, color="black", linestyle="--", linewidth=1.0,
@@ -263,13 +271,23 @@ def error_by_block_chart(plan: PlanRecord) -> Figure:
         errors = np.array([np.nan if b.largest_error is None else 100 * b.largest_error
                            for b in method.blocks])  # fmt: skip
         largest = max(largest, float(np.nanmax(errors)) if np.isfinite(errors).any() else 0.0)
-        ax.plot(cells, errors, marker="os^Dv<>"[(i + i // 7) % 7], markersize=6, linewidth=1.4,
+        marker = "os^Dv<>"[(i + i // 7) % 7]
+        ax.plot(cells[~grouped], errors[~grouped], marker=marker, markersize=6, linewidth=1.4,
                 label=method.name, clip_on=False, **style_of(i))  # fmt: skip
+        if grouped.any():  # the same method on grouped layers: its own dotted line, open markers
+            ax.plot(cells[grouped], errors[grouped], marker=marker, markersize=6, linewidth=1.4,
+                    clip_on=False, **{**style_of(i), "linestyle": ":"}, markerfacecolor="white")  # fmt: skip
+    if grouped.any():
+        ax.plot([], [], color="black", marker="o", linewidth=1.4, label="uniform layers")
+        ax.plot([], [], color="black", marker="o", linestyle=":", linewidth=1.4, markerfacecolor="white",
+                label="grouped layers")  # fmt: skip
     ax.set_xscale("log", base=2)
-    ax.set_xticks(cells, [f"{b.name}\n({b.cells})" for b in plan.blocks])
+    ticks = sorted(set(cells.tolist()))
+    names = ["\n".join(b.short for b, c in zip(plan.blocks, cells) if c == tick) for tick in ticks]
+    ax.set_xticks(ticks, [f"{name}\n({_count(tick)})" for name, tick in zip(names, ticks)])
     ax.xaxis.set_minor_locator(NullLocator())
     ax.set_yscale("symlog", linthresh=limit, linscale=1.0)
-    steps = [m * 10.0**k for k in range(-4, 5) for m in (1.0, 2.0, 5.0)]
+    steps = [m * 10.0**k for k in range(-4, 7) for m in (1.0, 2.0, 5.0)]
     ax.yaxis.set_major_locator(FixedLocator([0.0, *(v for v in steps if limit / 10 <= v <= 1.5 * largest)]))
     ax.yaxis.set_major_formatter(FuncFormatter(percent))
     ax.set_ylim(0.0, 1.5 * largest)

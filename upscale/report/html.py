@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from ..analysis.compare import Comparison, Entry
+from ..analysis.layers import choice_lines
 from ..check.axis import HELD_OUT, check_names, flow_label
 from ..field import PERMEABILITY
 from .figures import Plot
@@ -183,7 +184,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
 <p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
-<h2>{heading}</h2>
+{layers_html(None if comparison.layers is None else comparison.layers.summary())}<h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.
 It also applies a held-out flow no method is fitted to: pressure fixed on the outer faces of one
@@ -203,6 +204,18 @@ _WELLS = """
 With wells, each model is also driven by the wells of the wells file (Peaceman's well index in each
 fine cell; each coarse block connected by near-well upscaling or Peaceman's formula, as the check records;
 docs/wells.md): error wells is the error of the total well rate."""
+
+
+def layers_html(layers: dict[str, Any] | None) -> str:
+    """How automatic layers were chosen (`LayerChoice.summary`) as HTML; empty for None.
+
+    The grouping and its loss in a paragraph, then each boundary's reason in a list.
+    """
+    if layers is None:
+        return ""
+    head, *boundaries = choice_lines(layers)
+    items = "".join(f"<li>{_e(line)}</li>" for line in boundaries)
+    return f"<p>Layers: {_e(head)}.</p>\n" + (f"<ul>{items}</ul>\n" if items else "")
 
 
 def _verdict(comparison: Comparison, ranked: bool) -> str:

@@ -10,7 +10,7 @@ from typing import Any
 
 from ..analysis.plan_record import MethodPlan, PlanRecord
 from .figures import Plot
-from .html import _e, document, figures_html, inputs_html, notices_html
+from .html import _e, document, figures_html, inputs_html, layers_html, notices_html
 from .verdict import no_block_warning, uneven_note
 
 
@@ -44,15 +44,24 @@ def plan_page(plan: PlanRecord, images: list[tuple[Plot, bytes]], job: dict[str,
 <p>Every method is upscaled with every block size and its coarse model checked against the same fine
 solves — solved once, since the fine model does not change with the block. The error of a method at a
 block is its largest |k_coarse − k_fine| / k_fine over the checked flows; the coarsest block whose
-error is within {_e(limit)} is the answer, shown in bold in its row.</p>
+error is within {_e(limit)} is the answer, shown in bold in its row.{_side_by_side(plan)}</p>
 <table id="plan">
 <tr>{"".join(f"<th>{_e(h)}</th>" for h in head)}</tr>
 {rows}
 </table>
-{_failures(plan)}
+{_failures(plan)}{"".join(layers_html(b.layers) for b in plan.blocks)}
 <h2>Figures</h2>
 {figures_html(images)}
 """, job)
+
+
+def _side_by_side(plan: PlanRecord) -> str:
+    """The rule for blocks as coarse as one another, when some block groups its layers (else nothing)."""
+    if not any(isinstance(b.z, list) for b in plan.blocks):
+        return ""
+    return (" Blocks with grouped layers count their mean fine cells per coarse cell; blocks as coarse as "
+            "one another (the same coarse cells, other layer boundaries) stand side by side, and between "
+            "them the one with the smaller error is the answer.")  # fmt: skip
 
 
 def _failures(plan: PlanRecord) -> str:
