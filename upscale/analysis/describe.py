@@ -10,14 +10,30 @@ import math
 from typing import Any
 
 from ..field import Field
+from ..grid.layers import LayerRequest
 from ..parallel import compute_together
 from ..stats import ValueScan, scan_each
 from .connectivity import HIGH_K, Span, connectivity, connectivity_arrays
-from .layers import LayerProfile, layer_sums, profile_from_sums
+from .layers import LayerChoice, LayerProfile, choose_groups, layer_sums, profile_from_sums
 
 
-def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, ValueScan]]:
+#: The grouping of the layers `describe_field` suggests unless told: the fewest coarse layers that keep
+#: 90 % of the between-layer variance (and merge no barrier the count allows to keep).
+GROUPING = LayerRequest(keep=0.9)
+
+
+def describe_field(fine: Field, path: str, grouping: LayerRequest = GROUPING
+                   ) -> tuple[dict[str, Any], dict[str, ValueScan]]:  # fmt: skip
     """The description of `fine` (read from `path`) as plain data, and the scans it came from.
+
+    Parameters
+    ----------
+    fine : Field
+    path : str
+        Where `fine` was read from, as given.
+    grouping : LayerRequest
+        The automatic grouping of a 3D model's layers to suggest
+        (`upscale.analysis.layers.choose_groups`).
 
     Returns
     -------
@@ -28,7 +44,8 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
         ``connectivity`` (the high-k bodies per axis, `upscale.analysis.connectivity`;
         None past its cell limit) and, for a 3D model, ``layers``: the layer
         profile (`upscale.analysis.layers.LayerProfile.summary`, with the
-        barrier runs).
+        barrier runs) and, under its key ``grouping``, the grouping chosen
+        for `grouping` (`upscale.analysis.layers.LayerChoice.summary`).
     scans : dict of str to ValueScan
         Per property.
     """
@@ -61,7 +78,8 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
     description["connectivity"] = None if spans is None else {
         "high_k": HIGH_K, "axes": {axis: s.summary() for axis, s in spans.items()}}  # fmt: skip
     if fine.ndim == 3:
-        description["layers"] = profile.summary()
+        choice = LayerChoice(grouping, *choose_groups(profile, grouping))
+        description["layers"] = {**profile.summary(), "grouping": choice.summary()}
     return description, scans
 
 
