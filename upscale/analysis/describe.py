@@ -16,7 +16,6 @@ from ..stats import ValueScan, scan_each
 from .connectivity import HIGH_K, Span, connectivity, connectivity_arrays
 from .layers import LayerChoice, LayerProfile, choose_groups, layer_sums, profile_from_sums
 
-
 #: The grouping of the layers `describe_field` suggests unless told: the fewest coarse layers that keep
 #: 90 % of the between-layer variance (and merge no barrier the count allows to keep).
 GROUPING = LayerRequest(keep=0.9)

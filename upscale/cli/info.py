@@ -55,10 +55,12 @@ def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot
     if plot is not None:
         require_extra("figures")
     fine = read_field(field, checksum=False, **read_options(options))
-    if fine.ndim == 2 and (plot is not None or layers is not None):
-        option = "--plot draws" if plot is not None else "--layers groups"
-        raise InputError(f"{option} the layers of a 3D model, and {field} is a 2D map (give --dz for a "
+    if fine.ndim == 2 and plot is not None:
+        raise InputError(f"--plot draws the layers of a 3D model, and {field} is a 2D map (give --dz for a "
                          "raster whose bands are layers)")  # fmt: skip
+    if fine.ndim == 2 and layers is not None:
+        raise InputError(f"--layers groups the layers of a 3D model, and {field} is a 2D map (give --dz for "
+                         "a raster whose bands are layers)")  # fmt: skip
     with progress(ctx.obj["quiet"]):
         description, scans = describe_field(fine, field, grouping)
     if plot is not None:

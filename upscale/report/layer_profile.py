@@ -65,7 +65,7 @@ def layer_profile_figure(layers: dict[str, Any], unit: str, *, name: str = "") -
     depth = np.concatenate([[0.0], np.cumsum([row["thickness_m"] for row in rows])])
     fig = Figure(figsize=(6.2, 7.4), layout="constrained")
     ax = fig.subplots()
-    same = all(row["ln_kx_mean"] == row["ln_kz_mean"] and row["ln_kx_std"] == row["ln_kz_std"] for row in rows)
+    same = all(row[f"ln_kx_{key}"] == row[f"ln_kz_{key}"] for row in rows for key in ("mean", "std"))
     series = [("kx", "kx = kz")] if same else [("kx", "kx"), ("kz", "kz")]
     low, high = math.inf, -math.inf
     for i, (prop, label) in enumerate(series):
@@ -83,7 +83,8 @@ def layer_profile_figure(layers: dict[str, Any], unit: str, *, name: str = "") -
         _draw_boundaries(ax, depth, grouping["boundaries"])
     if np.isfinite(low):
         pad = 0.05 * max(high - low, 1.0)
-        ax.set_xlim(math.exp(low - pad), math.exp(high + pad + LABEL_ROOM / (1 - LABEL_ROOM) * (high - low + pad)))
+        room = LABEL_ROOM / (1 - LABEL_ROOM) * (high - low + pad)  # free on the right for the reasons
+        ax.set_xlim(math.exp(low - pad), math.exp(high + pad + room))
     ax.set_xscale("log")
     ax.set_ylim(float(depth[-1]), 0.0)  # depth grows downwards
     ax.set_xlabel(f"k ({unit}, log scale)")
@@ -160,5 +161,6 @@ def _title(name: str, count: int, grouping: dict[str, Any] | None) -> str:
     if grouping is None:
         return head
     groups = len(grouping["sizes"])
-    return (f"{head}\n{grouping['request']} groups them into {groups} coarse layer{'s' if groups > 1 else ''}, "
+    plural = "s" if groups > 1 else ""
+    return (f"{head}\n{grouping['request']} groups them into {groups} coarse layer{plural}, "
             f"keeping {100 * (1 - grouping['loss']):.3g} % of the between-layer variance")  # fmt: skip

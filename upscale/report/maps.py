@@ -116,8 +116,10 @@ def coarse_layer_text(spec: BlockSpec, layer: int, layers: int) -> str:
 
     Examples
     --------
-    >>> coarse_layer_text(BlockSpec.parse("8x8x2,2,4"), 2, 8), coarse_layer_text(BlockSpec.parse("8x8x1,3"), 0, 4)
-    ('coarse layer 2: fine 3–4', 'coarse layer 1: fine 1')
+    >>> coarse_layer_text(BlockSpec.parse("8x8x2,2,4"), 2, 8)
+    'coarse layer 2: fine 3–4'
+    >>> coarse_layer_text(BlockSpec.parse("8x8x1,3"), 0, 4)
+    'coarse layer 1: fine 1'
     """
     edges = spec.edges(layers, 0)
     index = spec.coarse_index(layer, layers, 0)

@@ -94,7 +94,8 @@ def test_depths_are_the_true_thicknesses():
     assert (span.get_y(), span.get_y() + span.get_height()) == (3.0, 3.5)
     boundaries = sorted(line.get_ydata()[0] for line in _gid(figure, "boundary barrier")
                         + _gid(figure, "boundary contrast"))  # fmt: skip
-    edges = np.concatenate([[0.0], np.cumsum(dz)])[group_edges(tuple(description["layers"]["grouping"]["sizes"]))]
+    sizes = tuple(description["layers"]["grouping"]["sizes"])
+    edges = np.concatenate([[0.0], np.cumsum(dz)])[group_edges(sizes)]
     assert boundaries == edges[1:-1].tolist() and {3.0, 3.5} <= set(boundaries)
     assert figure.axes[0].get_ylim() == (8.0, 0.0)  # depth grows downwards
 
