@@ -46,7 +46,7 @@ def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot
     the layers into coarse layers (--layers), and --plot draws them.
 
     \b
-    Example:
+    Examples:
       upscale info demo-fields/marrowfen_3d.tif --dz 2
       upscale info demo-fields/marrowfen_layered.tif --dz 1 --layers auto:8 --plot profile.png
     """
