@@ -95,11 +95,12 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     coarse_values = [_slice(e.result.coarse.kx, *coarse_where) for e in ran]
     norm = log_norm(fine_values, *coarse_values)
     section = row is not None
-    fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True)
+    held = "" if section or fine.ndim == 2 else "\n" + coarse_layer_text(spec, layer, fine.shape[0])
+    fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True,
+                           title_lines=1 + held.count("\n"))  # fmt: skip
     cmap = with_missing(PERMEABILITY_MAP)
     mesh = _draw(axes[0], on_log_scale(fine_values), _edges(fine.grid, section), cmap=cmap, norm=norm)
     axes[0].set_title("fine")
-    held = "" if section or fine.ndim == 2 else "\n" + coarse_layer_text(spec, layer, fine.shape[0])
     for ax, entry, values in zip(axes[1:], ran, coarse_values):
         _draw(ax, on_log_scale(values), _edges(entry.result.coarse.grid, section), cmap=cmap, norm=norm)
         ax.set_title(entry_name(comparison, entry) + held)
