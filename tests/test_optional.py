@@ -9,7 +9,7 @@ package that is absent), on a real demo GeoTIFF:
 * without pyarrow or netCDF4 ``upscale run`` stops before any work with one
   ``upscale: error:`` line naming the ``formats`` extra, exit 1, and writes
   nothing; ``upscale check`` of a finished run says the same;
-* without matplotlib ``--plot`` and ``upscale compare`` name ``figures``,
+* without matplotlib ``--plot`` (of run and of info) and ``upscale compare`` name ``figures``,
   while a run without figures still writes its folder;
 * without distributed ``--workers 2`` names ``cluster``;
 * with none of the optional libraries ``upscale info`` works, and
@@ -77,7 +77,12 @@ def test_figures_without_matplotlib_name_the_figures_extra(demo_dir, tmp_path):
                                "arithmetic", "--out", tmp_path / "compare")  # fmt: skip
     assert code == 1
     _one_error_line(stderr, "matplotlib", "figures")
+    code, _, stderr = _without(["matplotlib"], "info", demo_dir / "marrowfen_layered.tif", "--dz", "1",
+                               "--plot", tmp_path / "profile.png")  # fmt: skip
+    assert code == 1
+    _one_error_line(stderr, "matplotlib", "figures")
     assert not (tmp_path / "plot").exists() and not (tmp_path / "compare").exists()
+    assert not (tmp_path / "profile.png").exists()
     code, _, _ = _without(["matplotlib", "distributed"], "run", field, "--block", "16x16", "--method",
                           "geometric", "--out", tmp_path / "plain", "-q")  # fmt: skip
     assert code == 0 and (tmp_path / "plain" / "summary.json").is_file()

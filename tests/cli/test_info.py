@@ -4,7 +4,11 @@ Numbers in the ``--json`` output are checked against NumPy on the values
 rasterio reads from the same GeoTIFF. Rasters without a nodata tag that hold
 -9999, 1e30 and the other values of `upscale.stats.SENTINELS` (as float64
 and float32), zeros and negative values are flagged with counts and first
-cells, and a ``--nodata`` is suggested; a clean field shows no flag.
+cells, and a ``--nodata`` is suggested; a clean field shows no flag. For a
+3D model the grouping of ``--layers`` (default auto:90%) is printed and in
+the JSON; ``--plot`` writes the layer profile as a PNG or an SVG of the
+figure's size, and refuses another ending, an existing file without
+``--overwrite`` and a 2D map, each in one line, writing nothing.
 """
 
 from __future__ import annotations
@@ -275,3 +279,83 @@ def test_layer_profile_of_the_layer_cake(run_cli, demo_dir):
 
 def test_a_map_has_no_layer_profile(run_cli, map_path):
     assert "layers" not in _info_json(run_cli, map_path)
+
+
+# --- the grouping and the figure of the layer profile ---------------------------------------------
+
+
+def test_the_grouping_is_printed_and_in_json(run_cli, demo_dir):
+    path = demo_dir / "marrowfen_layered.tif"
+    code, stdout, err = run_cli("info", path, "--dz", "1", "--layers", "auto:8")
+    assert (code, err) == (0, "")
+    lines = stdout.splitlines()
+    head = next(i for i, line in enumerate(lines) if line.startswith("grouping     "))
+    # the shales at layers 5, 10, 15, 20 (demo scenario) kept as coarse layers of their own
+    assert lines[head].startswith("grouping     auto:8 chose 4,1,4,1,4,1,4,1 fine layers per coarse layer "
+                                  "(top down), losing ")  # fmt: skip
+    assert [line.split(":")[0].strip() for line in lines[head + 1: head + 8]] == [
+        f"after layer {n}" for n in (4, 5, 9, 10, 14, 15, 19)]
+    grouping = _info_json(run_cli, path, "--dz", "1", "--layers", "auto:8")["layers"]["grouping"]
+    assert grouping["request"] == "auto:8" and grouping["sizes"] == [4, 1, 4, 1, 4, 1, 4, 1]
+    assert [b["reason"] for b in grouping["boundaries"]] == ["barrier"] * 7
+    default = _info_json(run_cli, path, "--dz", "1")["layers"]["grouping"]
+    assert default["request"] == "auto:90%" and default["loss"] <= 0.1
+
+
+def _png_size(data: bytes) -> tuple[int, int]:
+    """Width and height of a PNG from its IHDR chunk (PNG specification, W3C 2003: bytes 16-24)."""
+    assert data[:8] == b"\x89PNG\r\n\x1a\n" and data[12:16] == b"IHDR"
+    return int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
+
+
+def test_plot_writes_a_png_or_an_svg_of_the_figure(run_cli, demo_dir, tmp_path):
+    from upscale.report.layout import DPI
+
+    path = demo_dir / "marrowfen_layered.tif"
+    png, svg = tmp_path / "profile.png", tmp_path / "profile.svg"
+    code, stdout, err = run_cli("info", path, "--dz", "1", "--plot", png)
+    assert (code, err) == (0, "") and stdout.splitlines()[-1] == f"figure       {png}"
+    assert _png_size(png.read_bytes()) == (round(6.2 * DPI), round(7.4 * DPI))  # the figure's 6.2 x 7.4 in
+    code, stdout, err = run_cli("info", path, "--dz", "1", "--kv-kh", "0.1", "--plot", svg, "--json")
+    assert (code, err) == (0, "") and json.loads(stdout)["dimensions"] == 3  # stdout stays JSON
+    text = svg.read_text()
+    assert text.startswith("<?xml") and 'width="446.4pt" height="532.8pt"' in text  # 6.2 x 7.4 in at 72 pt
+    assert not list(tmp_path.glob(".*"))  # no staged file left behind
+
+
+@pytest.mark.parametrize(("args", "message"), [
+    (["--plot", "{tmp}/profile.pdf"],
+     "{tmp}/profile.pdf: a figure file is written as PNG or SVG by the ending of its name; give a name "
+     "ending in .png or .svg"),
+    (["--plot", "{tmp}/old.png"],
+     "{tmp}/old.png already exists; choose another file name or pass --overwrite"),
+    (["--layers", "3"], "--layers '3': give auto:N (N coarse layers) or auto:P% (the fewest coarse layers "
+                        "that keep P % of the between-layer variance)"),
+    (["--layers", "auto:21"], "21 coarse layers asked for but the model has 20 fine layers"),
+])  # fmt: skip
+def test_bad_plot_and_layers_give_one_line(run_cli, demo_dir, tmp_path, args, message):
+    old = tmp_path / "old.png"
+    old.write_bytes(b"mine")
+    args = [a.format(tmp=tmp_path) for a in args]
+    code, stdout, err = run_cli("info", demo_dir / "marrowfen_layered.tif", "--dz", "1", *args)
+    assert (code, stdout, err) == (2, "", f"upscale: error: {message.format(tmp=tmp_path)}\n")
+    assert old.read_bytes() == b"mine" and sorted(p.name for p in tmp_path.iterdir()) == ["old.png"]
+
+
+def test_overwrite_replaces_the_figure(run_cli, demo_dir, tmp_path):
+    old = tmp_path / "old.png"
+    old.write_bytes(b"mine")
+    path = demo_dir / "marrowfen_layered.tif"
+    code, _, err = run_cli("info", path, "--dz", "1", "--plot", old, "--overwrite")
+    assert (code, err) == (0, "") and _png_size(old.read_bytes())[0] > 0
+
+
+@pytest.mark.parametrize("option", [["--plot", "profile.png"], ["--layers", "auto:2"]])
+def test_a_map_has_no_layers_to_draw_or_group(run_cli, map_path, tmp_path, option):
+    args = [str(tmp_path / a) if a.endswith(".png") else a for a in option]
+    code, stdout, err = run_cli("info", map_path, *args)
+    verb = "--plot draws" if option[0] == "--plot" else "--layers groups"
+    assert (code, stdout) == (2, "")
+    assert err == (f"upscale: error: {verb} the layers of a 3D model, and {map_path} is a 2D map (give --dz "
+                   "for a raster whose bands are layers)\n")  # fmt: skip
+    assert list(tmp_path.glob("*.png")) == []

@@ -15,6 +15,9 @@ What is tested
 * Map coordinates written in full: with a northing of about 6.5e6 m no
   axis has an offset ("1e6") or a power of ten, and every tick label is the
   plain number of its tick.
+* In a 3D model's plan maps, each coarse panel's title names the coarse
+  layer it shows and the fine layers that coarse layer holds (numbered from
+  1, top down), for a grouping of unequal coarse layers and a uniform one.
 * Mismatch maps: a face beside an inactive block has no value (hatched),
   unlike a face where fine and coarse agree (the white centre of PuOr).
 
@@ -136,6 +139,24 @@ def test_section_depths_are_the_cumulative_layer_thicknesses():
     np.testing.assert_allclose(coarse.get_coordinates()[:, 0, 1], [0.0, 2.0, 4.5, 9.5, 12.5])
     assert _panels(figure)[0].get_ylim() == (12.5, 0.0)  # depth grows downwards
     np.testing.assert_allclose(fine.get_coordinates()[0, :, 0], np.arange(17) * 5.0)
+
+
+@pytest.mark.parametrize(("block", "layer", "held"), [
+    ("8x8x2,2,4", 4, "coarse layer 3: fine 5–8"),  # fine layer 5 lies in the third group, layers 5 to 8
+    ("8x8x2,2,4", 1, "coarse layer 1: fine 1–2"),
+    ("8x8x1,7", 0, "coarse layer 1: fine 1"),
+    ("8x8x2", 3, "coarse layer 2: fine 3–4"),  # uniform: two fine layers per coarse layer
+])
+def test_coarse_panel_titles_name_the_fine_layers_of_the_coarse_layer_shown(block, layer, held):
+    k = uncorrelated_lognormal((8, 16, 16), seed=5713)
+    field = Field.from_arrays(k, dz=[1.0, 1.0, 2.0, 0.5, 2.0, 3.0, 1.0, 2.0], cell_size=(5.0, 5.0))
+    comparison = compare_methods(field, block, candidates(["geometric", "harmonic"]))
+    panels = _panels(field_maps(comparison, "mD", layer=layer))
+    assert panels[0].get_title() == "fine"
+    assert [ax.get_title().split("\n")[1:] for ax in panels[1:]] == [[held], [held]]
+    # a section shows every layer: its coarse panels keep the method's name alone
+    section = _panels(field_maps(comparison, "mD", row=8))
+    assert all("\n" not in ax.get_title() for ax in section)
 
 
 @pytest.fixture(scope="module")

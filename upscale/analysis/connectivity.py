@@ -176,13 +176,23 @@ def spans(k: Any, axes: list[str]) -> dict[str, Span]:
     return found
 
 
-def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | None:
+def connectivity(fine: Field, max_cells: int = MAX_CELLS, *,
+                 read: dict[str, np.ndarray] | None = None) -> dict[str, Span] | None:  # fmt: skip
     """The spans of `fine` along each of its axes; None past `max_cells` cells.
 
     Each property is read whole (one byte and eight for the labels per cell
     besides it), once: ky or kz that is kx itself (the default when a
     field gives kx only) is read and labelled with it; ky or kz that is a
     multiple of kx marks the same cells.
+
+    Parameters
+    ----------
+    fine : Field
+    max_cells : int
+        Largest field labelled.
+    read : dict of str to ndarray, optional
+        The arrays of `connectivity_arrays`, already computed (with other
+        reads of the same field); by default they are read here.
 
     Examples
     --------
@@ -192,14 +202,38 @@ def connectivity(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Span] | N
     """
     if math.prod(fine.shape) > max_cells:
         return None
+    arrays = {**connectivity_arrays(fine, max_cells), **(read or {})}
     along: dict[int, tuple[Any, list[str]]] = {}  # by the identity of the array
     for axis in fine.axes:
-        k = getattr(fine, PERMEABILITY[axis])
-        along.setdefault(id(k), (k, []))[1].append(axis)
+        name = PERMEABILITY[axis]
+        along.setdefault(id(getattr(fine, name)), (arrays.get(name), []))[1].append(axis)  # first name: read
     found = {}
     for k, axes in along.values():
         found.update(spans(k, axes))
     return {axis: found[axis] for axis in fine.axes}
+
+
+def connectivity_arrays(fine: Field, max_cells: int = MAX_CELLS) -> dict[str, Any]:
+    """The permeability arrays `connectivity` reads whole, each once, by the first property holding it.
+
+    Empty past `max_cells` cells. Lazy (dask) arrays stay lazy: computed
+    together with the other results of the same field, its chunks are read
+    once (`upscale.analysis.describe`).
+
+    Examples
+    --------
+    >>> fine = Field.from_arrays(np.ones((2, 3)), cell_size=(1.0, 1.0))
+    >>> list(connectivity_arrays(fine)), connectivity_arrays(fine, max_cells=5)
+    (['kx'], {})
+    """
+    if math.prod(fine.shape) > max_cells:
+        return {}
+    found: dict[str, Any] = {}
+    for axis in fine.axes:
+        k = getattr(fine, PERMEABILITY[axis])
+        if all(k is not other for other in found.values()):
+            found[PERMEABILITY[axis]] = k
+    return found
 
 
 def struggle(spans: dict[str, Span] | None, block: BlockSpec) -> str | None:

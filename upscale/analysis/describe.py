@@ -10,14 +10,29 @@ import math
 from typing import Any
 
 from ..field import Field
+from ..grid.layers import LayerRequest
 from ..parallel import compute_together
 from ..stats import ValueScan, scan_each
-from .connectivity import HIGH_K, connectivity
-from .layers import layer_profile
+from .connectivity import HIGH_K, Span, connectivity, connectivity_arrays
+from .layers import LayerChoice, LayerProfile, choose_groups, layer_sums, profile_from_sums
+
+#: The grouping of the layers `describe_field` suggests unless told: the fewest coarse layers that keep
+#: 90 % of the between-layer variance (and merge no barrier the count allows to keep).
+GROUPING = LayerRequest(keep=0.9)
 
 
-def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, ValueScan]]:
+def describe_field(fine: Field, path: str, grouping: LayerRequest = GROUPING
+                   ) -> tuple[dict[str, Any], dict[str, ValueScan]]:  # fmt: skip
     """The description of `fine` (read from `path`) as plain data, and the scans it came from.
+
+    Parameters
+    ----------
+    fine : Field
+    path : str
+        Where `fine` was read from, as given.
+    grouping : LayerRequest
+        The automatic grouping of a 3D model's layers to suggest
+        (`upscale.analysis.layers.choose_groups`).
 
     Returns
     -------
@@ -28,11 +43,12 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
         ``connectivity`` (the high-k bodies per axis, `upscale.analysis.connectivity`;
         None past its cell limit) and, for a 3D model, ``layers``: the layer
         profile (`upscale.analysis.layers.LayerProfile.summary`, with the
-        barrier runs).
+        barrier runs) and, under its key ``grouping``, the grouping chosen
+        for `grouping` (`upscale.analysis.layers.LayerChoice.summary`).
     scans : dict of str to ValueScan
         Per property.
     """
-    scans = compute_together(scan_each(fine.properties()))
+    scans, profile, spans = _read_once(fine)
     grid = fine.grid
     layers, rows, cols = fine.shape
     kx = scans["kx"]
@@ -58,12 +74,31 @@ def describe_field(fine: Field, path: str) -> tuple[dict[str, Any], dict[str, Va
         "suspect_values": _suspects(scans, fine.properties()),
     }
     description["suggested_nodata"] = _suggested(description["suspect_values"])
-    spans = connectivity(fine)
     description["connectivity"] = None if spans is None else {
         "high_k": HIGH_K, "axes": {axis: s.summary() for axis, s in spans.items()}}  # fmt: skip
     if fine.ndim == 3:
-        description["layers"] = layer_profile(fine).summary()
+        choice = LayerChoice(grouping, *choose_groups(profile, grouping))
+        description["layers"] = {**profile.summary(), "grouping": choice.summary()}
     return description, scans
+
+
+def _read_once(fine: Field) -> tuple[dict[str, ValueScan], LayerProfile | None, dict[str, Span] | None]:
+    """The scans, the layer profile (None for a map) and the spans of `fine`, its chunks read once.
+
+    The three read the whole field: computed apart, a lazy field was read
+    from its file three times.
+    """
+    names = fine.properties()
+    whole = connectivity_arrays(fine)
+    sums = layer_sums(fine) if fine.ndim == 3 else {}
+    lazy = {**{f"scan {n}": s for n, s in scan_each(names).items()},
+            **{f"sum {key}": value for key, value in sums.items()},
+            **{f"whole {n}": array for n, array in whole.items()}}  # fmt: skip
+    done = compute_together(lazy)
+    scans = {name: done[f"scan {name}"] for name in names}
+    profile = profile_from_sums(fine, {key: done[f"sum {key}"] for key in sums}) if sums else None
+    spans = connectivity(fine, read={n: done[f"whole {n}"] for n in whole}) if whole else None
+    return scans, profile, spans
 
 
 def _suspects(scans: dict[str, ValueScan], arrays: dict[str, object]) -> list[dict]:

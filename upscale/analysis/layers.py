@@ -118,11 +118,29 @@ def layer_profile(field: Field) -> LayerProfile:
     >>> np.exp(profile.ln_kz).round(3).tolist(), profile.barriers
     ([100.0, 0.01, 100.0], [(1, 2)])
     """
+    return profile_from_sums(field, compute_together(layer_sums(field)))
+
+
+def layer_sums(field: Field) -> dict[str, Any]:
+    """The per-layer sums a `LayerProfile` is made of, lazily for dask arrays, to compute with other reads.
+
+    Returns
+    -------
+    dict of str to array of shape (L,)
+        Keyed ``"kx.active"``, ``"kx.ln"``, ... (and ``"kz. ..."`` when kz is
+        not kx itself); computed (`upscale.parallel.compute_together`, with
+        any other results of the same field), they make the profile
+        (`profile_from_sums`).
+    """
     kz = field.kz if field.kz is not None else field.kx
     names = {"kx": field.kx} if kz is field.kx else {"kx": field.kx, "kz": kz}
-    lazy = {f"{name}.{key}": value for name, array in names.items() for key, value in _sums(array).items()}
+    return {f"{name}.{key}": value for name, array in names.items() for key, value in _sums(array).items()}
+
+
+def profile_from_sums(field: Field, computed: dict[str, Any]) -> LayerProfile:
+    """The `LayerProfile` of `field` from its `layer_sums`, computed (same keys)."""
     sums: dict[str, dict[str, np.ndarray]] = {}
-    for full, value in compute_together(lazy).items():
+    for full, value in computed.items():
         name, key = full.split(".")
         sums.setdefault(name, {})[key] = np.asarray(value)
     ln_kx, spread_kx = _moments(sums["kx"])

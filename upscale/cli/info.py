@@ -7,10 +7,14 @@ import math
 
 import click
 
-from ..analysis.describe import describe_field
+from ..analysis.describe import GROUPING, describe_field
+from ..analysis.layers import choice_lines
 from ..analysis.records import jsonable
-from ..grid.layers import BARRIER_CONTRAST
+from ..errors import InputError
+from ..export.staging import check_figure_file, write_file
+from ..grid.layers import BARRIER_CONTRAST, LayerRequest
 from ..io import read_field
+from ..optional import require_extra
 from ..stats import ValueScan, where
 from .options import field_options, read_options
 from .progress import progress
@@ -22,22 +26,49 @@ from .settings import global_options
 @click.argument("field", type=click.Path(dir_okay=False))
 @field_options
 @click.option("--json", "as_json", is_flag=True, help="Print the description as JSON.")
+@click.option("--layers", "layers", metavar="auto:N|auto:P%", default=None,
+              help=f"Grouping of a 3D model's layers to suggest and draw: N coarse layers, or the fewest "
+                   f"that keep P % of the between-layer variance.  [default: {GROUPING}]")  # fmt: skip
+@click.option("--plot", "plot", metavar="FILE", type=click.Path(dir_okay=False), default=None,
+              help="Draw the layer profile of a 3D model, its barriers and the grouping of --layers into "
+                   "FILE (.png or .svg).")  # fmt: skip
+@click.option("--overwrite", is_flag=True, help="Replace the --plot file if it exists.")
 @global_options
 @click.pass_context
-def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> None:
+def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot: str | None, overwrite: bool,
+         **options: object) -> None:  # fmt: skip
     """Describe FIELD: grid, cell size, CRS, units, active cells and statistics of log k.
 
     Flags negative, zero and infinite values and values that often mark cells
     without data (-9999, 1e30, ...) with their counts and first cells, and
-    suggests the --nodata that would make them inactive.
+    suggests the --nodata that would make them inactive. For a 3D model,
+    adds the profile of its layers, the barriers it finds and a grouping of
+    the layers into coarse layers (--layers), and --plot draws them.
 
     \b
-    Example:
+    Examples:
       upscale info demo-fields/marrowfen_3d.tif --dz 2
+      upscale info demo-fields/marrowfen_layered.tif --dz 1 --layers auto:8 --plot profile.png
     """
+    grouping = _grouping(layers)
+    kind = check_figure_file(plot, overwrite) if plot is not None else None
+    if plot is not None:
+        require_extra("figures")
     fine = read_field(field, checksum=False, **read_options(options))
+    if fine.ndim == 2 and plot is not None:
+        raise InputError(f"--plot draws the layers of a 3D model, and {field} is a 2D map (give --dz for a "
+                         "raster whose bands are layers)")  # fmt: skip
+    if fine.ndim == 2 and layers is not None:
+        raise InputError(f"--layers groups the layers of a 3D model, and {field} is a 2D map (give --dz for "
+                         "a raster whose bands are layers)")  # fmt: skip
     with progress(ctx.obj["quiet"]):
-        description, scans = describe_field(fine, field)
+        description, scans = describe_field(fine, field, grouping)
+    if plot is not None:
+        from ..report.figures import figure_bytes
+        from ..report.layer_profile import layer_profile_figure
+
+        figure = layer_profile_figure(description["layers"], fine.unit, name=field)
+        write_file(plot, figure_bytes(figure, kind))
     grid = fine.grid
     kx = scans["kx"]
     if as_json:
@@ -68,6 +99,19 @@ def info(ctx: click.Context, field: str, as_json: bool, **options: object) -> No
     click.echo(table(["property", "active", "min", "max", "mean", "geo mean"], rows_out))
     if "layers" in description:
         _print_layers(description["layers"], fine.unit)
+    if plot is not None:
+        click.echo(f"figure       {plot}")
+
+
+def _grouping(text: str | None) -> LayerRequest:
+    """The grouping `--layers` asks for (`GROUPING` without it)."""
+    if text is None:
+        return GROUPING
+    request = LayerRequest.parse(text)
+    if request is None:
+        raise InputError(f"--layers {text!r}: give auto:N (N coarse layers) or auto:P% (the fewest coarse "
+                         "layers that keep P % of the between-layer variance)")  # fmt: skip
+    return request
 
 
 def _print_problems(suspects: list[dict], porosity: ValueScan | None, nodata: float | None) -> None:
@@ -117,6 +161,8 @@ def _print_layers(profile: dict, unit: str) -> None:
                    "own")  # fmt: skip
     else:
         click.echo(f"barriers     none (no layer's kz is {BARRIER_CONTRAST:g} times below the typical layer)")
+    for label, line in zip(["grouping", *[""] * len(profile["layers"])], choice_lines(profile["grouping"])):
+        click.echo(f"{label:<13}{line}")
 
 
 def _print_connectivity(found: dict | None) -> None:

@@ -17,7 +17,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-from ..errors import OutputError, OutputExistsError
+from ..errors import InputError, OutputError, OutputExistsError
 
 #: Written last; its presence means the folder holds a complete result.
 MARKER = "summary.json"
@@ -127,3 +127,52 @@ def _commit(stage: Path, folder: Path, marker: str) -> None:
                 old.unlink(missing_ok=True)
     if marker in names:
         os.replace(stage / marker, folder / marker)
+
+
+#: The figure formats a single figure file is written in, by the ending of its name.
+FIGURE_FORMATS = {".png": "png", ".svg": "svg"}
+
+
+def check_figure_file(path: str | Path, overwrite: bool) -> str:
+    """The format of a figure to write to `path` (``png`` or ``svg``), refusing a path it cannot take.
+
+    Called before any work starts, so a refusal costs nothing.
+
+    Raises
+    ------
+    InputError
+        If the name ends neither in ``.png`` nor in ``.svg`` (any case).
+    OutputExistsError
+        If `path` exists and `overwrite` is False.
+
+    Examples
+    --------
+    >>> check_figure_file("profile.SVG", overwrite=False)
+    'svg'
+    """
+    path = Path(path)
+    kind = FIGURE_FORMATS.get(path.suffix.lower())
+    if kind is None:
+        raise InputError(f"{path}: a figure file is written as PNG or SVG by the ending of its name; "
+                         "give a name ending in .png or .svg")  # fmt: skip
+    if path.exists() and not overwrite:
+        raise OutputExistsError(f"{path} already exists; choose another file name or pass `overwrite=True`")
+    return kind
+
+
+def write_file(path: str | Path, data: bytes) -> None:
+    """Write `data` to `path` whole or not at all: into a hidden file beside it, then renamed over it.
+
+    Raises
+    ------
+    OutputError
+        If the file cannot be written; `path` is then left as it was.
+    """
+    path = Path(path)
+    staged = path.with_name(f".{path.name}.partial")
+    try:
+        staged.write_bytes(data)
+        os.replace(staged, path)
+    except OSError as exc:
+        staged.unlink(missing_ok=True)
+        raise OutputError(f"cannot write in {path.parent}: {exc.strerror or exc}") from None

@@ -111,13 +111,15 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
 
 def rendered(plot: Plot, dpi: int = DPI) -> tuple[bytes, bytes]:
     """The figure as PNG and as SVG bytes (for files and for embedding in a page)."""
-    images = []
-    for kind in ("png", "svg"):
-        buffer = io.BytesIO()
-        with rc_context({"svg.hashsalt": "upscale"}):
-            plot.figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
-        images.append(buffer.getvalue())
-    return images[0], images[1]
+    return figure_bytes(plot.figure, "png", dpi), figure_bytes(plot.figure, "svg", dpi)
+
+
+def figure_bytes(figure: Figure, kind: str, dpi: int = DPI) -> bytes:
+    """`figure` as the bytes of a ``png`` or ``svg`` file, the same bytes for the same figure."""
+    buffer = io.BytesIO()
+    with rc_context({"svg.hashsalt": "upscale"}):
+        figure.savefig(buffer, format=kind, dpi=dpi, metadata=_METADATA[kind])
+    return buffer.getvalue()
 
 
 # fixed metadata and SVG ids, so the same figure gives the same bytes

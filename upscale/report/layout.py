@@ -22,6 +22,8 @@ PAGE_WIDTH_PX = 1100
 TICK, LABEL, TITLE, SUPTITLE = 8.5, 9.0, 9.5, 11.0
 #: Widest figure (inches): a grid of panels is shrunk to fit, so its text stays readable.
 MAX_WIDTH = 10.5
+#: Height of one more line of a panel title (inches): the font size and matplotlib's line spacing, 1.2.
+TITLE_LINE = 1.2 * TITLE / 72
 
 
 def on_page_points(figure: Figure, size: float) -> float:
@@ -43,8 +45,8 @@ def on_page_points(figure: Figure, size: float) -> float:
 
 
 def panel_grid(count: int, *, width: float = 2.6, height: float | None = None, columns: int = 4,
-               extra: tuple[float, float] = (1.0, 0.9),
-               share: bool = False) -> tuple[Figure, list[Axes]]:  # fmt: skip
+               extra: tuple[float, float] = (1.0, 0.9), share: bool = False,
+               title_lines: int = 1) -> tuple[Figure, list[Axes]]:  # fmt: skip
     """A figure of `count` panels, at most `columns` per row, unused cells hidden.
 
     Parameters
@@ -61,6 +63,10 @@ def panel_grid(count: int, *, width: float = 2.6, height: float | None = None, c
     share : bool
         Panels share their x and y axes (maps of one area; label them with
         `outer_labels`).
+    title_lines : int
+        Lines of the panels' titles: each line past the first adds its
+        height to every row, so the panels keep their size and nothing is
+        pushed off the canvas.
 
     Returns
     -------
@@ -71,7 +77,8 @@ def panel_grid(count: int, *, width: float = 2.6, height: float | None = None, c
     rows = math.ceil(count / cols)
     height = width if height is None else height
     shrink = min(1.0, (MAX_WIDTH - extra[0]) / (width * cols))
-    fig = Figure(figsize=(shrink * width * cols + extra[0], shrink * height * rows + extra[1]),
+    titles = (title_lines - 1) * rows * TITLE_LINE
+    fig = Figure(figsize=(shrink * width * cols + extra[0], shrink * height * rows + extra[1] + titles),
                  layout="constrained")  # fmt: skip
     grid = fig.subplots(rows, cols, squeeze=False, sharex=share, sharey=share)
     axes = list(grid.ravel())

@@ -20,6 +20,7 @@ from matplotlib.lines import Line2D
 from ..analysis.compare import Comparison, Entry
 from ..check.wells import WellCheck
 from ..field import Grid
+from ..grid import BlockSpec
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch
 from .layout import LABEL, TICK, outer_labels, page_sizes, panel_grid, title
@@ -94,19 +95,37 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     coarse_values = [_slice(e.result.coarse.kx, *coarse_where) for e in ran]
     norm = log_norm(fine_values, *coarse_values)
     section = row is not None
-    fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True)
+    held = "" if section or fine.ndim == 2 else "\n" + coarse_layer_text(spec, layer, fine.shape[0])
+    fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True,
+                           title_lines=1 + held.count("\n"))  # fmt: skip
     cmap = with_missing(PERMEABILITY_MAP)
     mesh = _draw(axes[0], on_log_scale(fine_values), _edges(fine.grid, section), cmap=cmap, norm=norm)
     axes[0].set_title("fine")
     for ax, entry, values in zip(axes[1:], ran, coarse_values):
         _draw(ax, on_log_scale(values), _edges(entry.result.coarse.grid, section), cmap=cmap, norm=norm)
-        ax.set_title(entry_name(comparison, entry))
+        ax.set_title(entry_name(comparison, entry) + held)
     fig.colorbar(mesh, ax=axes, label=f"kx ({unit}, log scale)", shrink=0.8,
                  extend=extend_of(norm, fine_values, *coarse_values))  # fmt: skip
     where_text = f"section through row {row}" if section else f"layer {layer + 1}"
     title(fig, f"Fine and coarse kx, {where_text}" if fine.ndim == 3 else "Fine and coarse kx")
     _finish(fig, axes, fine.grid, section, [fine_values, *coarse_values])
     return fig
+
+
+def coarse_layer_text(spec: BlockSpec, layer: int, layers: int) -> str:
+    """The coarse layer holding fine `layer` (zero-based) of `layers`, and its fine layers, numbered from 1.
+
+    Examples
+    --------
+    >>> coarse_layer_text(BlockSpec.parse("8x8x2,2,4"), 2, 8)
+    'coarse layer 2: fine 3–4'
+    >>> coarse_layer_text(BlockSpec.parse("8x8x1,3"), 0, 4)
+    'coarse layer 1: fine 1'
+    """
+    edges = spec.edges(layers, 0)
+    index = spec.coarse_index(layer, layers, 0)
+    first, last = int(edges[index]) + 1, int(edges[index + 1])
+    return f"coarse layer {index + 1}: fine {first}" + (f"–{last}" if last > first else "")
 
 
 def _best_and_worst(comparison: Comparison, ran: list[Entry]) -> list[tuple[Entry, str]]:
