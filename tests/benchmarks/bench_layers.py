@@ -125,6 +125,19 @@ def grouping_time() -> dict[str, float]:
     return timings
 
 
+def print_summary(rows: list[dict]) -> None:
+    """Per method: cases meeting the target, among them those whose grouping merged no barrier, and x."""
+    print("\n| method | cases | auto z at most half of uniform | of the cases merging no barrier "
+          "| median auto / uniform (z) | auto closer in x |")
+    print("|---|---|---|---|---|---|")
+    for method in METHODS:
+        found = [r for r in rows if r["method"] == method]
+        kept = [r for r in found if r["merged"] == 0]
+        closer = sum(abs(r["auto_x"]) < abs(r["uniform_x"]) for r in found)
+        print(f"| {method} | {len(found)} | {sum(r['met'] for r in found)} "
+              f"| {sum(r['met'] for r in kept)} of {len(kept)} | {np.median([r['ratio'] for r in found]):.2f} | {closer} of {len(found)} |")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer fields and counts")
@@ -132,7 +145,8 @@ def main() -> None:
     args = parser.parse_args()
     print(f"load average at start: {os.getloadavg()[0]:.2f}")
     rows = []
-    print("| field | N | uniform | auto | method | uniform z | auto z | auto / uniform | met | uniform x | auto x |")
+    print("| field | N | uniform | auto | method | uniform z | auto z | auto / uniform | met | uniform x "
+          "| auto x |")
     print("|---|---|---|---|---|---|---|---|---|---|---|")
     for name, field in fields(args.quick).items():
         layers = field.shape[0]
@@ -148,9 +162,10 @@ def main() -> None:
                        "uniform_z": u["z"], "auto_z": a["z"], "ratio": ratio, "met": ratio <= 0.5,
                        "uniform_x": u["x"], "auto_x": a["x"], "merged": choice.grouping.merged}  # fmt: skip
                 rows.append(row)
-                print(f"| {name} | {count} | {uniform} | {auto} | {method} | {u['z']:+.1f} % | {a['z']:+.1f} % "
-                      f"| {ratio:.2f} | {'yes' if row['met'] else 'no'} | {u['x']:+.1f} % | {a['x']:+.1f} % |",
-                      flush=True)  # fmt: skip
+                print(f"| {name} | {count} | {uniform} | {auto} | {method} | {u['z']:+.1f} % "
+                      f"| {a['z']:+.1f} % | {ratio:.2f} | {'yes' if row['met'] else 'no'} | {u['x']:+.1f} % "
+                      f"| {a['x']:+.1f} % |", flush=True)  # fmt: skip
+    print_summary(rows)
     timings = grouping_time()
     for what, seconds in timings.items():
         print(f"500 layers, {what}: {seconds:.3f} s")

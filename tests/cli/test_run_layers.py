@@ -144,8 +144,8 @@ def test_the_demo_model_keeps_its_mudstone_with_automatic_layers(run_cli, demo_d
     errors = {}
     for block in ("8x8x4", "8x8xauto:4"):
         out = tmp_path / block.replace(":", "-")
-        code, _, _ = run_cli("run", demo_dir / "marrowfen_3d.tif", "--dz", "2", "--kv-kh", "0.1", "--block", block,
-                             "--method", "power", "--exponent", "0.333", "--out", out)  # fmt: skip
+        code, _, _ = run_cli("run", demo_dir / "marrowfen_3d.tif", "--dz", "2", "--kv-kh", "0.1", "--block",
+                             block, "--method", "power", "--exponent", "0.333", "--out", out)  # fmt: skip
         assert code == 0
         summary = json.loads((out / "summary.json").read_text())
         errors[block] = summary["check"]["z"]["rel_error"]

@@ -67,7 +67,8 @@ def fields() -> dict[str, dict]:
         (16, 96, 96), (2.0, 6.0, 10.0), geometric_mean=60.0, sigma_ln=1.2, seed=52_884_107
     )
     three_d *= np.geomspace(0.5, 2.0, 16)[:, None, None]  # coarsening-upward trend
-    mudstone = lognormal_field((2, 96, 96), (1.0, 8.0, 8.0), geometric_mean=0.02, sigma_ln=0.5, seed=52_884_108)
+    mudstone = lognormal_field((2, 96, 96), (1.0, 8.0, 8.0), geometric_mean=0.02, sigma_ln=0.5,
+                               seed=52_884_108)  # fmt: skip
     three_d[8:10] = np.where(_windows((96, 96)), three_d[8:10], mudstone)  # layers 9-10
     three_d[:, _outline((96, 96))] = NODATA
 
