@@ -134,9 +134,9 @@ def print_summary(rows: list[dict]) -> None:
         found = [r for r in rows if r["method"] == method]
         kept = [r for r in found if r["merged"] == 0]
         closer = sum(abs(r["auto_x"]) < abs(r["uniform_x"]) for r in found)
+        median = np.median([r["ratio"] for r in found])
         print(f"| {method} | {len(found)} | {sum(r['met'] for r in found)} "
-              f"| {sum(r['met'] for r in kept)} of {len(kept)} | {np.median([r['ratio'] for r in found]):.2f} "
-              f"| {closer} of {len(found)} |")
+              f"| {sum(r['met'] for r in kept)} of {len(kept)} | {median:.2f} | {closer} of {len(found)} |")
 
 
 def main() -> None:
