@@ -283,6 +283,23 @@ def per_axis_text(chosen: Mapping[str, str]) -> str:
     return ",".join(f"{axes}={name}" for name, axes in groups.items())
 
 
+def method_record(name: str, options: Mapping[str, Any]) -> dict[str, Any]:
+    """A method as summaries and the package record it: ``name``, ``options`` and, per axis, ``per_axis``.
+
+    ``per_axis`` (axis letter -> method name) is written for a method per
+    axis only.
+
+    Examples
+    --------
+    >>> method_record("xy=arithmetic,z=harmonic", {})
+    {'name': 'xy=arithmetic,z=harmonic', 'options': {}, 'per_axis': {'x': 'arithmetic', 'y': 'arithmetic', 'z': 'harmonic'}}
+    >>> method_record("power", {"exponent": 0.5})
+    {'name': 'power', 'options': {'exponent': 0.5}}
+    """
+    record = {"name": name, "options": dict(options)}
+    return {**record, "per_axis": per_axis(name)} if "=" in name else record
+
+
 def _refuse_mixing(name: str) -> None:
     """Refuse a method that cannot serve some axes only, saying why."""
     method = METHODS[name]
