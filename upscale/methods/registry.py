@@ -300,10 +300,25 @@ def method_record(name: str, options: Mapping[str, Any]) -> dict[str, Any]:
     return {**record, "per_axis": per_axis(name)} if "=" in name else record
 
 
+def serves_some_axes(name: str, options: Mapping[str, Any]) -> bool:
+    """Whether method `name` with `options` may serve some axes only, in a method per axis.
+
+    Not the methods that upscale the coarse transmissibilities of every axis
+    together (flow-transmissibility, global, local-global), nor flow with a
+    boundary condition that gives a full tensor (linear, periodic).
+
+    Examples
+    --------
+    >>> serves_some_axes("flow", {"bc": "sealed"}), serves_some_axes("flow", {"bc": "linear"})
+    (True, False)
+    """
+    method = METHODS[name]
+    return method.faces is None and not method.global_flows and options.get("bc", "sealed") == "sealed"
+
+
 def _refuse_mixing(name: str) -> None:
     """Refuse a method that cannot serve some axes only, saying why."""
-    method = METHODS[name]
-    if method.faces is not None or method.global_flows:
+    if not serves_some_axes(name, {}):
         raise InputError(f"method {name!r} cannot serve some axes only: it upscales the coarse "
                          "transmissibilities of every axis together; use it on every axis, or flow "
                          "for some axes")  # fmt: skip
