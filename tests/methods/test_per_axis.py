@@ -97,7 +97,7 @@ def test_the_mix_is_a_bound_only_when_all_its_methods_are_the_same_bound():
         ("xy=arithmetic,z=flow-transmissibility", {}, r"'flow-transmissibility' cannot serve some axes only"),
         ("xy=global,z=harmonic", {}, r"'global' cannot serve some axes only: it upscales the coarse"),
         ("xy=arithmetic,z=local-global", {}, r"'local-global' cannot serve some axes only"),
-        ("xy=arithmetic,z=flow", {"bc": "periodic"}, r"`bc` periodic gives a full tensor, whose cross terms"),
+        ("xy=arithmetic,z=flow", {"bc": "periodic"}, r"`bc` periodic gives a full tensor, whose cross terms couple the axes; .* `bc=sealed` only"),
         ("xy=arithmetic,z=harmonic", {"exponent": 0.5}, r"takes no option exponent"),
         ("xy=arithmetic,z=power", {}, r"needs `exponent`"),
     ],

@@ -457,5 +457,5 @@ def get_method(name: str, options: Mapping[str, Any] | None = None) -> tuple[Met
     check_exponent(given.get("exponent"))
     if isinstance(method.kernel, PerAxis) and given.get("bc", "sealed") != "sealed":
         raise InputError(f"`bc` {given['bc']} gives a full tensor, whose cross terms couple the axes; a "
-                         "method per axis takes flow with bc=sealed only (or flow alone on every axis)")
+                         "method per axis takes flow with `bc=sealed` only (or flow alone on every axis)")
     return method, {o: given[o] for o in method.options}
