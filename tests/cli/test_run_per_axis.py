@@ -9,7 +9,7 @@ What is tested
   solves it again from the folder with the same result.
 * Its refusals are one ``upscale: error:`` line each.
 * ``upscale compare`` prints and records the best method per axis with a
-  command line; that command runs and records the check errors the
+  command line, and names it on its page; that command runs and records the check errors the
   comparison reported for it.
 """
 
@@ -98,6 +98,8 @@ def test_compare_suggests_a_method_per_axis_whose_run_reproduces_its_errors(demo
     assert f"best per axis: xy=arithmetic,z=harmonic (error x {100 * suggested['check']['x']['rel_error']:+.2f} %" \
         in stdout
     assert f"\n  {suggested['command']}\n" in stdout
+    page = (tmp_path / "cmp" / "report.html").read_text()
+    assert "Best method per axis: <strong>xy=arithmetic,z=harmonic</strong>" in page
     words = shlex.split(suggested["command"])
     assert words[:2] == ["upscale", "run"] and "--methods" not in words
     status, _, _ = run_cli(*words[1:])
