@@ -230,6 +230,13 @@ class PerAxis:
         return coarse
 
 
+def _known(name: str) -> Method:
+    """The method of `name` in `METHODS`; an unknown name is refused with the list of names."""
+    if name not in METHODS:
+        raise InputError(f"unknown method {name!r}; choose one of {', '.join(METHODS)}")
+    return METHODS[name]
+
+
 def per_axis(text: str) -> dict[str, str]:
     """The method of each axis named in a method per axis such as ``xy=arithmetic,z=harmonic``.
 
@@ -259,8 +266,7 @@ def per_axis(text: str) -> dict[str, str]:
         if not axes or not name or set(axes) - set(AXIS_LETTERS):
             raise InputError(f"method per axis {text!r}: write groups of axes and a method, as "
                              "xy=arithmetic,z=harmonic")  # fmt: skip
-        if name not in METHODS:
-            raise InputError(f"unknown method {name!r}; choose one of {', '.join(METHODS)}")
+        _known(name)
         for axis in axes:
             if axis in chosen:
                 raise InputError(f"method per axis {text!r}: axis {axis} is given twice")
@@ -347,9 +353,7 @@ def find_method(name: str) -> Method:
     'flow'
     """
     if "=" not in name:
-        if name not in METHODS:
-            raise InputError(f"unknown method {name!r}; choose one of {', '.join(METHODS)}")
-        return METHODS[name]
+        return _known(name)
     chosen = per_axis(name)
     names = list(dict.fromkeys(chosen.values()))
     if len(names) == 1:
