@@ -36,7 +36,7 @@ from upscale.analysis.summary import FlowCheck, RunSummary
 from upscale.cli.report import print_result
 from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.grid import BlockSpec
-from upscale.jobs.compare import compare_file
+from upscale.jobs.compare import compare_file, run_command
 
 SEED = 804_113
 
@@ -107,7 +107,8 @@ def test_a_comparison_round_trips_and_is_the_record_built_in_memory(fields, tmp_
     record = ComparisonRecord.from_dict(json.loads(text))
     assert _dumped(record) == text
     assert ComparisonRecord.from_dict(record.to_dict()) == record
-    built = comparison_record(compared, command=command)
+    built = comparison_record(compared, command=command,
+                              per_axis_command=run_command(command, compared.per_axis.candidate, out))
     assert dataclasses.replace(built, files=record.files) == record
     failed = record.method("renormalization")
     assert failed.error and failed.rank is None and failed.check is None

@@ -32,7 +32,7 @@ from ..flow.corner import CornerFlow
 from ..flow.solvers import ConvergenceError
 from ..grid import BlockSpec
 from ..methods.coarsen import Upscaled, coarsen
-from ..methods.registry import METHODS, check_exponent
+from ..methods.registry import METHODS, check_exponent, find_method, per_axis_text, serves_some_axes
 from ..steps import Say, Steps, silent
 from .layers import LayerChoice, resolve_layers
 
@@ -122,6 +122,10 @@ class Comparison:
         The wells' fine solve, when the methods were also checked by wells.
     layers : LayerChoice or None
         How the block's automatic layers were chosen (None: not automatic).
+    per_axis : Entry or None
+        The best method per axis (`with_per_axis`), upscaled and checked
+        like the others but not ranked among them; None: not sought, or no
+        method that may serve some axes only ran.
     """
 
     fine: Field
@@ -131,6 +135,7 @@ class Comparison:
     candidates: list[Candidate]
     wells: FineWells | None = None
     layers: LayerChoice | None = None
+    per_axis: Entry | None = None
 
     @property
     def ranked(self) -> list[Entry]:
@@ -295,20 +300,7 @@ def compare_methods(
     for i, candidate in enumerate(chosen):
         if report:
             report(i, len(chosen), candidate, None)
-        start, compiled = time.perf_counter(), compile_seconds()
-        result, checks, error = None, {}, None
-        try:
-            result = coarsen(field, spec, candidate.method, flows=fine_flows, **candidate.options)
-            checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
-                                  tolerance=tolerance)  # fmt: skip
-            well_check = None if wells is None else coarse_wells(
-                wells, result.coarse, coarse_trans=result.transmissibilities(), solver=solver,
-                tolerance=tolerance)  # fmt: skip
-        except (InputError, ConvergenceError) as exc:  # this method on this field, not the comparison
-            result, checks, well_check, error = None, {}, None, str(exc)
-        compiling = compile_seconds() - compiled
-        entry = Entry(candidate, result, checks, time.perf_counter() - start - compiling, error,
-                      compiling=compiling, wells=well_check)  # fmt: skip
+        entry = _entry(field, spec, candidate, fine_flows, wells, solver=solver, tolerance=tolerance)
         entries.append(entry)
         if report:
             report(i, len(chosen), candidate, entry)
@@ -317,6 +309,83 @@ def compare_methods(
     ranked = [dataclasses.replace(e, rank=r + 1) for r, e in enumerate(ran)]
     failed = [e for e in entries if e.error is not None]
     return Comparison(fine, spec, ranked + failed, fine_flows, list(chosen), wells, layers or chosen_layers)
+
+
+def _entry(field: Field, spec: BlockSpec, candidate: Candidate, fine_flows: dict[str, AxisFlow | CornerFlow],
+           wells: FineWells | None, *, solver: str, tolerance: float) -> Entry:  # fmt: skip
+    """One candidate upscaled and checked against the shared fine solves (and wells); its reason if it failed."""
+    start, compiled = time.perf_counter(), compile_seconds()
+    result, checks, well_check, error = None, {}, None, None
+    try:
+        result = coarsen(field, spec, candidate.method, flows=fine_flows, **candidate.options)
+        checks = coarse_check(fine_flows, result.transmissibilities(), solver=solver,
+                              tolerance=tolerance)  # fmt: skip
+        well_check = None if wells is None else coarse_wells(
+            wells, result.coarse, coarse_trans=result.transmissibilities(), solver=solver,
+            tolerance=tolerance)  # fmt: skip
+    except (InputError, ConvergenceError) as exc:  # this method on this field, not the comparison
+        result, checks, well_check, error = None, {}, None, str(exc)
+    compiling = compile_seconds() - compiled
+    return Entry(candidate, result, checks, time.perf_counter() - start - compiling, error,
+                 compiling=compiling, wells=well_check)  # fmt: skip
+
+
+def per_axis_candidate(comparison: Comparison) -> Candidate | None:
+    """The best method per axis: along each axis, the entry with the smallest ``|rel_error|`` among those
+    that may serve some axes only (`upscale.methods.registry.serves_some_axes`).
+
+    Returns
+    -------
+    Candidate or None
+        Its ``method`` is a method per axis such as ``xy=arithmetic,z=harmonic``
+        (a method's name when one wins along every axis), its options those of
+        the entries chosen; None when no such entry ran.
+    """
+    axes = comparison.fine.axes
+    ran = [e for e in comparison.entries if e.error is None and serves_some_axes(e.candidate.method,
+                                                                                e.candidate.options)]
+    if not ran:
+        return None
+    order = {id(e): comparison.candidates.index(e.candidate) for e in ran}
+    best = {a: min(ran, key=lambda e: (_tied(_size(e.checks[a].rel_error)), order[id(e)])) for a in axes}
+    chosen = {id(e): e.candidate for e in best.values()}
+    if len(chosen) == 1:
+        return next(iter(chosen.values()))
+    options = {k: v for c in chosen.values() for k, v in c.options.items()}
+    method = find_method(per_axis_text({a: e.candidate.method for a, e in best.items()})).name
+    return Candidate(_label(method, options), method, options)
+
+
+def with_per_axis(comparison: Comparison, *, solver: str = "auto", tolerance: float = 1e-10) -> Comparison:
+    """`comparison` with its best method per axis (`per_axis_candidate`), upscaled and checked.
+
+    The combination is checked against the same fine solves (and wells) as
+    the methods compared, so its check is the one ``upscale run`` with it
+    records. One entry wins along every axis: it is that entry.
+
+    Parameters
+    ----------
+    comparison : Comparison
+        From `compare_methods`.
+    solver, tolerance
+        Linear solves of the check (see `upscale.check.check_flow`).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> layered = np.tile([[1.0], [4.0]], (4, 8))   # rows of 1 and 4: layers along x
+    >>> found = compare_methods(Field.from_arrays(layered), "2x2", candidates(["arithmetic", "harmonic"]))
+    >>> best = with_per_axis(found).per_axis
+    >>> best.candidate.method, [abs(best.checks[axis].rel_error) < 1e-12 for axis in "xy"]
+    ('x=arithmetic,y=harmonic', [True, True])
+    """
+    candidate = per_axis_candidate(comparison)
+    if candidate is None:
+        return comparison
+    same = [e for e in comparison.entries if e.candidate == candidate]
+    entry = same[0] if same else _entry(comparison.fine, comparison.block, candidate, comparison.fine_flows,
+                                        comparison.wells, solver=solver, tolerance=tolerance)  # fmt: skip
+    return dataclasses.replace(comparison, per_axis=entry)
 
 
 def shared_fine_solves(fine: Field, *, solver: str = "auto", tolerance: float = 1e-10,

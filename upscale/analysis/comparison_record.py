@@ -17,7 +17,7 @@ import numpy as np
 
 from ..caution import CAUTION
 from ..field import PERMEABILITY
-from ..methods.registry import METHODS
+from ..methods.registry import find_method
 from .compare import Comparison, Entry
 from .records import (
     AxisResult,
@@ -47,7 +47,8 @@ class MethodRecord:
     name : str
         Label in tables and figures, e.g. ``flow (periodic)``.
     method : str
-        Method name (a key of `upscale.METHODS`).
+        Method name (a key of `upscale.METHODS`), or a method per axis
+        (``per_axis`` of `ComparisonRecord`).
     parameters : dict
         The method's options.
     rank : int or None
@@ -83,7 +84,7 @@ class MethodRecord:
     @property
     def bound(self) -> str | None:
         """``lower`` or ``upper`` when the method is one of the bounds of k, else None."""
-        return METHODS[self.method].bound
+        return find_method(self.method).bound
 
     def largest_error(self, axes: str) -> float | None:
         """Largest ``|rel_error|`` over `axes` and the held-out flows (None when failed or undefined)."""
@@ -147,6 +148,12 @@ class ComparisonRecord:
         How the block's automatic layers were chosen
         (`upscale.analysis.layers.LayerChoice.summary`); None (and absent
         from the file) when they were not automatic.
+    per_axis : MethodRecord or None
+        The best method per axis (`upscale.analysis.compare.with_per_axis`),
+        checked but not ranked; None (and absent from the file) when not sought.
+    per_axis_command : str or None
+        The ``upscale run`` command line that upscales the field with it,
+        written in the file as ``per_axis``'s ``command``.
     """
 
     provenance: Provenance
@@ -161,6 +168,8 @@ class ComparisonRecord:
     caution: str
     files: tuple[str, ...] = ()
     layers: dict[str, Any] | None = None
+    per_axis: MethodRecord | None = None
+    per_axis_command: str | None = None
 
     @property
     def axes(self) -> str:
@@ -174,10 +183,12 @@ class ComparisonRecord:
     def to_dict(self) -> dict[str, Any]:
         """The content of ``compare.json``, key for key."""
         layers = {} if self.layers is None else {"layers": self.layers}
+        per_axis = {} if self.per_axis is None else {
+            "per_axis": {**self.per_axis.to_dict(), "command": self.per_axis_command}}  # fmt: skip
         return {**self.provenance.to_dict(), "unit": self.unit, "block": self.block, **layers,
                 "dimensions": self.dimensions, "fine": self.fine.to_dict(), "ranking": self.ranking,
                 "methods": [m.to_dict() for m in self.methods], "best": self.best,
-                "best_along": self.best_along, "caution": self.caution,
+                "best_along": self.best_along, **per_axis, "caution": self.caution,
                 "files": list(self.files)}  # fmt: skip
 
     @classmethod
@@ -187,11 +198,16 @@ class ComparisonRecord:
                    GridRecord.from_dict(data["fine"]), data["ranking"],
                    tuple(MethodRecord.from_dict(m) for m in data["methods"]), data["best"],
                    data["best_along"], data["caution"], tuple(data.get("files", ())),
-                   data.get("layers"))  # fmt: skip
+                   data.get("layers"), *_per_axis(data.get("per_axis")))  # fmt: skip
+
+
+def _per_axis(data: dict[str, Any] | None) -> tuple[MethodRecord | None, str | None]:
+    return (None, None) if data is None else (MethodRecord.from_dict(data), data["command"])
 
 
 def comparison_record(comparison: Comparison, *, command: list[str] | None = None,
-                      read: dict[str, Any] | None = None) -> ComparisonRecord:  # fmt: skip
+                      read: dict[str, Any] | None = None,
+                      per_axis_command: str | None = None) -> ComparisonRecord:  # fmt: skip
     """The record of a comparison, as ``compare.json`` holds it.
 
     Parameters
@@ -202,6 +218,8 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
         The command line that produced it.
     read : dict, optional
         The options the fine field was read with.
+    per_axis_command : str, optional
+        The command line of the best method per axis, when it was sought.
     """
     fine = comparison.fine
     return ComparisonRecord(
@@ -210,6 +228,8 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
         tuple(_method(e, fine.axes) for e in comparison.entries),
         _label(comparison.best), {axis: _label(comparison.best_along(axis)) for axis in fine.axes}, CAUTION,
         layers=None if comparison.layers is None else jsonable(comparison.layers.summary()),
+        per_axis=None if comparison.per_axis is None else _method(comparison.per_axis, fine.axes),
+        per_axis_command=per_axis_command,
     )  # fmt: skip
 
 

@@ -14,7 +14,7 @@ import numpy as np
 
 from ..caution import CAUTION
 from ..methods.coarsen import Upscaled
-from ..methods.registry import METHODS
+from ..methods.registry import find_method, method_record
 from ..stats import scan_values
 from .anisotropy import tensor_summary
 from .records import AxisResult, GridRecord, Leaf, Provenance, ZeroKRecord, grid_record, jsonable, provenance
@@ -22,10 +22,24 @@ from .records import AxisResult, GridRecord, Leaf, Provenance, ZeroKRecord, grid
 
 @dataclass(frozen=True)
 class MethodUsed(Leaf):
-    """The method of a run: its ``name`` and its ``options``."""
+    """The method of a run: its ``name``, its ``options`` and, for a method per axis, ``per_axis``.
+
+    ``per_axis`` (axis letter -> method name, `upscale.methods.registry.per_axis`)
+    is None, and left out of the JSON object, for one method on every axis.
+    """
 
     name: str
     options: dict[str, Any]
+    per_axis: dict[str, str] | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The record as the JSON object it is written as (`method_record`)."""
+        return method_record(self.name, self.options)
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> MethodUsed:
+        """The record of a JSON object written by `to_dict`."""
+        return cls(data["name"], data["options"], data.get("per_axis"))
 
 
 @dataclass(frozen=True)
@@ -403,11 +417,11 @@ def build_summary(
     """
     fine, coarse = result.fine, result.coarse
     tensor, faces = None, None
-    if METHODS[result.method].local:
+    if find_method(result.method).local:
         tensor = TensorSummary.from_dict(jsonable(tensor_summary(coarse, result.tensor, result.zeros)))
         faces = _face_rule(result)
     return RunSummary(
-        provenance(fine, command, read), fine.unit, MethodUsed(result.method, jsonable(result.options)),
+        provenance(fine, command, read), fine.unit, MethodUsed.from_dict(jsonable(method_record(result.method, result.options))),
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
@@ -417,7 +431,7 @@ def build_summary(
 
 def _face_rule(result: Upscaled) -> FaceRule:
     """How a local method's coarse faces were found."""
-    rule = FACE_RULES[METHODS[result.method].faces]
+    rule = FACE_RULES[find_method(result.method).faces]
     coupling = result.coupling
     if coupling is None:
         return FaceRule(rule, jsonable(result.replaced_faces))

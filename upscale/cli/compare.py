@@ -13,7 +13,7 @@ from ..check.axis import HELD_OUT
 from ..export import check_destination
 from ..field import PERMEABILITY
 from ..io.realizations import expand
-from ..jobs.compare import compare_ensemble, compare_file
+from ..jobs.compare import compare_ensemble, compare_file, run_command
 from ..report.verdict import bound_note, one_method, outside_band
 from .options import (
     block_options,
@@ -108,6 +108,9 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
                    f"(axes and {', '.join(HELD_OUT)}" + (", wells)" if result.wells else ")"))
         print_notes(outside_band(best.candidate.label, best.worst_error, several=several),
                     bound_note(best.candidate.method, best.candidate.label) if several else None)
+        if result.per_axis is not None and several:
+            _print_per_axis(result.per_axis, (*fine.axes, *HELD_OUT), run_command(ctx.obj["command"],
+                            result.per_axis.candidate, out))  # fmt: skip
         click.echo(f"wrote compare.json, report.html and {len(files.images)} figures (PNG, SVG) to {out}")
 
 
@@ -140,6 +143,12 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
     for e in entries:
         if e.error:
             click.echo(f"{e.candidate.label} did not run: {e.error}")
+
+
+def _print_per_axis(entry: Entry, flows: tuple[str, ...], command: str) -> None:
+    """The best method per axis, its check errors and the command line that runs it."""
+    errors = ", ".join(f"{f} {_percent(entry.checks[f].rel_error)}" for f in flows)
+    click.echo(f"best per axis: {entry.candidate.label} (error {errors})\n  {command}")
 
 
 def _percent(error: float) -> str:

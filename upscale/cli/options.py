@@ -14,8 +14,27 @@ from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import VALUE_SCALES
 from ..methods.near_well import CONNECTIONS
-from ..methods.registry import METHODS
+from ..methods.registry import METHODS, find_method, per_axis, per_axis_text
 from ..units import UNITS
+
+
+class MethodChoice(click.Choice):
+    """A method name (click's choice), or a method per axis such as ``xy=arithmetic,z=harmonic``.
+
+    A method per axis is checked (`upscale.methods.registry.find_method`:
+    one ``upscale: error:`` line) and given in its own text, axes grouped x
+    first; whether it names every axis of the field is checked once the field is read.
+    """
+
+    def __init__(self) -> None:
+        super().__init__(list(METHODS))
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        """`value` as a method name or the text of a method per axis."""
+        if isinstance(value, str) and "=" in value:
+            find_method(value)
+            return per_axis_text(per_axis(value))
+        return super().convert(value, param, ctx)
 
 
 def parse_numbers(text: str | None, name: str) -> list[float] | None:

@@ -12,6 +12,7 @@ from ..jobs.cluster import compute_on
 from ..jobs.run import Settings, run_ensemble, upscale_file
 from ..methods.registry import METHODS
 from .options import (
+    MethodChoice,
     block_options,
     block_spec,
     check_options,
@@ -25,13 +26,15 @@ from .progress import progress, teller
 from .report import print_ensemble, print_result
 from .settings import command_line, global_options
 
-_METHOD_HELP = "; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS.values())
+_METHOD_HELP = ("; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHODS.values())
+                + ". Or a method per axis, as xy=arithmetic,z=harmonic (README: Methods); --exponent, --bc "
+                "and --border go to the methods that take them.")
 
 
 @click.command(epilog=f"Caution: {CAUTION}")
 @click.argument("field", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @block_options
-@click.option("--method", required=True, type=click.Choice(list(METHODS)), help=_METHOD_HELP)
+@click.option("--method", required=True, type=MethodChoice(), help=_METHOD_HELP)
 @click.option("--exponent", type=float, default=None, help="Exponent ω of the power average.")
 @click.option("--bc", type=click.Choice(["sealed", "linear", "periodic"]), default=None,
               help="Boundary conditions of the local solves of the flow methods [default: sealed].")
@@ -89,6 +92,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
       upscale run map.tif --block 8x8 --method geometric --out coarse/
       upscale run model.tif --dz 2 --kv-kh 0.1 --block 10x10x4 --method power --exponent 0.5 --out c/
       upscale run map.tif --block 16x16 --method flow --bc periodic --border 4 --out tensor/
+      upscale run model.tif --dz 2 --block 10x10x4 --method xy=arithmetic,z=harmonic --out layered/
       upscale run 'realizations/*.tif' --block 8x8 --method flow --workers 2 --out ensemble/
     """
     check_destination(out, overwrite)

@@ -17,7 +17,7 @@ from ..caution import CAUTION
 from ..errors import InputError
 from ..flow import Transmissibilities
 from ..methods.coarsen import Upscaled
-from ..methods.registry import METHODS
+from ..methods.registry import find_method, method_record
 from ..units import unit_factors
 from .comparison import write_figures
 from .geotiff import PROPERTY_UNITS, write_property
@@ -72,7 +72,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     factors = unit_factors(coarse.unit, units)
     trans = result.transmissibilities()
     properties = {**coarse.properties(), **result.tensor}
-    source = METHODS[result.method].faces or "harmonic"
+    source = find_method(result.method).faces or "harmonic"
     tables = PackageTables(properties, trans, factors=factors, source=source,
                            direct=result.direct_faces)  # fmt: skip
     table_files = write_tables(stage, tables)
@@ -109,7 +109,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "crs": grid.crs.to_wkt() if grid.crs is not None else None,
         "transform": list(grid.transform)[:6] if grid.transform is not None else None,
         "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in result.fine.sources],
-        "method": {"name": result.method, "options": result.options},
+        "method": method_record(result.method, result.options),
         "block": result.block.summary(),
         "transmissibility_source": source,
         "check": check,

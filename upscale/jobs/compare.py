@@ -7,10 +7,11 @@ draw its figures and page, and write its folder.
 
 from __future__ import annotations
 
+import shlex
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line
+from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line, with_per_axis
 from ..analysis.comparison_record import ComparisonRecord, comparison_record
 from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
@@ -77,9 +78,55 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                              report=lambda *args: say(progress_line(*args)), say=say,
                              wells=shared, layers=layers)  # fmt: skip
     _refuse_if_none_ran(result)
-    record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read)
+    result = with_per_axis(result, solver=solver, tolerance=tolerance)
+    suggested = None if result.per_axis is None else run_command(
+        command or ["upscale", "compare", path, "--block", str(block)], result.per_axis.candidate, out)
+    record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read,
+                          per_axis_command=suggested)  # fmt: skip
     write_comparison(out, record, made.images, made.page, overwrite=overwrite)
     return result, made
+
+
+#: Options of ``upscale compare`` that ``upscale run`` does not take, or takes from the method chosen.
+_NOT_RUN = ("--methods", "--bc", "--border", "--exponent", "--out")
+
+
+def run_command(command: list[str], candidate: Candidate, out: str | Path) -> str:
+    """The ``upscale run`` command line of `candidate` on the field and block of a compare command.
+
+    Parameters
+    ----------
+    command : list of str
+        The ``upscale compare`` command line, program name first.
+    candidate : Candidate
+        A method of the comparison (its best method per axis).
+    out : str or Path
+        The comparison's folder; the run writes beside it, into ``OUT-per-axis``.
+
+    Returns
+    -------
+    str
+        The command line, quoted for a POSIX shell: the compare command's
+        words but its methods, their options and its folder, then the method
+        and the options it takes (those at their default left out).
+
+    Examples
+    --------
+    >>> best = Candidate("x", "x=flow,y=harmonic", {"bc": "sealed", "border": 2})
+    >>> run_command(["upscale", "compare", "a map.tif", "--block", "8x8", "--methods", "flow,harmonic",
+    ...              "--out", "cmp"], best, "cmp")
+    "upscale run 'a map.tif' --block 8x8 --method x=flow,y=harmonic --border 2 --out cmp-per-axis"
+    """
+    words, skip = [], False
+    for word in command:
+        if skip or word == "--overwrite" or word.split("=")[0] in _NOT_RUN:
+            skip = word in _NOT_RUN
+            continue
+        words.append(word)
+    words[words.index("compare")] = "run"
+    options = {k: v for k, v in candidate.options.items() if (k, v) not in (("bc", "sealed"), ("border", 0))}
+    words += ["--method", candidate.method, *(w for k, v in options.items() for w in (f"--{k}", str(v)))]
+    return shlex.join([*words, "--out", f"{str(out).rstrip('/')}-per-axis"])
 
 
 def wells_of_file(fine: Field, block: BlockSpec, path: str | None, how: tuple[float | None, str], solver: str,
@@ -205,9 +252,11 @@ def _refuse_if_none_ran(result: Comparison, path: str | None = None) -> None:
 
 
 def _drawn(result: Comparison, path: str, *, layer: int | None, command: list[str],
-           recorded_read: dict[str, Any] | None) -> tuple[ComparisonRecord, Bundle]:  # fmt: skip
+           recorded_read: dict[str, Any] | None,
+           per_axis_command: str | None = None) -> tuple[ComparisonRecord, Bundle]:  # fmt: skip
     """The record of one field's comparison (``compare.json``), and its figures and page."""
     from ..report.bundle import bundle  # matplotlib: the figures extra
 
     made = bundle(result, title=f"upscale — methods compared on {path}", command=command, layer=layer)
-    return comparison_record(result, command=command, read=recorded_read), made
+    return comparison_record(result, command=command, read=recorded_read,
+                             per_axis_command=per_axis_command), made  # fmt: skip

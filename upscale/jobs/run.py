@@ -32,7 +32,7 @@ from ..io import read_field
 from ..io.realizations import read_realizations
 from ..io.wells import read_wells
 from ..methods.coarsen import Upscaled, coarsen
-from ..methods.registry import METHODS
+from ..methods.registry import find_method
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
 from ..units import unit_factors
@@ -151,7 +151,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
                                             read=settings.read)  # fmt: skip
     settings = replace(settings, block=block)
     wells = _wells(settings, fine)
-    fits_flows = METHODS[settings.method].global_flows
+    fits_flows = find_method(settings.method).global_flows
     if fits_flows:
         refuse_global_past_limit(settings.block.used_shape(fine.shape), settings.check_limit)
     if settings.check or fits_flows:

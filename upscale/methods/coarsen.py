@@ -14,6 +14,7 @@ import logging
 import math
 from dataclasses import KW_ONLY, dataclass, field, replace
 from functools import cached_property
+from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -28,7 +29,7 @@ from ..stats import ValueScan, scan_each, where
 from . import averages
 from .flow_based import TENSOR
 from .local_global import Coupling
-from .registry import Method, get_method
+from .registry import Method, get_method, method_for_axes
 from .zeros import ZeroOutcome, apply_zero_rule
 
 if TYPE_CHECKING:
@@ -54,7 +55,8 @@ class Upscaled:
     coarse : Field
         Coarse properties on the coarse grid; NaN marks inactive blocks.
     method : str
-        Method name.
+        Method name, or the text of a method per axis such as
+        ``xy=arithmetic,z=harmonic`` (`upscale.methods.registry.per_axis`).
     options : dict
         The method's options (e.g. ``{'exponent': 0.5}``).
     block : BlockSpec
@@ -213,7 +215,7 @@ class Upscaled:
 def coarsen(
     field: Field | Any,
     block: BlockSpec | str,
-    method: str = "geometric",
+    method: str | Mapping[str, str] = "geometric",
     *,
     cell_size: tuple[float, float] | None = None,
     dz: float | np.ndarray | None = None,
@@ -233,8 +235,15 @@ def coarsen(
         georeference, cell sizes and nodata, as `Field.from_xarray`.
     block : BlockSpec or str
         The block partition, or its text form such as ``"8x8"``.
-    method : str
-        A name from `upscale.METHODS`.
+    method : str or mapping
+        A name from `upscale.METHODS`, or a method per axis: a text such as
+        ``"xy=arithmetic,z=harmonic"`` or a mapping such as ``{"xy":
+        "arithmetic", "z": "harmonic"}``, naming every axis of the field.
+        Each axis's coarse permeability is then the one its method gives
+        alone; the options go to the methods that take them. Methods that
+        upscale transmissibilities directly (flow-transmissibility, global,
+        local-global) serve every axis or none, and flow serves some axes
+        with ``bc='sealed'`` only (`upscale.methods.registry.find_method`).
     cell_size : (float, float), optional
         Column width and row height in m of an array `field` (default 1 m by
         1 m), or of an xarray one that does not carry them.
@@ -275,10 +284,18 @@ def coarsen(
 
     >>> coarsen(np.array([[1.0, 1.0], [100.0, 100.0]]), "2x2", cell_size=(10.0, 10.0)).coarse.kx
     array([[[10.]]])
+
+    A method per axis: arithmetic along the rows of 1 and 100, harmonic across them:
+
+    >>> layered = coarsen(fine, "2x2", {"x": "arithmetic", "y": "harmonic"})
+    >>> layered.method, layered.coarse.kx.item(), round(layered.coarse.ky.item(), 4)
+    ('x=arithmetic,y=harmonic', 50.5, 1.9802)
     """
     field = as_field(field, cell_size=cell_size, dz=dz, unit=unit)
     spec = BlockSpec.parse(block) if isinstance(block, str) else block
-    chosen, options = get_method(method, options)
+    if isinstance(method, Mapping):
+        method = ",".join(f"{axes}={name}" for axes, name in method.items())
+    chosen, options = get_method(method_for_axes(method, field.axes), options)
     spec.check(field.shape, field.ndim)
     for name in ("dx", "dy"):
         sizes = getattr(field.grid, name)

@@ -33,7 +33,7 @@ td { white-space: nowrap; } td.text { white-space: normal; }
 tr.best td { font-weight: bold; } tr.failed td { color: #8a1c1c; }
 .bound { font-size: 0.85em; font-weight: normal; color: #555; }
 figure { margin: 1.5em 0; } figure img { max-width: 100%; height: auto; border: 1px solid #eee; }
-figcaption { font-size: 0.92em; color: #333; }
+figcaption { font-size: 0.92em; color: #333; } p code { white-space: nowrap; }
 pre { background: #f4f4f4; padding: 0.7em; overflow-x: auto; white-space: pre-wrap; }
 .caution { background: #fff6e0; border-left: 4px solid #e69f00; padding: 0.6em 1em; }
 .warning { background: #fbe9e9; border-left: 4px solid #8a1c1c; padding: 0.6em 1em; font-weight: bold; }
@@ -231,4 +231,14 @@ def _verdict(comparison: Comparison, ranked: bool) -> str:
                 else f"<strong>{_e(label)}</strong> on this field: {size}")  # fmt: skip
     warning = outside_band(label, best.worst_error, several=ranked)
     note = bound_note(best.candidate.method, label) if ranked else None
-    return f"<p>{sentence}</p>\n" + notices_html(warning, note)
+    return f"<p>{sentence}</p>\n" + _per_axis(comparison.per_axis if ranked else None) + notices_html(warning, note)
+
+
+def _per_axis(entry: Entry | None) -> str:
+    """The best method per axis with its check errors, and how to run it; empty when not sought."""
+    if entry is None:
+        return ""
+    errors = ", ".join(f"{flow} {100 * check.rel_error:+.2f} %" for flow, check in entry.checks.items())
+    return (f"<p>Best method per axis: <strong>{_e(entry.candidate.label)}</strong> (check error {errors}); "
+            f"<code>upscale run</code> with <code>--method {_e(entry.candidate.method)}</code> makes it "
+            "(the whole command is in compare.json, <code>per_axis</code>).</p>\n")

@@ -22,7 +22,8 @@ import math
 
 from ..analysis.compare import Comparison, Entry
 from ..analysis.plan_record import PlanRecord
-from ..methods.registry import METHODS
+from ..errors import InputError
+from ..methods.registry import find_method
 
 #: The band of check errors drawn and judged as acceptable (±5 %): a common engineering tolerance.
 BAND = 5.0
@@ -83,7 +84,10 @@ def outside_band(name: str, error: float | None, *, several: bool, measure: str 
 
 def bound_mark(method: str) -> str | None:
     """``upper bound`` or ``lower bound`` for a method that is one (see `Method.bound`), else None."""
-    bound = METHODS[method].bound if method in METHODS else None
+    try:
+        bound = find_method(method).bound
+    except InputError:  # a label that names no method
+        bound = None
     return None if bound is None else f"{bound} bound"
 
 
