@@ -38,7 +38,6 @@ from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
 from upscale.analysis.comparison_record import ComparisonRecord
 from upscale.analysis.ensemble import (
-    PERCENTILE_NOTE,
     QUANTITIES,
     EnsembleSummary,
     RealizationCheck,
@@ -112,7 +111,7 @@ def _ensemble(k_fine: list[float], k_coarse: list[float]) -> EnsembleSummary:
     rows = tuple(RealizationCheck(f"r{i}", (), {"x": f}, {"x": c}, {"x": (c - f) / f})
                  for i, (f, c) in enumerate(zip(k_fine, k_coarse)))  # fmt: skip
     statistics = {q: {"x": spread([getattr(r, q)["x"] for r in rows])} for q in QUANTITIES}
-    return EnsembleSummary(rows, statistics, PERCENTILE_NOTE, MethodUsed("flow", {"bc": "sealed"}),
+    return EnsembleSummary(rows, statistics, "nonexceedance", MethodUsed("flow", {"bc": "sealed"}),
                            {"x": 4, "y": 4, "z": 1}, [], None)  # fmt: skip
 
 
