@@ -67,7 +67,7 @@ def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
     assert code == 0, stderr
     assert "ensemble of 5 realizations" in stdout and "10th-pct" in stdout
     assert sorted(p.name for p in out.iterdir()) == [
-        "ensemble.csv", "ensemble.json", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
+        "ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
     # progress: every step of every realization, after its name, and each realization done
     assert stderr.count("realizations done") == 5
     for name in ("r0", "r1", "r2", "r3", "r4"):
@@ -238,7 +238,7 @@ def test_overwrite_with_fewer_realizations_removes_the_old_ones(realizations, tm
     assert main([*args[:2], str(realizations / "r*.tif"), *args[2:]]) == 0
     fewer = [str(realizations / f"r{r}.tif") for r in range(3)]
     assert main([*args[:2], *fewer, *args[2:], "--overwrite"]) == 0
-    assert sorted(p.name for p in out.iterdir()) == ["ensemble.csv", "ensemble.json", "r0", "r1", "r2"]
+    assert sorted(p.name for p in out.iterdir()) == ["ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2"]
     assert [r["name"] for r in json.loads((out / "ensemble.json").read_text())["realizations"]] == [
         "r0", "r1", "r2"]  # fmt: skip
 

@@ -384,11 +384,15 @@ def test_compare_page_shows_the_ranking(compared):
 @pytest.mark.slow
 def test_run_ensemble_plot_and_report(ran):
     out, ensemble = ran["out"], ran["ensemble"]
-    assert ensemble["files"] == [*NAMES, "ensemble.csv", "figures/ensemble.png", "figures/ensemble.svg",
+    maps = [f"maps/{k}_{s}.tif" for k in ("kx", "ky") for s in (*(key(q, READING) for q in PERCENTILES),
+                                                                 "std_ln")]  # fmt: skip
+    # geometric: ky is kx in every block, so one figure of maps (kx) and the GeoTIFFs of both
+    figures = ["ensemble.png", "ensemble.svg", "spread_maps_kx.png", "spread_maps_kx.svg"]
+    assert ensemble["files"] == [*NAMES, "ensemble.csv", *maps, *(f"figures/{f}" for f in figures),
                                  "report.html"]  # fmt: skip
     assert sorted(p.name for p in out.iterdir()) == sorted(
-        [*NAMES, "ensemble.csv", "ensemble.json", "figures", "report.html"])  # fmt: skip
-    assert sorted(p.name for p in (out / "figures").iterdir()) == ["ensemble.png", "ensemble.svg"]
+        [*NAMES, "ensemble.csv", "ensemble.json", "figures", "maps", "report.html"])  # fmt: skip
+    assert sorted(p.name for p in (out / "figures").iterdir()) == figures
     png = (out / "figures" / "ensemble.png").read_bytes()
     width, height = _png_size(png)
     assert width > 0 and height > 0
@@ -485,14 +489,15 @@ PROBE_VERDICT = """  function texts(nodes) {
 
 @pytest.fixture(scope="module", params=["compare", "run"])
 def page(request):
-    """The ensemble page of `compare` or `run`, what its table must hold and its one figure."""
+    """The ensemble page of `compare` or `run`, what its table must hold and its figures."""
     if request.param == "compare":
         done = request.getfixturevalue("compared")
         rows, figure = _compare_rows(done["ensemble"]), "spread"
     else:
         done = request.getfixturevalue("ran")
-        rows, figure = _run_rows(done["ensemble"]), "ensemble"
-    return dict(done, kind=request.param, path=done["out"] / "report.html", rows=rows, figure=figure)
+        rows, figure = _run_rows(done["ensemble"]), ["ensemble", "spread_maps_kx"]
+    figures = [figure] if isinstance(figure, str) else figure
+    return dict(done, kind=request.param, path=done["out"] / "report.html", rows=rows, figures=figures)
 
 
 @pytest.fixture(scope="module")
@@ -503,7 +508,7 @@ def verdict(page, chromium, tmp_path_factory):
 
 def test_page_loads_without_errors_and_its_figure_decodes(verdict, page):
     assert verdict["errors"] == []
-    assert [image["figure"] for image in verdict["images"]] == [page["figure"]]
+    assert [image["figure"] for image in verdict["images"]] == page["figures"]
     for image in verdict["images"]:
         assert image["complete"] and image["width"] > 0 and image["height"] > 0, image
 
@@ -534,13 +539,13 @@ def test_page_has_the_caution_and_the_command_line(verdict, page):
     assert f"<pre><code>{html.escape(reproduce)}</code></pre>" in text
 
 
-def test_page_is_self_contained_and_embeds_the_figure_file(page):
+def test_page_is_self_contained_and_embeds_the_figure_files(page):
     text = page["path"].read_text(encoding="utf-8")
     assert_self_contained(text)
-    embedded = text.split('src="data:image/png;base64,')
-    assert len(embedded) == 2
-    data = base64.b64decode(embedded[1].split('"', 1)[0])
-    assert data == (page["out"] / "figures" / f"{page['figure']}.png").read_bytes()
+    embedded = text.split('src="data:image/png;base64,')[1:]
+    assert len(embedded) == len(page["figures"])
+    for data, figure in zip(embedded, page["figures"]):
+        assert base64.b64decode(data.split('"', 1)[0]) == (page["out"] / "figures" / f"{figure}.png").read_bytes()
 
 
 def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on_all():
