@@ -238,7 +238,8 @@ def test_overwrite_with_fewer_realizations_removes_the_old_ones(realizations, tm
     assert main([*args[:2], str(realizations / "r*.tif"), *args[2:]]) == 0
     fewer = [str(realizations / f"r{r}.tif") for r in range(3)]
     assert main([*args[:2], *fewer, *args[2:], "--overwrite"]) == 0
-    assert sorted(p.name for p in out.iterdir()) == ["ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2"]
+    assert sorted(p.name for p in out.iterdir()) == [
+        "ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2"]  # fmt: skip
     assert [r["name"] for r in json.loads((out / "ensemble.json").read_text())["realizations"]] == [
         "r0", "r1", "r2"]  # fmt: skip
 
@@ -261,7 +262,8 @@ def test_run_percentiles_in_either_reading_are_numpy_s(run_cli, realizations, tm
     assert code == 0, stderr
     ensemble = json.loads((out / "ensemble.json").read_text())
     assert ensemble["percentile_convention"] == reading
-    assert ensemble["percentiles"].startswith("non-exceedance: " if reading == "nonexceedance" else "exceedance: ")
+    said = "non-exceedance: " if reading == "nonexceedance" else "exceedance: "
+    assert ensemble["percentiles"].startswith(said)
     with open(out / "ensemble.csv", newline="") as f:
         rows = list(csv.DictReader(f))
     for quantity in QUANTITIES:
@@ -286,8 +288,9 @@ def test_run_percentiles_in_either_reading_are_numpy_s(run_cli, realizations, tm
 
 def test_compare_percentiles_in_the_exceedance_reading(run_cli, realizations, tmp_path):
     out = tmp_path / "cmp"
-    code, stdout, stderr = run_cli("compare", realizations / "r*.tif", "--block", "8x8", "--methods",
-                                   "geometric,harmonic", "--percentiles", "exceedance", "--out", out)  # fmt: skip
+    code, stdout, stderr = run_cli("compare", realizations / "r*.tif", "--block", "8x8",
+                                   "--methods", "geometric,harmonic", "--percentiles", "exceedance",
+                                   "--out", out)  # fmt: skip
     assert code == 0, stderr
     ensemble = json.loads((out / "ensemble.json").read_text())
     assert ensemble["percentile_convention"] == "exceedance"

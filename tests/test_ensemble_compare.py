@@ -545,7 +545,8 @@ def test_page_is_self_contained_and_embeds_the_figure_files(page):
     embedded = text.split('src="data:image/png;base64,')[1:]
     assert len(embedded) == len(page["figures"])
     for data, figure in zip(embedded, page["figures"]):
-        assert base64.b64decode(data.split('"', 1)[0]) == (page["out"] / "figures" / f"{figure}.png").read_bytes()
+        png = page["out"] / "figures" / f"{figure}.png"
+        assert base64.b64decode(data.split('"', 1)[0]) == png.read_bytes()
 
 
 def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on_all():

@@ -175,8 +175,9 @@ def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: 
     statistics = {quantity: {axis: spread([getattr(r, quantity).get(axis) for r in rows]) for axis in axes}
                   for quantity in QUANTITIES}  # fmt: skip
     first = summaries[0]
+    chosen = representative({r.name: r.k_fine for r in rows})
     return EnsembleSummary(tuple(rows), statistics, convention, first.method, first.block, command,
-                           working_folder(command), representative({r.name: r.k_fine for r in rows}))  # fmt: skip
+                           working_folder(command), chosen)  # fmt: skip
 
 
 def spread(values: list[float | None]) -> Spread | None:
@@ -391,7 +392,8 @@ class EnsembleRanking:
                 "block": self.block, "command": self.command, "working_folder": self.working_folder,
                 "ranking": self.ranking, "percentile_convention": self.convention,
                 "percentiles": self.percentiles,
-                "methods": [m.to_dict(self.convention) for m in self.methods], "best": self.best, "files": list(self.files),
+                "methods": [m.to_dict(self.convention) for m in self.methods], "best": self.best,
+                "files": list(self.files),
                 "caution": self.caution}  # fmt: skip
 
     @classmethod

@@ -64,7 +64,8 @@ def block_spread(stack: np.ndarray) -> BlockSpread:
     Examples
     --------
     >>> found = block_spread(np.array([1.0, 10.0, 100.0, np.nan]).reshape(4, 1, 1, 1))
-    >>> float(found.percentiles[50][0, 0, 0]), round(float(found.std_ln[0, 0, 0]), 4), int(found.count[0, 0, 0])
+    >>> median, std, count = found.percentiles[50][0, 0, 0], found.std_ln[0, 0, 0], found.count[0, 0, 0]
+    >>> float(median), round(float(std), 4), int(count)
     (10.0, 2.3026, 3)
     """
     stack = np.asarray(stack, dtype=float)
@@ -84,9 +85,9 @@ def block_spread(stack: np.ndarray) -> BlockSpread:
 
 
 #: How the representative realization is chosen, recorded beside its name.
-REPRESENTATIVE_RULE = ("the realization whose fine k_eff is nearest the median over the realizations on every "
-                       "axis checked together: the smallest sum over the axes of (ln k_fine - ln median)²; "
-                       "the first in order on a tie")  # fmt: skip
+REPRESENTATIVE_RULE = ("the realization whose fine k_eff is nearest the median over the realizations on "
+                       "every axis checked together: the smallest sum over the axes of "
+                       "(ln k_fine - ln median)²; the first in order on a tie")  # fmt: skip
 
 
 def representative(k_fine: dict[str, dict[str, float | None]]) -> str | None:

@@ -333,7 +333,7 @@ class Spread:
         return {10: self.q10, 50: self.q50, 90: self.q90}[q]
 
     def to_dict(self, convention: str = "nonexceedance") -> dict[str, Any]:
-        """The JSON object: the percentiles under the keys of `convention` (``p10_nonexceed`` ...), then the range.
+        """The JSON object: the percentiles under the keys of `convention` (``p10_nonexceed`` ...), the range.
 
         Examples
         --------

@@ -55,7 +55,8 @@ from .settings import global_options
 def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
             bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
             tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
-            well_connection: str, percentiles: str, out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+            well_connection: str, percentiles: str, out: str, overwrite: bool,
+            **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
     Several FIELDs or a glob (an ensemble of realizations on one grid): the

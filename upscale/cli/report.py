@@ -184,7 +184,7 @@ def _print_windows(check: FlowCheck) -> None:
 
 
 def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
-    """Print the spread of an ensemble's check: three percentiles per quantity and axis, their reading above."""
+    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above."""
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
         for axis, s in ensemble.statistics[quantity].items():
@@ -196,7 +196,8 @@ def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
     click.echo(f"ensemble of {len(ensemble.realizations)} realizations")
     if rows:
         click.echo(f"percentiles: {ensemble.percentiles}")
-        click.echo(table(["quantity", *(short_label(q, ensemble.convention) for q in PERCENTILES), "n"], rows))
+        columns = [short_label(q, ensemble.convention) for q in PERCENTILES]
+        click.echo(table(["quantity", *columns, "n"], rows))
         click.echo("(k in the input's unit, errors in %)")
     if ensemble.representative is not None:
         click.echo(f"representative realization: {ensemble.representative} (its fine k_eff is nearest the "

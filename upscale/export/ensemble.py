@@ -113,7 +113,8 @@ def ranking_rows(methods: tuple[MethodSpread, ...], axes: str,
     spreads = [("largest_error", lambda m: m.worst_error)]
     spreads += [(f"rel_error_{a}", lambda m, a=a: m.rel_error[a]) for a in axes]
     header = ["rank", "method", "ran", "failed",
-              *(f"{name}_{key(q, convention)}" for name, _ in spreads for q in PERCENTILES), "mean_rank", "times_first"]
+              *(f"{name}_{key(q, convention)}" for name, _ in spreads for q in PERCENTILES),
+              "mean_rank", "times_first"]
     rows = []
     for m in methods:
         values = [None if get(m) is None else get(m).percentile(q)

@@ -19,11 +19,11 @@ from ..field import Grid
 from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
-from .maps import block_spread_maps
 from .html import report_page
+from .maps import block_spread_maps
 from .plan_page import plan_page
-from .style import MISSING_LABEL
 from .spread import ensemble_chart, method_spread_chart
+from .style import MISSING_LABEL
 from .verdict import bound_mark, bound_note, outside_band
 
 
@@ -206,7 +206,8 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     if best:
         w = best.worst_error
         verdict = (f"{'Best over' if several else 'Over'} {n} realizations: {best.name}, median largest "
-                   f"check error {100 * w.q50:.2f} %; {label(90, convention)}: {100 * w.q90:.2f} %.")  # fmt: skip
+                   f"check error {100 * w.q50:.2f} %; {label(90, convention)}: "
+                   f"{100 * w.q90:.2f} %.")  # fmt: skip
         warning = outside_band(best.name, w.q50, several=several, measure="median largest check error",
                                where="over these realizations")  # fmt: skip
         note = bound_note(best.method, best.name) if several else None

@@ -46,8 +46,9 @@ def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
     )
     chosen = job.get("representative")
     representative = f'<p id="representative">{_e(chosen)}</p>\n' if chosen else ""
+    notices = notices_html(job["warning"], job["note"])
     return document(job["title"], f"""<p>{_e(job["verdict"])}</p>
-{representative}{notices_html(job["warning"], job["note"])}<h2>Spread over {len(job["realizations"])} realizations</h2>
+{representative}{notices}<h2>Spread over {len(job["realizations"])} realizations</h2>
 <p>{_e(job["what"])} Percentiles: {_e(job["percentiles"])}. Blocks: {_e(job["block"])}.</p>
 <table id="spread">
 <tr>{"".join(f"<th>{_e(h)}</th>" for h in head)}</tr>

@@ -18,7 +18,10 @@ from .verdict import outside_band
 
 def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str | None,
                   half: float = 0.2) -> None:  # fmt: skip
-    """One realization per dot (spread sideways), a bar from the 10th to the 90th percentile, a tick at the median."""
+    """One realization per dot (spread sideways), a bar from the 10th to the 90th percentile, a median tick.
+
+    The tick reaches `half` to either side.
+    """
     values = values[np.isfinite(values)]
     if values.size == 0:
         return
