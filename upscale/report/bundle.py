@@ -103,8 +103,8 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         The command line.
     maps : (dict of str to BlockSpread, Grid, str), optional
         The per-block spread of each coarse permeability, the coarse grid and
-        the unit: a figure of maps each (a permeability equal to kx in every
-        block of every realization is left out).
+        the unit: a figure of maps each (a permeability whose percentile maps
+        are kx's is left out).
     """
     convention = ensemble.convention
     plots = [Plot("ensemble", ensemble_chart(ensemble, unit),
@@ -150,7 +150,7 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
 
 def _spread_plots(maps: tuple[dict[str, BlockSpread], Grid, str], realizations: int,
                   convention: str) -> list[Plot]:  # fmt: skip
-    """A figure of per-block maps for each coarse permeability (one equal to kx everywhere left out)."""
+    """A figure of per-block maps for each coarse permeability (one with kx's percentile maps left out)."""
     spreads, grid, unit = maps
     kx = spreads["kx"]
     drawn = {name: s for name, s in spreads.items()
