@@ -30,7 +30,8 @@ import rasterio
 from conftest import write_raster
 
 import upscale.jobs.cluster
-from upscale.analysis.ensemble import PERCENTILES, QUANTITIES
+from upscale.analysis.ensemble import QUANTITIES
+from upscale.analysis.percentiles import PERCENTILES, key
 from upscale.gallery.problems import uncorrelated_lognormal
 
 SIZE = (48, 40)
@@ -64,9 +65,9 @@ def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
     code, stdout, stderr = run_cli("-v", "run", str(realizations / "r*.tif"), "--block", "8x8",
                                    "--method", "geometric", "--solver", "direct", "--out", out)  # fmt: skip
     assert code == 0, stderr
-    assert "ensemble of 5 realizations" in stdout and "P10" in stdout
+    assert "ensemble of 5 realizations" in stdout and "10th-pct" in stdout
     assert sorted(p.name for p in out.iterdir()) == [
-        "ensemble.csv", "ensemble.json", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
+        "ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2", "r3", "r4"]  # fmt: skip
     # progress: every step of every realization, after its name, and each realization done
     assert stderr.count("realizations done") == 5
     for name in ("r0", "r1", "r2", "r3", "r4"):
@@ -85,7 +86,7 @@ def test_ensemble_folders_csv_and_percentiles(run_cli, realizations, tmp_path):
         for axis in ("x", "y"):
             values = [float(r[f"{quantity}_{axis}"]) for r in rows]
             want = np.percentile(values, PERCENTILES)
-            got = [ensemble["statistics"][quantity][axis][f"p{p}"] for p in PERCENTILES]
+            got = [ensemble["statistics"][quantity][axis][key(p, "nonexceedance")] for p in PERCENTILES]
             np.testing.assert_allclose(got, want, rtol=1e-15)
             assert ensemble["statistics"][quantity][axis]["count"] == 5
 
@@ -237,6 +238,74 @@ def test_overwrite_with_fewer_realizations_removes_the_old_ones(realizations, tm
     assert main([*args[:2], str(realizations / "r*.tif"), *args[2:]]) == 0
     fewer = [str(realizations / f"r{r}.tif") for r in range(3)]
     assert main([*args[:2], *fewer, *args[2:], "--overwrite"]) == 0
-    assert sorted(p.name for p in out.iterdir()) == ["ensemble.csv", "ensemble.json", "r0", "r1", "r2"]
+    assert sorted(p.name for p in out.iterdir()) == [
+        "ensemble.csv", "ensemble.json", "maps", "r0", "r1", "r2"]  # fmt: skip
     assert [r["name"] for r in json.loads((out / "ensemble.json").read_text())["realizations"]] == [
         "r0", "r1", "r2"]  # fmt: skip
+
+
+# --- the two readings of the percentiles ------------------------------------------------------------
+
+#: numpy's q-th percentile under each reading's name: non-exceedance names the q-th percentile Pq; the
+#: exceedance reading (common practice among reservoir engineers) names Pn the value exceeded by n %
+#: of the realizations, which is numpy's (100 - n)-th percentile (numpy.percentile documentation:
+#: "the q-th percentile ... the value below which q percent of the observations fall").
+READINGS = {"nonexceedance": {"p10_nonexceed": 10, "p50_nonexceed": 50, "p90_nonexceed": 90},
+            "exceedance": {"p10_exceed": 90, "p50_exceed": 50, "p90_exceed": 10}}
+
+
+@pytest.mark.parametrize("reading", list(READINGS))
+def test_run_percentiles_in_either_reading_are_numpy_s(run_cli, realizations, tmp_path, reading):
+    out = tmp_path / "ens"
+    code, stdout, stderr = run_cli("run", realizations / "r*.tif", "--block", "8x8", "--method", "geometric",
+                                   "--solver", "direct", "--percentiles", reading, "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    ensemble = json.loads((out / "ensemble.json").read_text())
+    assert ensemble["percentile_convention"] == reading
+    said = "non-exceedance: " if reading == "nonexceedance" else "exceedance: "
+    assert ensemble["percentiles"].startswith(said)
+    with open(out / "ensemble.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    for quantity in QUANTITIES:
+        for axis in ("x", "y"):
+            values = [float(r[f"{quantity}_{axis}"]) for r in rows]
+            found = ensemble["statistics"][quantity][axis]
+            assert set(found) == {*READINGS[reading], "mean", "min", "max", "count"}
+            for name, q in READINGS[reading].items():
+                assert found[name] == np.percentile(values, q), (quantity, axis, name)
+    # the table says which reading it uses, on the line above it, and names its columns by it
+    lines = stdout.splitlines()
+    head = lines.index(next(line for line in lines if line.startswith("quantity")))
+    assert lines[head - 1] == f"percentiles: {ensemble['percentiles']}"
+    columns = ["10th-pct", "50th-pct", "90th-pct"] if reading == "nonexceedance" else ["P90-exc", "P50-exc",
+                                                                                       "P10-exc"]  # fmt: skip
+    assert lines[head].split() == ["quantity", *columns, "n"]
+    first = lines[head + 1].split()  # k_fine x
+    s = ensemble["statistics"]["k_fine"]["x"]
+    shown = [s[name] for name in sorted(READINGS[reading], key=READINGS[reading].get)]  # low to high
+    assert first == ["k_fine", "x", *(f"{v:.4g}" for v in shown), "5"]
+
+
+def test_compare_percentiles_in_the_exceedance_reading(run_cli, realizations, tmp_path):
+    out = tmp_path / "cmp"
+    code, stdout, stderr = run_cli("compare", realizations / "r*.tif", "--block", "8x8",
+                                   "--methods", "geometric,harmonic", "--percentiles", "exceedance",
+                                   "--out", out)  # fmt: skip
+    assert code == 0, stderr
+    ensemble = json.loads((out / "ensemble.json").read_text())
+    assert ensemble["percentile_convention"] == "exceedance"
+    names = [r["name"] for r in ensemble["realizations"]]
+    with open(out / "ranking.csv", newline="") as f:
+        rows = {r["method"]: r for r in csv.DictReader(f)}
+    for m in ensemble["methods"]:
+        worst = [m["by_realization"][n]["worst"] for n in names]
+        for name, q in READINGS["exceedance"].items():
+            assert m["worst_error"][name] == np.percentile(worst, q), (m["name"], name)
+            assert float(rows[m["name"]][f"largest_error_{name}"]) == m["worst_error"][name]
+        assert m["worst_error"]["p10_exceed"] >= m["worst_error"]["p90_exceed"]
+    lines = stdout.splitlines()
+    assert lines[1] == f"percentiles: {ensemble['percentiles']}"
+    assert lines[2].split() == ["rank", "method", "P90-exc", "P50-exc", "P10-exc", "ran", "first"]
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert "<th>largest error, P10 (exceeded by 10 %)</th>" in page
+    assert f"Percentiles: {ensemble['percentiles']}." in page

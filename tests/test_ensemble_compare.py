@@ -11,13 +11,14 @@ What is tested
   ``upscale compare`` of that one field writes: the same ``compare.json``
   (``rel_error`` per method and axis, and everything else but the command
   line and the timings) and the same figures, byte for byte.
-* ``ensemble.json``, per method: P10, P50, P90 (and mean, min, max, count)
+* ``ensemble.json``, per method: the 10th, 50th and 90th percentiles, keys
+  ``p10_nonexceed`` ... (and mean, min, max, count)
   of the largest ``|rel_error|`` over the axes and of ``rel_error`` along
   each axis equal ``numpy.percentile`` over the realizations'
   ``compare.json`` — linear interpolation between order statistics (Hyndman
   & Fan 1996, "Sample quantiles in statistical packages", definition 7),
   also checked against that formula written out. The methods are ranked by
-  the P50 of their largest error; the realizations are chosen so that each
+  the median of their largest error; the realizations are chosen so that each
   method ranks first on at least one of them and the order of the means
   differs from that of the medians, so the ranking, ``best`` and
   ``rank_in_realizations`` (how often first, mean rank: counted from the
@@ -26,7 +27,7 @@ What is tested
   and "best over the ensemble", and stderr stays empty.
 * ``upscale run`` on the same ensemble with ``--plot --report``:
   ``figures/ensemble.png`` (a PNG that decodes, of non-zero size) and
-  ``.svg``, and ``report.html`` whose table holds the P10, P50, P90, mean,
+  ``.svg``, and ``report.html`` whose table holds the three percentiles, mean,
   min and max of ``ensemble.json`` formatted as the page formats them, all
   listed in ``ensemble.json``.
 * Bad input to ``compare`` on an ensemble: a glob that matches nothing,
@@ -72,7 +73,8 @@ from conftest import partial_leftovers, snapshot, write_raster
 from PIL import Image
 
 from upscale.analysis.comparison_record import ComparisonRecord
-from upscale.analysis.ensemble import PERCENTILE_NOTE, PERCENTILES, method_spread
+from upscale.analysis.ensemble import method_spread
+from upscale.analysis.percentiles import PERCENTILES, key, note
 from upscale.caution import CAUTION
 from upscale.check.axis import flow_label
 from upscale.cli.main import main
@@ -88,6 +90,9 @@ METHODS = "arithmetic,harmonic,geometric"
 #: The figures of a 2D comparison.
 FIGURES = ["maps", "errors", "bounds", "histograms", "mismatch_x", "mismatch_y", "pressure"]
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+#: The default reading of the percentiles, and the key of the median in it.
+READING = "nonexceedance"
+MEDIAN = key(50, READING)
 
 
 def _run(*args) -> tuple[int, str, str]:
@@ -186,8 +191,8 @@ def _compare_rows(ensemble: dict) -> list[list[str]]:
         mark = REGISTRY[m["method"]].bound  # the means are the Wiener bounds (Wiener 1912)
         rows.append([str(m["rank"]), m["name"] + (f" ({mark} bound)" if mark else ""),
                      f"{m['ran']} / {m['ran'] + m['failed']}",
-                     *(f"{100 * w[f'p{q}']:.2f} %" for q in PERCENTILES),
-                     *(f"{100 * m['rel_error'][a]['p50']:+.2f} %" for a in FLOWS),
+                     *(f"{100 * w[key(q, READING)]:.2f} %" for q in PERCENTILES),
+                     *(f"{100 * m['rel_error'][a][MEDIAN]:+.2f} %" for a in FLOWS),
                      f"{mean_rank:.1f}", str(m["rank_in_realizations"]["first"])])  # fmt: skip
     return rows
 
@@ -198,7 +203,7 @@ def _run_rows(ensemble: dict) -> list[list[str]]:
     for quantity, label in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
         for axis in FLOWS:
             s = ensemble["statistics"][quantity][axis]
-            values = [s[k] for k in ("p10", "p50", "p90", "mean", "min", "max")]
+            values = [s[k] for k in (*(key(q, READING) for q in PERCENTILES), "mean", "min", "max")]
             cells = [f"{100 * v:+.2f} %" if quantity == "rel_error" else f"{v:.4g}" for v in values]
             rows.append([f"{label} {flow_label(axis)}", *cells, str(s["count"])])
     return rows
@@ -238,7 +243,8 @@ def test_compare_ensemble_writes_one_folder_per_realization_and_the_ranking(comp
         assert comparison["inputs"][0]["path"] == str(realizations / f"{name}.tif")
 
     assert ensemble["command"] == compared["command"]
-    assert ensemble["caution"] == CAUTION and ensemble["percentiles"] == PERCENTILE_NOTE
+    assert ensemble["caution"] == CAUTION and ensemble["percentiles"] == note(READING)
+    assert ensemble["percentile_convention"] == READING
     assert ensemble["axes"] == AXES
     assert ensemble["block"] == {"x": 8, "y": 8, "z": 1, "remainder": "stop", "min_active": 0.0,
                                  "zero_k": "auto"}
@@ -278,7 +284,7 @@ def _assert_spread(found: dict, values: list[float]) -> None:
     # numpy.percentile's default, linear: Hyndman & Fan 1996, "Sample quantiles in statistical
     # packages", definition 7
     want = np.percentile(values, PERCENTILES)
-    assert [found[f"p{q}"] for q in PERCENTILES] == want.tolist()
+    assert [found[key(q, READING)] for q in PERCENTILES] == want.tolist()
     assert (found["mean"], found["min"], found["max"], found["count"]) == (
         np.mean(values), min(values), max(values), len(values))  # fmt: skip
     # definition 7 written out: the order statistic at h = (n - 1) p, interpolated linearly
@@ -287,7 +293,7 @@ def _assert_spread(found: dict, values: list[float]) -> None:
         h = (len(x) - 1) * q / 100
         lo = int(np.floor(h))
         expected = x[lo] + (h - lo) * (x[min(lo + 1, len(x) - 1)] - x[lo])
-        np.testing.assert_allclose(found[f"p{q}"], expected, rtol=1e-12, atol=1e-15)
+        np.testing.assert_allclose(found[key(q, READING)], expected, rtol=1e-12, atol=1e-15)
 
 
 def test_spreads_are_the_percentiles_of_the_realizations(compared):
@@ -308,12 +314,12 @@ def test_spreads_are_the_percentiles_of_the_realizations(compared):
         assert m["rank_in_realizations"] == {"mean": np.mean(ranks), "first": ranks.count(1)}, label
 
 
-def test_methods_are_ranked_by_the_p50_of_their_largest_error(compared):
+def test_methods_are_ranked_by_the_median_of_their_largest_error(compared):
     ensemble = compared["ensemble"]
     methods = ensemble["methods"]
     assert [m["rank"] for m in methods] == [1, 2, 3]
-    p50 = [m["worst_error"]["p50"] for m in methods]
-    assert p50 == sorted(p50) and len(set(p50)) == len(p50)
+    medians = [m["worst_error"][MEDIAN] for m in methods]
+    assert medians == sorted(medians) and len(set(medians)) == len(medians)
     assert [m["name"] for m in methods] == ["geometric", "harmonic", "arithmetic"]
     assert ensemble["best"] == methods[0]["name"]
     # what makes these realizations a test of the ranking: each method is first somewhere,
@@ -329,16 +335,16 @@ def test_ranking_csv_holds_the_values_of_ensemble_json(compared):
         rows = list(reader)
     spreads = ["largest_error", *(f"rel_error_{a}" for a in AXES)]
     assert reader.fieldnames == ["rank", "method", "ran", "failed",
-                                 *(f"{s}_p{q}" for s in spreads for q in PERCENTILES),
+                                 *(f"{s}_{key(q, READING)}" for s in spreads for q in PERCENTILES),
                                  "mean_rank", "times_first"]  # fmt: skip
     assert len(rows) == len(methods)
     for row, m in zip(rows, methods):
         assert (int(row["rank"]), row["method"], int(row["ran"]), int(row["failed"])) == (
             m["rank"], m["name"], m["ran"], m["failed"])  # fmt: skip
         for q in PERCENTILES:
-            assert float(row[f"largest_error_p{q}"]) == m["worst_error"][f"p{q}"]
+            assert float(row[f"largest_error_{key(q, READING)}"]) == m["worst_error"][key(q, READING)]
             for a in AXES:
-                assert float(row[f"rel_error_{a}_p{q}"]) == m["rel_error"][a][f"p{q}"]
+                assert float(row[f"rel_error_{a}_{key(q, READING)}"]) == m["rel_error"][a][key(q, READING)]
         assert float(row["mean_rank"]) == m["rank_in_realizations"]["mean"]
         assert int(row["times_first"]) == m["rank_in_realizations"]["first"]
 
@@ -347,12 +353,13 @@ def test_stdout_shows_the_ranking_and_the_best_method(compared):
     ensemble = compared["ensemble"]
     assert compared["stderr"] == ""  # no progress lines: stderr is no terminal, and no -v
     lines = compared["stdout"].splitlines()
-    assert lines[0] == (f"methods compared on {len(NAMES)} realizations, ranked by the P50 of their "
+    assert lines[0] == (f"methods compared on {len(NAMES)} realizations, ranked by the median of their "
                         "largest check error over the axes")  # fmt: skip
-    assert lines[1].split() == ["rank", "method", "P10", "%", "P50", "%", "P90", "%", "ran", "first"]
-    for line, m in zip(lines[2:], ensemble["methods"]):
+    assert lines[1] == f"percentiles: {note(READING)}"  # the table's reading, stated above it
+    assert lines[2].split() == ["rank", "method", "10th-pct", "50th-pct", "90th-pct", "ran", "first"]
+    for line, m in zip(lines[3:], ensemble["methods"]):
         w = m["worst_error"]
-        spread = [f"{100 * w[f'p{q}']:.2f}" for q in PERCENTILES]
+        spread = [f"{100 * w[key(q, READING)]:.2f}" for q in PERCENTILES]
         assert line.split() == [str(m["rank"]), m["name"], *spread, f"{len(NAMES)}/{len(NAMES)}",
                                 str(m["rank_in_realizations"]["first"])]  # fmt: skip
     assert f"best over the ensemble: {ensemble['best']}" in lines
@@ -366,7 +373,7 @@ def test_compare_page_shows_the_ranking(compared):
         assert _html_row(row) in page, row
     best = ensemble["methods"][0]["worst_error"]
     assert (f"Best over {len(NAMES)} realizations: {ensemble['best']}, median largest check error "
-            f"{100 * best['p50']:.2f} % (P90 {100 * best['p90']:.2f} %).") in page  # fmt: skip
+            f"{100 * best[MEDIAN]:.2f} %; 90th percentile: {100 * best[key(90, READING)]:.2f} %.") in page
     for r in ensemble["realizations"]:
         assert f"<code>{r['sha256']}</code>" in page
 
@@ -377,11 +384,15 @@ def test_compare_page_shows_the_ranking(compared):
 @pytest.mark.slow
 def test_run_ensemble_plot_and_report(ran):
     out, ensemble = ran["out"], ran["ensemble"]
-    assert ensemble["files"] == [*NAMES, "ensemble.csv", "figures/ensemble.png", "figures/ensemble.svg",
+    maps = [f"maps/{k}_{s}.tif" for k in ("kx", "ky") for s in (*(key(q, READING) for q in PERCENTILES),
+                                                                 "std_ln")]  # fmt: skip
+    # geometric: ky is kx in every block, so one figure of maps (kx) and the GeoTIFFs of both
+    figures = ["ensemble.png", "ensemble.svg", "spread_maps_kx.png", "spread_maps_kx.svg"]
+    assert ensemble["files"] == [*NAMES, "ensemble.csv", *maps, *(f"figures/{f}" for f in figures),
                                  "report.html"]  # fmt: skip
     assert sorted(p.name for p in out.iterdir()) == sorted(
-        [*NAMES, "ensemble.csv", "ensemble.json", "figures", "report.html"])  # fmt: skip
-    assert sorted(p.name for p in (out / "figures").iterdir()) == ["ensemble.png", "ensemble.svg"]
+        [*NAMES, "ensemble.csv", "ensemble.json", "figures", "maps", "report.html"])  # fmt: skip
+    assert sorted(p.name for p in (out / "figures").iterdir()) == figures
     png = (out / "figures" / "ensemble.png").read_bytes()
     width, height = _png_size(png)
     assert width > 0 and height > 0
@@ -392,13 +403,13 @@ def test_run_ensemble_plot_and_report(ran):
 
     page = (out / "report.html").read_text(encoding="utf-8")
     stats = ensemble["statistics"]
-    for row in _run_rows(ensemble):  # P10, P50, P90, mean, min, max as the page formats them
+    for row in _run_rows(ensemble):  # percentiles, mean, min, max as the page formats them
         assert _html_row(row) in page, row
-    for axis in AXES:  # the P50s, spelled out
-        assert f"<td>{stats['k_fine'][axis]['p50']:.4g}</td>" in page
-        assert f"<td>{stats['k_coarse'][axis]['p50']:.4g}</td>" in page
-        assert f"<td>{100 * stats['rel_error'][axis]['p50']:+.2f} %</td>" in page
-    largest = max(abs(stats["rel_error"][a]["p50"]) for a in FLOWS)
+    for axis in AXES:  # the medians, spelled out
+        assert f"<td>{stats['k_fine'][axis][MEDIAN]:.4g}</td>" in page
+        assert f"<td>{stats['k_coarse'][axis][MEDIAN]:.4g}</td>" in page
+        assert f"<td>{100 * stats['rel_error'][axis][MEDIAN]:+.2f} %</td>" in page
+    largest = max(abs(stats["rel_error"][a][MEDIAN]) for a in FLOWS)
     assert (f"geometric on {len(NAMES)} realizations: median check error within {100 * largest:.2f} % "
             "on every axis and corner to corner.") in page  # fmt: skip
     # --plot and --report also apply to each realization's own run
@@ -478,14 +489,15 @@ PROBE_VERDICT = """  function texts(nodes) {
 
 @pytest.fixture(scope="module", params=["compare", "run"])
 def page(request):
-    """The ensemble page of `compare` or `run`, what its table must hold and its one figure."""
+    """The ensemble page of `compare` or `run`, what its table must hold and its figures."""
     if request.param == "compare":
         done = request.getfixturevalue("compared")
         rows, figure = _compare_rows(done["ensemble"]), "spread"
     else:
         done = request.getfixturevalue("ran")
-        rows, figure = _run_rows(done["ensemble"]), "ensemble"
-    return dict(done, kind=request.param, path=done["out"] / "report.html", rows=rows, figure=figure)
+        rows, figure = _run_rows(done["ensemble"]), ["ensemble", "spread_maps_kx"]
+    figures = [figure] if isinstance(figure, str) else figure
+    return dict(done, kind=request.param, path=done["out"] / "report.html", rows=rows, figures=figures)
 
 
 @pytest.fixture(scope="module")
@@ -496,7 +508,7 @@ def verdict(page, chromium, tmp_path_factory):
 
 def test_page_loads_without_errors_and_its_figure_decodes(verdict, page):
     assert verdict["errors"] == []
-    assert [image["figure"] for image in verdict["images"]] == [page["figure"]]
+    assert [image["figure"] for image in verdict["images"]] == page["figures"]
     for image in verdict["images"]:
         assert image["complete"] and image["width"] > 0 and image["height"] > 0, image
 
@@ -510,7 +522,8 @@ def test_spread_table_has_a_row_per_method_or_quantity(verdict, page):
         quantities = ("fine k_eff", "coarse k_eff", "error")
         labels = [f"{q} {flow_label(a)}" for q in quantities for a in FLOWS]
         assert [row[0] for row in verdict["rows"]] == labels
-        assert verdict["head"] == ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
+        assert verdict["head"] == ["quantity", "10th percentile", "50th percentile", "90th percentile",
+                                   "mean", "min", "max", "realizations"]  # fmt: skip
     assert verdict["rows"] == page["rows"]
     assert all(len(row) == len(verdict["head"]) for row in verdict["rows"])
     assert verdict["wrapped"] == []  # at 1280 px no number breaks over two lines ("5 / 5")
@@ -526,17 +539,18 @@ def test_page_has_the_caution_and_the_command_line(verdict, page):
     assert f"<pre><code>{html.escape(reproduce)}</code></pre>" in text
 
 
-def test_page_is_self_contained_and_embeds_the_figure_file(page):
+def test_page_is_self_contained_and_embeds_the_figure_files(page):
     text = page["path"].read_text(encoding="utf-8")
     assert_self_contained(text)
-    embedded = text.split('src="data:image/png;base64,')
-    assert len(embedded) == 2
-    data = base64.b64decode(embedded[1].split('"', 1)[0])
-    assert data == (page["out"] / "figures" / f"{page['figure']}.png").read_bytes()
+    embedded = text.split('src="data:image/png;base64,')[1:]
+    assert len(embedded) == len(page["figures"])
+    for data, figure in zip(embedded, page["figures"]):
+        png = page["out"] / "figures" / f"{figure}.png"
+        assert base64.b64decode(data.split('"', 1)[0]) == png.read_bytes()
 
 
 def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on_all():
-    # built by hand: "flaky" has the smallest P50 but did not run on r2; "steady" ran everywhere
+    # built by hand: "flaky" has the smallest median but did not run on r2; "steady" ran everywhere
     def realization(flaky: float | None, steady: float) -> ComparisonRecord:
         def entry(name, error):
             errors = None if error is None else {"x": error, "y": 0.0}
@@ -546,5 +560,5 @@ def test_a_method_that_failed_on_some_realizations_ranks_after_those_that_ran_on
     methods = method_spread(["r1", "r2", "r3"], [realization(0.01, 0.05), realization(None, 0.04),
                                                   realization(0.02, 0.06)])  # fmt: skip
     assert [(m.name, m.rank, m.ran, m.failed) for m in methods] == [("steady", 1, 3, 0), ("flaky", 2, 2, 1)]
-    assert methods[1].worst_error.p50 == pytest.approx(0.015)  # over the two it ran on
+    assert methods[1].worst_error.q50 == pytest.approx(0.015)  # over the two it ran on
     assert methods[1].by_realization["r2"] is None

@@ -46,6 +46,7 @@ NOT_DOCUMENTED = {
     "upscale/grid/blocks.py: remainder must be one of": _CLICK_FIRST,
     "upscale/io/read.py: scale must be one of": _CLICK_FIRST,
     "upscale/units.py: unknown unit": _CLICK_FIRST,
+    "upscale/analysis/percentiles.py: --percentiles is nonexceedance or exceedance, got": _CLICK_FIRST,
     "upscale/methods/registry.py: unknown method": _CLICK_FIRST,
     "upscale/check/wells.py: the well connection is": _CLICK_FIRST,  # --well-connection
     "upscale/methods/flow_based.py: unknown boundary condition": _CLICK_FIRST,

@@ -10,6 +10,9 @@ What is tested
 * The effective permeabilities of an ensemble are read on labelled ticks
   whatever their range: at least three labelled ticks inside the axis over
   78–125 mD (less than a decade), and over 1–1000 mD.
+* Every ensemble figure says its reading of the percentiles: the titles of
+  the spread charts name the bar's ends, the panels of the per-block maps
+  their percentiles, in either reading (P10 exceeded = the 90th percentile).
 * Histograms as small multiples: one panel per method, each with the fine
   cells' histogram (grey) behind that method's coarse blocks, readable with
   twelve candidates.
@@ -29,8 +32,11 @@ charts, from hand-built records of ``ensemble.json``.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
+from affine import Affine
 from comparison_records import comparison, method
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 
@@ -38,16 +44,19 @@ from upscale import Field
 from upscale.analysis.compare import candidates, compare_methods
 from upscale.analysis.comparison_record import ComparisonRecord
 from upscale.analysis.ensemble import (
-    PERCENTILE_NOTE,
     QUANTITIES,
     EnsembleSummary,
     RealizationCheck,
     method_spread,
     spread,
 )
+from upscale.analysis.ensemble_maps import block_spread
+from upscale.analysis.percentiles import PERCENTILES, bar_text, label
 from upscale.analysis.summary import MethodUsed
+from upscale.field import Grid
 from upscale.gallery.problems import uncorrelated_lognormal
 from upscale.report.charts import bounds_chart, error_bars, histograms
+from upscale.report.maps import block_spread_maps
 from upscale.report.spread import ensemble_chart, method_spread_chart
 
 #: Rows of 1 and 1000 mD: the means miss badly across the layers (errors far beyond 50 %).
@@ -112,7 +121,7 @@ def _ensemble(k_fine: list[float], k_coarse: list[float]) -> EnsembleSummary:
     rows = tuple(RealizationCheck(f"r{i}", (), {"x": f}, {"x": c}, {"x": (c - f) / f})
                  for i, (f, c) in enumerate(zip(k_fine, k_coarse)))  # fmt: skip
     statistics = {q: {"x": spread([getattr(r, q)["x"] for r in rows])} for q in QUANTITIES}
-    return EnsembleSummary(rows, statistics, PERCENTILE_NOTE, MethodUsed("flow", {"bc": "sealed"}),
+    return EnsembleSummary(rows, statistics, "nonexceedance", MethodUsed("flow", {"bc": "sealed"}),
                            {"x": 4, "y": 4, "z": 1}, [], None)  # fmt: skip
 
 
@@ -246,3 +255,22 @@ def test_error_by_block_chart_warns_when_no_method_passes_at_any_block():
     assert "No method is within 5 % at any block listed" in ax.title.get_text()
     _, ax = _plan_chart(np.full((8, 8), 5.0), ["geometric"], ["2x2", "4x4"])
     assert ax.title.get_text() == ""
+
+
+@pytest.mark.parametrize("reading", ["nonexceedance", "exceedance"])
+def test_every_spread_figure_says_its_reading_of_the_percentiles(reading):
+    ensemble = replace(_ensemble([78.0, 96.0, 110.0, 125.0], [80.0, 95.0, 112.0, 121.0]),
+                       convention=reading)
+    assert bar_text(reading) in ensemble_chart(ensemble, "mD").get_suptitle()
+    realizations = [_comparison({"geometric": (-0.08 - 0.01 * i, 0.02)}) for i in range(4)]
+    methods = method_spread([f"r{i}" for i in range(4)], realizations)
+    assert bar_text(reading) in method_spread_chart(methods, "xy", 4, reading).get_suptitle()
+    stack = np.stack([uncorrelated_lognormal((3, 4), seed=9_500 + r)[None] for r in range(4)])
+    grid = Grid(dz=np.ones(1), dy=np.full(3, 10.0), dx=np.full(4, 10.0),
+                transform=Affine(10, 0, 0, 0, -10, 30))
+    figure = block_spread_maps(block_spread(stack), grid, "kx", "mD", convention=reading, realizations=4)
+    titles = [ax.get_title() for ax in figure.axes if ax.get_title()]
+    assert titles == [*(label(q, reading) for q in PERCENTILES), "std of ln kx"]
+    # the exceedance reading names the 90th percentile P10
+    named = "90th percentile" if reading == "nonexceedance" else "P10 (exceeded by 10 %)"
+    assert label(90, reading) == named

@@ -1,17 +1,17 @@
 """Ensembles of equiprobable realizations: the same job on each, and the spread of the results.
 
-P10, P50 and P90 here are the 10th, 50th and 90th percentiles of the values
-over the realizations (non-exceedance: 10 % of the realizations lie below
-P10), computed by `numpy.percentile` with linear interpolation between
-order statistics (Hyndman & Fan 1996, "Sample quantiles in statistical
-packages", definition 7). Note that some trades quote P10 as the value
-exceeded by 10 % of the cases, which is this P90.
+Each spread holds the 10th, 50th and 90th percentiles of the values over
+the realizations, computed by `numpy.percentile` with linear interpolation
+between order statistics (Hyndman & Fan 1996, "Sample quantiles in
+statistical packages", definition 7), and is written under the names of the
+reading asked for (`upscale.analysis.percentiles`: non-exceedance by
+default, or the exceedance reading in which P10 is the 90th percentile).
 """
 
 from __future__ import annotations
 
 import dataclasses
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -20,10 +20,11 @@ from ..caution import CAUTION
 from ..check.axis import HELD_OUT, flow_order
 from .compare import TIE
 from .comparison_record import ComparisonRecord
+from .ensemble_maps import REPRESENTATIVE_RULE, STD_LN_NOTE, representative
+from .percentiles import PERCENTILES, note, refuse_convention
 from .records import Leaf, Spread, check_flows, working_folder
 from .summary import MethodUsed, RunSummary
 
-PERCENTILES = (10, 50, 90)
 QUANTITIES = ("k_fine", "k_coarse", "rel_error")
 
 
@@ -76,13 +77,19 @@ class EnsembleSummary:
     realizations : tuple of RealizationCheck
     statistics : dict of str to dict of str to (Spread or None)
         Per quantity (`QUANTITIES`) and axis, the spread over the realizations.
-    percentiles : str
-        How the percentiles are defined (`PERCENTILE_NOTE`).
+    convention : {'nonexceedance', 'exceedance'}
+        How the percentiles are named (`upscale.analysis.percentiles`).
     method : MethodUsed
     block : dict
         The block partition (`upscale.BlockSpec.summary`).
     command : list of str
     working_folder : str or None
+    representative : str or None
+        The realization nearest the median (`upscale.analysis.ensemble_maps.representative`);
+        None without a check.
+    maps : dict of str to dict of str to str
+        Per permeability, the per-block maps written (statistic key -> file, e.g.
+        ``p10_nonexceed`` -> ``maps/kx_p10_nonexceed.tif``); empty until written.
     files : tuple of str
         Written beside ``ensemble.json`` (empty until written).
     caution : str
@@ -90,13 +97,20 @@ class EnsembleSummary:
 
     realizations: tuple[RealizationCheck, ...]
     statistics: dict[str, dict[str, Spread | None]]
-    percentiles: str
+    convention: str
     method: MethodUsed
     block: dict[str, Any]
     command: list[str]
     working_folder: str | None
+    representative: str | None = None
+    maps: dict[str, dict[str, str]] = field(default_factory=dict)
     files: tuple[str, ...] = ()
     caution: str = CAUTION
+
+    @property
+    def percentiles(self) -> str:
+        """How the percentiles are named and computed (`upscale.analysis.percentiles.note`)."""
+        return note(self.convention)
 
     @property
     def axes(self) -> str:
@@ -106,23 +120,32 @@ class EnsembleSummary:
     def to_dict(self) -> dict[str, Any]:
         """The content of ``ensemble.json``, key for key."""
         return {"realizations": [r.to_dict() for r in self.realizations],
-                "statistics": {q: {a: _plain(s) for a, s in by_axis.items()}
+                "statistics": {q: {a: _plain(s, self.convention) for a, s in by_axis.items()}
                                for q, by_axis in self.statistics.items()},
-                "percentiles": self.percentiles, "method": self.method.to_dict(), "block": self.block,
-                "command": self.command, "working_folder": self.working_folder, "files": list(self.files),
-                "caution": self.caution}  # fmt: skip
+                "percentile_convention": self.convention, "percentiles": self.percentiles,
+                "method": self.method.to_dict(), "block": self.block,
+                "command": self.command, "working_folder": self.working_folder,
+                "representative": None if self.representative is None else
+                {"name": self.representative, "by": "k_fine", "rule": REPRESENTATIVE_RULE},
+                "maps": {"files": self.maps, "std_ln": STD_LN_NOTE} if self.maps else None,
+                "files": list(self.files), "caution": self.caution}  # fmt: skip
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> EnsembleSummary:
         """The record of an ensemble run's ``ensemble.json``."""
-        statistics = {q: {a: None if s is None else Spread.from_dict(s) for a, s in by_axis.items()}
+        convention = data["percentile_convention"]
+        statistics = {q: {a: _spread_of(s, convention) for a, s in by_axis.items()}
                       for q, by_axis in data["statistics"].items()}  # fmt: skip
+        chosen, maps = data["representative"], data["maps"]
         return cls(tuple(RealizationCheck.from_dict(r) for r in data["realizations"]), statistics,
-                   data["percentiles"], MethodUsed.from_dict(data["method"]), data["block"], data["command"],
-                   data["working_folder"], tuple(data["files"]), data["caution"])  # fmt: skip
+                   convention, MethodUsed.from_dict(data["method"]), data["block"], data["command"],
+                   data["working_folder"], representative=chosen and chosen["name"],
+                   maps=maps["files"] if maps else {}, files=tuple(data["files"]),
+                   caution=data["caution"])  # fmt: skip
 
 
-def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: list[str]) -> EnsembleSummary:
+def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: list[str],
+                     convention: str = "nonexceedance") -> EnsembleSummary:  # fmt: skip
     """Per-realization check results and their percentiles over the ensemble.
 
     Parameters
@@ -133,12 +156,15 @@ def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: 
         Each realization's summary (one method and block for all).
     command : list of str
         The command line.
+    convention : {'nonexceedance', 'exceedance'}
+        How the percentiles are named (`upscale.analysis.percentiles`).
 
     Returns
     -------
     EnsembleSummary
         Per quantity and axis the spread is None when no realization has a value.
     """
+    refuse_convention(convention)
     rows = []
     for name, summary in zip(names, summaries):
         checks = summary.check.axes if summary.check is not None else {}
@@ -149,22 +175,18 @@ def ensemble_summary(names: list[str], summaries: list[RunSummary], *, command: 
     statistics = {quantity: {axis: spread([getattr(r, quantity).get(axis) for r in rows]) for axis in axes}
                   for quantity in QUANTITIES}  # fmt: skip
     first = summaries[0]
-    return EnsembleSummary(tuple(rows), statistics, PERCENTILE_NOTE, first.method, first.block, command,
-                           working_folder(command))  # fmt: skip
-
-
-#: How the percentiles are defined, recorded beside them.
-PERCENTILE_NOTE = ("10th, 50th and 90th percentiles over the realizations (numpy.percentile, linear); "
-                   "P10 is exceeded by 90 % of them")  # fmt: skip
+    chosen = representative({r.name: r.k_fine for r in rows})
+    return EnsembleSummary(tuple(rows), statistics, convention, first.method, first.block, command,
+                           working_folder(command), chosen)  # fmt: skip
 
 
 def spread(values: list[float | None]) -> Spread | None:
-    """P10, P50, P90, mean, min, max and count of the finite values (None if there are none).
+    """10th, 50th, 90th percentiles, mean, min, max and count of the finite values (None if there are none).
 
     Examples
     --------
     >>> found = spread([1.0, None, 3.0, float("nan")])
-    >>> found.p50, found.count
+    >>> found.q50, found.count
     (2.0, 2)
     >>> spread([None]) is None
     True
@@ -173,13 +195,17 @@ def spread(values: list[float | None]) -> Spread | None:
     finite = finite[np.isfinite(finite)]
     if finite.size == 0:
         return None
-    p10, p50, p90 = (float(v) for v in np.percentile(finite, PERCENTILES))
-    return Spread(p10, p50, p90, float(finite.mean()), float(finite.min()), float(finite.max()),
+    q10, q50, q90 = (float(v) for v in np.percentile(finite, PERCENTILES))
+    return Spread(q10, q50, q90, float(finite.mean()), float(finite.min()), float(finite.max()),
                   int(finite.size))  # fmt: skip
 
 
-def _plain(found: Spread | None) -> dict[str, float] | None:
-    return None if found is None else found.to_dict()
+def _plain(found: Spread | None, convention: str) -> dict[str, float] | None:
+    return None if found is None else found.to_dict(convention)
+
+
+def _spread_of(data: dict[str, Any] | None, convention: str) -> Spread | None:
+    return None if data is None else Spread.from_dict(data, convention)
 
 
 @dataclass(frozen=True)
@@ -240,24 +266,22 @@ class MethodSpread:
     by_realization: dict[str, RealizationError | None]
     rank: int | None = None
 
-    def to_dict(self) -> dict[str, Any]:
-        """The method's object in ``ensemble.json``."""
+    def to_dict(self, convention: str = "nonexceedance") -> dict[str, Any]:
+        """The method's object in ``ensemble.json``, its percentiles named in `convention`."""
         return {"name": self.name, "method": self.method, "ran": self.ran, "failed": self.failed,
-                "worst_error": _plain(self.worst_error),
-                "rel_error": {a: _plain(s) for a, s in self.rel_error.items()},
+                "worst_error": _plain(self.worst_error, convention),
+                "rel_error": {a: _plain(s, convention) for a, s in self.rel_error.items()},
                 "rank_in_realizations": self.rank_in_realizations.to_dict(),
                 "by_realization": {n: None if r is None else r.to_dict()
                                    for n, r in self.by_realization.items()},
                 "rank": self.rank}  # fmt: skip
 
     @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> MethodSpread:
-        """A method's object of ``ensemble.json``."""
-        def spread_of(found: dict[str, Any] | None) -> Spread | None:
-            return None if found is None else Spread.from_dict(found)
-
-        return cls(data["name"], data["method"], data["ran"], data["failed"], spread_of(data["worst_error"]),
-                   {a: spread_of(s) for a, s in data["rel_error"].items()},
+    def from_dict(cls, data: dict[str, Any], convention: str = "nonexceedance") -> MethodSpread:
+        """A method's object of ``ensemble.json``, its percentiles named in `convention`."""
+        return cls(data["name"], data["method"], data["ran"], data["failed"],
+                   _spread_of(data["worst_error"], convention),
+                   {a: _spread_of(s, convention) for a, s in data["rel_error"].items()},
                    RankCount.from_dict(data["rank_in_realizations"]),
                    {n: None if r is None else RealizationError.from_dict(r)
                     for n, r in data["by_realization"].items()}, data["rank"])  # fmt: skip
@@ -276,7 +300,7 @@ def method_spread(names: list[str], comparisons: list[ComparisonRecord]) -> list
     Returns
     -------
     list of MethodSpread
-        One per method, best first. Ranked by the P50 of ``worst_error``
+        One per method, best first. Ranked by the median of ``worst_error``
         (ties within 1e-9 keep the order of the comparison), the methods that
         ran on every realization first, then by how many realizations a
         method failed on; methods that ran nowhere come last, unranked.
@@ -302,7 +326,7 @@ def method_spread(names: list[str], comparisons: list[ComparisonRecord]) -> list
         ))  # fmt: skip
     # a method that failed on some realizations ranks after every one that ran on all
     ranked = sorted((m for m in methods if m.worst_error),
-                    key=lambda m: (m.failed, round(m.worst_error.p50 / TIE) * TIE))  # fmt: skip
+                    key=lambda m: (m.failed, round(m.worst_error.q50 / TIE) * TIE))  # fmt: skip
     return ([dataclasses.replace(m, rank=rank) for rank, m in enumerate(ranked, start=1)]
             + [m for m in methods if not m.worst_error])  # fmt: skip
 
@@ -331,8 +355,10 @@ class EnsembleRanking:
         The command line.
     working_folder : str or None
         The folder it ran in.
-    ranking, percentiles : str
-        How the methods are ranked and the percentiles defined.
+    ranking : str
+        How the methods are ranked.
+    convention : {'nonexceedance', 'exceedance'}
+        How the percentiles are named (`upscale.analysis.percentiles`).
     methods : tuple of MethodSpread
         Best first.
     best : str or None
@@ -349,36 +375,44 @@ class EnsembleRanking:
     command: list[str]
     working_folder: str | None
     ranking: str
-    percentiles: str
+    convention: str
     methods: tuple[MethodSpread, ...]
     best: str | None
     files: tuple[str, ...] = ()
     caution: str = CAUTION
 
+    @property
+    def percentiles(self) -> str:
+        """How the percentiles are named and computed (`upscale.analysis.percentiles.note`)."""
+        return note(self.convention)
+
     def to_dict(self) -> dict[str, Any]:
         """The content of ``ensemble.json``, key for key."""
         return {"realizations": [r.to_dict() for r in self.realizations], "axes": self.axes,
                 "block": self.block, "command": self.command, "working_folder": self.working_folder,
-                "ranking": self.ranking, "percentiles": self.percentiles,
-                "methods": [m.to_dict() for m in self.methods], "best": self.best, "files": list(self.files),
+                "ranking": self.ranking, "percentile_convention": self.convention,
+                "percentiles": self.percentiles,
+                "methods": [m.to_dict(self.convention) for m in self.methods], "best": self.best,
+                "files": list(self.files),
                 "caution": self.caution}  # fmt: skip
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> EnsembleRanking:
         """The record of an ensemble comparison's ``ensemble.json``."""
+        convention = data["percentile_convention"]
         return cls(tuple(RealizationRecord.from_dict(r) for r in data["realizations"]), data["axes"],
-                   data["block"], data["command"], data["working_folder"], data["ranking"],
-                   data["percentiles"], tuple(MethodSpread.from_dict(m) for m in data["methods"]),
+                   data["block"], data["command"], data["working_folder"], data["ranking"], convention,
+                   tuple(MethodSpread.from_dict(m, convention) for m in data["methods"]),
                    data["best"], tuple(data["files"]), data["caution"])  # fmt: skip
 
 
 #: How an ensemble ranks its methods, recorded beside the ranking.
-ENSEMBLE_RANKING = ("P50 over the realizations of the largest |rel_error| over the axes and the held-out "
+ENSEMBLE_RANKING = ("median over the realizations of the largest |rel_error| over the axes and the held-out "
                     "corner flow, smallest first")  # fmt: skip
 
 
-def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
-                     command: list[str]) -> EnsembleRanking:  # fmt: skip
+def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *, command: list[str],
+                     convention: str = "nonexceedance") -> EnsembleRanking:  # fmt: skip
     """The methods of every realization's comparison ranked over the ensemble (`method_spread`).
 
     Parameters
@@ -389,12 +423,15 @@ def ensemble_ranking(names: list[str], comparisons: list[ComparisonRecord], *,
         Each realization's comparison.
     command : list of str
         The command line.
+    convention : {'nonexceedance', 'exceedance'}
+        How the percentiles are named (`upscale.analysis.percentiles`).
     """
+    refuse_convention(convention)
     methods = method_spread(names, comparisons)
     realizations = tuple(RealizationRecord(name, c.provenance.inputs[0].path, c.provenance.inputs[0].sha256)
                          for name, c in zip(names, comparisons))  # fmt: skip
     return EnsembleRanking(realizations, comparisons[0].axes, comparisons[0].block, command,
-                           working_folder(command), ENSEMBLE_RANKING, PERCENTILE_NOTE, tuple(methods),
+                           working_folder(command), ENSEMBLE_RANKING, convention, tuple(methods),
                            methods[0].name if methods and methods[0].rank else None)  # fmt: skip
 
 

@@ -24,6 +24,7 @@ import numpy as np
 
 from ..check.axis import HELD_OUT, AxisCheck
 from ..field import Field, Grid
+from .percentiles import PERCENTILES, key
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
                  "pyarrow", "netCDF4", "pyproj", "pyevtk")
@@ -305,22 +306,45 @@ class ZeroKRecord(Leaf):
 
 
 @dataclass(frozen=True)
-class Spread(Leaf):
-    """Percentiles and range of a quantity over realizations (P10 is exceeded by 90 % of them).
+class Spread:
+    """Percentiles and range of a quantity over realizations.
 
     Attributes
     ----------
-    p10, p50, p90 : float
-        Percentiles (`numpy.percentile`, linear), in the quantity's unit.
+    q10, q50, q90 : float
+        The 10th, 50th and 90th percentiles (`numpy.percentile`, linear; non-exceedance:
+        10 % of the values lie below `q10`), in the quantity's unit. How they are named
+        depends on the reading (`upscale.analysis.percentiles`).
     mean, min, max : float
     count : int
         How many finite values.
     """
 
-    p10: float
-    p50: float
-    p90: float
+    q10: float
+    q50: float
+    q90: float
     mean: float
     min: float
     max: float
     count: int
+
+    def percentile(self, q: int) -> float:
+        """Numpy's `q`-th percentile, `q` in `upscale.analysis.percentiles.PERCENTILES`."""
+        return {10: self.q10, 50: self.q50, 90: self.q90}[q]
+
+    def to_dict(self, convention: str = "nonexceedance") -> dict[str, Any]:
+        """The JSON object: the percentiles under the keys of `convention` (``p10_nonexceed`` ...), the range.
+
+        Examples
+        --------
+        >>> list(Spread(1.0, 2.0, 3.0, 2.0, 0.5, 3.5, 4).to_dict("exceedance"))[:3]
+        ['p90_exceed', 'p50_exceed', 'p10_exceed']
+        """
+        named = {key(q, convention): self.percentile(q) for q in PERCENTILES}
+        return {**named, "mean": self.mean, "min": self.min, "max": self.max, "count": self.count}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any], convention: str = "nonexceedance") -> Spread:
+        """The spread of a JSON object written by `to_dict` in `convention`."""
+        return cls(*(data[key(q, convention)] for q in PERCENTILES), data["mean"], data["min"], data["max"],
+                   data["count"])  # fmt: skip

@@ -23,6 +23,7 @@ from .options import (
     method_options,
     parse_chunk,
     parse_methods,
+    percentile_option,
     read_options,
     recorded,
     well_options,
@@ -43,6 +44,7 @@ from .settings import global_options
               help="Memory per chunk: a size (64MB) or a number of coarse blocks (400blocks).")
 @check_options
 @well_options
+@percentile_option
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder for compare.json, figures/ and report.html. For several fields, "
               "one such folder per field plus ranking.csv, figures/spread.*, report.html and "
@@ -53,12 +55,14 @@ from .settings import global_options
 def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
             bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
             tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
-            well_connection: str, out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
+            well_connection: str, percentiles: str, out: str, overwrite: bool,
+            **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
     Several FIELDs or a glob (an ensemble of realizations on one grid): the
     comparison of each, and the methods ranked by the median over the
-    realizations of their largest check error, with P10 and P90.
+    realizations of their largest check error, with its 10th and 90th
+    percentiles (or P90 and P10 exceeded with --percentiles exceedance).
 
     The fine model is solved once per axis and shared by all methods; each
     method's coarse model is solved under the same pressure drops, and the
@@ -88,7 +92,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
             "say": say, "wells": wells, "outer_pressure": outer_pressure,
             "well_connection": well_connection}  # fmt: skip
     if len(paths) > 1:
-        content = compare_ensemble(paths, spec, chosen, out, **jobs)
+        content = compare_ensemble(paths, spec, chosen, out, percentiles=percentiles, **jobs)
         if not ctx.obj["quiet"]:
             print_spread(content, out)
         return

@@ -9,6 +9,7 @@ from typing import Any
 import click
 import dask.utils
 
+from ..analysis.percentiles import CONVENTIONS
 from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
@@ -211,6 +212,16 @@ def method_options(command: Callable[..., Any]) -> Callable[..., Any]:
 def parse_methods(text: str | None) -> list[str] | None:
     """``--methods``: ``"a,b"`` -> ``["a", "b"]``; None (every method) when not given."""
     return None if not text else [m.strip() for m in text.split(",") if m.strip()]
+
+
+def percentile_option(command: Callable[..., Any]) -> Callable[..., Any]:
+    """``--percentiles``: how the percentiles of an ensemble are named (`upscale.analysis.percentiles`)."""
+    return click.option(
+        "--percentiles", type=click.Choice(CONVENTIONS), default=CONVENTIONS[0], show_default=True,
+        help="How the percentiles over an ensemble (several FIELDs) are named: nonexceedance (the 10th "
+        "percentile, which 10 % of the realizations fall below) or exceedance (the reverse reading of "
+        "many reservoir engineers: P10 is exceeded by 10 % of the realizations, the 90th percentile).",
+    )(command)
 
 
 def check_options(command: Callable[..., Any]) -> Callable[..., Any]:

@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
+from ..analysis.percentiles import PERCENTILES, short_label
 from ..analysis.records import SolveRecord
 from ..analysis.summary import FlowCheck, RunSummary
 from ..export.package import PACKAGE_FILES, WELL_FILES
@@ -183,20 +184,25 @@ def _print_windows(check: FlowCheck) -> None:
 
 
 def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
-    """Print the spread of an ensemble's check: P10, P50, P90 per quantity and axis."""
+    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above."""
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
         for axis, s in ensemble.statistics[quantity].items():
             if s is None:
                 continue
             scale, spec = (100.0, "+.2f") if quantity == "rel_error" else (1.0, ".4g")
-            rows.append([f"{quantity} {axis}", *(number(scale * v, spec) for v in (s.p10, s.p50, s.p90)),
+            rows.append([f"{quantity} {axis}", *(number(scale * s.percentile(q), spec) for q in PERCENTILES),
                          str(s.count)])  # fmt: skip
     click.echo(f"ensemble of {len(ensemble.realizations)} realizations")
     if rows:
-        click.echo(table(["quantity", "P10", "P50", "P90", "n"], rows))
-        click.echo("(k in the input's unit, errors in %; P10 is exceeded by 90 % of the realizations)")
-    extra = [name for name in ("figures", "report.html") if (Path(out) / name).exists()]
+        click.echo(f"percentiles: {ensemble.percentiles}")
+        columns = [short_label(q, ensemble.convention) for q in PERCENTILES]
+        click.echo(table(["quantity", *columns, "n"], rows))
+        click.echo("(k in the input's unit, errors in %)")
+    if ensemble.representative is not None:
+        click.echo(f"representative realization: {ensemble.representative} (its fine k_eff is nearest the "
+                   "median over the realizations)")  # fmt: skip
+    extra = [name for name in ("maps", "figures", "report.html") if (Path(out) / name).exists()]
     click.echo(f"wrote one folder per realization, ensemble.csv, {', '.join([*extra, ''])}"
                f"ensemble.json to {Path(out)}")  # fmt: skip
 
@@ -220,23 +226,24 @@ def print_notes(warning: str | None, note: str | None = None) -> None:
 
 
 def print_spread(ranking: EnsembleRanking, out: str) -> None:
-    """Print the methods compared over an ensemble: rank, P10/P50/P90 of the largest error, wins."""
+    """Print the methods compared over an ensemble: rank, percentiles of the largest error, wins."""
     rows = []
     for m in ranking.methods:
         w = m.worst_error
-        spread = [number(100 * v, ".2f") for v in (w.p10, w.p50, w.p90)] if w else ["-"] * 3
+        spread = [number(100 * w.percentile(q), ".2f") for q in PERCENTILES] if w else ["-"] * 3
         rows.append([str(m.rank or "-"), m.name, *spread, f"{m.ran}/{m.ran + m.failed}",
                      str(m.rank_in_realizations.first)])  # fmt: skip
-    click.echo(f"methods compared on {len(ranking.realizations)} realizations, ranked by the P50 of "
+    click.echo(f"methods compared on {len(ranking.realizations)} realizations, ranked by the median of "
                "their largest check error over the axes")  # fmt: skip
-    click.echo(table(["rank", "method", "P10 %", "P50 %", "P90 %", "ran", "first"], rows))
-    click.echo("(largest |error| over the axes per realization, in %; P10 is exceeded by 90 % of the "
-               "realizations)")  # fmt: skip
+    click.echo(f"percentiles: {ranking.percentiles}")
+    click.echo(table(["rank", "method", *(short_label(q, ranking.convention) for q in PERCENTILES),
+                      "ran", "first"], rows))  # fmt: skip
+    click.echo("(largest |error| over the axes per realization, in %)")
     best = ranking.methods[0] if ranking.best else None
     if best:
         several = len(ranking.methods) > 1
         click.echo(f"\nbest over the ensemble: {best.name}")
-        print_notes(outside_band(best.name, best.worst_error.p50, several=several,
+        print_notes(outside_band(best.name, best.worst_error.q50, several=several,
                                  measure="median largest check error", where="over these realizations"),
                     bound_note(best.method, best.name) if several else None)
     click.echo(f"wrote one comparison folder per realization, ranking.csv, figures, report.html and "

@@ -18,6 +18,7 @@ from .options import (
     check_options,
     field_options,
     parse_chunk,
+    percentile_option,
     read_options,
     recorded,
     well_options,
@@ -55,6 +56,7 @@ _METHOD_HELP = ("; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHOD
               help="Layer drawn in the maps of a 3D model, 1 = top [default: the middle one].")
 @check_options
 @well_options
+@percentile_option
 @click.option("--units", type=click.Choice(["si", "field"]), default="si", show_default=True,
               help="Units of the coarse-grid package: si (m, m², m³; transmissibility k·A/L in m³) "
               "or field (ft, mD; transmissibility in mD·ft).")
@@ -73,7 +75,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
         tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
-        well_connection: str, units: str,
+        well_connection: str, percentiles: str, units: str,
         workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
@@ -108,7 +110,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
         plot=plot, report=html_report, layer=None if layer is None else layer - 1,
         wells=wells, outer_pressure=outer_pressure, well_connection=well_connection,
-        command=ctx.obj["command"],
+        percentiles=percentiles, command=ctx.obj["command"],
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]

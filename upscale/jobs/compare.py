@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line, with_per_axis
 from ..analysis.comparison_record import ComparisonRecord, comparison_record
 from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
+from ..analysis.percentiles import refuse_convention
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.wells import FineWells, fine_wells
 from ..errors import InputError
@@ -148,14 +149,14 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                      tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                      overwrite: bool = False, say: Say = silent, wells: str | None = None,
-                     outer_pressure: float | None = None,
-                     well_connection: str = "near-well") -> EnsembleRanking:  # fmt: skip
+                     outer_pressure: float | None = None, well_connection: str = "near-well",
+                     percentiles: str = "nonexceedance") -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
     (``compare.json``, figures, ``report.html``); the ensemble folder adds
     ``ranking.csv``, ``figures/spread.*``, ``report.html`` and
-    ``ensemble.json`` (written last), ranking the methods by the P50 over the
+    ``ensemble.json`` (written last), ranking the methods by the median over the
     realizations of their largest check error (`upscale.analysis.ensemble.method_spread`).
 
     Parameters
@@ -182,6 +183,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         Receives progress lines (silent by default).
     wells, outer_pressure, well_connection : optional
         As in `compare_file`, for every realization.
+    percentiles : {'nonexceedance', 'exceedance'}
+        How the percentiles are named (`upscale.analysis.percentiles`).
 
     Returns
     -------
@@ -196,6 +199,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         (all before any work).
     """
     refuse_automatic_layers(block)
+    refuse_convention(percentiles)
     command = command or []
     names, fields = read_realizations(paths, chunk_bytes, block, read)
     first = next(iter(fields.values()))
@@ -220,7 +224,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                 write_comparison(stage / name, record, made.images, made.page)
             records.append(record)
             say(f"[{i}/{len(fields)}] realizations done ({name})")
-        ranking = ensemble_ranking(names, records, command=command)
+        ranking = ensemble_ranking(names, records, command=command, convention=percentiles)
         from ..report.bundle import spread_bundle  # matplotlib: the figures extra
 
         made = spread_bundle(ranking, command=command,

@@ -13,10 +13,14 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..analysis.compare import single
 from ..analysis.connectivity import connectivity, struggle
 from ..analysis.ensemble import EnsembleSummary, ensemble_summary
+from ..analysis.ensemble_maps import block_spreads
 from ..analysis.layers import LayerChoice, resolve_layers
+from ..analysis.percentiles import refuse_convention
 from ..analysis.summary import RunSummary
 from ..check.axis import coarse_check, fine_solves
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
@@ -71,6 +75,8 @@ class Settings:
         Pressure on the four side faces in the well check; None: closed.
     well_connection : {'near-well', 'peaceman'}
         How the coarse well connection factors are set (`upscale.methods.near_well`).
+    percentiles : {'nonexceedance', 'exceedance'}
+        How an ensemble's percentiles are named (`upscale.analysis.percentiles`).
     command : list of str
         The command line, recorded in the outputs.
     """
@@ -92,10 +98,12 @@ class Settings:
     wells: str | None = None
     outer_pressure: float | None = None
     well_connection: str = "near-well"
+    percentiles: str = "nonexceedance"
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
         unit_factors(str(self.read.get("unit", "mD")), self.units)  # refuses before any work
+        refuse_convention(self.percentiles)
 
     def require_libraries(self) -> None:
         """Import, before any work, the optional libraries the outputs need (`upscale.optional`).
@@ -296,7 +304,9 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
         Shared by every realization.
     out : str or Path
         The ensemble's folder: a sub-folder per realization (named after its
-        file), ``ensemble.csv`` and ``ensemble.json`` (written last).
+        file), ``ensemble.csv``, ``maps/`` (per block and permeability the
+        percentiles and the standard deviation of ln k over the realizations,
+        as GeoTIFFs) and ``ensemble.json`` (written last).
     overwrite : bool
         Replace the results in a folder that holds some.
     parallel : int
@@ -319,10 +329,14 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     refuse_automatic_layers(settings.block)
     names, fields = read_realizations(paths, settings.chunk_bytes, settings.block, settings.read,
                                   checksum=False)  # fmt: skip
-    done = []
+    done, coarse, grids = [], {}, {}
 
     def one(name: str, path: str) -> RunSummary:
-        _, summary = upscale_file(path, settings, stage / name, say=say, prefix=f"{name}: ")
+        result, summary = upscale_file(path, settings, stage / name, say=say, prefix=f"{name}: ")
+        # per block, small: every realization's coarse permeabilities are kept for the maps
+        coarse[name] = {p: np.asarray(v, dtype=float) for p, v in result.coarse.properties().items()
+                        if p != "porosity"}  # fmt: skip
+        grids[name] = result.coarse.grid  # one grid for all (read_realizations)
         done.append(name)
         say(f"[{len(done)}/{len(paths)}] realizations done ({name})")
         return summary
@@ -330,15 +344,19 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         with ThreadPoolExecutor(max_workers=max(1, parallel)) as pool:
             summaries = list(pool.map(one, names, paths))
-        ensemble = ensemble_summary(names, summaries, command=settings.command)
+        ensemble = ensemble_summary(names, summaries, command=settings.command,
+                                    convention=settings.percentiles)  # fmt: skip
+        maps = (block_spreads([coarse[name] for name in names]), grids[names[0]], summaries[0].unit)
         made = None
         if settings.plot or settings.report:
             from ..report.bundle import ensemble_bundle  # matplotlib: the figures extra
 
             with Steps(say)(None, "drawing the spread over the realizations"):
                 made = ensemble_bundle(ensemble, unit=summaries[0].unit, command=settings.command,
-                                       title=f"upscale — {settings.method} on {len(names)} realizations")
-        write_ensemble(stage, ensemble, names, images=made.images if made and settings.plot else None,
+                                       title=f"upscale — {settings.method} on {len(names)} realizations",
+                                       maps=maps)  # fmt: skip
+        write_ensemble(stage, ensemble, names, maps=maps,
+                       images=made.images if made and settings.plot else None,
                        page=made.page if made and settings.report else None)  # fmt: skip
     return ensemble
 

@@ -5,18 +5,25 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
+from ..analysis.ensemble_maps import REPRESENTATIVE_RULE, BlockSpread
+from ..analysis.percentiles import PERCENTILES, bar_text, label, note
 from ..analysis.plan_record import PlanRecord
 from ..analysis.records import check_flows, versions, working_folder
 from ..caution import CAUTION
 from ..check.axis import flow_label
+from ..field import Grid
 from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
 from .html import report_page
+from .maps import block_spread_maps
 from .plan_page import plan_page
 from .spread import ensemble_chart, method_spread_chart
+from .style import MISSING_LABEL
 from .verdict import bound_mark, bound_note, outside_band
 
 
@@ -80,8 +87,9 @@ def _percent(value: float | None) -> str:
     return "–" if value is None else f"{100 * value:+.2f} %"
 
 
-def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command: list[str]) -> Bundle:
-    """The figure and the page of one method over an ensemble (``upscale run`` on several fields).
+def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command: list[str],
+                    maps: tuple[dict[str, BlockSpread], Grid, str] | None = None) -> Bundle:  # fmt: skip
+    """The figures and the page of one method over an ensemble (``upscale run`` on several fields).
 
     Parameters
     ----------
@@ -93,11 +101,17 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         Page title.
     command : list of str
         The command line.
+    maps : (dict of str to BlockSpread, Grid, str), optional
+        The per-block spread of each coarse permeability, the coarse grid and
+        the unit: a figure of maps each (a permeability whose percentile maps
+        are kx's is left out).
     """
+    convention = ensemble.convention
     plots = [Plot("ensemble", ensemble_chart(ensemble, unit),
-                  "Each dot is one realization; the bar spans P10 to P90 and the tick marks P50. "
+                  f"Each dot is one realization; {bar_text(convention)} ({ensemble.percentiles}). "
                   "Look at how far the coarse k_eff strays from the fine one, and whether the check "
                   "errors of some realizations leave the ±5 % band.")]  # fmt: skip
+    plots += _spread_plots(maps, len(ensemble.realizations), convention) if maps else []
     images, shown = _rendered(plots)
     rows = []
     for quantity, name in (("k_fine", "fine k_eff"), ("k_coarse", "coarse k_eff"), ("rel_error", "error")):
@@ -105,9 +119,9 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
             if s is None:
                 continue
             cell = _percent if quantity == "rel_error" else (lambda v: f"{v:.4g}")
-            values = [cell(v) for v in (s.p10, s.p50, s.p90, s.mean, s.min, s.max)]
+            values = [cell(v) for v in (*(s.percentile(q) for q in PERCENTILES), s.mean, s.min, s.max)]
             rows.append([f"{name} {flow_label(axis)}", *values, str(s.count)])
-    errors = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
+    errors = [s.q50 for s in ensemble.statistics["rel_error"].values() if s]
     name = ensemble.method.name
     worst = max(errors, key=abs) if errors else None
     job = {
@@ -127,9 +141,31 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
                          for r in ensemble.realizations],
         "block": _block(ensemble.block, ensemble.axes),
         "percentiles": ensemble.percentiles,
+        "representative": None if ensemble.representative is None else
+        f"Representative realization: {ensemble.representative} — {REPRESENTATIVE_RULE}.",
     }  # fmt: skip
-    head = ["quantity", "P10", "P50", "P90", "mean", "min", "max", "realizations"]
+    head = ["quantity", *(label(q, convention) for q in PERCENTILES), "mean", "min", "max", "realizations"]
     return Bundle(images, ensemble_page(job, head, rows, shown))
+
+
+def _spread_plots(maps: tuple[dict[str, BlockSpread], Grid, str], realizations: int,
+                  convention: str) -> list[Plot]:  # fmt: skip
+    """A figure of per-block maps for each coarse permeability (one with kx's percentile maps left out)."""
+    spreads, grid, unit = maps
+    kx = spreads["kx"]
+    drawn = {name: s for name, s in spreads.items()
+             if name == "kx" or not all(np.array_equal(s.percentiles[q], kx.percentiles[q], equal_nan=True)
+                                        for q in PERCENTILES)}  # fmt: skip
+    same = [name for name in spreads if name not in drawn]
+    return [Plot(f"spread_maps_{name}", block_spread_maps(s, grid, name, unit, convention=convention,
+                                                          realizations=realizations),
+                 f"Per coarse block, over the realizations: three percentiles of the coarse {name} on one "
+                 f"log colour scale ({note(convention)}), and on its own scale the standard deviation of "
+                 f"ln {name}, a relative spread (0.1 is about ±10 %). Look for blocks where the realizations "
+                 "disagree: there one coarse model cannot stand for the ensemble."
+                 + (f" {', '.join(same)}: the same maps as kx." if name == "kx" and same else "")
+                 + f" Hatched blocks have {MISSING_LABEL}.")
+            for name, s in drawn.items()]  # fmt: skip
 
 
 def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -> Bundle:
@@ -144,19 +180,20 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     command : list of str
         The command line.
     """
-    axes, methods = ranking.axes, ranking.methods
+    axes, methods, convention = ranking.axes, ranking.methods, ranking.convention
     flows = check_flows(axes, {name for m in methods for name in m.rel_error})  # none held out in old records
     n = len(ranking.realizations)
-    plots = [Plot("spread", method_spread_chart(methods, axes, n),
-                  "Check error of each method on every realization (dots), P10–P90 (bar) and P50 "
-                  "(tick). The ranking follows the P50 of the largest error; look at the bars too: "
-                  "a method whose P90 leaves the ±5 % band misses badly on some realizations.")]  # fmt: skip
+    plots = [Plot("spread", method_spread_chart(methods, axes, n, convention),
+                  f"Check error of each method on every realization (dots), {bar_text(convention)} "
+                  f"({ranking.percentiles}). The ranking follows the median of the largest error; look at "
+                  "the bars too: a method whose bar leaves the ±5 % band misses badly on some "
+                  "realizations.")]  # fmt: skip
     images, shown = _rendered(plots)
     rows = []
     for m in methods:
         w = m.worst_error
-        worst = [f"{100 * v:.2f} %" for v in (w.p10, w.p50, w.p90)] if w else ["–"] * 3
-        per_axis = [_percent(m.rel_error[a].p50) if m.rel_error.get(a) else "–" for a in flows]
+        worst = [f"{100 * w.percentile(q):.2f} %" for q in PERCENTILES] if w else ["–"] * 3
+        per_axis = [_percent(m.rel_error[a].q50) if m.rel_error.get(a) else "–" for a in flows]
         mean_rank = m.rank_in_realizations.mean
         mark = bound_mark(m.method)
         rows.append([str(m.rank or "–"), m.name + (f" ({mark})" if mark else ""),
@@ -169,25 +206,27 @@ def spread_bundle(ranking: EnsembleRanking, *, title: str, command: list[str]) -
     if best:
         w = best.worst_error
         verdict = (f"{'Best over' if several else 'Over'} {n} realizations: {best.name}, median largest "
-                   f"check error {100 * w.p50:.2f} % (P90 {100 * w.p90:.2f} %).")  # fmt: skip
-        warning = outside_band(best.name, w.p50, several=several, measure="median largest check error",
+                   f"check error {100 * w.q50:.2f} %; {label(90, convention)}: "
+                   f"{100 * w.q90:.2f} %.")  # fmt: skip
+        warning = outside_band(best.name, w.q50, several=several, measure="median largest check error",
                                where="over these realizations")  # fmt: skip
         note = bound_note(best.method, best.name) if several else None
     job = {
         "title": title, "command": command, "working_folder": working_folder(command),
         "caution": CAUTION, "versions": versions(), "verdict": verdict, "warning": warning, "note": note,
-        "what": ("Methods ranked by the P50 over the realizations of their largest check error over "
+        "what": ("Methods ranked by the median over the realizations of their largest check error over "
                  "the axes and the corner-to-corner flow (methods that failed on some realizations after "
                  "those that ran on all)"
                  if several else "The method's largest check error over the axes and the corner-to-corner "
                  "flow, over the "
-                 "realizations") + "; the P10 and P90 show how much that varies from one realization "
-        "to the next — with few realizations they are interpolated between the nearest ones.",
+                 "realizations") + f"; the {label(10, convention)} and the {label(90, convention)} show how "
+        "much that varies from one realization to the next — with few realizations they are interpolated "
+        "between the nearest ones.",
         "realizations": [r.to_dict() for r in ranking.realizations], "block": _block(ranking.block, axes),
         "percentiles": ranking.percentiles,
     }  # fmt: skip
-    head = ["rank", "method", "ran", "largest error P10", "P50", "P90",
-            *(f"P50 error {flow_label(a)}" for a in flows), "mean rank",
+    head = ["rank", "method", "ran", *(f"largest error, {label(q, convention)}" for q in PERCENTILES),
+            *(f"median error {flow_label(a)}" for a in flows), "mean rank",
             "times first"]  # fmt: skip
     if not several:  # one method's check over the realizations: nothing was ranked
         head, rows = head[1:-2], [row[1:-2] for row in rows]

@@ -24,8 +24,9 @@ def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
         table shows, plain text), ``command`` (list of str),
         ``working_folder``, ``realizations``
         (list of dicts with ``name``, ``path``, ``sha256``), ``block`` (one
-        line), ``percentiles`` (how they are defined), ``caution``,
-        ``versions`` (dict).
+        line), ``percentiles`` (how they are defined), ``representative``
+        (one sentence naming the representative realization, or None; optional),
+        ``caution``, ``versions`` (dict).
     head : list of str
         The table's column titles.
     rows : list of list of str
@@ -43,8 +44,11 @@ def ensemble_page(job: dict[str, Any], head: list[str], rows: list[list[str]],
         f"<td class='text'><code>{_e(r['sha256'] or '–')}</code></td></tr>"
         for r in job["realizations"]
     )
+    chosen = job.get("representative")
+    representative = f'<p id="representative">{_e(chosen)}</p>\n' if chosen else ""
+    notices = notices_html(job["warning"], job["note"])
     return document(job["title"], f"""<p>{_e(job["verdict"])}</p>
-{notices_html(job["warning"], job["note"])}<h2>Spread over {len(job["realizations"])} realizations</h2>
+{representative}{notices}<h2>Spread over {len(job["realizations"])} realizations</h2>
 <p>{_e(job["what"])} Percentiles: {_e(job["percentiles"])}. Blocks: {_e(job["block"])}.</p>
 <table id="spread">
 <tr>{"".join(f"<th>{_e(h)}</th>" for h in head)}</tr>

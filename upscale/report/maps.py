@@ -18,6 +18,8 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..analysis.compare import Comparison, Entry
+from ..analysis.ensemble_maps import BlockSpread
+from ..analysis.percentiles import PERCENTILES, label
 from ..check.wells import WellCheck
 from ..field import Grid
 from ..grid import BlockSpec
@@ -28,6 +30,7 @@ from .style import (
     MISMATCH_MAP,
     PERMEABILITY_MAP,
     PRESSURE_MAP,
+    SPREAD_MAP,
     extend_of,
     log_norm,
     missing_background,
@@ -296,3 +299,46 @@ def _mismatch(entry: Entry, comparison: Comparison, axis: str, a: int, layer: in
     beside = np.take(active, np.arange(n - 1), axis=a) & np.take(active, np.arange(1, n), axis=a)
     values = np.where(beside, values, np.nan)
     return values[min(comparison.block.coarse_index(layer, fine.pressure.shape[0], 0), values.shape[0] - 1)]
+
+
+def block_spread_maps(spread: BlockSpread, grid: Grid, name: str, unit: str, *, convention: str,
+                      realizations: int) -> Figure:  # fmt: skip
+    """Per block over an ensemble: three percentiles of a coarse permeability and the spread of its ln.
+
+    The percentiles share one log colour scale; the standard deviation of
+    ln k (unitless) has its own, from 0. A 3D model shows its middle coarse layer.
+
+    Parameters
+    ----------
+    spread : BlockSpread
+        From `upscale.analysis.ensemble_maps.block_spread`.
+    grid : Grid
+        The coarse grid.
+    name, unit : str
+        The permeability (``kx`` ...) and its unit.
+    convention : {'nonexceedance', 'exceedance'}
+        How the panels name the percentiles (`upscale.analysis.percentiles`).
+    realizations : int
+        How many realizations, for the title.
+    """
+    layer = grid.dz.size // 2
+    values = [spread.percentiles[q][layer] for q in PERCENTILES]
+    norm = log_norm(*values)
+    fig, axes = panel_grid(4, share=True, extra=(1.6, 0.9))
+    edges = _edges(grid, False)
+    cmap = with_missing(PERMEABILITY_MAP)
+    for ax, q, shown in zip(axes, PERCENTILES, values):
+        mesh = _draw(ax, on_log_scale(shown), edges, cmap=cmap, norm=norm)
+        ax.set_title(label(q, convention))
+    fig.colorbar(mesh, ax=axes[:3], label=f"{name} ({unit}, log scale)", shrink=0.8,
+                 extend=extend_of(norm, *values))  # fmt: skip
+    std = spread.std_ln[layer]
+    finite = std[np.isfinite(std)]
+    top = float(finite.max()) if finite.size and finite.max() > 0 else 1.0
+    wide = _draw(axes[3], std, edges, cmap=with_missing(SPREAD_MAP), norm=Normalize(0.0, top))
+    axes[3].set_title(f"std of ln {name}")
+    fig.colorbar(wide, ax=axes[3], label=f"std of ln {name} (unitless)", shrink=0.8)
+    where = f", coarse layer {layer + 1} of {grid.dz.size}" if grid.dz.size > 1 else ""
+    title(fig, f"Coarse {name} per block over {realizations} realizations{where}")
+    _finish(fig, axes, grid, False, [*values, std])
+    return fig

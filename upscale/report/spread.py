@@ -6,7 +6,8 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
-from ..analysis.ensemble import PERCENTILES, EnsembleSummary, MethodSpread
+from ..analysis.ensemble import EnsembleSummary, MethodSpread
+from ..analysis.percentiles import PERCENTILES, bar_text
 from ..analysis.records import check_flows
 from ..check.axis import flow_label, flow_order
 from .charts import error_band, readable_k_axis, warn_in
@@ -17,18 +18,22 @@ from .verdict import outside_band
 
 def _spread_marks(ax: Axes, x: float, values: np.ndarray, color: str, label: str | None,
                   half: float = 0.2) -> None:  # fmt: skip
-    """One realization per dot (spread sideways), a bar from P10 to P90 and a tick at P50, `half` wide."""
+    """One realization per dot (spread sideways), a bar from the 10th to the 90th percentile, a median tick.
+
+    The tick reaches `half` to either side.
+    """
     values = values[np.isfinite(values)]
     if values.size == 0:
         return
     jitter = np.linspace(-0.6 * half, 0.6 * half, values.size) if values.size > 1 else np.zeros(1)
     ax.plot(x + jitter, values, "o", color=color, alpha=0.45, markersize=3.5, label=label)
-    p10, p50, p90 = np.percentile(values, PERCENTILES)
-    ax.plot([x, x], [p10, p90], color=color, linewidth=3.0, solid_capstyle="butt")
-    ax.plot([x - half, x + half], [p50, p50], color="black", linewidth=1.6)
+    low, median, high = np.percentile(values, PERCENTILES)
+    ax.plot([x, x], [low, high], color=color, linewidth=3.0, solid_capstyle="butt")
+    ax.plot([x - half, x + half], [median, median], color="black", linewidth=1.6)
 
 
-def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizations: int) -> Figure:
+def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizations: int,
+                        convention: str = "nonexceedance") -> Figure:  # fmt: skip
     """Check error of every method over the realizations, per axis and held-out flow, in ranked order.
 
     Parameters
@@ -39,6 +44,8 @@ def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizatio
         The flow axes, e.g. ``"xy"``.
     realizations : int
         How many realizations, for the title.
+    convention : {'nonexceedance', 'exceedance'}
+        How the title names the percentiles (`upscale.analysis.percentiles`).
     """
     ran = [m for m in methods if m.rank is not None]
     alone = len(methods) == 1
@@ -61,10 +68,10 @@ def method_spread_chart(methods: tuple[MethodSpread, ...], axes: str, realizatio
                   rotation=30, ha="right")  # fmt: skip
     ax.set_ylabel("check error (k_coarse − k_fine) / k_fine")
     if ran:
-        warn_in(ax, outside_band(ran[0].name, ran[0].worst_error.p50, several=not alone,
+        warn_in(ax, outside_band(ran[0].name, ran[0].worst_error.q50, several=not alone,
                                  measure="median largest check error", where="over these realizations"))
     ax.legend(fontsize=LABEL, loc="best")
-    title(fig, f"Check error over {realizations} realizations: dots, P10–P90 bar, P50 tick")
+    title(fig, f"Check error over {realizations} realizations: dots, {bar_text(convention)}")
     page_sizes(fig)
     return fig
 
@@ -98,12 +105,12 @@ def ensemble_chart(ensemble: EnsembleSummary, unit: str) -> Figure:
     error_band(right, float(np.nanmax(np.abs(errors))) if np.isfinite(errors).any() else 0.0)
     right.set_xticks(range(len(axes)), [flow_label(a) for a in axes])
     right.set_ylabel("check error (k_coarse − k_fine) / k_fine")
-    medians = [s.p50 for s in ensemble.statistics["rel_error"].values() if s]
+    medians = [s.q50 for s in ensemble.statistics["rel_error"].values() if s]
     right.set_title("Check error")
     if medians:
         warn_in(right, outside_band(ensemble.method.name, max(medians, key=abs), several=False,
                                     measure="median check error", where="over these realizations"))
     right.legend(fontsize=LABEL, loc="best")
-    title(fig, f"Over {len(rows)} realizations: dots, P10–P90 bar, P50 tick")
+    title(fig, f"Over {len(rows)} realizations: dots, {bar_text(ensemble.convention)}")
     page_sizes(fig)
     return fig

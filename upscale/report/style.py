@@ -21,6 +21,9 @@ from .layout import LABEL
 PERMEABILITY_MAP = "cividis"
 PRESSURE_MAP = "viridis"
 MISMATCH_MAP = "PuOr"
+#: Spread over realizations (standard deviation of ln k): magma, perceptually uniform like cividis but
+#: of other hues, so a spread map is not read on the permeability maps' scale beside it.
+SPREAD_MAP = "magma"
 #: Okabe–Ito colours (black excluded), then repeated with other line styles.
 PALETTE = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442")
 LINESTYLES = ("-", "--", "-.", ":")
