@@ -69,7 +69,8 @@ def test_run_records_the_method_per_axis_and_is_exact_on_layers(layered, tmp_pat
 @pytest.mark.parametrize(
     "method, options, message",
     [
-        ("xy=arithmetic,z=flow-transmissibility", (), "method 'flow-transmissibility' cannot serve some axes"),
+        ("xy=arithmetic,z=flow-transmissibility", (),
+         "method 'flow-transmissibility' cannot serve some axes"),
         ("xy=arithmetic,z=flow", ("--bc", "linear"), "--bc linear gives a full tensor"),
         ("xy=arithmetic", (), "names no method for axis z"),
         ("xy=arithmetic,xz=harmonic", (), "axis x is given twice"),
@@ -95,8 +96,8 @@ def test_compare_suggests_a_method_per_axis_whose_run_reproduces_its_errors(demo
     suggested = _json(tmp_path / "cmp" / "compare.json")["per_axis"]
     # the common recipe of the trade on a layered model (common practice)
     assert suggested["method"] == "xy=arithmetic,z=harmonic" and suggested["rank"] is None
-    assert f"best per axis: xy=arithmetic,z=harmonic (error x {100 * suggested['check']['x']['rel_error']:+.2f} %" \
-        in stdout
+    x_error = 100 * suggested["check"]["x"]["rel_error"]
+    assert f"best per axis: xy=arithmetic,z=harmonic (error x {x_error:+.2f} %" in stdout
     assert f"\n  {suggested['command']}\n" in stdout
     page = (tmp_path / "cmp" / "report.html").read_text()
     assert "Best method per axis: <strong>xy=arithmetic,z=harmonic</strong>" in page

@@ -58,15 +58,18 @@ MIXES = [
 @pytest.mark.parametrize("text, options", MIXES)
 def test_each_axis_is_bit_equal_to_its_method_alone(text, options):
     k = uncorrelated_lognormal((4, 8, 8), seed=SEED, sigma_ln=1.5)
-    fine = Field.from_arrays(k, ky=0.5 * k, kz=0.1 * k, cell_size=(5.0, 5.0), dz=np.array([1.0, 2.0, 0.5, 3.0]))
+    fine = Field.from_arrays(k, ky=0.5 * k, kz=0.1 * k, cell_size=(5.0, 5.0),
+                             dz=np.array([1.0, 2.0, 0.5, 3.0]))  # fmt: skip
     mixed = coarsen(fine, "4x4x2", text, **options)
     assert mixed.method == find_method(text).name
     assert not mixed.tensor  # the diagonal terms only
     for group in text.split(","):
         axes, name = group.split("=")
-        alone = coarsen(fine, "4x4x2", name, **{o: v for o, v in options.items() if o in METHODS[name].options})
+        taken = {o: v for o, v in options.items() if o in METHODS[name].options}
+        alone = coarsen(fine, "4x4x2", name, **taken)
         for axis in axes:
-            np.testing.assert_array_equal(getattr(mixed.coarse, f"k{axis}"), getattr(alone.coarse, f"k{axis}"))
+            name_k = f"k{axis}"
+            np.testing.assert_array_equal(getattr(mixed.coarse, name_k), getattr(alone.coarse, name_k))
 
 
 def test_a_mapping_and_any_order_name_the_same_method():
@@ -97,7 +100,8 @@ def test_the_mix_is_a_bound_only_when_all_its_methods_are_the_same_bound():
         ("xy=arithmetic,z=flow-transmissibility", {}, r"'flow-transmissibility' cannot serve some axes only"),
         ("xy=global,z=harmonic", {}, r"'global' cannot serve some axes only: it upscales the coarse"),
         ("xy=arithmetic,z=local-global", {}, r"'local-global' cannot serve some axes only"),
-        ("xy=arithmetic,z=flow", {"bc": "periodic"}, r"`bc` periodic gives a full tensor, whose cross terms couple the axes; .* `bc=sealed` only"),
+        ("xy=arithmetic,z=flow", {"bc": "periodic"},
+         r"`bc` periodic gives a full tensor, whose cross terms couple the axes; .* `bc=sealed` only"),
         ("xy=arithmetic,z=harmonic", {"exponent": 0.5}, r"takes no option exponent"),
         ("xy=arithmetic,z=power", {}, r"needs `exponent`"),
     ],
@@ -110,7 +114,8 @@ def test_refusals_are_one_line(text, options, message):
 
 def test_every_axis_of_the_field_and_no_other():
     k = uncorrelated_lognormal((2, 4, 4), seed=SEED)
-    with pytest.raises(InputError, match=r"'xy=arithmetic' names no method for axis z; name one for every axis"):
+    message = r"'xy=arithmetic' names no method for axis z; name one for every axis"
+    with pytest.raises(InputError, match=message):
         coarsen(Field.from_arrays(k, dz=1.0), "2x2x2", "xy=arithmetic")
     with pytest.raises(InputError, match=r"names axis z, which the field lacks \(its axes: x, y\)"):
         coarsen(k[0], "2x2", "x=arithmetic,y=harmonic,z=harmonic")

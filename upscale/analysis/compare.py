@@ -313,7 +313,7 @@ def compare_methods(
 
 def _entry(field: Field, spec: BlockSpec, candidate: Candidate, fine_flows: dict[str, AxisFlow | CornerFlow],
            wells: FineWells | None, *, solver: str, tolerance: float) -> Entry:  # fmt: skip
-    """One candidate upscaled and checked against the shared fine solves (and wells); its reason if it failed."""
+    """One candidate upscaled and checked against the shared fine solves (and wells); why, if it failed."""
     start, compiled = time.perf_counter(), compile_seconds()
     result, checks, well_check, error = None, {}, None, None
     try:
@@ -331,8 +331,9 @@ def _entry(field: Field, spec: BlockSpec, candidate: Candidate, fine_flows: dict
 
 
 def per_axis_candidate(comparison: Comparison) -> Candidate | None:
-    """The best method per axis: along each axis, the entry with the smallest ``|rel_error|`` among those
-    that may serve some axes only (`upscale.methods.registry.serves_some_axes`).
+    """The best method per axis, the entry of smallest ``|rel_error|`` along each axis.
+
+    Only methods that may serve some axes only take part (`upscale.methods.registry.serves_some_axes`).
 
     Returns
     -------

@@ -421,7 +421,8 @@ def build_summary(
         tensor = TensorSummary.from_dict(jsonable(tensor_summary(coarse, result.tensor, result.zeros)))
         faces = _face_rule(result)
     return RunSummary(
-        provenance(fine, command, read), fine.unit, MethodUsed.from_dict(jsonable(method_record(result.method, result.options))),
+        provenance(fine, command, read), fine.unit,
+        MethodUsed.from_dict(jsonable(method_record(result.method, result.options))),
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,

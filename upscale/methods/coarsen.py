@@ -12,9 +12,9 @@ from __future__ import annotations
 import json
 import logging
 import math
+from collections.abc import Mapping
 from dataclasses import KW_ONLY, dataclass, field, replace
 from functools import cached_property
-from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 import numpy as np

@@ -297,8 +297,9 @@ def method_record(name: str, options: Mapping[str, Any]) -> dict[str, Any]:
 
     Examples
     --------
-    >>> method_record("xy=arithmetic,z=harmonic", {})
-    {'name': 'xy=arithmetic,z=harmonic', 'options': {}, 'per_axis': {'x': 'arithmetic', 'y': 'arithmetic', 'z': 'harmonic'}}
+    >>> method_record("xy=arithmetic,z=harmonic", {})  # doctest: +NORMALIZE_WHITESPACE
+    {'name': 'xy=arithmetic,z=harmonic', 'options': {},
+     'per_axis': {'x': 'arithmetic', 'y': 'arithmetic', 'z': 'harmonic'}}
     >>> method_record("power", {"exponent": 0.5})
     {'name': 'power', 'options': {'exponent': 0.5}}
     """

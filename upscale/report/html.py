@@ -231,7 +231,8 @@ def _verdict(comparison: Comparison, ranked: bool) -> str:
                 else f"<strong>{_e(label)}</strong> on this field: {size}")  # fmt: skip
     warning = outside_band(label, best.worst_error, several=ranked)
     note = bound_note(best.candidate.method, label) if ranked else None
-    return f"<p>{sentence}</p>\n" + _per_axis(comparison.per_axis if ranked else None) + notices_html(warning, note)
+    per_axis = _per_axis(comparison.per_axis if ranked else None)
+    return f"<p>{sentence}</p>\n" + per_axis + notices_html(warning, note)
 
 
 def _per_axis(entry: Entry | None) -> str:
