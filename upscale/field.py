@@ -159,11 +159,17 @@ def _running(widths: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True, eq=False)
 class Source:
-    """Provenance of one input: its role (``kx``, ``porosity``…), path and SHA-256."""
+    """Provenance of one input: its role (``kx``, ``porosity``…), path and SHA-256.
+
+    ``resampled``, for an input read onto the grid of the main one: the
+    ``rule`` and the grid it came ``from`` (``crs``, ``transform``, ``shape``);
+    None for an input on that grid.
+    """
 
     role: str
     path: str
     sha256: str
+    resampled: dict[str, Any] | None = None
 
 
 @dataclass(frozen=True, eq=False, repr=False)

@@ -132,12 +132,29 @@ def _sizes(sizes: np.ndarray) -> dict[str, float] | float:
 
 @dataclass(frozen=True)
 class InputRecord(Leaf):
-    """One input file: its ``role`` (kx, ky, kz, porosity), the path as given, resolved, and its SHA-256."""
+    """One input file: its ``role`` (kx, ky, kz, porosity), the path as given, resolved, and its SHA-256.
+
+    ``resampled`` (`upscale.field.Source`) is written only for an input
+    resampled onto the main grid.
+    """
 
     role: str
     path: str
     resolved: str
     sha256: str | None
+    resampled: dict[str, Any] | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The record as its JSON object; ``resampled`` only when the input was."""
+        data = super().to_dict()
+        if self.resampled is None:
+            del data["resampled"]
+        return data
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> InputRecord:
+        """The record of a JSON object written by `to_dict`."""
+        return cls(data["role"], data["path"], data["resolved"], data["sha256"], data.get("resampled"))
 
 
 @dataclass(frozen=True)
@@ -183,7 +200,8 @@ class Provenance:
 
 def provenance(fine: Field, command: list[str] | None, read: dict[str, Any] | None) -> Provenance:
     """The provenance of a result on `fine`, from `command` run here with the `read` options."""
-    inputs = tuple(InputRecord(s.role, s.path, str(Path(s.path).resolve()), s.sha256) for s in fine.sources)
+    inputs = tuple(InputRecord(s.role, s.path, str(Path(s.path).resolve()), s.sha256, s.resampled)
+                   for s in fine.sources)
     return Provenance("upscale", versions(), command, working_folder(command), inputs, jsonable(read))
 
 

@@ -13,7 +13,7 @@ from ..analysis.percentiles import CONVENTIONS
 from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
-from ..io import VALUE_SCALES
+from ..io import RESAMPLING_RULES, VALUE_SCALES
 from ..methods.near_well import CONNECTIONS
 from ..methods.registry import METHODS, find_method, per_axis, per_axis_text
 from ..units import UNITS
@@ -129,6 +129,10 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
                      help="kz as a fraction of kx, 3D only (e.g. 0.1)."),
         click.option("--porosity", type=click.Path(dir_okay=False), default=None,
                      help="Porosity raster (fraction) on the same grid."),
+        click.option("--resample", type=click.Choice(RESAMPLING_RULES), default=None,
+                     help="Resample a --ky, --kz or --porosity raster on another grid (origin, cell "
+                     "size, extent or CRS) onto the field's grid with this rule; nodata stays out "
+                     "[default: refuse such a raster]."),
         click.option("--dz", default=None, metavar="M[,M...]",
                      help="Layer thickness in m: one value, or one per layer (band), top first. "
                      "Required for multi-band rasters."),
@@ -274,11 +278,13 @@ def read_options(options: dict[str, Any]) -> dict[str, Any]:
         "kz": options.pop("kz"),
         "kv_kh": options.pop("kv_kh"),
         "porosity": options.pop("porosity"),
+        "resample": options.pop("resample"),
         "dz": dz,
         "cell_size": parse_cell_size(options.pop("cell_size")),
     }
 
 
 def recorded(read: dict[str, Any]) -> dict[str, Any]:
-    """The read options a summary records to read the field again (paths are inputs)."""
-    return {k: v for k, v in read.items() if k not in ("ky", "kz", "porosity")}
+    """The read options a summary records to read the field again (paths are inputs; no resampling unset)."""
+    return {k: v for k, v in read.items()
+            if k not in ("ky", "kz", "porosity") and not (k == "resample" and v is None)}  # fmt: skip

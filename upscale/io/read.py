@@ -22,7 +22,15 @@ from affine import Affine
 from ..errors import InputError
 from ..field import Field, Grid, Source, share_inactive
 from ..units import check_unit
-from .windows import RasterWindows, choose_chunks, clean_values, open_raster, value_dtype
+from .windows import (
+    RESAMPLING_RULES,
+    RasterWindows,
+    Warp,
+    choose_chunks,
+    clean_values,
+    open_raster,
+    value_dtype,
+)
 
 log = logging.getLogger(__name__)
 
@@ -47,7 +55,8 @@ class _Layout:
     lazy: Any
 
 
-def _open(path: str, scale: str, nodata: float | None, chunks: Any) -> _Layout:
+def _open(path: str, scale: str, nodata: float | None, chunks: Any, warp: Warp | None = None) -> _Layout:
+    """`path` as a lazy array, resampled onto the grid of `warp` when given."""
     import dask.array as da
 
     p = Path(path)
@@ -93,8 +102,10 @@ def _open(path: str, scale: str, nodata: float | None, chunks: Any) -> _Layout:
         raise InputError(f"{path}: complex values cannot be permeabilities")
     if not np.issubdtype(dtype, np.floating):
         log.warning("%s: %s values converted to float64 (exactly for up to 2^53)", path, dtype)
+    if warp is not None:
+        shape, transform, crs = (shape[0], warp.rows, warp.columns), Affine(*warp.transform), warp.crs
     windows = RasterWindows(
-        str(p), shape, dtype, file_nodata if nodata is None else nodata, scale, use_mask
+        str(p), shape, dtype, file_nodata if nodata is None else nodata, scale, use_mask, warp
     )
     lazy = da.from_array(
         windows,
@@ -169,6 +180,7 @@ def read_field(
     kz: str | Path | None = None,
     kv_kh: float | None = None,
     porosity: str | Path | None = None,
+    resample: str | None = None,
     dz: float | Sequence[float] | None = None,
     cell_size: Sequence[float] | None = None,
     chunk_bytes: int | None = None,
@@ -197,6 +209,12 @@ def read_field(
         kz as a fraction of kx (3D only), e.g. 0.1.
     porosity : str or Path, optional
         Porosity raster (fraction) on the same grid.
+    resample : {'nearest', 'average', 'bilinear'}, optional
+        Resample a `ky`, `kz` or `porosity` raster on another grid (other
+        origin, cell size, extent or CRS; the same number of bands) onto the
+        grid of `path` with this rule, window by window as it is read
+        (`upscale.io.windows.Warp`: nodata is left out, never averaged in).
+        Without it such a raster is refused.
     dz : float or sequence of float, optional
         Layer thickness in m, one value or one per layer; required for several bands.
     cell_size : (float, float), optional
@@ -222,6 +240,8 @@ def read_field(
     check_unit(unit)
     if scale not in VALUE_SCALES:
         raise InputError(f"scale must be one of {', '.join(VALUE_SCALES)}, got {scale!r}")
+    if resample is not None and resample not in RESAMPLING_RULES:
+        raise InputError(f"`resample` must be one of {', '.join(RESAMPLING_RULES)}, got {resample!r}")
 
     def chunks(shape: tuple, dtype: np.dtype) -> tuple:
         return choose_chunks(shape, max(dtype.itemsize, 8), chunk_bytes, block)
@@ -249,10 +269,13 @@ def read_field(
     for name, extra in extras.items():
         if extra is None:
             continue
-        other = _open(str(extra), "linear" if name == "porosity" else scale, nodata, chunks)
-        _check_same_grid(main, other, name)
+        stored = "linear" if name == "porosity" else scale
+        other = _open(str(extra), stored, nodata, chunks)
+        resampled = _resampling(main, other, name, resample)
+        if resampled is not None:
+            other = _open(str(extra), stored, nodata, chunks, _warp(main, resample))
         arrays[name] = other.lazy.rechunk(main.lazy.chunks)
-        sources.append(Source(name, str(extra), sha256(extra) if checksum else ""))
+        sources.append(Source(name, str(extra), sha256(extra) if checksum else "", resampled))
     arrays.setdefault("ky", arrays["kx"])
     if three_d:
         arrays.setdefault("kz", arrays["kx"] * kv_kh if kv_kh is not None else arrays["kx"])
@@ -276,17 +299,45 @@ def read_field(
     )
 
 
-def _check_same_grid(main: _Layout, other: _Layout, name: str) -> None:
-    problem = None
+def _grid_difference(main: _Layout, other: _Layout) -> str | None:
+    """How the grid of `other` differs from that of `main`, in words; None when it is the same."""
     if other.shape != main.shape:
-        problem = f"shape {other.shape} differs from {main.shape} (bands, rows, columns)"
-    elif (main.transform is None) != (other.transform is None) or (
+        return f"shape {other.shape} differs from {main.shape} (bands, rows, columns)"
+    if (main.transform is None) != (other.transform is None) or (
         main.transform is not None and not main.transform.almost_equals(other.transform)
     ):
-        problem = "its geotransform differs"
-    elif main.crs != other.crs:
-        problem = f"its CRS ({other.crs}) differs from {main.crs}"
-    if problem:
-        raise InputError(
-            f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
-        )
+        return "its geotransform differs"
+    if main.crs != other.crs:
+        return f"its CRS ({other.crs}) differs from {main.crs}"
+    return None
+
+
+def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None) -> dict[str, Any] | None:
+    """What resampling `other` onto the grid of `main` takes (the summary's record); None when on it.
+
+    Raises
+    ------
+    InputError
+        When `other` is on another grid and `rule` is None, or it cannot be
+        resampled: another number of bands, or a raster without a transform
+        and a CRS.
+    """
+    problem = _grid_difference(main, other)
+    if problem is None:
+        return None
+    where = f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
+    if rule is None:
+        raise InputError(f"{where}; resample it onto that grid with `resample=nearest|average|bilinear`")
+    if other.shape[0] != main.shape[0]:
+        raise InputError(f"{where}; resampling changes rows and columns, not the number of bands")
+    for layout in (main, other):
+        if layout.transform is None or layout.crs is None:
+            raise InputError(f"{where}; {layout.path} has no georeference (geotransform and CRS), so it "
+                             "cannot be resampled")  # fmt: skip
+    return {"rule": rule, "from": {"crs": other.crs.to_string(), "transform": list(other.transform)[:6],
+                                   "shape": dict(zip(("layers", "rows", "columns"), other.shape))}}  # fmt: skip
+
+
+def _warp(main: _Layout, rule: str) -> Warp:
+    """The grid of `main` as a target of resampling by `rule`."""
+    return Warp(main.crs.to_wkt(), tuple(main.transform)[:6], main.shape[1], main.shape[2], rule)

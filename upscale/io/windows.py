@@ -14,6 +14,7 @@ import threading
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -226,6 +227,51 @@ def value_dtype(stored: np.dtype, scale: str) -> np.dtype:
     return np.dtype(np.float64)
 
 
+#: Rules of `Warp`, rasterio's (GDAL's) resampling of the same names.
+RESAMPLING_RULES = ("nearest", "average", "bilinear")
+
+
+@dataclass(frozen=True)
+class Warp:
+    """A grid to resample a raster onto as it is read (GDAL's warper through rasterio's `WarpedVRT`).
+
+    Source cells equal to nodata (or outside the source's extent) are left
+    out: ``nearest`` keeps them nodata, ``average`` takes the mean of the
+    valid source cells under a target cell (nodata when there are none),
+    ``bilinear`` weighs the valid neighbours only (GDAL's warper).
+
+    Parameters
+    ----------
+    crs : str
+        The target CRS as WKT.
+    transform : tuple of float
+        The target's affine coefficients (a, b, c, d, e, f).
+    rows, columns : int
+        The target's size in cells.
+    rule : {'nearest', 'average', 'bilinear'}
+        The resampling rule (`RESAMPLING_RULES`).
+    """
+
+    crs: str
+    transform: tuple[float, ...]
+    rows: int
+    columns: int
+    rule: str
+
+    @contextmanager
+    def opened(self, src: Any, nodata: float | None) -> Iterator[Any]:
+        """`src` seen through this warp: float64 values with NaN where nothing valid falls."""
+        from affine import Affine
+        from rasterio.enums import Resampling
+        from rasterio.vrt import WarpedVRT
+
+        extra = {} if nodata is None else {"src_nodata": nodata}
+        with WarpedVRT(src, crs=self.crs, transform=Affine(*self.transform), height=self.rows,
+                       width=self.columns, resampling=Resampling[self.rule], nodata=np.nan,
+                       dtype="float64", **extra) as vrt:  # fmt: skip
+            yield vrt
+
+
 class RasterWindows:
     """Array-like ``(bands, rows, columns)`` view of a raster that reads on demand.
 
@@ -243,6 +289,9 @@ class RasterWindows:
         See `clean_values`.
     use_mask : bool
         Also treat cells outside the raster's own validity mask as inactive.
+    warp : Warp, optional
+        Read the raster resampled onto this grid; `shape` is then the
+        target's, and the values float64 (the source's nodata is NaN).
     """
 
     def __init__(
@@ -253,19 +302,22 @@ class RasterWindows:
         nodata: float | None,
         scale: str,
         use_mask: bool,
+        warp: Warp | None = None,
     ) -> None:
         self.path = path
         self.shape = shape
-        self.stored = np.dtype(stored)
+        self.stored = np.dtype(np.float64 if warp is not None else stored)
         self.dtype = value_dtype(self.stored, scale)
         self.ndim = 3
         self.nodata = nodata
         self.scale = scale
         self.use_mask = use_mask
+        self.warp = warp
 
     def __dask_tokenize__(self) -> tuple:
         stat = os.stat(self.path)
-        return (self.path, stat.st_size, stat.st_mtime_ns, self.nodata, self.scale, self.use_mask)
+        return (self.path, stat.st_size, stat.st_mtime_ns, self.nodata, self.scale, self.use_mask,
+                self.warp)  # fmt: skip
 
     def __getitem__(self, key: tuple[slice, slice, slice]) -> np.ndarray:
         from rasterio.windows import Window
@@ -274,6 +326,9 @@ class RasterWindows:
         indexes = list(range(bands[0] + 1, bands[1] + 1))
         window = Window(cols[0], rows[0], cols[1] - cols[0], rows[1] - rows[0])
         with open_raster(self.path) as src:
+            if self.warp is not None:
+                with self.warp.opened(src, self.nodata) as vrt:
+                    return clean_values(vrt.read(indexes, window=window), None, self.scale)
             data = src.read(indexes, window=window)
             values = clean_values(data, self.nodata, self.scale)
             if self.use_mask:
