@@ -45,6 +45,7 @@ NOT_DOCUMENTED = {
     "upscale/_checks.py: must be a fraction in [0, 1], got": _CLICK_FIRST,  # --min-active
     "upscale/grid/blocks.py: remainder must be one of": _CLICK_FIRST,
     "upscale/io/read.py: scale must be one of": _CLICK_FIRST,
+    "upscale/io/read.py: --resample must be one of": _CLICK_FIRST,
     "upscale/units.py: unknown unit": _CLICK_FIRST,
     "upscale/analysis/percentiles.py: --percentiles is nonexceedance or exceedance, got": _CLICK_FIRST,
     "upscale/methods/registry.py: unknown method": _CLICK_FIRST,

@@ -158,4 +158,4 @@ def test_without_the_option_the_refusal_names_it_in_one_line(write_tif, run_cli,
     assert code != 0
     assert err.count("\n") == 1 and err.startswith("upscale: error: --porosity ")
     assert "not on the grid of" in err
-    assert err.rstrip().endswith("resample it onto that grid with --resample nearest|average|bilinear")
+    assert err.rstrip().endswith("resample it onto that grid with --resample average (or nearest, bilinear)")

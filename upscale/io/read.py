@@ -327,7 +327,7 @@ def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None) -> d
         return None
     where = f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
     if rule is None:
-        raise InputError(f"{where}; resample it onto that grid with `resample=nearest|average|bilinear`")
+        raise InputError(f"{where}; resample it onto that grid with `resample=average` (or nearest, bilinear)")
     if other.shape[0] != main.shape[0]:
         raise InputError(f"{where}; resampling changes rows and columns, not the number of bands")
     for layout in (main, other):
