@@ -159,3 +159,19 @@ def test_without_the_option_the_refusal_names_it_in_one_line(write_tif, run_cli,
     assert err.count("\n") == 1 and err.startswith("upscale: error: --porosity ")
     assert "not on the grid of" in err
     assert err.rstrip().endswith("resample it onto that grid with --resample average (or nearest, bilinear)")
+
+
+def test_check_reads_a_resampled_ky_again(tmp_path, write_tif, run_cli, k2d):
+    # `upscale check` reads the run's inputs again with its recorded `read`, `resample` included:
+    # its flow check on the fine grid is the run's, number for number
+    main = write_tif("k.tif", k2d, cell_size=10.0)
+    ky_fine = write_tif("ky_5m.tif", np.kron(k2d, np.ones((2, 2))) * 0.5, cell_size=5.0)
+    out = tmp_path / "out"
+    code, _, err = run_cli("-q", "run", main, "--ky", ky_fine, "--resample", "average", "--block", "4x4",
+                           "--method", "arithmetic", "--out", out)  # fmt: skip
+    assert code == 0, err
+    ran = json.loads((out / "summary.json").read_text())["check"]
+    code, _, err = run_cli("-q", "check", out)
+    assert code == 0, err
+    checked = json.loads((out / "summary.json").read_text())["check"]
+    assert checked["y"]["fine"]["k_eff"] == ran["y"]["fine"]["k_eff"]
