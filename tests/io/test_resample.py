@@ -150,7 +150,7 @@ def test_summary_records_the_resampled_raster(tmp_path, write_tif, run_cli, k2d,
     assert summary["read"]["resample"] == "average"
 
 
-def test_without_the_option_the_refusal_names_it_in_one_line(write_tif, run_cli, k2d, porosity_fine, tmp_path):
+def test_without_the_option_the_refusal_names_the_option(tmp_path, write_tif, run_cli, k2d, porosity_fine):
     main = write_tif("k.tif", k2d, cell_size=10.0)
     fine = write_tif("phi_5m.tif", porosity_fine, cell_size=5.0)
     code, _, err = run_cli("run", main, "--porosity", fine, "--block", "4x4", "--method", "arithmetic",

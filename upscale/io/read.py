@@ -327,15 +327,17 @@ def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None) -> d
         return None
     where = f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
     if rule is None:
-        raise InputError(f"{where}; resample it onto that grid with `resample=average` (or nearest, bilinear)")
+        raise InputError(f"{where}; resample it onto that grid with `resample=average` "
+                         "(or nearest, bilinear)")  # fmt: skip
     if other.shape[0] != main.shape[0]:
         raise InputError(f"{where}; resampling changes rows and columns, not the number of bands")
     for layout in (main, other):
         if layout.transform is None or layout.crs is None:
             raise InputError(f"{where}; {layout.path} has no georeference (geotransform and CRS), so it "
                              "cannot be resampled")  # fmt: skip
+    shape = dict(zip(("layers", "rows", "columns"), other.shape))
     return {"rule": rule, "from": {"crs": other.crs.to_string(), "transform": list(other.transform)[:6],
-                                   "shape": dict(zip(("layers", "rows", "columns"), other.shape))}}  # fmt: skip
+                                   "shape": shape}}  # fmt: skip
 
 
 def _warp(main: _Layout, rule: str) -> Warp:
