@@ -108,10 +108,8 @@ def test_a_raster_in_another_crs_is_reprojected(write_tif, k2d):
     # a uniform porosity in the neighbouring UTM zone covering the main grid with a margin: it is
     # reprojected (GDAL's warper), so every cell has that value; beyond its extent cells are nodata
     main = write_tif("k.tif", k2d, cell_size=10.0)
-    west, south, east, north = rasterio.warp.transform_bounds(
-        "EPSG:32633", "EPSG:32634", ORIGIN[0], ORIGIN[1] - 10.0 * SHAPE[0], ORIGIN[0] + 10.0 * SHAPE[1],
-        ORIGIN[1],
-    )
+    bounds = (ORIGIN[0], ORIGIN[1] - 10.0 * SHAPE[0], ORIGIN[0] + 10.0 * SHAPE[1], ORIGIN[1])
+    west, south, east, north = rasterio.warp.transform_bounds("EPSG:32633", "EPSG:32634", *bounds)
     columns, rows = int((east - west) // 7) + 4, int((north - south) // 7) + 4
     other = write_tif("phi_zone34.tif", np.full((rows, columns), 0.25), crs="EPSG:32634",
                       transform=north_up(7.0, (west - 14.0, north + 14.0)))  # fmt: skip
