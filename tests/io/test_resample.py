@@ -104,6 +104,20 @@ def test_nodata_is_left_out_and_stays_inactive(write_tif, k2d, porosity_fine):
     assert np.isnan(np.asarray(nearest.porosity)[0, 2, 3])
 
 
+def test_cells_outside_the_rasters_own_mask_are_left_out(write_tif, k2d, porosity_fine):
+    # an internal validity mask instead of a nodata value: masked cells (holding 0.9 here) are
+    # left out of the average like nodata, and a block wholly masked is inactive
+    phi, mask = porosity_fine.copy(), np.full(porosity_fine.shape, 255, np.uint8)
+    phi[0:2, 0:2] = phi[4, 4] = 0.9
+    mask[0:2, 0:2] = mask[4, 4] = 0
+    main = write_tif("k.tif", k2d, cell_size=10.0)
+    fine = write_tif("phi_masked.tif", phi, cell_size=5.0, mask=mask)
+    got = np.asarray(upscale.read_field(main, porosity=fine, resample="average").porosity)[0]
+    expected = block_mean(np.where(mask == 0, np.nan, phi))
+    assert np.isnan(got[0, 0]) and np.isnan(got).sum() == 1
+    np.testing.assert_allclose(got, expected, rtol=0, atol=1e-12)
+
+
 def test_a_raster_in_another_crs_is_reprojected(write_tif, k2d):
     # a uniform porosity in the neighbouring UTM zone covering the main grid with a margin: it is
     # reprojected (GDAL's warper), so every cell has that value; beyond its extent cells are nodata
