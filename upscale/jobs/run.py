@@ -39,7 +39,7 @@ from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import find_method
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
-from ..units import unit_factors
+from ..units import unit_factor, unit_factors
 
 log = logging.getLogger(__name__)
 
@@ -65,6 +65,9 @@ class Settings:
         The check's solver settings.
     units : {'si', 'field'}
         Units of the coarse-grid package.
+    out_unit : str or None
+        Unit of the coarse values, tables and figures, of the input's kind
+        (`upscale.units.unit_factor`); None: the input's unit.
     plot, report : bool
         Whether to write the figures and the HTML report.
     layer : int or None
@@ -92,6 +95,7 @@ class Settings:
     tolerance: float = 1e-10
     check_limit: int = 20_000_000
     units: str = "si"
+    out_unit: str | None = None
     plot: bool = False
     report: bool = False
     layer: int | None = None
@@ -102,7 +106,10 @@ class Settings:
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
-        unit_factors(str(self.read.get("unit", "mD")), self.units)  # refuses before any work
+        unit = str(self.read.get("unit", "mD"))
+        if self.out_unit is not None:
+            unit_factor(unit, self.out_unit)  # refuses before any work
+        unit_factors(self.out_unit or unit, self.units)
         refuse_convention(self.percentiles)
 
     def require_libraries(self) -> None:
@@ -157,6 +164,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     (block,), (layers,), fine = with_layers(path, [settings.block], fine, chunk_bytes=settings.chunk_bytes,
                                             read=settings.read)  # fmt: skip
+    fine = fine.in_unit(settings.out_unit or fine.unit)
     settings = replace(settings, block=block)
     wells = _wells(settings, fine)
     fits_flows = find_method(settings.method).global_flows
