@@ -1,0 +1,95 @@
+"""``--out-unit``: coarse values, package and tables in another unit of the input's kind (issue 20).
+
+References: 1 D = 9.869233e-13 m² (the darcy's definition, 1 cm³/s of a 1 cP
+fluid through 1 cm² under 1 atm/cm; value from memory, as in NIST SP 811's
+table of conversion factors); 1 mD = 1e-3 D (SI prefix); 1 day = 86 400 s
+exactly (common practice).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import rasterio
+
+from upscale.errors import InputError
+from upscale.units import unit_factor
+
+DARCY_M2 = 9.869233e-13  # from memory (NIST SP 811), rounded to 7 digits
+
+
+def test_factors_within_a_kind():
+    assert unit_factor("mD", "m2") == pytest.approx(1e-3 * DARCY_M2, rel=1e-7)
+    assert unit_factor("D", "m2") == pytest.approx(DARCY_M2, rel=1e-7)
+    assert unit_factor("mD", "D") == pytest.approx(1e-3, rel=1e-15)
+    assert unit_factor("m/s", "m/day") == 86_400.0
+    assert unit_factor("m/day", "m/s") * 86_400.0 == pytest.approx(1.0, rel=1e-15)
+    assert unit_factor("mD", "mD") == 1.0
+
+
+@pytest.mark.parametrize(("unit", "to"), [("mD", "m/s"), ("m/day", "D")])
+def test_factor_across_kinds_is_refused(unit, to):
+    with pytest.raises(InputError, match="density and viscosity"):
+        unit_factor(unit, to)
+
+
+def _field(write_tif, rng):
+    """A 32 x 32 lognormal map (geometric mean 100 mD), 10 m cells."""
+    return write_tif("k.tif", np.exp(rng.normal(np.log(100.0), 1.0, (32, 32))))
+
+
+def _run(run_cli, path, out, *extra):
+    code, stdout, err = run_cli("run", path, "--block", "4x4", "--method", "flow", *extra, "--out", out)
+    assert (code, err) == (0, "")
+    return stdout
+
+
+def test_run_in_m2_is_the_md_run_times_the_factor(run_cli, write_tif, tmp_path):
+    path = _field(write_tif, np.random.default_rng(20))
+    _run(run_cli, path, tmp_path / "mD")
+    stdout = _run(run_cli, path, tmp_path / "m2", "--out-unit", "m2")
+    factor = 1e-3 * DARCY_M2
+    for name in ("kx", "ky"):
+        with rasterio.open(tmp_path / "mD" / f"{name}.tif") as a, rasterio.open(tmp_path / "m2" / f"{name}.tif") as b:
+            np.testing.assert_allclose(b.read(), a.read() * factor, rtol=1e-6)
+            assert (a.tags()["unit"], b.tags()["unit"]) == ("mD", "m2")
+            assert b.units == ("m2",)
+    summaries = [json.loads((tmp_path / u / "summary.json").read_text()) for u in ("mD", "m2")]
+    assert summaries[1]["unit"] == "m2"
+    assert summaries[1]["read"]["unit"] == "mD"  # the input is read as it was given
+    for axis in ("x", "y"):  # the check's errors are ratios: unchanged
+        assert summaries[1]["check"][axis]["rel_error"] == pytest.approx(summaries[0]["check"][axis]["rel_error"],
+                                                                     rel=1e-6, abs=1e-12)  # fmt: skip
+    manifest = json.loads((tmp_path / "m2" / "manifest.json").read_text())
+    assert manifest["units"]["input_unit"] == "m2"
+    assert "(kx, ky in m2)" in stdout
+
+
+def test_check_again_reads_the_fine_field_in_the_out_unit(run_cli, write_tif, tmp_path):
+    path = _field(write_tif, np.random.default_rng(21))
+    _run(run_cli, path, tmp_path / "D", "--out-unit", "D")
+    before = json.loads((tmp_path / "D" / "summary.json").read_text())["check"]
+    code, _, err = run_cli("check", tmp_path / "D")
+    assert (code, err) == (0, "")
+    after = json.loads((tmp_path / "D" / "summary.json").read_text())["check"]
+    for axis in ("x", "y"):
+        assert after[axis]["rel_error"] == pytest.approx(before[axis]["rel_error"], rel=1e-6, abs=1e-12)
+
+
+def test_m_per_day_out_of_m_per_s_input(run_cli, write_tif, tmp_path):
+    path = write_tif("K.tif", np.full((8, 8), 1e-5))
+    _run(run_cli, path, tmp_path / "out", "--unit", "m/s", "--out-unit", "m/day")
+    with rasterio.open(tmp_path / "out" / "kx.tif") as src:
+        np.testing.assert_allclose(src.read(), 1e-5 * 86_400.0, rtol=1e-14)
+
+
+def test_cross_kind_is_refused_in_one_line(run_cli, write_tif, tmp_path):
+    path = write_tif("k.tif", np.full((8, 8), 100.0))
+    code, stdout, err = run_cli("run", path, "--block", "4x4", "--method", "arithmetic", "--out-unit", "m/s",
+                                "--out", tmp_path / "out")  # fmt: skip
+    assert code != 0 and stdout == ""
+    assert err.count("\n") == 1 and err.startswith("upscale: error: --out-unit m/s is a hydraulic conductivity")
+    assert "density and viscosity" in err
+    assert not (tmp_path / "out").exists()
