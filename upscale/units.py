@@ -87,7 +87,7 @@ def unit_factor(unit: str, to: str) -> float:
     kind, factor = UNITS[check_unit(unit)]
     other, to_factor = UNITS[check_unit(to)]
     if kind != other:
-        raise InputError(f"--out-unit {to} is a {QUANTITIES[other]} and the input's unit {unit} a "
+        raise InputError(f"`out_unit={to}` is a {QUANTITIES[other]} and the input's unit {unit} a "
                          f"{QUANTITIES[kind]}; "
                          "converting between them needs the fluid's density and viscosity, which "
                          "upscale does not take — give a unit of the input's kind "

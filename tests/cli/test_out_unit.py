@@ -52,7 +52,8 @@ def test_run_in_m2_is_the_md_run_times_the_factor(run_cli, write_tif, tmp_path):
     stdout = _run(run_cli, path, tmp_path / "m2", "--out-unit", "m2")
     factor = 1e-3 * DARCY_M2
     for name in ("kx", "ky"):
-        with rasterio.open(tmp_path / "mD" / f"{name}.tif") as a, rasterio.open(tmp_path / "m2" / f"{name}.tif") as b:
+        with (rasterio.open(tmp_path / "mD" / f"{name}.tif") as a,
+              rasterio.open(tmp_path / "m2" / f"{name}.tif") as b):
             np.testing.assert_allclose(b.read(), a.read() * factor, rtol=1e-6)
             assert (a.tags()["unit"], b.tags()["unit"]) == ("mD", "m2")
             assert b.units == ("m2",)
@@ -60,8 +61,8 @@ def test_run_in_m2_is_the_md_run_times_the_factor(run_cli, write_tif, tmp_path):
     assert summaries[1]["unit"] == "m2"
     assert summaries[1]["read"]["unit"] == "mD"  # the input is read as it was given
     for axis in ("x", "y"):  # the check's errors are ratios: unchanged
-        assert summaries[1]["check"][axis]["rel_error"] == pytest.approx(summaries[0]["check"][axis]["rel_error"],
-                                                                     rel=1e-6, abs=1e-12)  # fmt: skip
+        before, after = (s["check"][axis]["rel_error"] for s in summaries)
+        assert after == pytest.approx(before, rel=1e-6, abs=1e-12)
     manifest = json.loads((tmp_path / "m2" / "manifest.json").read_text())
     assert manifest["units"]["input_unit"] == "m2"
     assert "(kx, ky in m2)" in stdout
@@ -90,6 +91,7 @@ def test_cross_kind_is_refused_in_one_line(run_cli, write_tif, tmp_path):
     code, stdout, err = run_cli("run", path, "--block", "4x4", "--method", "arithmetic", "--out-unit", "m/s",
                                 "--out", tmp_path / "out")  # fmt: skip
     assert code != 0 and stdout == ""
-    assert err.count("\n") == 1 and err.startswith("upscale: error: --out-unit m/s is a hydraulic conductivity")
+    assert err.count("\n") == 1
+    assert err.startswith("upscale: error: --out-unit m/s is a hydraulic conductivity")
     assert "density and viscosity" in err
     assert not (tmp_path / "out").exists()
