@@ -95,6 +95,39 @@ def unit_factor(unit: str, to: str) -> float:
     return 1.0 if unit == to else factor / to_factor
 
 
+def quantity_name(unit: str) -> str:
+    """The quantity measured in `unit`, for labels: ``permeability`` or ``hydraulic conductivity``.
+
+    Examples
+    --------
+    >>> quantity_name("mD"), quantity_name("m/day")
+    ('permeability', 'hydraulic conductivity')
+    """
+    return QUANTITIES[UNITS[check_unit(unit)][0]]
+
+
+def symbol(unit: str) -> str:
+    """The symbol of the quantity measured in `unit`: ``k`` (permeability) or ``K`` (conductivity).
+
+    Examples
+    --------
+    >>> symbol("m2"), symbol("m/s")
+    ('k', 'K')
+    """
+    return "K" if UNITS[check_unit(unit)][0] == "conductivity" else "k"
+
+
+def property_label(name: str, unit: str) -> str:
+    """`name` (``kx``, ``ky``, ``kz`` or another property) as labels show it for values in `unit`.
+
+    Examples
+    --------
+    >>> property_label("kx", "mD"), property_label("kz", "m/day"), property_label("porosity", "m/s")
+    ('kx', 'Kz', 'porosity')
+    """
+    return symbol(unit) + name[1:] if name in ("kx", "ky", "kz") else name
+
+
 def to_m2(value: float, unit: str) -> float:
     """Convert a permeability or conductivity to intrinsic permeability in m².
 
