@@ -9,6 +9,7 @@ exactly (common practice).
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -95,3 +96,35 @@ def test_cross_kind_is_refused_in_one_line(run_cli, write_tif, tmp_path):
     assert err.startswith("upscale: error: --out-unit m/s is a hydraulic conductivity")
     assert "density and viscosity" in err
     assert not (tmp_path / "out").exists()
+
+
+def _svg_texts(path):
+    """The texts of a matplotlib SVG (it writes each text's string in a comment beside its glyphs)."""
+    return set(re.findall(r"<!-- (.*?) -->", path.read_text()))
+
+
+def test_conductivity_labels_in_tables_figures_and_page(run_cli, write_tif, tmp_path):
+    """A conductivity is named K / hydraulic conductivity where a permeability is named k / permeability."""
+    values = np.exp(np.random.default_rng(22).normal(np.log(1e-5), 1.0, (32, 32)))
+    path = write_tif("K.tif", values)
+    out = tmp_path / "out"
+    stdout = _run(run_cli, path, out, "--unit", "m/s", "--out-unit", "m/day", "--plot", "--report")
+    assert "(Kx, Ky in m/day)" in stdout
+    lines = stdout.splitlines()
+    assert {"Kx", "Ky"} <= {line.split()[0] for line in lines if line.strip()}
+    assert any(line.split()[:3] == ["flow", "K", "fine"] for line in lines)
+    page = (out / "report.html").read_text()
+    assert "Hydraulic conductivity unit: m/day" in page and "Kx mean (m/day)" in page
+    figures = out / "figures"
+    assert "Kx (m/day, log scale)" in _svg_texts(figures / "maps.svg")
+    assert {"effective K along x (m/day)",
+            "Coarse effective hydraulic conductivity against the fine one and the bounds"} <= _svg_texts(
+        figures / "bounds.svg")  # fmt: skip
+    assert "Kx (m/day)" in _svg_texts(figures / "histograms.svg")
+
+
+def test_permeability_labels_unchanged(run_cli, write_tif, tmp_path):
+    path = write_tif("k.tif", np.full((8, 8), 100.0))
+    stdout = _run(run_cli, path, tmp_path / "out", "--out-unit", "D")
+    assert "(kx, ky in D)" in stdout
+    assert any(line.split()[:3] == ["flow", "k", "fine"] for line in stdout.splitlines())
