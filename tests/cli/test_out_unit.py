@@ -66,6 +66,10 @@ def test_run_in_m2_is_the_md_run_times_the_factor(run_cli, write_tif, tmp_path):
         assert after == pytest.approx(before, rel=1e-6, abs=1e-12)
     manifest = json.loads((tmp_path / "m2" / "manifest.json").read_text())
     assert manifest["units"]["input_unit"] == "m2"
+    # the package keeps its own units (--units si: m², m³) whatever --out-unit says
+    tables = [np.genfromtxt(tmp_path / u / "cells.csv", delimiter=",", names=True) for u in ("mD", "m2")]
+    for name in ("kx", "ky"):
+        np.testing.assert_allclose(tables[1][name], tables[0][name], rtol=1e-12)
     assert "(kx, ky in m2)" in stdout
 
 
