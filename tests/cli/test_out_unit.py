@@ -132,3 +132,18 @@ def test_permeability_labels_unchanged(run_cli, write_tif, tmp_path):
     stdout = _run(run_cli, path, tmp_path / "out", "--out-unit", "D")
     assert "(kx, ky in D)" in stdout
     assert any(line.split()[:3] == ["flow", "k", "fine"] for line in stdout.splitlines())
+
+
+def test_ensemble_in_darcy_is_the_md_ensemble_over_1000(run_cli, write_tif, tmp_path):
+    rng = np.random.default_rng(23)
+    paths = [write_tif(f"r{i}.tif", np.exp(rng.normal(np.log(100.0), 1.0, (16, 16)))) for i in (1, 2)]
+    code, _, err = run_cli("run", *paths, "--block", "4x4", "--method", "flow", "--out", tmp_path / "mD")
+    assert (code, err) == (0, "")
+    code, stdout, err = run_cli("run", *paths, "--block", "4x4", "--method", "flow", "--out-unit", "D",
+                                "--out", tmp_path / "D")  # fmt: skip
+    assert (code, err) == (0, "")
+    assert "(k in D, errors in %)" in stdout
+    records = [json.loads((tmp_path / u / "ensemble.json").read_text())["realizations"] for u in ("mD", "D")]
+    for md, darcy in zip(*records):
+        for axis in ("x", "y"):
+            assert darcy["k_coarse"][axis] == pytest.approx(md["k_coarse"][axis] * 1e-3, rel=1e-9)

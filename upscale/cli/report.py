@@ -185,8 +185,11 @@ def _print_windows(check: FlowCheck) -> None:
                        f"median {100 * s.median:+.2f} %, max {100 * s.max:+.2f} %")  # fmt: skip
 
 
-def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
-    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above."""
+def print_ensemble(ensemble: EnsembleSummary, out: str, unit: str | None = None) -> None:
+    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above.
+
+    `unit` is the run's ``--out-unit``, named under the table; None: the input's unit.
+    """
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
         for axis, s in ensemble.statistics[quantity].items():
@@ -200,7 +203,7 @@ def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
         click.echo(f"percentiles: {ensemble.percentiles}")
         columns = [short_label(q, ensemble.convention) for q in PERCENTILES]
         click.echo(table(["quantity", *columns, "n"], rows))
-        click.echo("(k in the input's unit, errors in %)")
+        click.echo(f"(k in {unit}, errors in %)" if unit else "(k in the input's unit, errors in %)")
     if ensemble.representative is not None:
         click.echo(f"representative realization: {ensemble.representative} (its fine k_eff is nearest the "
                    "median over the realizations)")  # fmt: skip

@@ -127,4 +127,4 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         ensemble = run_ensemble(paths, settings, out, overwrite=overwrite, parallel=count,
                                 say=say)  # fmt: skip
     if not quiet:
-        print_ensemble(ensemble, out)
+        print_ensemble(ensemble, out, out_unit)
