@@ -147,3 +147,27 @@ def test_ensemble_in_darcy_is_the_md_ensemble_over_1000(run_cli, write_tif, tmp_
     for md, darcy in zip(*records):
         for axis in ("x", "y"):
             assert darcy["k_coarse"][axis] == pytest.approx(md["k_coarse"][axis] * 1e-3, rel=1e-9)
+
+
+def test_compare_in_m_per_day_of_a_m_per_s_input(run_cli, write_tif, tmp_path):
+    values = np.exp(np.random.default_rng(24).normal(np.log(1e-5), 1.0, (16, 16)))
+    path = write_tif("K.tif", values)
+    common = ("compare", path, "--block", "4x4", "--methods", "arithmetic,geometric", "--unit", "m/s")
+    code, _, err = run_cli(*common, "--out", tmp_path / "s")
+    assert (code, err) == (0, "")
+    code, stdout, err = run_cli(*common, "--out-unit", "m/day", "--out", tmp_path / "day")
+    assert (code, err) == (0, "")
+    assert "Kx mean" in stdout and "(K in m/day;" in stdout
+    records = [json.loads((tmp_path / u / "compare.json").read_text()) for u in ("s", "day")]
+    assert (records[0]["unit"], records[1]["unit"]) == ("m/s", "m/day")
+    assert records[1]["ranking"] == records[0]["ranking"]
+    for per_s, per_day in zip(records[0]["methods"], records[1]["methods"]):
+        assert per_day["coarse_mean"]["kx"] == pytest.approx(per_s["coarse_mean"]["kx"] * 86_400.0, rel=1e-12)
+
+
+def test_compare_refuses_another_kind(run_cli, write_tif, tmp_path):
+    path = write_tif("k.tif", np.full((8, 8), 100.0))
+    code, stdout, err = run_cli("compare", path, "--block", "4x4", "--out-unit", "m/day",
+                                "--out", tmp_path / "c")  # fmt: skip
+    assert code != 0 and stdout == "" and err.count("\n") == 1
+    assert err.startswith("upscale: error: --out-unit m/day is a hydraulic conductivity")

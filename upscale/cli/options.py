@@ -263,7 +263,7 @@ def well_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
-#: ``--out-unit``: the unit of the coarse values, tables and figures (run).
+#: ``--out-unit``: the unit of the coarse values, tables and figures (run, compare).
 out_unit_option = click.option(
     "--out-unit", type=click.Choice(list(UNITS)), default=None,
     help="Unit of the coarse values, transmissibilities ((unit)·m), tables and figures, of the same kind "

@@ -106,10 +106,8 @@ class Settings:
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
-        unit = str(self.read.get("unit", "mD"))
-        if self.out_unit is not None:
-            unit_factor(unit, self.out_unit)  # refuses before any work
-        unit_factors(self.out_unit or unit, self.units)
+        refuse_unit(self.read, self.out_unit)  # before any work
+        unit_factors(self.out_unit or str(self.read.get("unit", "mD")), self.units)
         refuse_convention(self.percentiles)
 
     def require_libraries(self) -> None:
@@ -367,6 +365,15 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                        images=made.images if made and settings.plot else None,
                        page=made.page if made and settings.report else None)  # fmt: skip
     return ensemble
+
+
+def refuse_unit(read: dict[str, Any], out_unit: str | None) -> None:
+    """Refuse, before any work, an `out_unit` of the other kind than the unit in `read`.
+
+    See `upscale.units.unit_factor`.
+    """
+    if out_unit is not None:
+        unit_factor(str(read.get("unit", "mD")), out_unit)
 
 
 def refuse_layer(layer: int | None, fine: Field) -> None:
