@@ -171,3 +171,18 @@ def test_compare_refuses_another_kind(run_cli, write_tif, tmp_path):
                                 "--out", tmp_path / "c")  # fmt: skip
     assert code != 0 and stdout == "" and err.count("\n") == 1
     assert err.startswith("upscale: error: --out-unit m/day is a hydraulic conductivity")
+
+
+def test_compare_ensemble_records_the_out_unit(run_cli, write_tif, tmp_path):
+    rng = np.random.default_rng(25)
+    paths = [write_tif(f"r{i}.tif", np.exp(rng.normal(np.log(100.0), 1.0, (16, 16)))) for i in (1, 2)]
+    code, _, err = run_cli("compare", *paths, "--block", "4x4", "--methods", "arithmetic,geometric",
+                           "--out-unit", "D", "--out", tmp_path / "c")  # fmt: skip
+    assert (code, err) == (0, "")
+    for name, path in zip(("r1", "r2"), paths):
+        record = json.loads((tmp_path / "c" / name / "compare.json").read_text())
+        with rasterio.open(path) as src:
+            mean = np.mean(src.read(1).astype(float)) * 1e-3  # the arithmetic mean of 4x4 blocks, in D
+        arithmetic = next(m for m in record["methods"] if m["name"] == "arithmetic")
+        assert record["unit"] == "D"
+        assert arithmetic["coarse_mean"]["kx"] == pytest.approx(mean, rel=1e-9)
