@@ -23,7 +23,7 @@ import numpy as np
 from ._checks import check_positive_sizes
 from .display import Row, as_html, as_text, cells, crs_name, sizes
 from .errors import InputError
-from .units import check_unit
+from .units import check_unit, unit_factor
 
 if TYPE_CHECKING:
     import xarray
@@ -282,6 +282,34 @@ class Field:
             unit=self.unit,
             sources=self.sources,
         )
+
+    def in_unit(self, unit: str) -> Field:
+        """The field with its permeabilities converted to `unit`, of the same kind as `self.unit`.
+
+        Every average is linear-homogeneous, so upscaling the converted field
+        gives the coarse values (and transmissibilities, in `unit` · m) in
+        `unit`. Arrays shared between properties stay shared; dask arrays
+        stay lazy; porosity is unchanged.
+
+        Raises
+        ------
+        InputError
+            If `unit` is a hydraulic conductivity and `self.unit` a
+            permeability, or the other way round (`upscale.units.unit_factor`).
+
+        Examples
+        --------
+        >>> f = Field.from_arrays(np.full((2, 2), 1000.0), cell_size=(1.0, 1.0)).in_unit("D")
+        >>> f.unit, float(f.kx[0, 0, 0]), f.ky is f.kx
+        ('D', 1.0, True)
+        """
+        factor = unit_factor(self.unit, unit)
+        if factor == 1.0:
+            return self
+        permeabilities = {"kx": self.kx, "ky": self.ky, "kz": self.kz}
+        scaled = {id(a): a * factor for a in permeabilities.values() if a is not None}
+        converted = {name: None if a is None else scaled[id(a)] for name, a in permeabilities.items()}
+        return Field(**converted, porosity=self.porosity, grid=self.grid, unit=unit, sources=self.sources)
 
     @classmethod
     def from_arrays(

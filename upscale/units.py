@@ -48,6 +48,9 @@ UNITS: Final[dict[str, tuple[str, float]]] = {
     "m/day": ("conductivity", 1.0 / _SECONDS_PER_DAY),
 }
 
+#: Kind of unit -> the quantity's name in messages and labels.
+QUANTITIES: Final = {"permeability": "permeability", "conductivity": "hydraulic conductivity"}
+
 
 def check_unit(unit: str) -> str:
     """Return `unit` if it is known, else raise `InputError` listing the known ones.
@@ -60,6 +63,69 @@ def check_unit(unit: str) -> str:
     if unit not in UNITS:
         raise InputError(f"unknown unit {unit!r}; use one of {', '.join(UNITS)}")
     return unit
+
+
+def unit_factor(unit: str, to: str) -> float:
+    """The factor that turns values in `unit` into values in `to`, both of one kind.
+
+    Permeability (mD, D, m2) and hydraulic conductivity (m/s, m/day) are not
+    converted into each other: that needs the fluid's density and viscosity
+    (``K = k ρ g / μ``), which the tool does not take.
+
+    Raises
+    ------
+    InputError
+        If `to` is unknown or of the other kind.
+
+    Examples
+    --------
+    >>> unit_factor("m/day", "m/s") * 86_400
+    1.0
+    >>> round(unit_factor("D", "mD"), 9)
+    1000.0
+    """
+    kind, factor = UNITS[check_unit(unit)]
+    other, to_factor = UNITS[check_unit(to)]
+    if kind != other:
+        raise InputError(f"`out_unit={to}` is a {QUANTITIES[other]} and the input's unit {unit} a "
+                         f"{QUANTITIES[kind]}; "
+                         "converting between them needs the fluid's density and viscosity, which "
+                         "upscale does not take — give a unit of the input's kind "
+                         f"({', '.join(u for u, (k, _) in UNITS.items() if k == kind)})")  # fmt: skip
+    return 1.0 if unit == to else factor / to_factor
+
+
+def quantity_name(unit: str) -> str:
+    """The quantity measured in `unit`, for labels: ``permeability`` or ``hydraulic conductivity``.
+
+    Examples
+    --------
+    >>> quantity_name("mD"), quantity_name("m/day")
+    ('permeability', 'hydraulic conductivity')
+    """
+    return QUANTITIES[UNITS[check_unit(unit)][0]]
+
+
+def symbol(unit: str) -> str:
+    """The symbol of the quantity measured in `unit`: ``k`` (permeability) or ``K`` (conductivity).
+
+    Examples
+    --------
+    >>> symbol("m2"), symbol("m/s")
+    ('k', 'K')
+    """
+    return "K" if UNITS[check_unit(unit)][0] == "conductivity" else "k"
+
+
+def property_label(name: str, unit: str) -> str:
+    """`name` (``kx``, ``ky``, ``kz`` or another property) as labels show it for values in `unit`.
+
+    Examples
+    --------
+    >>> property_label("kx", "mD"), property_label("kz", "m/day"), property_label("porosity", "m/s")
+    ('kx', 'Kz', 'porosity')
+    """
+    return symbol(unit) + name[1:] if name in ("kx", "ky", "kz") else name
 
 
 def to_m2(value: float, unit: str) -> float:

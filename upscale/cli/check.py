@@ -39,6 +39,6 @@ def check(ctx: click.Context, folder: str, solver: str, tolerance: float, check_
     summary = check_folder(folder, solver=solver, tolerance=tolerance, check_limit=check_limit, wells=wells,
                            outer_pressure=outer_pressure, well_connection=well_connection)  # fmt: skip
     if not ctx.obj["quiet"]:
-        print_check(FlowCheck.from_dict(summary["check"]))
+        print_check(FlowCheck.from_dict(summary["check"]), summary.get("unit", "mD"))
         if wells is not None:
             print_well_check(summary["well_check"])

@@ -15,12 +15,14 @@ from ..field import PERMEABILITY
 from ..io.realizations import expand
 from ..jobs.compare import compare_ensemble, compare_file, run_command
 from ..report.verdict import bound_note, one_method, outside_band
+from ..units import property_label, symbol
 from .options import (
     block_options,
     block_spec,
     check_options,
     field_options,
     method_options,
+    out_unit_option,
     parse_chunk,
     parse_methods,
     percentile_option,
@@ -45,6 +47,7 @@ from .settings import global_options
 @check_options
 @well_options
 @percentile_option
+@out_unit_option
 @click.option("--out", "out", required=True, type=click.Path(file_okay=False),
               help="Output folder for compare.json, figures/ and report.html. For several fields, "
               "one such folder per field plus ranking.csv, figures/spread.*, report.html and "
@@ -55,7 +58,7 @@ from .settings import global_options
 def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exponent: float | None,
             bc: str | None, border: int | None, layer: int | None, chunk: str | None, solver: str,
             tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
-            well_connection: str, percentiles: str, out: str, overwrite: bool,
+            well_connection: str, percentiles: str, out_unit: str | None, out: str, overwrite: bool,
             **options: object) -> None:  # fmt: skip
     """Upscale FIELD with every method, check each against the fine model, and rank them.
 
@@ -90,7 +93,7 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
             "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
             "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
             "say": say, "wells": wells, "outer_pressure": outer_pressure,
-            "well_connection": well_connection}  # fmt: skip
+            "well_connection": well_connection, "out_unit": out_unit}  # fmt: skip
     if len(paths) > 1:
         content = compare_ensemble(paths, spec, chosen, out, percentiles=percentiles, **jobs)
         if not ctx.obj["quiet"]:
@@ -132,10 +135,12 @@ def _print(entries: list[Entry], axes: tuple[str, ...], unit: str) -> None:
         errors = [_percent(e.checks[f].rel_error) for f in flows]
         errors += [] if e.wells is None else [_percent(e.wells.rel_error)]
         rows.append([e.candidate.label, str(e.rank), *means, *errors, f"{e.seconds:.2f}"])
-    header = ["method", "rank", *(f"k{a} mean" for a in axes), *(f"error {f}" for f in flows),
+    names = [property_label(PERMEABILITY[a], unit) for a in axes]
+    header = ["method", "rank", *(f"{name} mean" for name in names), *(f"error {f}" for f in flows),
               *(["error wells"] if wells else []), "time s"]  # fmt: skip
     click.echo(table(header, rows))
-    click.echo(f"(k in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure drop;\n"
+    click.echo(f"({symbol(unit)} in {unit}; error = (k_coarse - k_fine) / k_fine under the same pressure "
+               "drop;\n"
                " corner: the held-out corner-to-corner flow, k = its rate over that of k = 1;\n"
                + (" wells: the error of the total well rate (docs/wells.md);\n" if wells else "")
                + " rank: by the largest |error| over the axes and the corner flow"

@@ -267,6 +267,14 @@ def well_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
+#: ``--out-unit``: the unit of the coarse values, tables and figures (run, compare).
+out_unit_option = click.option(
+    "--out-unit", type=click.Choice(list(UNITS)), default=None,
+    help="Unit of the coarse values, transmissibilities ((unit)·m), tables and figures, of the same kind "
+    "as --unit: a permeability (mD, D, m2) or a hydraulic conductivity (m/s, m/day) [default: --unit].",
+)  # fmt: skip
+
+
 def read_options(options: dict[str, Any]) -> dict[str, Any]:
     """Turn the values of `field_options` into keyword arguments of `upscale.read_field`."""
     dz = parse_numbers(options.pop("dz"), "--dz")

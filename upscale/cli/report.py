@@ -15,6 +15,7 @@ from ..export.package import PACKAGE_FILES, WELL_FILES
 from ..field import PERMEABILITY
 from ..methods.coarsen import Upscaled
 from ..report.verdict import bound_note, outside_band
+from ..units import property_label, symbol
 
 
 def number(value: float | None, spec: str = ".4g") -> str:
@@ -77,12 +78,12 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     rows = []
     for name in coarse.properties():
         f, c = stats.fine[name], stats.coarse[name]
-        rows.append([name, number(f.mean), number(f.geometric_mean), number(c.mean), number(c.geometric_mean),
-                     number(c.min), number(c.max)])  # fmt: skip
+        rows.append([property_label(name, fine.unit), number(f.mean), number(f.geometric_mean),
+                     number(c.mean), number(c.geometric_mean), number(c.min), number(c.max)])  # fmt: skip
     click.echo("")
     click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",
                       "coarse min", "coarse max"], rows))  # fmt: skip
-    click.echo(f"({', '.join(PERMEABILITY[a] for a in fine.axes)} in {fine.unit}"
+    click.echo(f"({', '.join(property_label(PERMEABILITY[a], fine.unit) for a in fine.axes)} in {fine.unit}"
                + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
     tensor = summary.tensor
     if tensor and tensor.blocks:
@@ -106,7 +107,7 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
         click.echo(f"local-global: {faces.iterations} iterations, last change {faces.last_change:.2g}"
                    + (f", {faces.kept_faces} faces kept their previous value" if faces.kept_faces else ""))
     click.echo("")
-    print_check(summary.check)
+    print_check(summary.check, fine.unit)
     if summary.well_check is not None:
         print_well_check(summary.well_check)
     click.echo("")
@@ -124,8 +125,8 @@ def _solve(solve: SolveRecord) -> str:
     return text if solve.connected else text + ", no path"
 
 
-def print_check(check: FlowCheck | None) -> None:
-    """Print the fine-versus-coarse flow check recorded in a summary."""
+def print_check(check: FlowCheck | None, unit: str = "mD") -> None:
+    """Print the fine-versus-coarse flow check recorded in a summary (k, or K for a conductivity `unit`)."""
     if check is None:
         click.echo("flow check   not run (--no-check)")
         return
@@ -140,7 +141,8 @@ def print_check(check: FlowCheck | None) -> None:
         rows.append([axis, number(c.k_fine), number(c.k_coarse), error, _solve(c.fine), _solve(c.coarse)])
     click.echo("flow check: the same pressure drop across each axis on both grids"
                + (", and corner to corner (held out)" if "corner" in check.axes else ""))  # fmt: skip
-    click.echo(table(["flow", "k fine", "k coarse", "error", "fine solve", "coarse solve"], rows))
+    k = symbol(unit)
+    click.echo(table(["flow", f"{k} fine", f"{k} coarse", "error", "fine solve", "coarse solve"], rows))
 
 
 def print_well_check(check: dict) -> None:
@@ -183,8 +185,11 @@ def _print_windows(check: FlowCheck) -> None:
                        f"median {100 * s.median:+.2f} %, max {100 * s.max:+.2f} %")  # fmt: skip
 
 
-def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
-    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above."""
+def print_ensemble(ensemble: EnsembleSummary, out: str, unit: str | None = None) -> None:
+    """Print the spread of an ensemble's check: three percentiles per quantity and axis, the reading above.
+
+    `unit` is the run's ``--out-unit``, named under the table; None: the input's unit.
+    """
     rows = []
     for quantity in ("k_fine", "k_coarse", "rel_error"):
         for axis, s in ensemble.statistics[quantity].items():
@@ -198,7 +203,7 @@ def print_ensemble(ensemble: EnsembleSummary, out: str) -> None:
         click.echo(f"percentiles: {ensemble.percentiles}")
         columns = [short_label(q, ensemble.convention) for q in PERCENTILES]
         click.echo(table(["quantity", *columns, "n"], rows))
-        click.echo("(k in the input's unit, errors in %)")
+        click.echo(f"(k in {unit}, errors in %)" if unit else "(k in the input's unit, errors in %)")
     if ensemble.representative is not None:
         click.echo(f"representative realization: {ensemble.representative} (its fine k_eff is nearest the "
                    "median over the realizations)")  # fmt: skip

@@ -17,6 +17,7 @@ from .options import (
     block_spec,
     check_options,
     field_options,
+    out_unit_option,
     parse_chunk,
     percentile_option,
     read_options,
@@ -60,6 +61,7 @@ _METHOD_HELP = ("; ".join(f"{m.name}: {command_line(m.summary)}" for m in METHOD
 @click.option("--units", type=click.Choice(["si", "field"]), default="si", show_default=True,
               help="Units of the coarse-grid package: si (m, m², m³; transmissibility k·A/L in m³) "
               "or field (ft, mD; transmissibility in mD·ft).")
+@out_unit_option
 @click.option("--workers", type=int, default=None, metavar="N",
               help="Start a local dask cluster of N worker processes for the run.")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
@@ -75,7 +77,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         bc: str | None, border: int | None, chunk: str | None,
         no_check: bool, plot: bool, html_report: bool, layer: int | None, solver: str,
         tolerance: float, check_limit: int, wells: str | None, outer_pressure: float | None,
-        well_connection: str, percentiles: str, units: str,
+        well_connection: str, percentiles: str, units: str, out_unit: str | None,
         workers: int | None, scheduler: str | None,
         out: str, overwrite: bool, **options: object) -> None:  # fmt: skip
     """Upscale FIELD to coarse blocks with one method (several FIELDs or a glob: an ensemble).
@@ -108,7 +110,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},
         read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.chunk_cells),
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
-        plot=plot, report=html_report, layer=None if layer is None else layer - 1,
+        out_unit=out_unit, plot=plot, report=html_report, layer=None if layer is None else layer - 1,
         wells=wells, outer_pressure=outer_pressure, well_connection=well_connection,
         percentiles=percentiles, command=ctx.obj["command"],
     )  # fmt: skip
@@ -125,4 +127,4 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         ensemble = run_ensemble(paths, settings, out, overwrite=overwrite, parallel=count,
                                 say=say)  # fmt: skip
     if not quiet:
-        print_ensemble(ensemble, out)
+        print_ensemble(ensemble, out, out_unit)

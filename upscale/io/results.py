@@ -61,4 +61,4 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
     # runs recorded before the zero-k rule kept their zeros
     spec = BlockSpec.from_summary(block)
     fine = fine.leading(spec.used_shape(fine.shape))
-    return summary, fine
+    return summary, fine.in_unit(summary.get("unit", fine.unit))  # the run's --out-unit

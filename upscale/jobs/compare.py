@@ -28,7 +28,7 @@ from ..io.realizations import read_realizations
 from ..io.wells import read_wells
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
-from .run import refuse_automatic_layers, refuse_layer, with_layers
+from .run import refuse_automatic_layers, refuse_layer, refuse_unit, with_layers
 
 if TYPE_CHECKING:
     from ..report.bundle import Bundle
@@ -39,8 +39,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                  tolerance: float = 1e-10, check_limit: int = 20_000_000, layer: int | None = None,
                  recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                  overwrite: bool = False, say: Say = silent, wells: str | None = None,
-                 outer_pressure: float | None = None,
-                 well_connection: str = "near-well") -> tuple[Comparison, Bundle]:  # fmt: skip
+                 outer_pressure: float | None = None, well_connection: str = "near-well",
+                 out_unit: str | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
     """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
 
     Parameters
@@ -59,6 +59,9 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
         Pressure on the four side faces in the well check; None: closed.
     well_connection : {'near-well', 'peaceman'}
         How the coarse well connection factors are set (`upscale.methods.near_well`).
+    out_unit : str, optional
+        The unit of the coarse values, tables and figures, of the input's kind
+        (`upscale.Field.in_unit`); None: the input's.
 
     Returns
     -------
@@ -71,9 +74,11 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
         A field past `check_limit` or the memory, a `layer` the model does not
         have (before any work), or no method that ran.
     """
+    refuse_unit(read, out_unit)
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.chunk_cells, **read)
     refuse_comparison(fine, check_limit, layer)
     (block,), (layers,), fine = with_layers(path, [block], fine, chunk_bytes=chunk_bytes, read=read)
+    fine = fine.in_unit(out_unit or fine.unit)
     shared = wells_of_file(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
                              report=lambda *args: say(progress_line(*args)), say=say,
@@ -150,7 +155,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                      overwrite: bool = False, say: Say = silent, wells: str | None = None,
                      outer_pressure: float | None = None, well_connection: str = "near-well",
-                     percentiles: str = "nonexceedance") -> EnsembleRanking:  # fmt: skip
+                     percentiles: str = "nonexceedance",
+                     out_unit: str | None = None) -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
@@ -181,7 +187,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         Replace the results in a folder that holds some.
     say : callable, optional
         Receives progress lines (silent by default).
-    wells, outer_pressure, well_connection : optional
+    wells, outer_pressure, well_connection, out_unit : optional
         As in `compare_file`, for every realization.
     percentiles : {'nonexceedance', 'exceedance'}
         How the percentiles are named (`upscale.analysis.percentiles`).
@@ -200,8 +206,10 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     """
     refuse_automatic_layers(block)
     refuse_convention(percentiles)
+    refuse_unit(read, out_unit)
     command = command or []
     names, fields = read_realizations(paths, chunk_bytes, block, read)
+    fields = {name: fine.in_unit(out_unit or fine.unit) for name, fine in fields.items()}
     first = next(iter(fields.values()))
     refuse_comparison(first, check_limit, layer)
     records = []

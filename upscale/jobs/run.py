@@ -39,7 +39,7 @@ from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import find_method
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
-from ..units import unit_factors
+from ..units import unit_factor, unit_factors
 
 log = logging.getLogger(__name__)
 
@@ -65,6 +65,9 @@ class Settings:
         The check's solver settings.
     units : {'si', 'field'}
         Units of the coarse-grid package.
+    out_unit : str or None
+        Unit of the coarse values, tables and figures, of the input's kind
+        (`upscale.units.unit_factor`); None: the input's unit.
     plot, report : bool
         Whether to write the figures and the HTML report.
     layer : int or None
@@ -92,6 +95,7 @@ class Settings:
     tolerance: float = 1e-10
     check_limit: int = 20_000_000
     units: str = "si"
+    out_unit: str | None = None
     plot: bool = False
     report: bool = False
     layer: int | None = None
@@ -102,7 +106,8 @@ class Settings:
     command: list[str] = field(default_factory=list)
 
     def __post_init__(self) -> None:
-        unit_factors(str(self.read.get("unit", "mD")), self.units)  # refuses before any work
+        refuse_unit(self.read, self.out_unit)  # before any work
+        unit_factors(self.out_unit or str(self.read.get("unit", "mD")), self.units)
         refuse_convention(self.percentiles)
 
     def require_libraries(self) -> None:
@@ -157,6 +162,7 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
     refuse_layer(settings.layer, fine)
     (block,), (layers,), fine = with_layers(path, [settings.block], fine, chunk_bytes=settings.chunk_bytes,
                                             read=settings.read)  # fmt: skip
+    fine = fine.in_unit(settings.out_unit or fine.unit)
     settings = replace(settings, block=block)
     wells = _wells(settings, fine)
     fits_flows = find_method(settings.method).global_flows
@@ -359,6 +365,15 @@ def run_ensemble(paths: list[str], settings: Settings, out: str | Path, *, overw
                        images=made.images if made and settings.plot else None,
                        page=made.page if made and settings.report else None)  # fmt: skip
     return ensemble
+
+
+def refuse_unit(read: dict[str, Any], out_unit: str | None) -> None:
+    """Refuse, before any work, an `out_unit` of the other kind than the unit in `read`.
+
+    See `upscale.units.unit_factor`.
+    """
+    if out_unit is not None:
+        unit_factor(str(read.get("unit", "mD")), out_unit)
 
 
 def refuse_layer(layer: int | None, fine: Field) -> None:

@@ -16,6 +16,7 @@ from ..analysis.records import check_flows, versions, working_folder
 from ..caution import CAUTION
 from ..check.axis import flow_label
 from ..field import Grid
+from ..units import quantity_name
 from .charts import error_by_block_chart
 from .ensemble_page import ensemble_page
 from .figures import Plot, build_figures, rendered
@@ -134,7 +135,7 @@ def ensemble_bundle(ensemble: EnsembleSummary, *, unit: str, title: str, command
         "warning": outside_band(name, worst, several=False, measure="median check error",
                                 where="over these realizations") if errors else None,
         "note": None,
-        "what": f"Effective permeability ({unit}) of the fine and the coarse model under the same "
+        "what": f"Effective {quantity_name(unit)} ({unit}) of the fine and the coarse model under the same "
         "pressure drop, and the check error, over the realizations.",
         "realizations": [{"name": r.name, **(r.inputs[0].to_dict() if r.inputs else
                                              {"path": "", "sha256": None})}

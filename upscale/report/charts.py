@@ -20,6 +20,7 @@ from ..analysis.plan_record import PlanRecord
 from ..check.axis import check_names, flow_label
 from ..field import AXES, PERMEABILITY
 from ..methods import averages, bounds
+from ..units import property_label, quantity_name, symbol
 from .layout import LABEL, MAX_WIDTH, legend_below, outer_labels, page_sizes, panel_grid, title
 from .style import PALETTE, style_of
 from .verdict import BAND, entry_name, no_block_warning, one_method, outside_band
@@ -183,11 +184,11 @@ def bounds_chart(comparison: Comparison, unit: str) -> Figure:
         readable_k_axis(ax)
         ax.set_xticks(range(len(ran)), [e.candidate.label if alone else str(e.rank) for e in ran])
         ax.set_xlabel("method" if alone else "method (rank)")
-        ax.set_ylabel(f"effective k along {axis} ({unit})")
+        ax.set_ylabel(f"effective {symbol(unit)} along {axis} ({unit})")
         ax.set_title(f"along {axis}")
     handles, labels = panels[0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside right center", fontsize=LABEL)
-    title(fig, "Coarse effective permeability against the fine one and the bounds")
+    title(fig, f"Coarse effective {quantity_name(unit)} against the fine one and the bounds")
     page_sizes(fig)
     return fig
 
@@ -231,12 +232,12 @@ def histograms(comparison: Comparison, unit: str) -> Figure:
                     linewidth=1.4, color=PALETTE[0], label="coarse blocks")  # fmt: skip
         ax.set_xscale("log")
         ax.set_title(entry_name(comparison, entry))
-        ax.set_xlabel(f"kx ({unit})")
+        ax.set_xlabel(f"{property_label('kx', unit)} ({unit})")
         ax.set_ylabel("fraction per bin")
     outer_labels(panels)
     handles, labels = panels[0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=LABEL, frameon=False)
-    title(fig, "Spread of kx (log scale): fine cells against coarse blocks")
+    title(fig, f"Spread of {property_label('kx', unit)} (log scale): fine cells against coarse blocks")
     page_sizes(fig)
     return fig
 

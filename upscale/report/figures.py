@@ -9,6 +9,7 @@ from matplotlib import rc_context
 from matplotlib.figure import Figure
 
 from ..analysis.compare import Comparison
+from ..units import property_label, quantity_name
 from .charts import bounds_chart, error_bars, histograms, well_rates
 from .layout import DPI
 from .maps import field_maps, mismatch_maps, pressure_maps, well_pressure_maps
@@ -47,9 +48,10 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
     alone = one_method(comparison)
     scale = (f"Values beyond the colour scale (and zero k) take its end colours, marked by the colour "
              f"bar's triangles; hatched cells have {MISSING_LABEL}.")  # fmt: skip
+    kx = property_label("kx", unit)
     plots = [
         Plot("maps", field_maps(comparison, unit, layer=layer),
-             f"Fine kx beside {'the' if alone else 'each'} method's coarse kx on one colour scale: look "
+             f"Fine {kx} beside {'the' if alone else 'each'} method's coarse {kx} on one colour scale: look "
              f"for channels and barriers that vanish or smear in the coarse map{'' if alone else 's'}. "
              + scale),
     ]  # fmt: skip
@@ -67,12 +69,13 @@ def build_figures(comparison: Comparison, unit: str, *, layer: int | None = None
              f"±{BAND:g} % band pass the fine model's flow closely, long bars mark "
              f"{'a coarse model' if alone else 'the methods'} to distrust on this field."),
         Plot("bounds", bounds_chart(comparison, unit),
-             f"Coarse effective permeability of {'the' if alone else 'each'} method against the fine "
-             "one (solid line) and the bounds: a method outside the Cardwell–Parsons bounds is suspect."),
+             f"Coarse effective {quantity_name(unit)} of {'the' if alone else 'each'} method against "
+             "the fine one (solid line) and the bounds: a method outside the Cardwell–Parsons bounds "
+             "is suspect."),
         Plot("histograms", histograms(comparison, unit),
-             "Spread of kx, one panel per method over the fine cells (grey): coarse blocks always "
-             "spread less than fine cells; a method that narrows it much more than the others "
-             "smooths away extremes that carry flow."),
+             f"Spread of {property_label('kx', unit)}, one panel per method over the fine cells (grey): "
+             "coarse blocks always spread less than fine cells; a method that narrows it much more than "
+             "the others smooths away extremes that carry flow."),
     ]  # fmt: skip
     rates = well_rates(comparison)
     if rates is not None:

@@ -19,6 +19,7 @@ from ..analysis.compare import Comparison, Entry
 from ..analysis.layers import choice_lines
 from ..check.axis import HELD_OUT, check_names, flow_label
 from ..field import PERMEABILITY
+from ..units import property_label, quantity_name
 from .figures import Plot
 from .verdict import bound_mark, bound_note, one_method, outside_band
 
@@ -171,10 +172,12 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
     """
     axes = comparison.fine.axes
     unit = _e(job["unit"])
+    quantity = quantity_name(job["unit"]).capitalize()
     ranked = not one_method(comparison)
     wells = any(e.wells is not None for e in comparison.ranked)
     and_wells = ", and the wells" if wells else ""
-    head = ["method", *(["rank"] if ranked else []), *(f"{PERMEABILITY[a]} mean ({unit})" for a in axes),
+    names = [property_label(PERMEABILITY[a], job["unit"]) for a in axes]
+    head = ["method", *(["rank"] if ranked else []), *(f"{name} mean ({unit})" for name in names),
             *(f"error {flow_label(a)}" for a in check_names(axes)), *(["error wells"] if wells else []),
             "time (s)"]  # fmt: skip
     best = comparison.best
@@ -183,7 +186,7 @@ def report_page(comparison: Comparison, images: list[tuple[Plot, bytes]], job: d
                if ranked else f"The check of {_e(comparison.entries[0].candidate.label)}")  # fmt: skip
     return document(job["title"], f"""{_verdict(comparison, ranked)}
 {inputs_html(job["inputs"])}
-<p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. Permeability unit: {unit}.</p>
+<p>Fine grid: {_e(job["grid"])}. Blocks: {_e(job["block"])}. {quantity} unit: {unit}.</p>
 {layers_html(None if comparison.layers is None else comparison.layers.summary())}<h2>{heading}</h2>
 <p>The check applies the same pressure drop across each axis to the fine and the coarse model
 (closed sides) and compares their effective permeabilities: error = (k_coarse − k_fine) / k_fine.

@@ -22,6 +22,7 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.transforms import blended_transform_factory
 
+from ..units import symbol
 from .layout import LABEL, TICK, legend_below, page_sizes, title
 from .style import MISSING_LINE, PALETTE
 
@@ -87,7 +88,7 @@ def layer_profile_figure(layers: dict[str, Any], unit: str, *, name: str = "") -
         ax.set_xlim(math.exp(low - pad), math.exp(high + pad + room))
     ax.set_xscale("log")
     ax.set_ylim(float(depth[-1]), 0.0)  # depth grows downwards
-    ax.set_xlabel(f"k ({unit}, log scale)")
+    ax.set_xlabel(f"{symbol(unit)} ({unit}, log scale)")
     ax.set_ylabel("depth below the top of the model (m)")
     _layer_numbers(ax, depth)
     title(fig, _title(name, len(rows), grouping))

@@ -23,6 +23,7 @@ from ..analysis.percentiles import PERCENTILES, label
 from ..check.wells import WellCheck
 from ..field import Grid
 from ..grid import BlockSpec
+from ..units import property_label
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
 from .flux import coarse_face_mismatch
 from .layout import LABEL, TICK, outer_labels, page_sizes, panel_grid, title
@@ -107,10 +108,11 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     for ax, entry, values in zip(axes[1:], ran, coarse_values):
         _draw(ax, on_log_scale(values), _edges(entry.result.coarse.grid, section), cmap=cmap, norm=norm)
         ax.set_title(entry_name(comparison, entry) + held)
-    fig.colorbar(mesh, ax=axes, label=f"kx ({unit}, log scale)", shrink=0.8,
+    kx = property_label("kx", unit)
+    fig.colorbar(mesh, ax=axes, label=f"{kx} ({unit}, log scale)", shrink=0.8,
                  extend=extend_of(norm, fine_values, *coarse_values))  # fmt: skip
     where_text = f"section through row {row}" if section else f"layer {layer + 1}"
-    title(fig, f"Fine and coarse kx, {where_text}" if fine.ndim == 3 else "Fine and coarse kx")
+    title(fig, f"Fine and coarse {kx}, {where_text}" if fine.ndim == 3 else f"Fine and coarse {kx}")
     _finish(fig, axes, fine.grid, section, [fine_values, *coarse_values])
     return fig
 
@@ -330,7 +332,7 @@ def block_spread_maps(spread: BlockSpread, grid: Grid, name: str, unit: str, *, 
     for ax, q, shown in zip(axes, PERCENTILES, values):
         mesh = _draw(ax, on_log_scale(shown), edges, cmap=cmap, norm=norm)
         ax.set_title(label(q, convention))
-    fig.colorbar(mesh, ax=axes[:3], label=f"{name} ({unit}, log scale)", shrink=0.8,
+    fig.colorbar(mesh, ax=axes[:3], label=f"{property_label(name, unit)} ({unit}, log scale)", shrink=0.8,
                  extend=extend_of(norm, *values))  # fmt: skip
     std = spread.std_ln[layer]
     finite = std[np.isfinite(std)]

@@ -10,6 +10,7 @@ from ..analysis.ensemble import EnsembleSummary, MethodSpread
 from ..analysis.percentiles import PERCENTILES, bar_text
 from ..analysis.records import check_flows
 from ..check.axis import flow_label, flow_order
+from ..units import quantity_name
 from .charts import error_band, readable_k_axis, warn_in
 from .layout import LABEL, MAX_WIDTH, page_sizes, title
 from .style import PALETTE
@@ -98,7 +99,7 @@ def ensemble_chart(ensemble: EnsembleSummary, unit: str) -> Figure:
         _spread_marks(right, i, errors, PALETTE[i], None)
     readable_k_axis(left)
     left.set_xticks([2 * i + 0.4 for i in range(len(axes))], [flow_label(a) for a in axes])
-    left.set_ylabel(f"effective permeability ({unit})")
+    left.set_ylabel(f"effective {quantity_name(unit)} ({unit})")
     left.set_title("k_eff of the fine and the coarse model")
     left.legend(fontsize=LABEL, loc="best")
     errors = np.array([r.rel_error.get(a) for r in rows for a in axes], dtype=float) * 100
