@@ -271,7 +271,8 @@ def test_each_realization_folder_is_its_standalone_comparison(compared, standalo
         # axis, which a realization of an ensemble does not suggest (docs/outputs.md, compare.json)
         def kept(comparison: dict) -> dict:
             methods = [{k: v for k, v in m.items() if k != "seconds"} for m in comparison["methods"]]
-            return dict({k: v for k, v in comparison.items() if k != "per_axis"}, command=None, methods=methods)
+            rest = {k: v for k, v in comparison.items() if k != "per_axis"}
+            return dict(rest, command=None, methods=methods)
 
         assert "per_axis" not in inner and "per_axis" in alone
         assert kept(inner) == kept(alone), name
