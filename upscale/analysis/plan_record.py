@@ -54,23 +54,12 @@ class BlockRecord(Leaf):
     coarse_shape: dict[str, int]
     layers: dict[str, Any] | None = None
 
+    OPTIONAL = ("layers",)
+
     @property
     def short(self) -> str:
         """The name without the grouping an automatic request chose: ``8x8xauto:3``, for tight labels."""
         return self.name.split(" (= ")[0]
-
-    def to_dict(self) -> dict[str, Any]:
-        """The block's object in ``plan.json`` (``layers`` only for automatic layers)."""
-        found = super().to_dict()
-        if self.layers is None:
-            del found["layers"]
-        return found
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> BlockRecord:
-        """A block's object of ``plan.json``."""
-        return cls(data["name"], data["x"], data["y"], data["z"], data["cells"], data["coarse_shape"],
-                   data.get("layers"))  # fmt: skip
 
 
 @dataclass(frozen=True)

@@ -71,16 +71,24 @@ def jsonable(value: Any) -> Any:
 
 
 class Leaf:
-    """A record whose fields are plain JSON values, named as the keys of its JSON object."""
+    """A record whose fields are plain JSON values, named as the keys of its JSON object.
+
+    The fields named in `OPTIONAL` are left out of the object when None, and
+    read back as None when absent (keys added after files were written).
+    """
+
+    OPTIONAL: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         """The record as the JSON object it is written as (keys in field order)."""
-        return dataclasses.asdict(self)  # type: ignore[call-overload]
+        found = dataclasses.asdict(self)  # type: ignore[call-overload]
+        return {k: v for k, v in found.items() if not (v is None and k in self.OPTIONAL)}
 
     @classmethod
     def from_dict(cls: type[_Leaf], data: dict[str, Any]) -> _Leaf:
         """The record of a JSON object written by `to_dict`."""
-        return cls(**{f.name: data[f.name] for f in dataclasses.fields(cls)})  # type: ignore[arg-type]
+        return cls(**{f.name: data.get(f.name) if f.name in cls.OPTIONAL else data[f.name]
+                      for f in dataclasses.fields(cls)})  # type: ignore[arg-type]  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -138,23 +146,13 @@ class InputRecord(Leaf):
     resampled onto the main grid.
     """
 
+    OPTIONAL = ("resampled",)
+
     role: str
     path: str
     resolved: str
     sha256: str | None
     resampled: dict[str, Any] | None = None
-
-    def to_dict(self) -> dict[str, Any]:
-        """The record as its JSON object; ``resampled`` only when the input was."""
-        data = super().to_dict()
-        if self.resampled is None:
-            del data["resampled"]
-        return data
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> InputRecord:
-        """The record of a JSON object written by `to_dict`."""
-        return cls(data["role"], data["path"], data["resolved"], data["sha256"], data.get("resampled"))
 
 
 @dataclass(frozen=True)
