@@ -43,6 +43,7 @@ LAYERS = [
     "compiling",
     "_elementary",
     "field",
+    "geometry",
     "labelled",
     "display",
     "units",

@@ -23,6 +23,7 @@ import numpy as np
 from ._checks import check_positive_sizes
 from .display import Row, as_html, as_text, cells, crs_name, sizes
 from .errors import InputError
+from .geometry import Geometry, reference_permeability
 from .units import check_unit, unit_factor
 
 if TYPE_CHECKING:
@@ -190,6 +191,11 @@ class Field:
         Unit of the permeabilities (see `upscale.units.UNITS`).
     sources : tuple of Source
         Where the arrays came from, for the run summary.
+    geometry : Geometry or None
+        Top surface and cell thicknesses of a model whose layers vary in
+        thickness (`upscale.geometry`); then ``grid.dz`` holds each layer's
+        reference thickness (`Geometry.layer_thickness`). None: every cell
+        of a layer is ``grid.dz`` thick and the top is at 0 m.
     """
 
     kx: Any
@@ -199,6 +205,7 @@ class Field:
     grid: Grid
     unit: str = "mD"
     sources: tuple[Source, ...] = field(default=())
+    geometry: Geometry | None = None
 
     def __post_init__(self) -> None:
         check_unit(self.unit)
@@ -208,6 +215,31 @@ class Field:
                     f"{name} has shape {tuple(array.shape)} but the grid is {self.grid.shape} "
                     "(layers, rows, columns)"
                 )
+        if self.geometry is not None:
+            self.geometry.check(self.grid.shape)
+
+    def reference(self) -> Field:
+        """The field on the flat grid with the same two-point flow (`upscale.geometry`).
+
+        Without a geometry the field itself. Dask arrays stay lazy; kx and ky
+        stay shared when they are.
+        """
+        if self.geometry is None:
+            return self
+        w = self.geometry.ratio(self.grid.dz)
+        kx, ky, kz = reference_permeability(self.kx, self.ky, self.kz, w, self.grid.dz)
+        if self.ky is self.kx:
+            ky = kx
+        porosity = None if self.porosity is None else np.where(w == 0, 0.0, self.porosity * w)
+        return Field(kx=kx, ky=ky, kz=kz, porosity=porosity, grid=self.grid, unit=self.unit,
+                     sources=self.sources)  # fmt: skip
+
+    def cell_volumes(self) -> Any:
+        """Bulk volume of every cell, m³, shape (L, M, N): the true one with a geometry."""
+        if self.geometry is None:
+            return self.grid.cell_volumes()
+        area = self.grid.dy[None, :, None] * self.grid.dx[None, None, :]
+        return np.asarray(self.geometry.thickness, dtype=np.float64) * area
 
     @property
     def ndim(self) -> int:
@@ -249,8 +281,9 @@ class Field:
         def cut(array: Any) -> Any:
             return None if array is None else pieces[id(array)]
 
+        geometry = None if self.geometry is None else self.geometry.window(rows, columns)
         return Field(kx=cut(self.kx), ky=cut(self.ky), kz=cut(self.kz), porosity=cut(self.porosity),
-                     grid=grid, unit=self.unit, sources=self.sources)  # fmt: skip
+                     grid=grid, unit=self.unit, sources=self.sources, geometry=geometry)  # fmt: skip
 
     def leading(self, shape: tuple[int, int, int]) -> Field:
         """The field restricted to its first ``shape`` layers, rows and columns.
@@ -281,6 +314,7 @@ class Field:
             grid=grid,
             unit=self.unit,
             sources=self.sources,
+            geometry=None if self.geometry is None else self.geometry.leading(shape),
         )
 
     def in_unit(self, unit: str) -> Field:
@@ -309,7 +343,8 @@ class Field:
         permeabilities = {"kx": self.kx, "ky": self.ky, "kz": self.kz}
         scaled = {id(a): a * factor for a in permeabilities.values() if a is not None}
         converted = {name: None if a is None else scaled[id(a)] for name, a in permeabilities.items()}
-        return Field(**converted, porosity=self.porosity, grid=self.grid, unit=unit, sources=self.sources)
+        return Field(**converted, porosity=self.porosity, grid=self.grid, unit=unit, sources=self.sources,
+                     geometry=self.geometry)
 
     @classmethod
     def from_arrays(

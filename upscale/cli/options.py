@@ -13,7 +13,7 @@ from ..analysis.percentiles import CONVENTIONS
 from ..check.limits import DEFAULT_LIMIT
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
-from ..io import RESAMPLING_RULES, VALUE_SCALES
+from ..io import GEOMETRY_ROLES, RESAMPLING_RULES, VALUE_SCALES
 from ..methods.near_well import CONNECTIONS
 from ..methods.registry import METHODS, find_method, per_axis, per_axis_text
 from ..units import UNITS
@@ -136,6 +136,16 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--dz", default=None, metavar="M[,M...]",
                      help="Layer thickness in m: one value, or one per layer (band), top first. "
                      "Required for multi-band rasters."),
+        click.option("--top", default=None, metavar="M|FILE",
+                     help="Elevation of the model's top in m (positive up): one value or a one-band "
+                     "raster [default: 0]."),
+        click.option("--thickness", default=None, metavar="M|FILE",
+                     help="Cell thickness in m, 0 = pinched out: a raster with one band per layer (replaces "
+                     "--dz), or for a map one value or a raster (a 2D conductivity map then also gets "
+                     "transmissivity)."),
+        click.option("--surfaces", default=None, type=click.Path(dir_okay=False),
+                     help="Raster of every layer's top elevation and the last layer's base (one band more "
+                     "than layers), in m, positive up; replaces --dz, --top and --thickness."),
         click.option("--cell-size", default=None, metavar="DX[xDY]",
                      help="Cell size in m; required for .npy arrays and rasters without a "
                      "projected CRS."),
@@ -289,10 +299,24 @@ def read_options(options: dict[str, Any]) -> dict[str, Any]:
         "resample": options.pop("resample"),
         "dz": dz,
         "cell_size": parse_cell_size(options.pop("cell_size")),
+        "top": _value_or_path(options.pop("top")),
+        "thickness": _value_or_path(options.pop("thickness")),
+        "surfaces": options.pop("surfaces"),
     }
+
+
+def _value_or_path(text: str | None) -> float | str | None:
+    """A number in m, or else the path of a raster."""
+    if text is None:
+        return None
+    try:
+        return float(text)
+    except ValueError:
+        return text
 
 
 def recorded(read: dict[str, Any]) -> dict[str, Any]:
     """The read options a summary records to read the field again (paths are inputs; no resampling unset)."""
     return {k: v for k, v in read.items()
-            if k not in ("ky", "kz", "porosity") and not (k == "resample" and v is None)}  # fmt: skip
+            if k not in ("ky", "kz", "porosity", *GEOMETRY_ROLES) and not (k == "resample" and v is None)
+            or k in GEOMETRY_ROLES and isinstance(v, float)}  # fmt: skip

@@ -124,6 +124,7 @@ def pressure_drop(
     sizes = [trans.grid.dz.sum(), trans.grid.dy.sum(), trans.grid.dx.sum()]
     length = sizes.pop(a)
     k_eff = float(solved.outflow * length / (sizes[0] * sizes[1]))
+    k_eff = k_eff * trans.volume_ratio if a == 0 else k_eff / trans.volume_ratio
     return AxisFlow(**{f.name: getattr(solved, f.name) for f in fields(SteadyFlow)}, axis=axis, k_eff=k_eff)
 
 

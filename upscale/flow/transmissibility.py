@@ -44,12 +44,19 @@ class Transmissibilities:
         shape with axis a of length 1.
     active : ndarray of bool, shape (L, M, N)
         Cells that exist (not NaN).
+    volume_ratio : float
+        True bulk volume of the grid over that of `grid`: 1 for a flat grid;
+        for a field with a geometry (`upscale.geometry`), whose
+        transmissibilities are those of its reference field on the flat
+        `grid`, the factor that turns the flat grid's k_eff into the true
+        one (divided along x and y, multiplied along z).
     """
 
     grid: Grid
     faces: tuple[np.ndarray, np.ndarray, np.ndarray]
     boundary: tuple[tuple[np.ndarray, np.ndarray], ...]
     active: np.ndarray
+    volume_ratio: float = 1.0
 
     @property
     def shape(self) -> tuple[int, int, int]:
@@ -134,12 +141,17 @@ def transmissibilities(field: Field) -> Transmissibilities:
     field : Field
         Permeabilities (NumPy or dask; dask arrays are computed) on any grid,
         including coarse grids with smaller edge blocks. A 2D map gets z faces
-        too (for its single layer there are none).
+        too (for its single layer there are none). A field with a geometry
+        gets those of its reference field (`upscale.geometry`).
 
     Returns
     -------
     Transmissibilities
     """
+    ratio = 1.0
+    if field.geometry is not None:
+        ratio = float(np.asarray(field.cell_volumes()).sum() / field.grid.cell_volumes().sum())
+        field = field.reference()
     # read each distinct array once: kx, ky and kz are often the same (lazy) array
     loaded: dict[int, np.ndarray] = {}
     for array in (field.kx, field.ky, field.kz):
@@ -154,4 +166,4 @@ def transmissibilities(field: Field) -> Transmissibilities:
         last = t.shape[axis] - 1
         boundary[axis] = (np.take(t, [0], axis=axis), np.take(t, [last], axis=axis))
     active = ~np.isnan(loaded[id(field.kx)])
-    return Transmissibilities(field.grid, tuple(faces), tuple(boundary), active)
+    return Transmissibilities(field.grid, tuple(faces), tuple(boundary), active, ratio)

@@ -21,7 +21,9 @@ from affine import Affine
 
 from ..errors import InputError
 from ..field import Field, Grid, Source, share_inactive
+from ..geometry import Geometry
 from ..units import check_unit
+from .geometry import geometry_from
 from .windows import (
     RESAMPLING_RULES,
     RasterWindows,
@@ -186,6 +188,9 @@ def read_field(
     chunk_bytes: int | None = None,
     block: tuple[int, int, int] = (1, 1, 1),
     checksum: bool = True,
+    top: float | str | Path | None = None,
+    thickness: float | str | Path | None = None,
+    surfaces: str | Path | None = None,
 ) -> Field:
     """Open a permeability raster (and optional companions) as a lazy `Field`.
 
@@ -226,6 +231,17 @@ def read_field(
         Chunks are made of whole blocks of this many ``(layers, rows, columns)``.
     checksum : bool
         Record the SHA-256 of every input file (one extra sequential read).
+    top : float, str or Path, optional
+        Elevation of the model's top in m (positive up): one value or a
+        one-band raster; with `thickness` (default 0 m).
+    thickness : float, str or Path, optional
+        Thickness of every cell in m (0 = pinched out): a raster with one band
+        per layer, or for a map also one value (the aquifer's thickness).
+        Replaces `dz`; see `upscale.geometry`.
+    surfaces : str or Path, optional
+        A raster of one band more than layers: the elevation (m, positive up)
+        of every layer's top and of the last layer's base. Replaces `dz`,
+        `top` and `thickness`.
 
     Returns
     -------
@@ -250,7 +266,8 @@ def read_field(
     dx, dy = _cell_size(main, cell_size)
     layers = main.shape[0]
     three_d = layers > 1
-    layer_dz = _layer_thickness(layers, dz, str(path))
+    layer_dz = _layer_thickness(layers, 1.0 if thickness is not None or surfaces is not None else dz,
+                                str(path))
 
     extras = {"ky": ky, "kz": kz, "porosity": porosity}
     if not three_d:
@@ -266,21 +283,29 @@ def read_field(
 
     arrays = {"kx": main.lazy}
     sources = [Source("kx", str(path), sha256(path) if checksum else "")]
-    for name, extra in extras.items():
-        if extra is None:
-            continue
-        stored = "linear" if name == "porosity" else scale
+    def companion(name: str, extra: str | Path, stored: str, bands: int) -> Any:
+        """`extra` read onto the grid of `main` (resampled when allowed), lazily."""
         other = _open(str(extra), stored, nodata, chunks)
-        resampled = _resampling(main, other, name, resample)
+        resampled = _resampling(main, other, name, resample, bands)
         if resampled is not None:
             other = _open(str(extra), stored, nodata, chunks, _warp(main, resample))
-        arrays[name] = other.lazy.rechunk(main.lazy.chunks)
         sources.append(Source(name, str(extra), sha256(extra) if checksum else "", resampled))
+        return other.lazy
+
+    for name, extra in extras.items():
+        if extra is not None:
+            stored = "linear" if name == "porosity" else scale
+            arrays[name] = companion(name, extra, stored, layers).rechunk(main.lazy.chunks)
     arrays.setdefault("ky", arrays["kx"])
     if three_d:
         arrays.setdefault("kz", arrays["kx"] * kv_kh if kv_kh is not None else arrays["kx"])
     arrays = share_inactive(arrays)
 
+    shape = geometry_from(top, thickness, surfaces, dz, main.shape, companion)
+    if shape is not None:
+        shape = Geometry(top=shape.top, thickness=shape.thickness.rechunk(main.lazy.chunks))
+        shape.check(main.shape)
+        layer_dz = shape.layer_thickness()
     grid = Grid(
         dz=layer_dz,
         dy=np.full(main.shape[1], dy),
@@ -296,13 +321,14 @@ def read_field(
         grid=grid,
         unit=unit,
         sources=tuple(sources),
+        geometry=shape,
     )
 
 
-def _grid_difference(main: _Layout, other: _Layout) -> str | None:
-    """How the grid of `other` differs from that of `main`, in words; None when it is the same."""
-    if other.shape != main.shape:
-        return f"shape {other.shape} differs from {main.shape} (bands, rows, columns)"
+def _grid_difference(main: _Layout, other: _Layout, bands: int) -> str | None:
+    """How the grid of `other` (of `bands` bands) differs from that of `main`; None when the same."""
+    if other.shape != (bands, *main.shape[1:]):
+        return f"shape {other.shape} differs from {(bands, *main.shape[1:])} (bands, rows, columns)"
     if (main.transform is None) != (other.transform is None) or (
         main.transform is not None and not main.transform.almost_equals(other.transform)
     ):
@@ -312,7 +338,8 @@ def _grid_difference(main: _Layout, other: _Layout) -> str | None:
     return None
 
 
-def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None) -> dict[str, Any] | None:
+def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None,
+                bands: int) -> dict[str, Any] | None:  # fmt: skip
     """What resampling `other` onto the grid of `main` takes (the summary's record); None when on it.
 
     Raises
@@ -322,14 +349,14 @@ def _resampling(main: _Layout, other: _Layout, name: str, rule: str | None) -> d
         resampled: another number of bands, or a raster without a transform
         and a CRS.
     """
-    problem = _grid_difference(main, other)
+    problem = _grid_difference(main, other, bands)
     if problem is None:
         return None
     where = f"`{name}` {other.path}: not on the grid of {main.path}: {problem}"
     if rule is None:
         raise InputError(f"{where}; resample it onto that grid with `resample=average` "
                          "(or nearest, bilinear)")  # fmt: skip
-    if other.shape[0] != main.shape[0]:
+    if other.shape[0] != bands:
         raise InputError(f"{where}; resampling changes rows and columns, not the number of bands")
     for layout in (main, other):
         if layout.transform is None or layout.crs is None:

@@ -14,6 +14,7 @@ from pathlib import Path
 from ..errors import InputError
 from ..field import Field
 from ..grid import BlockSpec
+from .geometry import GEOMETRY_ROLES
 from .read import read_field, sha256
 
 SUMMARY = "summary.json"
@@ -56,7 +57,7 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
             raise InputError(f"{source}: the run's {role} input is gone; it is needed to check again")
         if item["sha256"] and sha256(source) != item["sha256"]:
             raise InputError(f"{source}: the run's {role} input changed since the run (SHA-256 differs)")
-    paths = {role: inputs[role]["resolved"] if role in inputs else None for role in ("ky", "kz")}
+    paths = {role: inputs[role]["resolved"] for role in ("ky", "kz", *GEOMETRY_ROLES) if role in inputs}
     fine = read_field(inputs["kx"]["resolved"], checksum=False, **paths, **read)
     # runs recorded before the zero-k rule kept their zeros
     spec = BlockSpec.from_summary(block)

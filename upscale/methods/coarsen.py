@@ -26,10 +26,10 @@ from ..flow import AxisFlow, Transmissibilities, transmissibilities
 from ..grid import BlockSpec
 from ..parallel import apply_blocks, compute_together
 from ..stats import ValueScan, scan_each, where
-from . import averages
+from . import averages, geometry
 from .flow_based import TENSOR
 from .local_global import Coupling
-from .registry import Method, get_method, method_for_axes
+from .registry import Method, get_method, method_for_axes, run_kernel
 from .zeros import ZeroOutcome, apply_zero_rule
 
 if TYPE_CHECKING:
@@ -305,10 +305,16 @@ def coarsen(
     dz, cells = fine.grid.dz, spec.cells
 
     given = {"flows": flows} if chosen.global_flows else {}
-    lazy = chosen.kernel(fine, cells, **given, **options)
-    if fine.porosity is not None:
-        lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
-    lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
+    lazy = run_kernel(chosen, fine, cells, **given, **options)
+    if fine.geometry is not None:
+        lazy["_ratio"] = geometry.block_ratio(fine, cells)
+        if fine.porosity is not None:
+            lazy["porosity"] = geometry.porosity_mean(fine, cells, lazy["_ratio"])
+        lazy["_active"] = geometry.active_volume(fine, cells)
+    else:
+        if fine.porosity is not None:
+            lazy["porosity"] = apply_blocks(averages.bulk_mean, fine.porosity, dz, cells)
+        lazy["_active"] = apply_blocks(averages.active_volume, fine.kx, dz, cells)
     scans = scan_each(fine.properties())
 
     done = compute_together({**lazy, **{f"_scan_{k}": v for k, v in scans.items()}})
@@ -317,13 +323,17 @@ def coarsen(
     _check_values(scans, chosen, options, fine)
 
     coarse_grid = spec.coarse_grid(fine.grid)
+    ratio = computed.pop("_ratio", None)
+    shape = None if ratio is None else geometry.coarse_geometry(fine, cells, coarse_grid.dz, ratio)
+    volumes = coarse_grid.cell_volumes() if shape is None else coarse_grid.cell_volumes() * ratio
     # active volume came in units of (cell area x m); the two are summed in different
     # orders, so the comparison below allows for rounding
     cell_area = fine.grid.dx[0] * fine.grid.dy[0]
-    fraction = np.clip(computed.pop("_active") * cell_area / coarse_grid.cell_volumes(), 0.0, 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fraction = np.nan_to_num(np.clip(computed.pop("_active") * cell_area / volumes, 0.0, 1.0))
     inactive = (fraction == 0) | (fraction < spec.min_active * (1 - 1e-12))
-    pore = computed["porosity"] * coarse_grid.cell_volumes() if "porosity" in computed else None
-    lost = float(pore[inactive].sum()) if pore is not None else 0.0
+    pore = computed["porosity"] * volumes if "porosity" in computed else None
+    lost = float(np.nansum(pore[inactive])) if pore is not None else 0.0
     tensor = _tensor_terms(computed.pop("tensor"), fine.ndim, computed) if "tensor" in computed else {}
     faces = computed.pop("faces", None)
     regions = computed.pop("regions", None)
@@ -341,6 +351,7 @@ def coarsen(
         grid=coarse_grid,
         unit=field.unit,
         sources=field.sources,
+        geometry=shape,
     )
     replaced, boundary, direct, coupling = 0, None, None, None
     if faces is not None:

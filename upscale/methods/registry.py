@@ -10,7 +10,7 @@ from typing import Any
 from ..errors import InputError
 from ..field import AXES, PERMEABILITY, Field
 from ..parallel import apply_blocks
-from . import averages, bounds
+from . import averages, bounds, geometry
 from .flow_based import TENSOR, direct_properties, flow_properties
 from .global_flow import global_properties
 from .local_global import MAX_CHANGE, MAX_ITERATIONS, couple, local_global_properties
@@ -46,7 +46,10 @@ class EachAxis:
             name, axis = PERMEABILITY[axis_name], AXES[axis_name]
             array = getattr(field, name)
             key = (id(array), axis if self.directional else None)
-            if key not in done:
+            if key not in done and field.geometry is not None:
+                w = field.geometry.ratio(field.grid.dz)
+                done[key] = geometry.weighted(self.rule, array, w, field.grid.dz, cells, axis, **options)
+            elif key not in done:
                 done[key] = apply_blocks(self.rule, array, field.grid.dz, cells, axis, **options)
             coarse[name] = done[key]
         return coarse
@@ -198,6 +201,21 @@ METHODS: Mapping[str, Method] = {
 }
 
 
+def run_kernel(method: Method, field: Field, cells: tuple[int, int, int], **options: Any) -> dict[str, Any]:
+    """The method's lazy coarse properties of `field`, honouring its geometry.
+
+    Without a geometry, the method's kernel. With one, the averages weigh
+    cells by their true volumes; every other method upscales the reference
+    field and its values are turned back (`upscale.methods.geometry`).
+    """
+    kernel = method.kernel
+    if field.geometry is None or isinstance(kernel, PerAxis) or (
+        isinstance(kernel, EachAxis) and kernel.rule in geometry.WEIGHTED
+    ):
+        return kernel(field, cells, **options)
+    return geometry.to_true(kernel(field.reference(), cells, **options), geometry.block_ratio(field, cells))
+
+
 #: The axes a method per axis names, in the order its text lists them.
 AXIS_LETTERS = "xyz"
 
@@ -223,7 +241,7 @@ class PerAxis:
         """Lazy coarse ``kx``, ``ky`` (``kz``) of `field` in blocks of `cells` (z, y, x) fine cells."""
         coarse: dict[str, Any] = {}
         for axes, method in self.parts:
-            lazy = method.kernel(field, cells, **{o: options[o] for o in method.options})
+            lazy = run_kernel(method, field, cells, **{o: options[o] for o in method.options})
             for axis in axes:
                 name = PERMEABILITY[axis]
                 coarse[name] = lazy[name] if name in lazy else lazy["tensor"][TENSOR.index(f"k{axis}{axis}")]
