@@ -11,7 +11,7 @@ from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.percentiles import PERCENTILES, short_label
 from ..analysis.records import SolveRecord
 from ..analysis.summary import FlowCheck, RunSummary
-from ..export.package import PACKAGE_FILES, WELL_FILES
+from ..export.package import PACKAGE_FILES, STRUCTURED_VTK, WELL_FILES
 from ..field import PERMEABILITY
 from ..methods.coarsen import Upscaled
 from ..report.verdict import bound_note, outside_band
@@ -111,7 +111,7 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     if summary.well_check is not None:
         print_well_check(summary.well_check)
     click.echo("")
-    package = {*PACKAGE_FILES, *WELL_FILES}
+    package = {*PACKAGE_FILES, STRUCTURED_VTK, *WELL_FILES}
     files = [f for f in summary.files if not f.startswith("figures/") and f not in package]
     files.insert(len(files) - ("report.html" in files), "the coarse-grid package (manifest.json)")
     figures = sum(f.endswith(".png") for f in summary.files if f.startswith("figures/"))

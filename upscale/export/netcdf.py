@@ -8,7 +8,10 @@ attribute of ``z``, CF §7.1 cell boundaries), a ``crs`` grid-mapping variable w
 the CF attributes of the CRS (``grid_mapping_name`` and its parameters, and
 ``crs_wkt``; from pyproj) when there is a CRS, and the unit of every variable (Eaton et al., "NetCDF
 Climate and Forecast (CF) Metadata Conventions", version 1.8: §4 coordinate
-types, §5.6 grid mappings).
+types, §5.6 grid mappings). A model with a geometry (`upscale.geometry`) also
+has the variables ``top_elevation``, ``base_elevation`` and ``thickness`` on
+(layer, row, column): every cell's own top and base elevation (positive up)
+and thickness, in the package's length unit.
 """
 
 from __future__ import annotations
@@ -34,7 +37,8 @@ _UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "mD": "millidarcy
 
 
 def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str, str]],
-                 factors: dict[str, Any], attributes: dict[str, str]) -> None:  # fmt: skip
+                 factors: dict[str, Any], attributes: dict[str, str],
+                 surfaces: np.ndarray | None = None) -> None:  # fmt: skip
     """Write the coarse properties (in package units) on (layer, row, column).
 
     Parameters
@@ -50,9 +54,14 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
         From `upscale.units.unit_factors`.
     attributes : dict of str to str
         Global attributes (title, source, history...).
+    surfaces : ndarray of shape (L + 1, M, N), optional
+        Elevation of every layer's top and of the last base, m (positive up), of a
+        model with a geometry (`upscale.geometry.Geometry.surfaces`); adds the
+        cells' top and base elevations and thicknesses.
     """
     netCDF4 = require("netCDF4", "formats")
     length = factors["length"]
+    length_unit = _UDUNITS.get(factors["length_unit"], factors["length_unit"])
     x, y, z = _centres(grid)
     with _HDF5, netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
         nc.setncatts({"Conventions": "CF-1.8", **attributes})
@@ -71,7 +80,7 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
             var.axis = name.upper()
         var = nc.createVariable("z", "f8", ("layer",))
         var[:] = z * length
-        var.units = _UDUNITS.get(factors["length_unit"], factors["length_unit"])
+        var.units = length_unit
         var.positive = "up"
         var.long_name = "cell-centre height above the top of the model"
         var.axis = "Z"
@@ -91,6 +100,25 @@ def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str
             if grid.crs is not None:
                 var.grid_mapping = "crs"
             var.coordinates = "z y x"
+        if surfaces is not None:
+            _write_heights(nc, surfaces * length, length_unit, grid.crs is not None)
+
+
+def _write_heights(nc: Any, surfaces: np.ndarray, unit: str, mapped: bool) -> None:
+    """The cells' top and base elevations and thicknesses from `surfaces` (L + 1, M, N) in `unit`."""
+    heights = {"top_elevation": (surfaces[:-1], "elevation of the cell's top"),
+               "base_elevation": (surfaces[1:], "elevation of the cell's base"),
+               "thickness": (surfaces[:-1] - surfaces[1:], "cell thickness")}  # fmt: skip
+    for name, (values, long_name) in heights.items():
+        var = nc.createVariable(name, "f8", ("layer", "row", "column"), fill_value=np.nan, zlib=True)
+        var[:] = values
+        var.units = unit
+        var.long_name = long_name
+        if name != "thickness":
+            var.positive = "up"
+        if mapped:
+            var.grid_mapping = "crs"
+        var.coordinates = "z y x"
 
 
 def crs_unit(grid: Grid) -> str:

@@ -28,6 +28,7 @@ import numpy as np
 
 from ..field import Grid
 from ..flow import Transmissibilities
+from ..geometry import Geometry
 from ..optional import lazy
 from .slabs import Region, slabs
 
@@ -41,6 +42,8 @@ TABLES = ("cells", "connections", "boundary")
 #: Every file of the package, in the order written.
 PACKAGE_FILES = (*(f"{t}.{x}" for t in TABLES for x in ("csv", "parquet")), "coarse.nc", "coarse.vtr",
                  "manifest.json")  # fmt: skip
+#: The VTK file of a coarse model with a geometry, in place of ``coarse.vtr``: a structured grid.
+STRUCTURED_VTK = "coarse.vts"
 _AXES = "zyx"
 ALL: Region = (slice(None), slice(None), slice(None))
 
@@ -54,6 +57,33 @@ def _centres(grid: Grid) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return x, y, z
 
 
+def surfaces(grid: Grid, geometry: Geometry | None) -> np.ndarray:
+    """Elevation of every layer's top and of the last layer's base, m (positive up).
+
+    Parameters
+    ----------
+    grid : Grid
+        Cell sizes in m.
+    geometry : Geometry or None
+        The model's geometry; None for a flat model, whose top is at 0 m.
+
+    Returns
+    -------
+    ndarray of shape (L + 1, M, N), or (L + 1, 1, 1) for a flat model
+
+    Examples
+    --------
+    >>> surfaces(Grid(dz=[2.0, 6.0], dy=[1.0], dx=[1.0]), None).ravel().tolist()
+    [0.0, -2.0, -8.0]
+    """
+    if geometry is None:
+        return (0.0 - np.concatenate([[0.0], np.cumsum(grid.dz)]))[:, None, None]  # 0.0 - : no -0
+    return geometry.surfaces()
+
+
+#: The columns of ``cells.csv`` that place each cell in height: top, base and centre elevation and
+#: thickness (the model's own with a geometry; a flat model's top is at 0).
+ELEVATION_COLUMNS = ("top_elevation", "base_elevation", "centre_elevation", "thickness")
 _INTEGER = {"id", "i", "j", "k", "id1", "id2"}
 _TEXT = {"axis", "source", "face", "well", "set_by", "control"}
 #: The tables of a run with wells (docs/package.md): each well's coarse connections, and the faces
@@ -110,6 +140,9 @@ class PackageTables:
     direct : tuple of 3 ndarray of bool, optional
         Per axis (z, y, x), laid out as ``trans.faces``: True for the faces
         set by `source`; the others are ``harmonic``. None: every face is `source`.
+    geometry : Geometry, optional
+        The coarse model's geometry (`upscale.geometry`): the cells' elevations,
+        thicknesses and bulk volumes are its own. None: a flat model, top at 0 m.
 
     Notes
     -----
@@ -121,7 +154,8 @@ class PackageTables:
 
     def __init__(self, coarse_properties: dict[str, np.ndarray], trans: Transmissibilities, *,
                  factors: dict[str, Any], source: str,
-                 direct: tuple[np.ndarray, ...] | None = None) -> None:  # fmt: skip
+                 direct: tuple[np.ndarray, ...] | None = None,
+                 geometry: Geometry | None = None) -> None:  # fmt: skip
         self.properties = coarse_properties
         self.trans = trans
         self.grid = trans.grid
@@ -131,6 +165,8 @@ class PackageTables:
         self.source = source
         self.direct = direct
         self.centres = _centres(self.grid)
+        self.geometry = geometry
+        self.surfaces = surfaces(self.grid, geometry)
 
     def columns(self, table: str) -> list[str]:
         """The column names of `table` (``cells``, ``connections`` or ``boundary``)."""
@@ -142,7 +178,7 @@ class PackageTables:
         names += [n for n in self.properties if n != "porosity"]
         if "porosity" in self.properties:
             names += ["porosity", "pore_volume"]
-        return names + ["bulk_volume"]
+        return names + ["bulk_volume", *ELEVATION_COLUMNS]
 
     def batches(self, table: str) -> Iterator[pa.Table]:
         """The rows of `table`, slab by slab, as pyarrow tables of one schema."""
@@ -174,12 +210,24 @@ class PackageTables:
             for name, values in self.properties.items():
                 if name != "porosity":
                     cells[name] = values[region] * self.kf
-            bulk = bulk_volumes(grid, length, region)
+            bulk = bulk_volumes(grid, length, region, self.geometry)
             if "porosity" in self.properties:
                 cells["porosity"] = self.properties["porosity"][region]
                 cells["pore_volume"] = cells["porosity"] * bulk
             cells["bulk_volume"] = bulk
+            cells.update(self._elevations(region, shape))
             yield cells
+
+    def _elevations(self, region: Region, shape: tuple[int, ...]) -> dict[str, np.ndarray]:
+        """The `ELEVATION_COLUMNS` of the cells of `region`, in the package's length unit."""
+        layers, rows, columns = region
+        flat = self.surfaces.shape[1:] == (1, 1)
+        plane = (slice(None), slice(None)) if flat else (rows, columns)
+        top = self.surfaces[(slice(layers.start, layers.stop), *plane)]
+        base = self.surfaces[(slice(layers.start + 1, layers.stop + 1), *plane)]
+        found = {"top_elevation": top, "base_elevation": base, "centre_elevation": (top + base) / 2,
+                 "thickness": top - base}  # fmt: skip
+        return {name: np.broadcast_to(values * self.length, shape) for name, values in found.items()}
 
     def _connections(self) -> Iterator[dict[str, Any]]:
         grid, trans, length = self.grid, self.trans, self.length
@@ -237,11 +285,26 @@ class PackageTables:
                            "area": areas[cell][active] * length**2}  # fmt: skip
 
 
-def bulk_volumes(grid: Grid, length: float = 1.0, region: Region = ALL) -> np.ndarray:
-    """Bulk volume of every cell of `region` (default the grid), in (length unit)³ (`length` per m)."""
+def bulk_volumes(grid: Grid, length: float = 1.0, region: Region = ALL,
+                 geometry: Geometry | None = None) -> np.ndarray:  # fmt: skip
+    """Bulk volume of every cell of `region` (default the grid), in (length unit)³ (`length` per m).
+
+    With a `geometry`, the true volumes: each cell's own thickness times its plan area.
+    """
     layers, rows, columns = region
-    return (grid.dz[layers] * length)[:, None, None] * (grid.dy[rows] * length)[None, :, None] * (
-        grid.dx[columns] * length)[None, None, :]
+    thickness = (grid.dz[layers] * length)[:, None, None] if geometry is None else (
+        np.asarray(geometry.thickness[region], dtype=np.float64) * length)
+    return thickness * (grid.dy[rows] * length)[None, :, None] * (grid.dx[columns] * length)[None, None, :]
+
+
+def geometry_record(trans: Transmissibilities) -> dict[str, Any]:
+    """The manifest's ``geometry`` of a coarse model with a geometry (docs/package.md).
+
+    Its connections hold the true transmissibilities on the flat grid of
+    ``dz``; ``volume_ratio`` (true over flat bulk volume) turns that grid's
+    k_eff into the true one (`upscale.flow.Transmissibilities`).
+    """
+    return {"volume_ratio": trans.volume_ratio, "columns": list(ELEVATION_COLUMNS)}
 
 
 def _face_areas(grid: Grid, a: int) -> np.ndarray:
@@ -264,6 +327,8 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, 
         "distance": length, "source": "harmonic, flow, global or local-global",
         "face": "x-, x+, y-, y+, z- or z+",
         "well": "name", "factor": t, "set_by": "near-well or peaceman", "control": "pressure or rate",
+        "top_elevation": f"{length} elevation, positive up", "base_elevation": f"{length} elevation, positive up",
+        "centre_elevation": f"{length} elevation, positive up", "thickness": length,
         "z_top": f"{length} above the top of the model", "z_bottom": f"{length} above the top of the model",
         "value": f"unit of pressure (control pressure) or {t}·(unit of pressure) (control rate: q·μ)",
     }  # fmt: skip

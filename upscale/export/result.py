@@ -24,9 +24,11 @@ from .geotiff import PROPERTY_UNITS, write_property
 from .netcdf import crs_unit, write_netcdf
 from .package import (
     FORMAT,
+    STRUCTURED_VTK,
     PackageTables,
     bulk_volumes,
     column_units,
+    geometry_record,
     well_columns,
     write_tables,
     write_well_tables,
@@ -74,7 +76,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     properties = {**coarse.properties(), **result.tensor}
     source = find_method(result.method).faces or "harmonic"
     tables = PackageTables(properties, trans, factors=factors, source=source,
-                           direct=result.direct_faces)  # fmt: skip
+                           direct=result.direct_faces, geometry=coarse.geometry)  # fmt: skip
     table_files = write_tables(stage, tables)
     solved = wells is not None and "wells" in wells
     if solved:
@@ -88,18 +90,20 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         else:
             long_name = _LONG_NAMES.get(name, f"permeability tensor term {name}")
             gridded[name] = (_scaled(values, factors["k"]), factors["k_unit"], long_name)
-    grid = coarse.grid
+    grid, shape = coarse.grid, coarse.geometry
     volume = factors["length_unit"] + "3"
-    gridded["bulk_volume"] = (lambda region: bulk_volumes(grid, length, region), volume, "bulk volume")
+    gridded["bulk_volume"] = (lambda region: bulk_volumes(grid, length, region, shape), volume, "bulk volume")
     if coarse.porosity is not None:
         porosity = coarse.porosity
-        gridded["pore_volume"] = (lambda region: porosity[region] * bulk_volumes(grid, length, region),
+        gridded["pore_volume"] = (lambda region: porosity[region] * bulk_volumes(grid, length, region, shape),
                                   volume, "pore volume")  # fmt: skip
     attributes = {"title": f"upscale coarse grid ({result.method})", "source": "upscale",
                   "history": " ".join(command or []), "comment": CAUTION}  # fmt: skip
-    write_netcdf(stage / "coarse.nc", grid, gridded, factors, attributes)
-    write_vtk(stage / "coarse.vtr", grid, {n: v[0] for n, v in gridded.items()}, factors)
-    files = [*table_files, "coarse.nc", "coarse.vtr"]
+    heights = None if shape is None else shape.surfaces()
+    write_netcdf(stage / "coarse.nc", grid, gridded, factors, attributes, heights)
+    viewer = "coarse.vtr" if shape is None else STRUCTURED_VTK
+    write_vtk(stage / viewer, grid, {n: v[0] for n, v in gridded.items()}, factors, heights)
+    files = [*table_files, "coarse.nc", viewer]
     manifest = {
         "format": FORMAT,
         "units": {"system": units, "input_unit": coarse.unit, "factors": factors,
@@ -113,6 +117,7 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         "block": result.block.summary(),
         "transmissibility_source": source,
         "check": check,
+        **({"geometry": geometry_record(trans)} if shape is not None else {}),
         **({"wells": {key: wells[key] for key in ("outer_faces", "connection")}} if solved else {}),
         "files": files,
         "tables": table_files,

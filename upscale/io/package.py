@@ -78,7 +78,8 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
     -------
     manifest : dict
     trans : Transmissibilities
-        Sizes in m, transmissibilities in (unit of the run's input k) · m.
+        Sizes in m, transmissibilities in (unit of the run's input k) · m; for a
+        model with a geometry, the ``volume_ratio`` of the manifest's ``geometry``.
 
     Raises
     ------
@@ -91,7 +92,8 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
         factors = manifest["units"]["factors"]
         length, tf = float(factors["length"]), float(factors["k"]) * float(factors["length"])
         recorded = dict(manifest["tables"])
-    except (OSError, ValueError, KeyError, TypeError) as exc:
+        ratio = float(manifest.get("geometry", {}).get("volume_ratio", 1.0))  # 1: a flat model, or older
+    except (OSError, ValueError, KeyError, TypeError, AttributeError) as exc:
         raise InputError(f"{folder / MANIFEST}: not a coarse-grid package manifest ({exc})") from None
     try:
         cells = _table(folder / "cells.csv", recorded)
@@ -132,7 +134,7 @@ def read_package(folder: str | Path) -> tuple[dict, Transmissibilities]:
         raise InputError(
             f"{folder}: the package tables are incomplete or inconsistent ({_plain(exc)})"
         ) from None
-    trans = Transmissibilities(grid, tuple(faces), tuple((b[0], b[1]) for b in boundary), active)
+    trans = Transmissibilities(grid, tuple(faces), tuple((b[0], b[1]) for b in boundary), active, ratio)
     return manifest, trans
 
 
