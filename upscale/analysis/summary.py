@@ -17,6 +17,7 @@ from ..methods.coarsen import Upscaled
 from ..methods.registry import find_method, method_record
 from ..stats import scan_values
 from .anisotropy import tensor_summary
+from .geometry import GeometryRecord, geometry_record, transmissivities
 from .records import AxisResult, GridRecord, Leaf, Provenance, ZeroKRecord, grid_record, jsonable, provenance
 
 
@@ -324,6 +325,8 @@ class RunSummary:
     layers : dict or None
         How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`);
         None when the block's layers were not automatic.
+    geometry : GeometryRecord or None
+        The model's geometry (`upscale.analysis.geometry`); None for a flat model.
     """
 
     provenance: Provenance
@@ -343,6 +346,7 @@ class RunSummary:
     transmissibility: FaceRule | None = None
     well_check: dict[str, Any] | None = None
     layers: dict[str, Any] | None = None
+    geometry: GeometryRecord | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The content of ``summary.json``, key for key."""
@@ -360,12 +364,15 @@ class RunSummary:
             found["well_check"] = self.well_check
         if self.layers is not None:
             found["layers"] = self.layers
+        if self.geometry is not None:
+            found["geometry"] = self.geometry.to_dict()
         return found
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> RunSummary:
         """The record of a ``summary.json``'s content."""
-        check, tensor, faces = data["check"], data.get("tensor"), data.get("transmissibility")
+        check, tensor, faces, shape = (data["check"], data.get("tensor"), data.get("transmissibility"),
+                                       data.get("geometry"))  # fmt: skip
         return cls(Provenance.from_dict(data), data["unit"], MethodUsed.from_dict(data["method"]),
                    data["block"], data["dimensions"], GridRecord.from_dict(data["fine"]),
                    GridRecord.from_dict(data["coarse"]), ActiveCounts.from_dict(data["active"]),
@@ -374,7 +381,7 @@ class RunSummary:
                    data["timings_s"], data["caution"],
                    None if tensor is None else TensorSummary.from_dict(tensor),
                    None if faces is None else FaceRule.from_dict(faces), data.get("well_check"),
-                   data.get("layers"))  # fmt: skip
+                   data.get("layers"), None if shape is None else GeometryRecord.from_dict(shape))  # fmt: skip
 
 
 def build_summary(
@@ -427,7 +434,13 @@ def build_summary(
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
         None if wells is None else jsonable(wells), None if layers is None else jsonable(layers),
+        _geometry(result, read),
     )  # fmt: skip
+
+
+def _geometry(result: Upscaled, read: dict[str, Any] | None) -> GeometryRecord | None:
+    record = geometry_record(result.fine, result.coarse, read)
+    return None if record is None else GeometryRecord.from_dict(jsonable(record.to_dict()))
 
 
 def _face_rule(result: Upscaled) -> FaceRule:
@@ -445,7 +458,7 @@ def _active(result: Upscaled) -> ActiveCounts:
     active_blocks = int(np.isfinite(coarse.kx).sum())
     pore = None
     if result.fine.porosity is not None:
-        pore = jsonable(float(np.nansum(coarse.porosity * coarse.grid.cell_volumes())))
+        pore = jsonable(float(np.nansum(coarse.porosity * coarse.cell_volumes())))
     zeros = ZeroKRecord.from_dict(jsonable(result.zeros.summary()))
     return ActiveCounts(jsonable(result.fine_stats["kx"].active), active_blocks,
                         int(coarse.kx.size - active_blocks), jsonable(result.dropped_cells),
@@ -453,8 +466,12 @@ def _active(result: Upscaled) -> ActiveCounts:
 
 
 def _statistics(result: Upscaled) -> Statistics:
+    """Per property on each grid; with `transmissivities`, theirs too."""
+    def described(values: Any) -> PropertyStats:
+        return PropertyStats.from_dict(jsonable(scan_values(values).summary()))
+
     fine = {name: PropertyStats.from_dict(jsonable(scan.summary()))
             for name, scan in result.fine_stats.items()}  # fmt: skip
-    coarse = {name: PropertyStats.from_dict(jsonable(scan_values(values).summary()))
-              for name, values in result.coarse.properties().items()}  # fmt: skip
-    return Statistics(fine, coarse)
+    fine.update({name: described(values) for name, values in (transmissivities(result.fine) or {}).items()})
+    coarse = {**result.coarse.properties(), **(transmissivities(result.coarse) or {})}
+    return Statistics(fine, {name: described(values) for name, values in coarse.items()})

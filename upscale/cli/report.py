@@ -76,15 +76,22 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
         click.echo(f"zero k       {zeros} (--zero-k {result.zeros.rule})")
     stats = summary.statistics
     rows = []
-    for name in coarse.properties():
+    aquifer = [name for name in stats.coarse if name.startswith("transmissivity")]
+    for name in [*coarse.properties(), *aquifer]:
         f, c = stats.fine[name], stats.coarse[name]
-        rows.append([property_label(name, fine.unit), number(f.mean), number(f.geometric_mean),
+        label = name.replace("transmissivity", "T") if name in aquifer else property_label(name, fine.unit)
+        rows.append([label, number(f.mean), number(f.geometric_mean),
                      number(c.mean), number(c.geometric_mean), number(c.min), number(c.max)])  # fmt: skip
     click.echo("")
     click.echo(table(["property", "fine mean", "fine geo", "coarse mean", "coarse geo",
                       "coarse min", "coarse max"], rows))  # fmt: skip
+    shape = summary.geometry
     click.echo(f"({', '.join(property_label(PERMEABILITY[a], fine.unit) for a in fine.axes)} in {fine.unit}"
-               + ("; porosity as a fraction)" if fine.porosity is not None else ")"))  # fmt: skip
+               + ("; porosity as a fraction" if fine.porosity is not None else "")
+               + (f"; T: transmissivity K × thickness in {shape.transmissivity_unit}" if aquifer else "")
+               + ")")  # fmt: skip
+    if shape is not None and shape.caution:
+        click.echo(f"caution: {shape.caution}")
     tensor = summary.tensor
     if tensor and tensor.blocks:
         cross = tensor.off_diagonal_max

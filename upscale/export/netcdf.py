@@ -33,7 +33,7 @@ from .slabs import Values, slabs
 _HDF5 = threading.Lock()
 
 #: CF ``units`` strings (UDUNITS) of the package's unit names.
-_UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "mD": "millidarcy", "1": "1"}
+_UDUNITS = {"m": "m", "ft": "ft", "m²": "m2", "m/s": "m s-1", "m²/s": "m2 s-1", "mD": "millidarcy", "1": "1"}
 
 
 def write_netcdf(path: Path, grid: Grid, properties: dict[str, tuple[Values, str, str]],

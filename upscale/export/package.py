@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 
+from ..analysis.geometry import transmissivity_unit
 from ..field import Grid
 from ..flow import Transmissibilities
 from ..geometry import Geometry
@@ -128,8 +129,10 @@ class PackageTables:
     Parameters
     ----------
     coarse_properties : dict of str to ndarray of shape (L, M, N)
-        ``kx``, ``ky`` (``kz``), tensor terms (``kxy`` ...) in the unit of k, and
-        ``porosity`` (fraction) when given; NaN for inactive cells.
+        ``kx``, ``ky`` (``kz``), tensor terms (``kxy`` ...) in the unit of k,
+        ``porosity`` (fraction) when given, and a map's ``transmissivity``
+        (``transmissivity_y``) in the unit of k times the package's length
+        unit; NaN for inactive cells.
     trans : Transmissibilities
         The coarse model's transmissibilities, in (unit of k) · m.
     factors : dict
@@ -332,6 +335,8 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, 
         "z_top": f"{length} above the top of the model", "z_bottom": f"{length} above the top of the model",
         "value": f"unit of pressure (control pressure) or {t}·(unit of pressure) (control rate: q·μ)",
     }  # fmt: skip
+    if "/" in k:  # a hydraulic conductivity, whose maps may have a transmissivity
+        known["transmissivity"] = known["transmissivity_y"] = transmissivity_unit(k)
     columns = {name: tables.columns(name) for name in TABLES}
     if wells:
         columns.update(zip(WELL_TABLES, (WELL_COLUMNS, FACE_COLUMNS)))

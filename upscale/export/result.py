@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 from affine import Affine
 
+from ..analysis.geometry import transmissivities, transmissivity_unit
 from ..analysis.records import jsonable
 from ..analysis.summary import RunSummary, build_summary
 from ..caution import CAUTION
@@ -75,7 +76,8 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     trans = result.transmissibilities()
     properties = {**coarse.properties(), **result.tensor}
     source = find_method(result.method).faces or "harmonic"
-    tables = PackageTables(properties, trans, factors=factors, source=source,
+    aquifer = {name: values * factors["length"] for name, values in (transmissivities(coarse) or {}).items()}
+    tables = PackageTables({**properties, **aquifer}, trans, factors=factors, source=source,
                            direct=result.direct_faces, geometry=coarse.geometry)  # fmt: skip
     table_files = write_tables(stage, tables)
     solved = wells is not None and "wells" in wells
@@ -84,9 +86,12 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
         table_files.update(write_well_tables(stage, columns))
     length = factors["length"]
     gridded: dict[str, tuple[Values, str, str]] = {}
-    for name, values in properties.items():
+    for name, values in {**properties, **aquifer}.items():
         if name == "porosity":
             gridded[name] = (_scaled(values, 1.0), "1", "porosity")
+        elif name in aquifer:
+            gridded[name] = (_scaled(values, factors["k"]), transmissivity_unit(factors["k_unit"]),
+                             "transmissivity" + (" along y" if name.endswith("_y") else ""))
         else:
             long_name = _LONG_NAMES.get(name, f"permeability tensor term {name}")
             gridded[name] = (_scaled(values, factors["k"]), factors["k_unit"], long_name)
@@ -148,6 +153,10 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
     for name, values in {**coarse.properties(), **result.tensor}.items():
         unit = PROPERTY_UNITS.get(name, coarse.unit)
         write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags, depths=True)
+        files.append(f"{name}.tif")
+    for name, values in (transmissivities(coarse) or {}).items():
+        write_property(stage / f"{name}.tif", values, coarse.grid, name, transmissivity_unit(coarse.unit), tags,
+                       depths=True)  # fmt: skip
         files.append(f"{name}.tif")
     direct = result.transmissibilities() if result.faces is not None else None
     for axis in "xyz"[: coarse.ndim] if direct is not None else ():
