@@ -51,8 +51,9 @@ def test_surfaces_and_top_with_thickness_read_the_same_geometry(model):
 def test_a_run_keeps_the_pore_volume_and_its_check_reads_the_geometry_again(model, run_cli, tmp_path):
     k, porosity, _, thickness = model["values"]
     out = tmp_path / "out"
-    code, _, err = run_cli("run", model["k"], "--surfaces", model["surfaces"], "--porosity", model["porosity"],
-                           "--kv-kh", "0.1", "--block", "4x4x3", "--method", "flow", "--out", out)  # fmt: skip
+    code, _, err = run_cli("run", model["k"], "--surfaces", model["surfaces"], "--porosity",
+                           model["porosity"], "--kv-kh", "0.1", "--block", "4x4x3", "--method", "flow",
+                           "--out", out)  # fmt: skip
     assert code == 0, err
     fine = upscale.read_field(model["k"], surfaces=model["surfaces"], porosity=model["porosity"])
     coarse = upscale.coarsen(fine, "4x4x3", "flow").coarse
@@ -75,9 +76,11 @@ def test_a_top_on_another_grid_is_resampled(model, write_tif):
 
 
 @pytest.mark.parametrize("args, message", [
-    (("--surfaces", "S", "--dz", "2"), "--surfaces gives the whole geometry: leave out --top, --thickness and --dz"),
-    (("--top", "10"), "give the layer thickness in metres (--dz 2.5, or one value per layer: --dz 2,3,1.5,...), "
-                      "or its geometry (--thickness, --surfaces)"),
+    (("--surfaces", "S", "--dz", "2"),
+     "--surfaces gives the whole geometry: leave out --top, --thickness and --dz"),
+    (("--top", "10"),
+     "give the layer thickness in metres (--dz 2.5, or one value per layer: --dz 2,3,1.5,...), "
+     "or its geometry (--thickness, --surfaces)"),
     (("--thickness", "T", "--dz", "2"), "--thickness replaces --dz: give one of them"),
     (("--thickness", "2"), "one --thickness value serves a map"),
     (("--surfaces", "BAD"), "surface 2 lies above surface 1 in 96 cells; surfaces go from the top down"),

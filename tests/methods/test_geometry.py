@@ -22,8 +22,9 @@ from upscale.methods.coarsen import coarsen
 OPTIONS = {"power": {"exponent": 0.5}}
 
 
-def _field(k: np.ndarray, thickness: np.ndarray, top: np.ndarray | None = None, *, kz: np.ndarray | None = None,
-           porosity: np.ndarray | None = None, cell: float = 10.0) -> Field:  # fmt: skip
+def _field(k: np.ndarray, thickness: np.ndarray, top: np.ndarray | None = None, *,
+           kz: np.ndarray | None = None, porosity: np.ndarray | None = None,
+           cell: float = 10.0) -> Field:  # fmt: skip
     """A model with the given cell thicknesses; the reference dz is each layer's mean."""
     geometry = Geometry(top=np.zeros(k.shape[1:]) if top is None else top, thickness=thickness)
     grid = Grid(dz=geometry.layer_thickness(), dy=np.full(k.shape[1], cell), dx=np.full(k.shape[2], cell))
@@ -45,13 +46,15 @@ def test_layer_thicknesses_as_a_geometry_give_the_flat_grid_of_those_thicknesses
                              cell_size=(10.0, 10.0), dz=dz)  # fmt: skip
     thickness = np.broadcast_to(dz[:, None, None], lognormal.shape).copy()
     geometry = Geometry(top=np.zeros((8, 8)), thickness=thickness)
-    shifted = Field(kx=flat.kx, ky=flat.ky, kz=flat.kz, porosity=flat.porosity,
-                    grid=Grid(dz=np.ones(4), dy=flat.grid.dy, dx=flat.grid.dx), geometry=geometry)  # fmt: skip
+    grid = Grid(dz=np.ones(4), dy=flat.grid.dy, dx=flat.grid.dx)
+    shifted = Field(kx=flat.kx, ky=flat.ky, kz=flat.kz, porosity=flat.porosity, grid=grid, geometry=geometry)
     a = coarsen(flat, "4x4x2", method, **OPTIONS.get(method, {}))
     b = coarsen(shifted, "4x4x2", method, **OPTIONS.get(method, {}))
     for name in ("kx", "ky", "kz", "porosity"):
         np.testing.assert_allclose(getattr(b.coarse, name), getattr(a.coarse, name), rtol=1e-13)
-    np.testing.assert_allclose(b.coarse.geometry.thickness, a.coarse.grid.cell_volumes() / 1600.0, rtol=1e-14)
+    plan_area = 1600.0  # 4 x 4 cells of 10 m
+    thickness = a.coarse.grid.cell_volumes() / plan_area
+    np.testing.assert_allclose(b.coarse.geometry.thickness, thickness, rtol=1e-14)
 
 
 def test_columns_of_different_thickness_follow_the_layered_formulas():
