@@ -178,3 +178,23 @@ def test_surfaces_that_cross_are_refused():
 def test_a_model_without_thickness_is_refused():
     with pytest.raises(InputError, match="every cell has zero thickness"):
         Geometry(top=np.zeros((1, 2)), thickness=np.zeros((2, 1, 2))).layer_thickness()
+
+
+def test_a_well_is_completed_with_the_true_thickness_and_not_in_pinched_cells():
+    # Peaceman 1978, "Interpretation of well-block pressures in numerical reservoir simulation":
+    # WI = 2π k h / (ln(r_o / r_w) + s) with r_o = 0.28 √(Δx² + Δy²) / 2 for isotropic k (Peaceman
+    # 1983, "Interpretation of well-block pressures ... nonsquare grid blocks and anisotropic
+    # permeability"); h is the cell's own thickness, 0 where the layer is pinched out
+    from upscale.check.wells import place_wells
+    from upscale.flow.wells import Well
+
+    k = np.array([40.0, 5.0, 10.0])[:, None, None] * np.ones((3, 5, 5))
+    thickness = np.array([3.0, 1.0, 2.0])[:, None, None] * np.ones((3, 5, 5))
+    thickness[1, 2, 2] = 0.0  # the well's column: the middle layer pinches out there
+    field = _field(k, thickness, cell=20.0)
+    well = Well("W1", x=50.0, y=-50.0, layers=None, control="pressure", value=1.0, radius=0.1)
+    (found,) = place_wells(field, [well])
+    assert [int(c) for c in found.cells] == [0 * 25 + 12, 2 * 25 + 12]
+    r_o = 0.28 * np.hypot(20.0, 20.0) / 2
+    peaceman = 2 * np.pi * np.array([40.0 * 3.0, 10.0 * 2.0]) / np.log(r_o / 0.1)
+    np.testing.assert_allclose(found.index, peaceman, rtol=1e-12)
