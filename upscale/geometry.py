@@ -93,22 +93,35 @@ class Geometry:
             )
         return cls(top=surfaces[0], thickness=thickness)
 
+    def __post_init__(self) -> None:
+        if isinstance(self.thickness, np.ndarray):  # a lazy one is checked once, where it is read
+            self.check_values()
+
+    def check_values(self) -> None:
+        """Refuse a thickness that is negative or not a number (reads a lazy array once).
+
+        Raises
+        ------
+        InputError
+            Naming how many cells are bad.
+        """
+        bad = int(np.count_nonzero(~(np.asarray(self.thickness) >= 0)))
+        if bad:
+            raise InputError(f"{bad} cell thickness(es) are negative or not a number; thickness is >= 0 m")
+
     def check(self, shape: tuple[int, int, int]) -> None:
         """Refuse a geometry that does not fit a grid of `shape` (layers, rows, columns).
 
         Raises
         ------
         InputError
-            If the shapes differ, or a thickness is negative or not finite.
+            If the shapes differ.
         """
         if tuple(self.thickness.shape) != tuple(shape) or tuple(self.top.shape) != tuple(shape[1:]):
             raise InputError(
                 f"the thickness has shape {tuple(self.thickness.shape)} and the top "
                 f"{tuple(self.top.shape)} but the grid is {tuple(shape)} (layers, rows, columns)"
             )
-        bad = int(np.count_nonzero(~(np.asarray(self.thickness) >= 0)))
-        if bad:
-            raise InputError(f"{bad} cell thickness(es) are negative or not a number; thickness is >= 0 m")
 
     def layer_thickness(self) -> np.ndarray:
         """Reference thickness of each layer: its mean over cells of positive thickness, m.

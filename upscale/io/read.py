@@ -305,7 +305,7 @@ def read_field(
     shape = geometry_from(top, thickness, surfaces, dz, main.shape, companion)
     if shape is not None:
         shape = Geometry(top=shape.top, thickness=shape.thickness.rechunk(main.lazy.chunks))
-        shape.check(main.shape)
+        shape.check_values()
         layer_dz = shape.layer_thickness()
     grid = Grid(
         dz=layer_dz,
