@@ -54,6 +54,7 @@ NOT_DOCUMENTED = {
     "upscale/methods/flow_based.py: --border must be a whole number of fine cells, not": _CLICK_FIRST,
     "upscale/export/staging.py: exists and is not a folder": _CLICK_FIRST,  # --out names a file
     "upscale/field.py: but the grid is": _PYTHON_ONLY,
+    "upscale/geometry.py: the thickness has shape": _PYTHON_ONLY,
     "upscale/field.py: a 3D field needs the layer thickness dz in m": _PYTHON_ONLY,
     "upscale/field.py: kz was given for a 2D map; a map has no vertical permeability": _PYTHON_ONLY,
     "upscale/field.py: expected a 2D or 3D array, got": _PYTHON_ONLY,

@@ -80,7 +80,7 @@ class Geometry:
         --------
         >>> g = Geometry.from_surfaces(np.array([[[10.0]], [[7.0]], [[7.0]], [[2.0]]]))
         >>> g.thickness.ravel().tolist(), g.top.tolist()
-        [[3.0, 0.0, 5.0], [[10.0]]]
+        ([3.0, 0.0, 5.0], [[10.0]])
         """
         surfaces = np.asarray(surfaces, dtype=np.float64)
         thickness = surfaces[:-1] - surfaces[1:]
@@ -93,38 +93,60 @@ class Geometry:
             )
         return cls(top=surfaces[0], thickness=thickness)
 
+    def __post_init__(self) -> None:
+        if isinstance(self.thickness, np.ndarray):  # a lazy one is checked once, where it is read
+            self.check_values()
+
+    def check_values(self) -> None:
+        """Refuse a thickness that is negative or not a number (reads a lazy array once).
+
+        Raises
+        ------
+        InputError
+            Naming how many cells are bad.
+        """
+        bad = int(np.count_nonzero(~(np.asarray(self.thickness) >= 0)))
+        if bad:
+            raise InputError(f"{bad} cell thickness(es) are negative or not a number; thickness is >= 0 m")
+
     def check(self, shape: tuple[int, int, int]) -> None:
         """Refuse a geometry that does not fit a grid of `shape` (layers, rows, columns).
 
         Raises
         ------
         InputError
-            If the shapes differ, or a thickness is negative or not finite.
+            If the shapes differ.
         """
         if tuple(self.thickness.shape) != tuple(shape) or tuple(self.top.shape) != tuple(shape[1:]):
             raise InputError(
                 f"the thickness has shape {tuple(self.thickness.shape)} and the top "
                 f"{tuple(self.top.shape)} but the grid is {tuple(shape)} (layers, rows, columns)"
             )
-        bad = int(np.count_nonzero(~(np.asarray(self.thickness) >= 0)))
-        if bad:
-            raise InputError(f"{bad} cell thickness(es) are negative or not a number; thickness is >= 0 m")
 
     def layer_thickness(self) -> np.ndarray:
         """Reference thickness of each layer: its mean over cells of positive thickness, m.
 
+        A layer pinched out everywhere takes the mean of the others' (its
+        cells pass vertical flow only, whatever it is).
+
         Raises
         ------
         InputError
-            If a layer is pinched out everywhere.
+            If every cell has zero thickness.
+
+        Examples
+        --------
+        >>> Geometry(np.zeros((1, 2)), np.array([[[1.0, 3.0]], [[0.0, 0.0]], [[0.0, 4.0]]])).layer_thickness()
+        array([2., 3., 4.])
         """
         thickness = np.asarray(self.thickness, dtype=np.float64)
         positive = thickness > 0
         count = positive.sum(axis=(1, 2))
-        if np.any(count == 0):
-            layer = int(np.flatnonzero(count == 0)[0]) + 1
-            raise InputError(f"layer {layer} has zero thickness everywhere; leave it out of the model")
-        return np.where(positive, thickness, 0.0).sum(axis=(1, 2)) / count
+        if not count.any():
+            raise InputError("every cell has zero thickness; a model needs some rock")
+        sums = np.where(positive, thickness, 0.0).sum(axis=(1, 2))
+        means = sums / np.maximum(count, 1)
+        return np.where(count > 0, means, means[count > 0].mean())
 
     def ratio(self, dz: np.ndarray) -> Any:
         """Thickness ratio ``w = thickness / dz`` of every cell (dask stays lazy)."""
@@ -195,8 +217,7 @@ def reference_permeability(kx: Any, ky: Any, kz: Any, w: Any, dz: np.ndarray) ->
     pinched = w == 0
     if kz is None:
         return tuple(np.where(pinched, np.nan, k * w) for k in (kx, ky)) + (None,)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        kz_ref = np.where(pinched, np.nan, kz / w)
+    kz_ref = np.where(pinched, np.nan, kz / np.where(pinched, 1.0, w))
     per_length = kz_ref / np.asarray(dz, dtype=np.float64)[:, None, None]
     column = np.nanmax(np.where(np.isnan(per_length), -np.inf, per_length), axis=0)
     passing = pinched & (column > 0)[None]

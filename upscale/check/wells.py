@@ -274,7 +274,7 @@ def coarse_wells(shared: FineWells, coarse: Field, *, coarse_trans: Transmissibi
     """
     trans = coarse_trans or transmissibilities(coarse)
     if given is None:
-        on_coarse = [connect(w, coarse.grid, *_horizontal(coarse), fine=shared.fine.grid)
+        on_coarse = [connect(w, coarse.grid, **_horizontal(coarse), fine=shared.fine.grid)
                      for w in shared.wells]  # fmt: skip
         found = upscale_wells(shared.fine, trans, shared.connections, on_coarse, connection=shared.connection,
                               outer_pressure=shared.outer_pressure, solver=solver,
@@ -311,7 +311,7 @@ def _from_table(wells: tuple[Well, ...], table: PackageWells, coarse: Field, fin
         )
     found = []
     for w in wells:
-        cells = connect(w, coarse.grid, *_horizontal(coarse), fine=fine.grid).cells
+        cells = connect(w, coarse.grid, **_horizontal(coarse), fine=fine.grid).cells
         if not np.array_equal(np.sort(cells), np.sort(table.cells[w.name])):
             raise InputError(
                 f"well {w.name}: the wells file puts it in coarse cell(s) {', '.join(map(str, cells))} and "
@@ -332,15 +332,24 @@ def place_wells(fine: Field, wells: tuple[Well, ...] | list[Well], outer_pressur
         As `well_check`.
     """
     refuse_rates_only(wells, outer_pressure)
-    connections = [connect(w, fine.grid, *_horizontal(fine)) for w in wells]
+    connections = [connect(w, fine.grid, **_horizontal(fine)) for w in wells]
     refuse_shared_cells(connections)
     return connections
 
 
-def _horizontal(field: Field) -> tuple[np.ndarray, np.ndarray]:
-    """Kx and ky of a field in memory, ky = kx when not given."""
+def _horizontal(field: Field) -> dict[str, np.ndarray | None]:
+    """The `connect` arrays of a field in memory: ``kx``, ``ky`` and ``rock``.
+
+    ky is kx when not given. With a geometry they are the reference field's,
+    and ``rock`` flags the cells not pinched out; None without one.
+    """
+    rock = None
+    if field.geometry is not None:
+        rock = np.asarray(field.geometry.thickness) > 0
+        field = field.reference()
     kx = np.asarray(field.kx, dtype=np.float64)
-    return kx, kx if field.ky is None or field.ky is field.kx else np.asarray(field.ky, dtype=np.float64)
+    ky = kx if field.ky is None or field.ky is field.kx else np.asarray(field.ky, dtype=np.float64)
+    return {"kx": kx, "ky": ky, "rock": rock}
 
 
 def _cells(

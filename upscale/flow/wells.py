@@ -229,7 +229,8 @@ def completed_thickness(grid: Grid, layers: tuple[int, int] | None, fine: Grid |
 
 
 def connect(
-    well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Grid | None = None
+    well: Well, grid: Grid, kx: np.ndarray, ky: np.ndarray, *, fine: Grid | None = None,
+    rock: np.ndarray | None = None,
 ) -> Connections:
     """The cells of `grid` the well crosses and their Peaceman well indices.
 
@@ -242,6 +243,11 @@ def connect(
         Permeabilities along x and y (any unit; NaN inactive).
     fine : Grid, optional
         The grid the well's layers are counted on, when `grid` is coarse.
+    rock : ndarray of bool, shape (L, M, N), optional
+        False for cells pinched out (zero thickness, `upscale.geometry`): the
+        well is not completed in them. With a geometry, `kx` and `ky` are the
+        reference field's, whose thickness is ``grid.dz``: the well index
+        comes out with the cell's true thickness.
 
     Raises
     ------
@@ -255,6 +261,8 @@ def connect(
         raise InputError(f"well {well.name}: layers {well.layers[0]}-{well.layers[1]} go below the grid's "
                          f"{counted} layer(s); count layers from 1 at the top")  # fmt: skip
     h = completed_thickness(grid, well.layers, fine)
+    if rock is not None:
+        h = np.where(rock[:, row, column], h, 0.0)
     layers = np.flatnonzero(h > 0)
     k_x, k_y = kx[layers, row, column], ky[layers, row, column]
     for layer, a, b in zip(layers, k_x, k_y):

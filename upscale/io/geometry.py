@@ -73,13 +73,12 @@ def geometry_from(top: float | str | Path | None, thickness: float | str | Path 
     if thickness is None:
         if top is None:
             return None
-        if dz is None and layers > 1:
-            raise InputError("`top` places the layers: give their thickness too (`dz` or `thickness`)")
         layer_dz = np.broadcast_to(np.asarray(1.0 if dz is None else dz, float), (layers,))
         cells = da.broadcast_to(da.asarray(layer_dz)[:, None, None], shape)
         return Geometry(top=_top(top, rows, columns, companion), thickness=cells)
     if dz is not None:
         raise InputError("`thickness` replaces `dz`: give one of them")
+    surface = _top(top, rows, columns, companion)
     if _is_value(thickness):
         if layers > 1:
             raise InputError(
@@ -89,4 +88,4 @@ def geometry_from(top: float | str | Path | None, thickness: float | str | Path 
         cells = da.full(shape, float(thickness))
     else:
         cells = companion("thickness", thickness, "linear", layers)
-    return Geometry(top=_top(top, rows, columns, companion), thickness=cells)
+    return Geometry(top=surface, thickness=cells)

@@ -161,7 +161,8 @@ def _layer_thickness(layers: int, dz: float | Sequence[float] | None, path: str)
         if layers > 1:
             raise InputError(
                 f"{path}: {layers} bands make a 3D model; give the layer thickness in metres "
-                "(`dz=2.5`, or one value per layer: `dz=2,3,1.5,...`)"
+                "(`dz=2.5`, or one value per layer: `dz=2,3,1.5,...`), or its geometry (`thickness`, "
+                "`surfaces`)"
             )
         return np.ones(1)
     values = np.atleast_1d(np.asarray(dz, dtype=float))
@@ -304,7 +305,7 @@ def read_field(
     shape = geometry_from(top, thickness, surfaces, dz, main.shape, companion)
     if shape is not None:
         shape = Geometry(top=shape.top, thickness=shape.thickness.rechunk(main.lazy.chunks))
-        shape.check(main.shape)
+        shape.check_values()
         layer_dz = shape.layer_thickness()
     grid = Grid(
         dz=layer_dz,

@@ -219,7 +219,7 @@ def _local_solve(fine: Field, coarse: Grid, well: Connections, on_fine: list[Con
                                coarse.shape)  # fmt: skip
     blocks, number = np.unique(ids, return_inverse=True)
     number = number.reshape(ids.shape)
-    mean = _block_means(found.pressure, part.grid.cell_volumes(), number, blocks.size)
+    mean = _block_means(found.pressure, part.cell_volumes(), number, blocks.size)
     rates = own.index * (own.well.value - found.pressure.ravel()[own.cells])
     q = np.bincount(number.ravel()[own.cells], rates, minlength=blocks.size)
     mine = np.searchsorted(blocks, well.cells)
