@@ -22,7 +22,9 @@ at the block centres, exactly (common practice):
 * A model with pinched-out cells: the package read back alone
   (`upscale.io.package.read_package`) has the run's transmissibilities and
   volume ratio, and gives the run's coarse k_eff per axis to 1e-10; its
-  bulk volumes sum to the fine model's true bulk volume, from the rasters.
+  bulk volumes sum to the fine model's true bulk volume, from the rasters,
+  as do the fine and coarse bulk volumes of summary.json, which counts the
+  pinched-out cells.
 """
 
 from __future__ import annotations
@@ -199,3 +201,7 @@ def test_bulk_volumes_are_the_true_ones(pinched):
     assert cells["bulk_volume"].sum() == pytest.approx(true, rel=1e-12)
     with netCDF4.Dataset(out / "coarse.nc") as nc:
         assert float(nc["bulk_volume"][:].sum()) == pytest.approx(true, rel=1e-12)
+    record = json.loads((out / "summary.json").read_text())["geometry"]
+    assert record["pinched_out_cells"] == 3 * 8  # layer 2 west of u = 3
+    assert record["fine_bulk_volume_m3"] == pytest.approx(true, rel=1e-12)
+    assert record["coarse_bulk_volume_m3"] == pytest.approx(true, rel=1e-12)
