@@ -1,4 +1,4 @@
-"""``upscale run`` on a model with a geometry: transmissivity of an aquifer map, the summary's record, the dip caution.
+"""``upscale run`` with a geometry: an aquifer map's transmissivity, the summary's record, the dip caution.
 
 What is tested
 --------------
@@ -30,7 +30,6 @@ import math
 import numpy as np
 import pytest
 import rasterio
-from conftest import write_raster
 
 from upscale.gallery.problems import uncorrelated_lognormal
 

@@ -46,7 +46,7 @@ from upscale.io.package import read_package
 SEED = 2_604_117_853
 CELL = 10.0
 LAYERS, ROWS, COLUMNS = 3, 6, 8
-#: Each surface c + a u + b v, with u, v the position in cells east of the west edge and south of the north edge.
+#: Each surface c + a u + b v: u, v the position in cells east of the west edge, south of the north edge.
 PLANES = ((120.0, 0.8, -0.5), (116.0, 0.7, -0.45), (111.0, 0.75, -0.3), (105.0, 0.6, -0.35))
 
 

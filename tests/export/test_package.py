@@ -543,6 +543,8 @@ def test_parquet_tables_equal_the_csv_tables(package, dim, method, units):
 #: UDUNITS spelling of the manifest's units (the ones the NetCDF file writes)
 _UDUNITS = {"m²": "m2", "m³": "m3", "ft³": "ft3", "mD": "millidarcy", "1 (fraction)": "1"}
 _COORDINATES = ("id", "i", "j", "k", "x", "y", "z", "dx", "dy", "dz", "active")
+#: A flat model's elevations in cells.csv are its NetCDF ``z`` and ``z_bounds`` (heights above a top at 0 m).
+_FLAT_ELEVATIONS = ("top_elevation", "base_elevation", "centre_elevation", "thickness")
 
 
 @pytest.mark.parametrize(("dim", "method", "units"), [("2d", "flow", "field"), ("3d", "geometric", "si"),
@@ -568,7 +570,8 @@ def test_netcdf_follows_cf_and_holds_the_cells_values(package, inputs, dim, meth
         assert x.standard_name == "projection_x_coordinate" and y.standard_name == "projection_y_coordinate"
         assert x.units == y.units == "m"
         assert z.units == ("m" if units == "si" else "ft") and z.positive == "up"
-        values = {name: _floats(cells[name]).reshape(L, M, N) for name in cells if name not in _COORDINATES}
+        values = {name: _floats(cells[name]).reshape(L, M, N) for name in cells
+                  if name not in (*_COORDINATES, *_FLAT_ELEVATIONS)}  # fmt: skip
         np.testing.assert_array_equal(x[:], values_x := _floats(cells["x"]).reshape(L, M, N)[0, 0, :])
         assert np.all(np.diff(values_x) > 0)
         np.testing.assert_array_equal(y[:], _floats(cells["y"]).reshape(L, M, N)[0, :, 0])
@@ -619,7 +622,7 @@ def test_vtk_ids_lead_back_to_the_cells(package, dim, units):
         assert coords[name].size == count + 1
         assert np.all(np.diff(coords[name]) > 0), name
     cells = _read_csv(folder / "cells.csv")
-    assert set(data) == {"id"} | {c for c in cells if c not in _COORDINATES}
+    assert set(data) == {"id"} | {c for c in cells if c not in (*_COORDINATES, *_FLAT_ELEVATIONS)}
     n = L * M * N
     assert all(a.size == n for a in data.values())
     ids = data["id"].astype(np.int64)

@@ -381,7 +381,8 @@ class RunSummary:
                    data["timings_s"], data["caution"],
                    None if tensor is None else TensorSummary.from_dict(tensor),
                    None if faces is None else FaceRule.from_dict(faces), data.get("well_check"),
-                   data.get("layers"), None if shape is None else GeometryRecord.from_dict(shape))  # fmt: skip
+                   data.get("layers"),
+                   None if shape is None else GeometryRecord.from_dict(shape))  # fmt: skip
 
 
 def build_summary(

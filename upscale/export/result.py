@@ -155,8 +155,8 @@ def _write_geotiffs(stage: Path, result: Upscaled, tags: dict[str, str]) -> list
         write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags, depths=True)
         files.append(f"{name}.tif")
     for name, values in (transmissivities(coarse) or {}).items():
-        write_property(stage / f"{name}.tif", values, coarse.grid, name, transmissivity_unit(coarse.unit), tags,
-                       depths=True)  # fmt: skip
+        unit = transmissivity_unit(coarse.unit)
+        write_property(stage / f"{name}.tif", values, coarse.grid, name, unit, tags, depths=True)
         files.append(f"{name}.tif")
     direct = result.transmissibilities() if result.faces is not None else None
     for axis in "xyz"[: coarse.ndim] if direct is not None else ():
