@@ -218,8 +218,9 @@ def write_result(
         What to write besides ``summary.json`` (always written, last):
         ``geotiff``, one GeoTIFF per coarse property (``kx.tif``...) and the
         face transmissibilities of direct methods; ``package``, the coarse-grid
-        package (CSV and Parquet tables, ``coarse.nc``, ``coarse.vtr``,
-        ``manifest.json``), which `upscale check` reads. By default both, as
+        package (CSV and Parquet tables, ``coarse.nc``, ``coarse.vtr`` — or
+        ``coarse.vts`` for a model with a geometry — ``manifest.json``), which
+        `upscale check` reads. By default both, as
         the command line writes them.
 
     Returns
