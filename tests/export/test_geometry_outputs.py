@@ -25,6 +25,10 @@ at the block centres, exactly (common practice):
   bulk volumes sum to the fine model's true bulk volume, from the rasters,
   as do the fine and coarse bulk volumes of summary.json, which counts the
   pinched-out cells.
+* Wells from the package: ``upscale check DIR --wells`` on a run written
+  without wells connects the coarse wells by Peaceman's formula on the
+  package's kx, ky and its cells' true thicknesses, as the run itself does
+  with ``--wells``: the same factors and rates to 1e-10.
 * Slabs: ``cells.csv`` and ``coarse.vts`` written a slab at a time are the
   same bytes as in one slab.
 """
@@ -220,3 +224,25 @@ def test_elevations_and_points_do_not_depend_on_the_slab_size(pinched, tmp_path,
     upscale.write_result(result, cut, formats="package")
     for name in ("cells.csv", "coarse.vts"):
         assert (whole / name).read_bytes() == (cut / name).read_bytes(), name
+
+
+def test_wells_checked_from_the_package_see_the_cells_true_thickness(pinched, tmp_path):
+    _, paths, _ = pinched
+    wells = tmp_path / "wells.csv"
+    west, north = ORIGIN
+    wells.write_text("name,x,y,control,value,radius\n"
+                     f"INJ,{west + 5},{north - 5},pressure,200,0.1\n"
+                     f"PRD,{west + 75},{north - 75},pressure,100,0.1\n")  # fmt: skip
+    common = [str(paths["k"]), "--top", str(paths["top"]), "--thickness", str(paths["thickness"]), "--kv-kh",
+              "0.1", "--block", "4x4x1", "--method", "flow"]  # fmt: skip
+    ran, later = tmp_path / "ran", tmp_path / "later"
+    assert main(["-q", "run", *common, "--wells", str(wells), "--well-connection", "peaceman",
+                 "--out", str(ran)]) == 0  # fmt: skip
+    assert main(["-q", "run", *common, "--out", str(later)]) == 0
+    assert main(["-q", "check", str(later), "--wells", str(wells), "--well-connection", "peaceman"]) == 0
+    found = [json.loads((f / "summary.json").read_text())["well_check"]["wells"] for f in (ran, later)]
+    for name in ("INJ", "PRD"):
+        run, checked = (wells[name]["coarse"] for wells in found)
+        assert checked["cells"] == run["cells"]
+        np.testing.assert_allclose(checked["factors"], run["factors"], rtol=1e-10)
+        assert checked["rate"] == pytest.approx(run["rate"], rel=1e-10)

@@ -20,6 +20,7 @@ from affine import Affine
 from ..errors import InputError
 from ..field import Field, Grid
 from ..flow import Transmissibilities
+from ..geometry import Geometry
 from ..optional import lazy
 from .read import sha256
 
@@ -159,7 +160,9 @@ def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) 
     -------
     Field
         kx, ky of shape (L, M, N), NaN for inactive blocks; the grid of `trans`
-        with a north-up transform through the first block's corner.
+        with a north-up transform through the first block's corner; for a
+        model with a geometry (the manifest's ``geometry``), the geometry of
+        the ``top_elevation`` and ``thickness`` columns, in m.
 
     Raises
     ------
@@ -175,9 +178,12 @@ def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) 
         k = {name: np.asarray(cells[name][order], dtype=np.float64) for name in ("kx", "ky") if name in cells}
         x, y = float(cells["x"][order][0]), float(cells["y"][order][0])
         k["kx"]
+        length = float(factors["length"])
+        shape = _geometry(cells, order, trans.grid.shape, length) if "geometry" in manifest else None
     except (KeyError, TypeError, ValueError) as exc:
         raise InputError(
-            f"{folder / 'cells.csv'}: no kx, x and y to place the wells on ({_plain(exc)})"
+            f"{folder / 'cells.csv'}: no kx, x and y to place the wells on, or no elevations for the "
+            f"manifest's geometry ({_plain(exc)})"
         ) from None
     grid = trans.grid
     # the centres are in the CRS's units, laid out with the block sizes in m (`upscale.export.package`)
@@ -186,7 +192,15 @@ def read_coarse_field(folder: str | Path, trans: Transmissibilities, unit: str) 
     placed = Grid(dz=grid.dz, dy=grid.dy, dx=grid.dx, transform=transform)
     kx = np.where(trans.active, k["kx"].reshape(grid.shape) / float(factors["k"]), np.nan)
     ky = np.where(trans.active, k.get("ky", k["kx"]).reshape(grid.shape) / float(factors["k"]), np.nan)
-    return Field(kx, ky, None, None, placed, unit)
+    return Field(kx, ky, None, None, placed, unit, geometry=shape)
+
+
+def _geometry(cells: dict[str, np.ndarray], order: np.ndarray, shape: tuple[int, int, int],
+              length: float) -> Geometry:  # fmt: skip
+    """The coarse geometry of a package's cells (top of the first layer, every thickness), in m."""
+    top, thickness = (np.asarray(cells[name][order], dtype=np.float64).reshape(shape) / length
+                      for name in ("top_elevation", "thickness"))  # fmt: skip
+    return Geometry(top=top[0], thickness=thickness)
 
 
 @dataclass(frozen=True, eq=False)
