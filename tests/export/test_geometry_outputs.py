@@ -242,7 +242,7 @@ def test_wells_checked_from_the_package_see_the_cells_true_thickness(pinched, tm
     assert main(["-q", "check", str(later), "--wells", str(wells), "--well-connection", "peaceman"]) == 0
     found = [json.loads((f / "summary.json").read_text())["well_check"]["wells"] for f in (ran, later)]
     for name in ("INJ", "PRD"):
-        run, checked = (wells[name]["coarse"] for wells in found)
+        run, checked = (record[name]["coarse"] for record in found)
         assert checked["cells"] == run["cells"]
         np.testing.assert_allclose(checked["factors"], run["factors"], rtol=1e-10)
         assert checked["rate"] == pytest.approx(run["rate"], rel=1e-10)
