@@ -29,7 +29,7 @@ How flow sees it (common practice for layered grids on vertical pillars):
   (even nodata). Numerically, its vertical resistance is a millionth
   (`PASS_THROUGH`) of the least vertical half-cell resistance of the active
   cells of its column, so a connection across m pinched cells is within
-  about m × 10⁻⁶ of that ideal. Pinched cells of a column with no active
+  at most m × 10⁻⁶ of that ideal. Pinched cells of a column with no active
   cell of positive thickness stay inactive.
 """
 
