@@ -474,9 +474,10 @@ class Field:
 
         parts = from_labelled(data, cell_size=cell_size, dz=dz, unit=unit)
         arrays = share_inactive(parts.arrays)
+        geometry = None if parts.geometry is None else Geometry(*parts.geometry)
         return cls(kx=arrays["kx"], ky=arrays["ky"], kz=arrays.get("kz"), porosity=arrays.get("porosity"),
                    grid=Grid(**parts.grid), unit=parts.unit,
-                   sources=tuple(Source(*s) for s in parts.sources))  # fmt: skip
+                   sources=tuple(Source(*s) for s in parts.sources), geometry=geometry)  # fmt: skip
 
     def to_xarray(self) -> xarray.Dataset:
         """The field as an xarray Dataset: labelled dimensions, coordinates, units and CRS.
