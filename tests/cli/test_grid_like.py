@@ -62,7 +62,8 @@ def test_coarse_grid_is_the_template_over_the_cells_it_covers(run_cli, fine, wri
         "template_columns": list(CELL_COLUMNS)}  # fmt: skip
     assert len(summary["grid_like"]["sha256"]) == 64
     assert (summary["block"]["x"], summary["block"]["y"]) == (3, 2)
-    assert "grid like    " in stdout and "from column 1, row 0, on the fine cells from column 1, row 3" in stdout
+    assert "grid like    " in stdout
+    assert "from column 1, row 0, on the fine cells from column 1, row 3" in stdout
 
 
 def test_3d_layers_come_from_block(run_cli, write_tif, tmp_path):
@@ -111,6 +112,21 @@ def test_compare_records_the_template(run_cli, fine, write_tif, tmp_path):
     assert (record["grid_like"]["rows"], record["grid_like"]["columns"]) == (list(ROWS), list(COLUMNS))
     assert record["fine"]["shape"] == {"layers": 1, "rows": 20, "columns": 39}
     assert (record["block"]["x"], record["block"]["y"]) == (3, 2)
+
+
+def test_an_ensemble_snaps_every_realization(run_cli, fine, write_tif, tmp_path):
+    _, values = fine
+    paths = [write_tif(f"r{i}.tif", values * factor, cell_size=10.0) for i, factor in enumerate((1.0, 3.0))]
+    out = tmp_path / "ensemble"
+    code, _, err = run_cli("run", *paths, "--grid-like", _template(write_tif), "--method", "arithmetic",
+                           "--no-check", "--out", out)  # fmt: skip
+    assert (code, err) == (0, "")
+    for name, factor in (("r0", 1.0), ("r1", 3.0)):
+        assert _summary(out / name)["grid_like"]["columns"] == list(COLUMNS)
+        with rasterio.open(out / name / "kx.tif") as src:
+            assert src.read(1)[0, 0] == pytest.approx(factor * values[3:5, 1:4].mean(), rel=1e-13)
+    with rasterio.open(out / "maps" / "kx_p50_nonexceed.tif") as src:
+        assert src.transform == TEMPLATE @ Affine.translation(1, 0)
 
 
 ROTATED = Affine(30.0, 5.0, TEMPLATE.c, 0.0, -20.0, TEMPLATE.f)

@@ -34,8 +34,9 @@ def test_snap_window(grid, offset, ratio, expected):
     found = snap_to(grid, Template("t.tif", "", cells, grid.crs, 10, 16))
     assert found == expected
     # every template cell covered is whole on the field, and the one beyond each end is not (or none is)
-    for (start, stop), (first, last), size, fine, cells in ((found.rows, found.template_rows, ny, 30, 10),
-                                                            (found.columns, found.template_columns, nx, 40, 16)):
+    axes = [(found.rows, found.template_rows, ny, 30, 10),
+            (found.columns, found.template_columns, nx, 40, 16)]  # fmt: skip
+    for (start, stop), (first, last), size, fine, cells in axes:
         assert 0 <= start and stop <= fine and stop - start == size * (last - first)
         assert first == 0 or start - size < 0
         assert last == cells or stop + size > fine

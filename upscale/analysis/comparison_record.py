@@ -206,7 +206,8 @@ class ComparisonRecord:
                    tuple(MethodRecord.from_dict(m) for m in data["methods"]), data["best"],
                    data["best_along"], data["caution"], tuple(data.get("files", ())),
                    data.get("layers"), *_per_axis(data.get("per_axis")),
-                   None if "grid_like" not in data else GridLikeRecord.from_dict(data["grid_like"]))  # fmt: skip
+                   None if "grid_like" not in data
+                   else GridLikeRecord.from_dict(data["grid_like"]))  # fmt: skip
 
 
 def _per_axis(data: dict[str, Any] | None) -> tuple[MethodRecord | None, str | None]:

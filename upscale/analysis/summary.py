@@ -390,7 +390,8 @@ class RunSummary:
                    data["timings_s"], data["caution"],
                    None if tensor is None else TensorSummary.from_dict(tensor),
                    None if faces is None else FaceRule.from_dict(faces), data.get("well_check"),
-                   data.get("layers"), None if grid_like is None else GridLikeRecord.from_dict(grid_like))  # fmt: skip
+                   data.get("layers"),
+                   None if grid_like is None else GridLikeRecord.from_dict(grid_like))  # fmt: skip
 
 
 def build_summary(

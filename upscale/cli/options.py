@@ -82,8 +82,9 @@ def parse_chunk(text: str | None, block: tuple[int, int, int] | None) -> int | N
     if text is not None and text.strip().lower().endswith("blocks"):
         count = text.strip()[:-6].strip()
         if block is None:
-            raise click.BadParameter(f"{text!r}: a number of blocks needs the block size, which --grid-like "
-                                     "takes from the template; give a size such as 64MB", param_hint="--chunk")
+            raise click.BadParameter(f"{text!r}: a number of blocks needs the block size, which "
+                                     "--grid-like takes from the template; give a size such as 64MB",
+                                     param_hint="--chunk")  # fmt: skip
         if not count.isdigit() or int(count) < 1:
             raise click.BadParameter(f"{text!r} is not a number of blocks such as 400blocks",
                                      param_hint="--chunk")  # fmt: skip
@@ -154,15 +155,18 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
 def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """The block partition and its rules (shared by run and compare); see `block_spec`."""
     command = block_rule_options(command)
-    command = click.option("--grid-like", type=click.Path(dir_okay=False), default=None, metavar="FILE",
-                           help="A raster whose cells are the coarse blocks along x and y (its origin and cell "
-                           "size; its values are not read): each cell a whole number of fine cells, its edges on "
-                           "fine cell edges, the same CRS. The field is cut to the template's whole cells, so "
-                           "the coarse GeoTIFFs are on the template's grid; --block then gives the layers only "
-                           "(2, 2,2,4 or auto:4) [default: 1 fine layer per coarse layer].")(command)  # fmt: skip
-    return click.option("--block", default=None, metavar="NXxNY[xNZ]",
-                        help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
-                        "8x8x2 adds 2 layers. Required unless --grid-like gives x and y.")(command)  # fmt: skip
+    command = click.option(
+        "--grid-like", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+        help="A raster whose cells are the coarse blocks along x and y (its origin and cell size; its values "
+        "are not read): each cell a whole number of fine cells, its edges on fine cell edges, the same CRS. "
+        "The field is cut to the template's whole cells, so the coarse GeoTIFFs are on the template's grid; "
+        "--block then gives the layers only (2, 2,2,4 or auto:4) [default: 1 fine layer per coarse layer].",
+    )(command)  # fmt: skip
+    return click.option(
+        "--block", default=None, metavar="NXxNY[xNZ]",
+        help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; 8x8x2 adds 2 "
+        "layers. Required unless --grid-like gives x and y.",
+    )(command)  # fmt: skip
 
 
 def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:

@@ -105,27 +105,37 @@ def snap_to(grid: Grid, template: Template) -> Snap:
     fine, t = grid.transform, template.transform
     name = template.path
     if t.b != 0 or t.d != 0 or t.a * fine.a <= 0 or t.e * fine.e <= 0:
-        raise InputError(f"{name}: the template's cells are not north-up rectangles like the field's "
-                         f"(geotransform {tuple(t)[:6]}); resample it onto a north-up grid first")  # fmt: skip
+        raise InputError(
+            f"{name}: the template's cells are not north-up rectangles like the field's (geotransform "
+            f"{tuple(t)[:6]}); resample it onto a north-up grid first"
+        )
     if template.crs != grid.crs:
-        raise InputError(f"{name}: the template's CRS ({_crs(template.crs)}) differs from the field's "
-                         f"({_crs(grid.crs)}); reproject the template onto the field's CRS")  # fmt: skip
+        raise InputError(
+            f"{name}: the template's CRS ({_crs(template.crs)}) differs from the field's "
+            f"({_crs(grid.crs)}); reproject the template onto the field's CRS"
+        )
     nx, ny = _cells_per_block(t.a / fine.a), _cells_per_block(t.e / fine.e)
     if nx is None or ny is None:
-        raise InputError(f"{name}: the template's cells ({abs(t.a):g} x {abs(t.e):g}) are not a whole number "
-                         f"of the field's cells ({abs(fine.a):g} x {abs(fine.e):g}) along x and y")  # fmt: skip
+        raise InputError(
+            f"{name}: the template's cells ({abs(t.a):g} x {abs(t.e):g}) are not a whole number of the "
+            f"field's cells ({abs(fine.a):g} x {abs(fine.e):g}) along x and y"
+        )
     column, row = _edge(t.c - fine.c, fine.a), _edge(t.f - fine.f, fine.e)
     if column is None or row is None:
-        raise InputError(f"{name}: the template's cell edges fall between the field's cell edges (its "
-                         f"origin is {(t.c - fine.c) / fine.a:.6g} columns, {(t.f - fine.f) / fine.e:.6g} "
-                         "rows from the field's); snap its origin to a corner of the field's cells")  # fmt: skip
+        raise InputError(
+            f"{name}: the template's cell edges fall between the field's cell edges (its origin is "
+            f"{(t.c - fine.c) / fine.a:.6g} columns, {(t.f - fine.f) / fine.e:.6g} rows from the field's); "
+            "snap its origin to a corner of the field's cells"
+        )
     _, rows, columns = grid.shape
     first_c, last_c = _covered(column, nx, columns, template.columns)
     first_r, last_r = _covered(row, ny, rows, template.rows)
     if first_c >= last_c or first_r >= last_r:
-        raise InputError(f"{name}: no cell of the template lies wholly on the field (the template starts "
-                         f"{column} columns and {row} rows from the field's origin, with cells of {nx} x {ny} "
-                         f"fine cells; the field has {columns} x {rows})")  # fmt: skip
+        raise InputError(
+            f"{name}: no cell of the template lies wholly on the field (the template starts {column} "
+            f"columns and {row} rows from the field's origin, with cells of {nx} x {ny} fine cells; the "
+            f"field has {columns} x {rows})"
+        )
     return Snap((row + first_r * ny, row + last_r * ny), (column + first_c * nx, column + last_c * nx),
                 (first_r, last_r), (first_c, last_c), nx, ny)  # fmt: skip
 
@@ -141,7 +151,7 @@ def _cells_per_block(ratio: float) -> int | None:
 
 
 def _edge(distance: float, size: float) -> int | None:
-    """The fine cells a template edge lies from the field's (`distance` in map units), or None between cells."""
+    """The fine cells a template edge lies from the field's (`distance`: map units); None between cells."""
     cells = distance / size
     whole = round(cells)
     return whole if abs(cells - whole) <= EDGE_TOLERANCE else None

@@ -13,9 +13,9 @@ from typing import TYPE_CHECKING, Any
 
 from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, progress_line, with_per_axis
 from ..analysis.comparison_record import ComparisonRecord, comparison_record
-from ..analysis.records import GridLikeRecord
 from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
 from ..analysis.percentiles import refuse_convention
+from ..analysis.records import GridLikeRecord
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.wells import FineWells, fine_wells
 from ..errors import InputError
@@ -41,7 +41,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                  recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                  overwrite: bool = False, say: Say = silent, wells: str | None = None,
                  outer_pressure: float | None = None, well_connection: str = "near-well",
-                 out_unit: str | None = None, grid_like: str | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
+                 out_unit: str | None = None,
+                 grid_like: str | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
     """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
 
     Parameters
