@@ -84,6 +84,28 @@ def test_3d_layers_come_from_block(run_cli, write_tif, tmp_path):
     assert _summary(out)["block"]["z"] == 2
 
 
+def test_automatic_layers_are_chosen_on_the_cut_field(run_cli, write_tif, tmp_path):
+    # a grouping of the layers opens the field again with chunks of every layer: it must be cut alike
+    rng = np.random.default_rng(SEED + 2)
+    values = np.exp(rng.normal(3.0, 1.0, (5, 30, 40)) + np.array([0.0, 0.1, 2.0, 2.1, 2.2])[:, None, None])
+    path = write_tif("model.tif", values, cell_size=10.0)
+    out = tmp_path / "auto"
+    code, _, err = run_cli("run", path, "--dz", "1,2,1,2,1", "--grid-like", _template(write_tif), "--block",
+                           "auto:2", "--method", "arithmetic", "--no-check", "--out", out)  # fmt: skip
+    assert (code, err) == (0, "")
+    groups = _summary(out)["block"]["z"]
+    assert groups == [2, 3]  # the two low layers apart from the three high ones
+    with rasterio.open(out / "kx.tif") as src:
+        kx, transform = src.read(), src.transform
+    assert transform == TEMPLATE @ Affine.translation(1, 0)
+    # thickness-weighted mean of the fine cells under the first template cell (common practice)
+    dz = np.array([1.0, 2.0, 1.0, 2.0, 1.0])[:, None, None]
+    under = values[:, 3:5, 1:4]
+    for coarse, layers in ((0, slice(0, 2)), (1, slice(2, 5))):
+        expected = (under[layers] * dz[layers]).sum() / (dz[layers].sum() * 6)
+        assert kx[coarse, 0, 0] == pytest.approx(expected, rel=1e-13)
+
+
 def test_check_solves_the_snapped_run_again(run_cli, fine, write_tif, tmp_path):
     path, _ = fine
     out = tmp_path / "checked"
