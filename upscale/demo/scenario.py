@@ -1,9 +1,9 @@
 """The demo scenario: fields of the Marrowfen Basin, an invented sedimentary basin.
 
 Everything here is fictional — the basin, its Ostrella Sandstone, the
-Marrowfen Gravels aquifer and the numbers — and exists to show the tool at work. The coordinates are on a
-made-up projected grid (transverse Mercator on a sphere, origin far from
-any real survey), not at any real place.
+Marrowfen Gravels aquifer and the numbers — and exists to show the tool at
+work. The coordinates are on a made-up projected grid (transverse Mercator
+on a sphere, origin far from any real survey), not at any real place.
 """
 
 from __future__ import annotations
