@@ -465,7 +465,7 @@ def _active(result: Upscaled) -> ActiveCounts:
     active_blocks = int(np.isfinite(coarse.kx).sum())
     pore = None
     if result.fine.porosity is not None:
-        pore = jsonable(float(np.nansum(coarse.porosity * coarse.grid.cell_volumes())))
+        pore = jsonable(float(np.nansum(coarse.porosity * coarse.cell_volumes())))
     zeros = ZeroKRecord.from_dict(jsonable(result.zeros.summary()))
     return ActiveCounts(jsonable(result.fine_stats["kx"].active), active_blocks,
                         int(coarse.kx.size - active_blocks), jsonable(result.dropped_cells),
