@@ -53,6 +53,11 @@ DEMO_NAMES = (
     "marrowfen_channels.tif",
     "marrowfen_layered.tif",
     "marrowfen_3d.tif",
+    "marrowfen_dome.tif",
+    "marrowfen_dome_surfaces.tif",
+    "marrowfen_dome_porosity.tif",
+    "marrowfen_aquifer_conductivity.tif",
+    "marrowfen_aquifer_thickness.tif",
     *(f"ensemble/marrowfen_r{r:02d}.tif" for r in range(1, 9)),
 )
 

@@ -106,6 +106,25 @@ def test_a_field_goes_to_xarray_and_back_exactly(tmp_path: Path):
     assert back.unit == field.unit and back.ndim == 3
 
 
+def test_a_field_with_a_geometry_goes_to_xarray_and_back_exactly(tmp_path: Path):
+    k = uncorrelated_lognormal((3, 8, 12), 6)
+    thickness = np.random.default_rng(6).uniform(0.0, 3.0, k.shape)
+    thickness[1, :, :4] = 0.0  # pinched out
+    top = 80.0 - np.arange(12)[None, :] * np.ones((8, 1))
+    path = write_raster(tmp_path / "k.tif", k, cell_size=10.0)
+    field = read_field(path, top=write_raster(tmp_path / "top.tif", top, cell_size=10.0),
+                       thickness=write_raster(tmp_path / "h.tif", thickness, cell_size=10.0))  # fmt: skip
+    ds = field.to_xarray()
+    assert ds.thickness.dims == ("layer", "y", "x") and ds.top.dims == ("y", "x")
+    assert ds.top.attrs["positive"] == "up"
+    back = Field.from_xarray(ds)
+    np.testing.assert_array_equal(back.geometry.top, top)
+    np.testing.assert_array_equal(np.asarray(back.geometry.thickness), thickness)
+    np.testing.assert_array_equal(back.grid.dz, field.grid.dz)
+    a, b = coarsen(field, "4x4x3", "flow"), coarsen(back, "4x4x3", "flow")
+    np.testing.assert_array_equal(b.coarse.kz, a.coarse.kz)
+
+
 def test_upscaled_to_xarray_holds_properties_and_transmissibilities(tmp_path: Path):
     path = write_raster(tmp_path / "k.tif", uncorrelated_lognormal((16, 24), 9), cell_size=10.0)
     result = coarsen(read_field(path), "4x4", "arithmetic")

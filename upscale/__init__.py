@@ -37,6 +37,7 @@ from .errors import InputError, UpscaleError
 _LAZY = {
     "BlockSpec": ".grid",
     "Field": ".field",
+    "Geometry": ".geometry",
     "Grid": ".field",
     "METHODS": ".methods.registry",
     "Upscaled": ".methods.coarsen",
@@ -79,6 +80,7 @@ __all__ = [
     "METHODS",
     "BlockSpec",
     "Field",
+    "Geometry",
     "Grid",
     "InputError",
     "UpscaleError",

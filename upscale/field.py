@@ -358,6 +358,7 @@ class Field:
         dz: float | np.ndarray | None = None,
         unit: str = "mD",
         three_d: bool | None = None,
+        geometry: Geometry | None = None,
     ) -> Field:
         """Build a field from in-memory or dask arrays.
 
@@ -377,6 +378,9 @@ class Field:
         three_d : bool, optional
             Force a 3D (True) or 2D (False) field; by default 3D when `kx` has
             more than one layer.
+        geometry : Geometry, optional
+            A top surface and cell thicknesses (`upscale.geometry`), in place
+            of `dz`: the layers' reference thicknesses come from it.
 
         Returns
         -------
@@ -394,6 +398,10 @@ class Field:
         layers = arrays["kx"].shape[0]
         if three_d is None:
             three_d = layers > 1 or "kz" in arrays
+        if geometry is not None:
+            if dz is not None:
+                raise InputError("give either `dz` or `geometry`, not both")
+            dz = geometry.layer_thickness()
         if three_d:
             if dz is None:
                 raise InputError("a 3D field needs the layer thickness dz in m")
@@ -415,6 +423,7 @@ class Field:
             porosity=arrays.get("porosity"),
             grid=grid,
             unit=unit,
+            geometry=geometry,
         )
 
     @classmethod
@@ -465,9 +474,10 @@ class Field:
 
         parts = from_labelled(data, cell_size=cell_size, dz=dz, unit=unit)
         arrays = share_inactive(parts.arrays)
+        geometry = None if parts.geometry is None else Geometry(*parts.geometry)
         return cls(kx=arrays["kx"], ky=arrays["ky"], kz=arrays.get("kz"), porosity=arrays.get("porosity"),
                    grid=Grid(**parts.grid), unit=parts.unit,
-                   sources=tuple(Source(*s) for s in parts.sources))  # fmt: skip
+                   sources=tuple(Source(*s) for s in parts.sources), geometry=geometry)  # fmt: skip
 
     def to_xarray(self) -> xarray.Dataset:
         """The field as an xarray Dataset: labelled dimensions, coordinates, units and CRS.
@@ -512,6 +522,8 @@ class Field:
         lazy = any(type(a).__module__.partition(".")[0] == "dask" for a in arrays.values())
         kind = f"{'dask (lazy)' if lazy else 'NumPy'} arrays of {np.dtype(self.kx.dtype).name}"
         rows = [("properties", f"{', '.join(arrays)}: {kind}"), *self.grid._rows()]
+        if self.geometry is not None:
+            rows.append(("geometry", "a top surface and cell thicknesses (dz: each layer's reference)"))
         if self.sources:
             paths = dict.fromkeys(PurePath(s.path).name for s in self.sources)
             rows.append(("read from", ", ".join(paths)))

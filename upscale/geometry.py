@@ -29,7 +29,7 @@ How flow sees it (common practice for layered grids on vertical pillars):
   (even nodata). Numerically, its vertical resistance is a millionth
   (`PASS_THROUGH`) of the least vertical half-cell resistance of the active
   cells of its column, so a connection across m pinched cells is within
-  about m × 10⁻⁶ of that ideal. Pinched cells of a column with no active
+  at most m × 10⁻⁶ of that ideal. Pinched cells of a column with no active
   cell of positive thickness stay inactive.
 """
 
@@ -44,6 +44,10 @@ from .errors import InputError
 
 #: A pinched-out cell's vertical half-cell transmissibility over the largest of its column.
 PASS_THROUGH = 1e6
+
+#: Dip (degrees) above which neglecting it errs by more than 1 % in a lateral transmissibility:
+#: 1 / cos²θ = 1.01 at θ = 5.7°.
+DIP_LIMIT = float(np.degrees(np.arccos(1 / np.sqrt(1.01))))
 
 
 @dataclass(frozen=True, eq=False)
@@ -157,6 +161,38 @@ class Geometry:
         below = np.cumsum(np.asarray(self.thickness, dtype=np.float64), axis=0)
         return np.concatenate([self.top[None], self.top[None] - below])
 
+    def describe(self, dx: float, dy: float) -> dict[str, Any]:
+        """What a practitioner checks first: ranges, pinched-out cells and the steepest dip.
+
+        Parameters
+        ----------
+        dx, dy : float
+            Column width and row height in m.
+
+        Returns
+        -------
+        dict
+            ``top_m`` and ``thickness_m`` (``min``, ``max``), ``pinched_cells``,
+            ``cells``, ``steepest_dip_deg`` and ``dip_limit_deg`` (`DIP_LIMIT`).
+
+        Examples
+        --------
+        >>> g = Geometry(np.array([[10.0, 9.0]]), np.array([[[2.0, 0.0]], [[1.0, 1.0]]]))
+        >>> d = g.describe(1.0, 1.0)
+        >>> d["thickness_m"], d["pinched_cells"], round(d["steepest_dip_deg"], 1)
+        ({'min': 0.0, 'max': 2.0}, 1, 45.0)
+        """
+        thickness = np.asarray(self.thickness, dtype=np.float64)
+        top = self.top[np.isfinite(self.top)]
+        return {
+            "top_m": {"min": float(top.min()), "max": float(top.max())} if top.size else None,
+            "thickness_m": {"min": float(thickness.min()), "max": float(thickness.max())},
+            "pinched_cells": int(np.count_nonzero(thickness == 0)),
+            "cells": int(thickness.size),
+            "steepest_dip_deg": steepest_dip(self.surfaces(), dx, dy),
+            "dip_limit_deg": DIP_LIMIT,
+        }
+
     def window(self, rows: slice, columns: slice) -> Geometry:
         """The geometry of a rectangle of rows and columns (all layers)."""
         return Geometry(top=self.top[rows, columns], thickness=self.thickness[:, rows, columns])
@@ -168,26 +204,32 @@ class Geometry:
 
 
 def steepest_dip(surfaces: np.ndarray, dx: float, dy: float) -> float:
-    """Steepest dip between lateral neighbours' cell centres, in degrees.
+    """Steepest dip between the cell centres of lateral neighbours, in degrees.
+
+    Pairs with a pinched-out cell (which passes no lateral flow) and NaN
+    columns are left out.
 
     Parameters
     ----------
     surfaces : ndarray of shape (L + 1, M, N)
-        As `Geometry.surfaces`; NaN columns are left out.
+        As `Geometry.surfaces`.
     dx, dy : float
         Column width and row height in m.
 
     Examples
     --------
-    >>> s = np.array([[[0.0, -1.0]], [[-2.0, -3.0]]])   # one layer sloping 1 m over 1 m
+    >>> s = np.array([[[0.0, -1.0, 5.0]], [[-2.0, -3.0, 5.0]]])   # a slope of 1 m over 1 m, then a pinch
     >>> round(steepest_dip(s, 1.0, 1.0), 6)
     45.0
     """
     centres = 0.5 * (surfaces[:-1] + surfaces[1:])
+    rock = (surfaces[:-1] - surfaces[1:]) > 0
     steepest = 0.0
     for axis, size in ((2, dx), (1, dy)):
         if centres.shape[axis] > 1:
-            rise = np.abs(np.diff(centres, axis=axis))
+            n = centres.shape[axis]
+            both = np.take(rock, range(n - 1), axis) & np.take(rock, range(1, n), axis)
+            rise = np.where(both, np.abs(np.diff(centres, axis=axis)), np.nan)
             if np.any(np.isfinite(rise)):
                 steepest = max(steepest, float(np.nanmax(rise)) / size)
     return float(np.degrees(np.arctan(steepest)))

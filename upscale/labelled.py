@@ -13,7 +13,9 @@ reads back exactly:
   downward — as in the NetCDF file of the coarse-grid package;
 * variables ``kx``, ``ky``, ``kz``, ``porosity`` with ``units`` and
   ``long_name`` (and ``source``, ``source_sha256`` for properties read from
-  files), NaN in inactive cells;
+  files), NaN in inactive cells; for a field with a geometry
+  (`upscale.geometry`) also ``top`` (y, x) and ``thickness``, in m, with
+  ``dz`` the layers' reference thicknesses;
 * the CRS and the geotransform in a ``spatial_ref`` grid-mapping variable as
   rioxarray writes them (``crs_wkt`` and the CF grid-mapping attributes;
   ``GeoTransform`` in GDAL's order), so ``ds.rio.crs`` and
@@ -118,6 +120,8 @@ def to_dataset(field: Any, *, extra: dict[str, tuple[Any, dict]] | None = None,
     variables = {name: (dims, on_dims(array), _attributes(name, unit, sources.get(name)))
                  for name, array in field.properties().items()}  # fmt: skip
     variables.update({name: (dims, on_dims(array), a) for name, (array, a) in (extra or {}).items()})
+    if field.geometry is not None:
+        variables.update(geometry_variables(field.geometry, dims, on_dims))
     for axis, (values, a) in (faces or {}).items():
         face = f"{axis}_face"
         where = {"long_name": f"{axis} of the faces between neighbouring cells", **_METRES}
@@ -132,6 +136,17 @@ def to_dataset(field: Any, *, extra: dict[str, tuple[Any, dict]] | None = None,
     return ds
 
 
+#: The variables of a geometry (`upscale.geometry`), with their long names.
+GEOMETRY = {"top": "elevation of the top of the model", "thickness": "cell thickness (0: pinched out)"}
+
+
+def geometry_variables(geometry: Any, dims: tuple[str, ...], on_dims: Any) -> dict[str, tuple]:
+    """The ``top`` (y, x) and ``thickness`` variables of a geometry, in m, positive up."""
+    return {"top": (("y", "x"), geometry.top, {"long_name": GEOMETRY["top"], "positive": "up", **_METRES}),
+            "thickness": (dims, on_dims(geometry.thickness), {"long_name": GEOMETRY["thickness"],
+                                                               **_METRES})}  # fmt: skip
+
+
 def _attributes(name: str, unit: str, source: tuple[str, str] | None) -> dict[str, str]:
     attrs = {"units": "1" if name == "porosity" else unit, "long_name": LONG_NAMES[name]}
     if source is not None:
@@ -140,12 +155,16 @@ def _attributes(name: str, unit: str, source: tuple[str, str] | None) -> dict[st
 
 
 class Parts(NamedTuple):
-    """What a `Field` is made of, read from a Dataset or DataArray."""
+    """What a `Field` is made of, read from a Dataset or DataArray.
+
+    ``geometry`` is ``(top, thickness)`` of shapes (M, N) and (L, M, N), or None.
+    """
 
     arrays: dict[str, Any]
     grid: dict[str, Any]
     unit: str
     sources: tuple[tuple[str, str, str], ...]
+    geometry: tuple[Any, Any] | None = None
 
 
 def from_labelled(data: Any, *, cell_size: tuple[float, float] | None, dz: Any,
@@ -179,7 +198,12 @@ def from_labelled(data: Any, *, cell_size: tuple[float, float] | None, dz: Any,
             "dx": np.broadcast_to(dx, columns), "transform": transform, "crs": crs}  # fmt: skip
     sources = tuple((name, var.attrs["source"], var.attrs.get("source_sha256", ""))
                     for name, var in variables.items() if "source" in var.attrs)  # fmt: skip
-    return Parts(arrays, grid, unit or variables["kx"].attrs.get("units") or "mD", sources)
+    geometry = None
+    if isinstance(data, xr.Dataset) and "thickness" in data.data_vars:
+        thickness = _cubes({"thickness": data["thickness"]}, _order(variables["kx"]))["thickness"]
+        top = np.asarray(data["top"].transpose("y", "x").values, float) if "top" in data.data_vars else None
+        geometry = (np.zeros((rows, columns)) if top is None else top, thickness)
+    return Parts(arrays, grid, unit or variables["kx"].attrs.get("units") or "mD", sources, geometry)
 
 
 def _order(kx: Any) -> tuple[str, ...]:

@@ -14,6 +14,7 @@ import rasterio
 from conftest import DEMO_NAMES, partial_leftovers, snapshot
 
 from upscale.demo.scenario import LISTING, NODATA, fields
+from upscale.geometry import Geometry, steepest_dip
 
 
 def _raster(path):
@@ -88,3 +89,39 @@ def test_demo_fields_have_inactive_outlines_and_plausible_values(demo_dir):
     # every fifth layer is a 0.01 mD barrier (with mild lateral variability)
     assert np.all(np.median(layered[4::5], axis=(1, 2)) < 0.1)
     assert np.all(np.median(layered[0::5], axis=(1, 2)) > 10)
+
+
+def test_dome_model_has_a_gentle_top_and_a_layer_that_pinches_out(demo_dir):
+    k, transform, *_ = _raster(demo_dir / "marrowfen_dome.tif")
+    surfaces, same, *_ = _raster(demo_dir / "marrowfen_dome_surfaces.tif")
+    assert same == transform and surfaces.shape == (k.shape[0] + 1, *k.shape[1:])
+    geometry = Geometry.from_surfaces(surfaces.astype(np.float64))  # surfaces go from the top down
+    assert 0 < steepest_dip(geometry.surfaces(), transform.a, -transform.e) < 3.0
+    thickness = geometry.thickness
+    wedge = thickness[4]
+    assert 0.3 < np.mean(wedge == 0) < 0.5  # pinched out over part of the area, in the east
+    assert np.all(wedge[:, 0] > 2.5) and np.all(wedge[:, -1] == 0)
+    assert np.all(np.diff(wedge, axis=1) <= 0)  # a wedge: it only thins eastward
+    assert np.all(np.delete(thickness, 4, axis=0) > 2.0)
+    assert np.median(k[4]) < 0.1 < 10 < np.median(k[np.arange(8) != 4])  # a shale wedge in sands
+
+
+def test_dome_porosity_lies_on_a_coarser_grid_that_covers_the_model(demo_dir):
+    k, fine, *_ = _raster(demo_dir / "marrowfen_dome.tif")
+    porosity, other, *_ = _raster(demo_dir / "marrowfen_dome_porosity.tif")
+    assert other.a == 2 * fine.a and (other.c, other.f) != (fine.c, fine.f)
+    rows, cols = k.shape[1:]
+    assert other.c <= fine.c and other.c + other.a * porosity.shape[2] >= fine.c + fine.a * cols
+    assert other.f >= fine.f and other.f + other.e * porosity.shape[1] <= fine.f + fine.e * rows
+    assert porosity.shape[0] == k.shape[0] and 0 < porosity.min() and porosity.max() < 0.3
+
+
+def test_aquifer_maps_are_a_sand_and_gravel_conductivity_and_a_thickness(demo_dir):
+    conductivity, transform, *_ = _raster(demo_dir / "marrowfen_aquifer_conductivity.tif")
+    thickness, same, *_ = _raster(demo_dir / "marrowfen_aquifer_thickness.tif")
+    assert same == transform and thickness.shape == conductivity.shape == (1, 80, 80)
+    # from memory (Freeze & Cherry 1979, Groundwater, table 2.2): clean sand 1e-6 to 1e-2 m/s,
+    # gravel 1e-3 to 1 m/s, i.e. 0.0864 to 86 400 m/day
+    assert 0.0864 < conductivity.min() and conductivity.max() < 86_400
+    assert 20 < np.exp(np.mean(np.log(conductivity))) < 60  # geometric mean about 35 m/day
+    assert 5.0 < thickness.min() and thickness.max() < 25.0

@@ -359,3 +359,25 @@ def test_a_map_has_no_layers_to_draw_or_group(run_cli, map_path, tmp_path, optio
     assert err == (f"upscale: error: {verb} the layers of a 3D model, and {map_path} is a 2D map (give --dz "
                    "for a raster whose bands are layers)\n")  # fmt: skip
     assert list(tmp_path.glob("*.png")) == []
+
+
+@pytest.mark.parametrize("slope, caution", [(0.05, False), (0.2, True)])
+def test_the_geometry_is_described_with_a_caution_on_steep_dips(run_cli, write_tif, slope, caution):
+    # layers of 2 m under a top sloping `slope` m per m along x: every cell centre rises `slope` m
+    # per m, a dip of atan(slope): 2.9° needs no caution, 11.3° is past the 5.7° where neglecting
+    # the dip makes a lateral transmissibility 1 % too large (1 / cos²θ, common practice)
+    k = write_tif("k.tif", np.full((3, 4, 6), 50.0))
+    x = np.arange(6)[None, :] * 10.0 * np.ones((4, 1))
+    surfaces = np.stack([100.0 - slope * x - 2.0 * layer for layer in range(4)])
+    surfaces[3, :, :2] = surfaces[2, :, :2]  # the base layer pinches out in two columns
+    path = write_tif("surfaces.tif", surfaces)
+    code, out, err = run_cli("info", k, "--surfaces", path, "--json")
+    assert code == 0, err
+    geometry = json.loads(out)["geometry"]
+    assert geometry["pinched_cells"] == 8
+    assert geometry["thickness_m"] == {"min": 0.0, "max": 2.0}
+    # pairs with a pinched cell pass no lateral flow and are left out
+    assert geometry["steepest_dip_deg"] == pytest.approx(math.degrees(math.atan(slope)), rel=1e-12)
+    code, out, err = run_cli("info", k, "--surfaces", path)
+    assert "8 cells pinched out (11.1 %)" in out
+    assert ("caution: dips above 5.7°" in out) is caution

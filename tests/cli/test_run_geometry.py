@@ -129,8 +129,3 @@ def test_a_gentle_model_has_no_dip_caution(run_cli, write_tif, tmp_path):
     assert record["caution"] is None
     assert "caution:" not in printed
 
-
-def test_the_caution_threshold_is_where_the_error_reaches_one_percent():
-    from upscale.analysis.geometry import DIP_CAUTION_DEG
-
-    assert 1 / math.cos(math.radians(DIP_CAUTION_DEG)) ** 2 - 1 == pytest.approx(0.01, abs=5e-4)

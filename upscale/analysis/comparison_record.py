@@ -21,6 +21,7 @@ from ..methods.registry import find_method
 from .compare import Comparison, Entry
 from .records import (
     AxisResult,
+    GridLikeRecord,
     GridRecord,
     Provenance,
     ZeroKRecord,
@@ -154,6 +155,9 @@ class ComparisonRecord:
     per_axis_command : str or None
         The ``upscale run`` command line that upscales the field with it,
         written in the file as ``per_axis``'s ``command``.
+    grid_like : GridLikeRecord or None
+        The template raster whose cells are the blocks (``--grid-like``); None
+        (and absent from the file) without one.
     """
 
     provenance: Provenance
@@ -170,6 +174,7 @@ class ComparisonRecord:
     layers: dict[str, Any] | None = None
     per_axis: MethodRecord | None = None
     per_axis_command: str | None = None
+    grid_like: GridLikeRecord | None = None
 
     @property
     def axes(self) -> str:
@@ -183,6 +188,8 @@ class ComparisonRecord:
     def to_dict(self) -> dict[str, Any]:
         """The content of ``compare.json``, key for key."""
         layers = {} if self.layers is None else {"layers": self.layers}
+        if self.grid_like is not None:
+            layers["grid_like"] = self.grid_like.to_dict()
         per_axis = {} if self.per_axis is None else {
             "per_axis": {**self.per_axis.to_dict(), "command": self.per_axis_command}}  # fmt: skip
         return {**self.provenance.to_dict(), "unit": self.unit, "block": self.block, **layers,
@@ -198,7 +205,9 @@ class ComparisonRecord:
                    GridRecord.from_dict(data["fine"]), data["ranking"],
                    tuple(MethodRecord.from_dict(m) for m in data["methods"]), data["best"],
                    data["best_along"], data["caution"], tuple(data.get("files", ())),
-                   data.get("layers"), *_per_axis(data.get("per_axis")))  # fmt: skip
+                   data.get("layers"), *_per_axis(data.get("per_axis")),
+                   None if "grid_like" not in data
+                   else GridLikeRecord.from_dict(data["grid_like"]))  # fmt: skip
 
 
 def _per_axis(data: dict[str, Any] | None) -> tuple[MethodRecord | None, str | None]:
@@ -207,7 +216,8 @@ def _per_axis(data: dict[str, Any] | None) -> tuple[MethodRecord | None, str | N
 
 def comparison_record(comparison: Comparison, *, command: list[str] | None = None,
                       read: dict[str, Any] | None = None,
-                      per_axis_command: str | None = None) -> ComparisonRecord:  # fmt: skip
+                      per_axis_command: str | None = None,
+                      grid_like: GridLikeRecord | None = None) -> ComparisonRecord:  # fmt: skip
     """The record of a comparison, as ``compare.json`` holds it.
 
     Parameters
@@ -220,6 +230,8 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
         The options the fine field was read with.
     per_axis_command : str, optional
         The command line of the best method per axis, when it was sought.
+    grid_like : GridLikeRecord, optional
+        The template raster whose cells are the blocks.
     """
     fine = comparison.fine
     return ComparisonRecord(
@@ -229,7 +241,7 @@ def comparison_record(comparison: Comparison, *, command: list[str] | None = Non
         _label(comparison.best), {axis: _label(comparison.best_along(axis)) for axis in fine.axes}, CAUTION,
         layers=None if comparison.layers is None else jsonable(comparison.layers.summary()),
         per_axis=None if comparison.per_axis is None else _method(comparison.per_axis, fine.axes),
-        per_axis_command=per_axis_command,
+        per_axis_command=per_axis_command, grid_like=grid_like,
     )  # fmt: skip
 
 

@@ -44,7 +44,9 @@ def describe_field(fine: Field, path: str, grouping: LayerRequest = GROUPING
         None past its cell limit) and, for a 3D model, ``layers``: the layer
         profile (`upscale.analysis.layers.LayerProfile.summary`, with the
         barrier runs) and, under its key ``grouping``, the grouping chosen
-        for `grouping` (`upscale.analysis.layers.LayerChoice.summary`).
+        for `grouping` (`upscale.analysis.layers.LayerChoice.summary`);
+        ``geometry`` (`upscale.geometry.Geometry.describe`) or None for a
+        flat model.
     scans : dict of str to ValueScan
         Per property.
     """
@@ -74,6 +76,8 @@ def describe_field(fine: Field, path: str, grouping: LayerRequest = GROUPING
         "suspect_values": _suspects(scans, fine.properties()),
     }
     description["suggested_nodata"] = _suggested(description["suspect_values"])
+    shape = fine.geometry
+    description["geometry"] = None if shape is None else shape.describe(float(grid.dx[0]), float(grid.dy[0]))
     description["connectivity"] = None if spans is None else {
         "high_k": HIGH_K, "axes": {axis: s.summary() for axis, s in spans.items()}}  # fmt: skip
     if fine.ndim == 3:

@@ -4,8 +4,8 @@
   pinched out, how steeply the layers dip, and the fine and coarse bulk
   volumes (equal: coarse blocks keep the fine bulk volume). Lateral
   transmissibilities neglect the dip and are too large by ``1 / cos²θ − 1``
-  (`upscale.geometry`); past `DIP_CAUTION_DEG`, 1 %, the record carries a
-  caution the run prints.
+  (`upscale.geometry`); past `upscale.geometry.DIP_LIMIT` (5.7°), 1 %, the
+  record carries a caution the run prints.
 * `transmissivities`: a map of hydraulic conductivity K with a thickness b
   is an aquifer model, whose quantity is the transmissivity ``T = K b``
   (Theis 1935, "The relation between the lowering of the piezometric surface
@@ -24,13 +24,10 @@ from typing import Any
 import numpy as np
 
 from ..field import Field
-from ..geometry import steepest_dip
+from ..geometry import DIP_LIMIT
 from ..io.geometry import GEOMETRY_ROLES
 from ..units import UNITS
 from .records import Leaf
-
-#: Dip past which neglecting it makes a lateral transmissibility 1 % too large: 1/cos²(5.7°) = 1.0100.
-DIP_CAUTION_DEG = 5.7
 
 
 @dataclass(frozen=True)
@@ -47,13 +44,14 @@ class GeometryRecord(Leaf):
     pinched_out_cells : int
         Fine cells of zero thickness.
     steepest_dip_deg : float or None
-        Steepest dip between the centres of lateral neighbours of the fine model,
-        degrees (`upscale.geometry.steepest_dip`); None when only thicknesses were
-        given: the top is then put at 0 m, which says nothing of the dip.
+        Steepest dip between the centres of lateral neighbours of the fine model
+        that are not pinched out, degrees (`upscale.geometry.steepest_dip`); None
+        when only thicknesses were given: the top is then put at 0 m, which says
+        nothing of the dip.
     fine_bulk_volume_m3, coarse_bulk_volume_m3 : float
         Bulk volume of every cell, active or not.
     caution : str or None
-        A sentence when the dip passes `DIP_CAUTION_DEG`.
+        A sentence when the dip passes `upscale.geometry.DIP_LIMIT`.
     transmissivity_unit : str or None
         Unit of the coarse transmissivity (`transmissivities`); None when none was written.
     """
@@ -73,7 +71,7 @@ class GeometryRecord(Leaf):
 
 
 def dip_caution(dip: float | None) -> str | None:
-    """The caution for layers dipping by `dip` degrees, None up to `DIP_CAUTION_DEG`.
+    """The caution for layers dipping by `dip` degrees, None up to `upscale.geometry.DIP_LIMIT`.
 
     Examples
     --------
@@ -83,11 +81,11 @@ def dip_caution(dip: float | None) -> str | None:
     >>> text.startswith("the layers dip by up to 10.0°"), "up to 3.1 % too large" in text
     (True, True)
     """
-    if dip is None or dip <= DIP_CAUTION_DEG:
+    if dip is None or dip <= DIP_LIMIT:
         return None
     excess = 1.0 / math.cos(math.radians(dip)) ** 2 - 1.0
     return (f"the layers dip by up to {dip:.1f}°; the lateral transmissibilities neglect the dip and are "
-            f"up to {excess * 100:.1f} % too large there (1 % at {DIP_CAUTION_DEG}°)")  # fmt: skip
+            f"up to {excess * 100:.1f} % too large there (1 % at {DIP_LIMIT:.1f}°)")  # fmt: skip
 
 
 def _inputs(fine: Field, read: dict[str, Any] | None) -> dict[str, str | float | None]:
@@ -119,13 +117,12 @@ def geometry_record(fine: Field, coarse: Field, read: dict[str, Any] | None = No
         return None
     inputs = _inputs(fine, read)
     given = _given(inputs)
-    thickness = np.asarray(fine.geometry.thickness, dtype=np.float64)
-    dip = None if given == "thickness" else steepest_dip(fine.geometry.surfaces(), float(fine.grid.dx[0]),
-                                                        float(fine.grid.dy[0]))  # fmt: skip
+    described = fine.geometry.describe(float(fine.grid.dx[0]), float(fine.grid.dy[0]))
+    dip = None if given == "thickness" else described["steepest_dip_deg"]
     found = transmissivities(coarse)
     return GeometryRecord(
         given, inputs["top"], inputs["thickness"], inputs["surfaces"],
-        int(np.count_nonzero(thickness == 0)), dip, float(np.asarray(fine.cell_volumes()).sum()),
+        described["pinched_cells"], dip, float(np.asarray(fine.cell_volumes()).sum()),
         float(np.asarray(coarse.cell_volumes()).sum()), dip_caution(dip),
         None if found is None else transmissivity_unit(coarse.unit),
     )  # fmt: skip

@@ -24,6 +24,7 @@ import numpy as np
 
 from ..check.axis import HELD_OUT, AxisCheck
 from ..field import Field, Grid
+from ..grid.template import Snap, Template
 from .percentiles import PERCENTILES, key
 
 _DEPENDENCIES = ("numpy", "scipy", "dask", "rasterio", "numba", "pyamg", "scikit-image", "matplotlib",
@@ -153,6 +154,44 @@ class InputRecord(Leaf):
     resolved: str
     sha256: str | None
     resampled: dict[str, Any] | None = None
+
+
+@dataclass(frozen=True)
+class GridLikeRecord(Leaf):
+    """The template raster whose cells are the coarse blocks (``--grid-like``), and where they lie.
+
+    Attributes
+    ----------
+    path, resolved : str
+        The template as given, and its absolute path.
+    sha256 : str
+        Of the template's bytes.
+    rows, columns : list of int
+        The fine rows and columns under whole template cells, zero-based with
+        the end excluded: the first of each is the offset, in fine cells, of
+        coarse block (0, 0) from the field's origin.
+    template_rows, template_columns : list of int
+        The template cells the coarse blocks are (zero-based, end excluded).
+    """
+
+    path: str
+    resolved: str
+    sha256: str
+    rows: list[int]
+    columns: list[int]
+    template_rows: list[int]
+    template_columns: list[int]
+
+    def window(self, fine: Field) -> Field:
+        """`fine` cut to the rows and columns under the template's whole cells (`upscale.Field.window`)."""
+        return fine.window(slice(*self.rows), slice(*self.columns))
+
+
+def grid_like_record(template: Template, snap: Snap) -> GridLikeRecord:
+    """The record of the blocks `snap` made of the cells of `template`."""
+    return GridLikeRecord(template.path, str(Path(template.path).resolve()), template.sha256,
+                          list(snap.rows), list(snap.columns), list(snap.template_rows),
+                          list(snap.template_columns))  # fmt: skip
 
 
 @dataclass(frozen=True)

@@ -18,7 +18,17 @@ from ..methods.registry import find_method, method_record
 from ..stats import scan_values
 from .anisotropy import tensor_summary
 from .geometry import GeometryRecord, geometry_record, transmissivities
-from .records import AxisResult, GridRecord, Leaf, Provenance, ZeroKRecord, grid_record, jsonable, provenance
+from .records import (
+    AxisResult,
+    GridLikeRecord,
+    GridRecord,
+    Leaf,
+    Provenance,
+    ZeroKRecord,
+    grid_record,
+    jsonable,
+    provenance,
+)
 
 
 @dataclass(frozen=True)
@@ -325,6 +335,8 @@ class RunSummary:
     layers : dict or None
         How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`);
         None when the block's layers were not automatic.
+    grid_like : GridLikeRecord or None
+        The template raster whose cells are the blocks (``--grid-like``); None without one.
     geometry : GeometryRecord or None
         The model's geometry (`upscale.analysis.geometry`); None for a flat model.
     """
@@ -346,6 +358,7 @@ class RunSummary:
     transmissibility: FaceRule | None = None
     well_check: dict[str, Any] | None = None
     layers: dict[str, Any] | None = None
+    grid_like: GridLikeRecord | None = None
     geometry: GeometryRecord | None = None
 
     def to_dict(self) -> dict[str, Any]:
@@ -364,6 +377,8 @@ class RunSummary:
             found["well_check"] = self.well_check
         if self.layers is not None:
             found["layers"] = self.layers
+        if self.grid_like is not None:
+            found["grid_like"] = self.grid_like.to_dict()
         if self.geometry is not None:
             found["geometry"] = self.geometry.to_dict()
         return found
@@ -371,8 +386,8 @@ class RunSummary:
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> RunSummary:
         """The record of a ``summary.json``'s content."""
-        check, tensor, faces, shape = (data["check"], data.get("tensor"), data.get("transmissibility"),
-                                       data.get("geometry"))  # fmt: skip
+        check, tensor, faces = data["check"], data.get("tensor"), data.get("transmissibility")
+        grid_like, shape = data.get("grid_like"), data.get("geometry")
         return cls(Provenance.from_dict(data), data["unit"], MethodUsed.from_dict(data["method"]),
                    data["block"], data["dimensions"], GridRecord.from_dict(data["fine"]),
                    GridRecord.from_dict(data["coarse"]), ActiveCounts.from_dict(data["active"]),
@@ -382,6 +397,7 @@ class RunSummary:
                    None if tensor is None else TensorSummary.from_dict(tensor),
                    None if faces is None else FaceRule.from_dict(faces), data.get("well_check"),
                    data.get("layers"),
+                   None if grid_like is None else GridLikeRecord.from_dict(grid_like),
                    None if shape is None else GeometryRecord.from_dict(shape))  # fmt: skip
 
 
@@ -395,6 +411,7 @@ def build_summary(
     read: dict[str, Any] | None = None,
     wells: dict[str, Any] | None = None,
     layers: dict[str, Any] | None = None,
+    grid_like: GridLikeRecord | None = None,
 ) -> RunSummary:
     """Describe a run.
 
@@ -418,6 +435,8 @@ def build_summary(
         The well-driven check (`upscale.check.wells.WellCheck.summary`).
     layers : dict, optional
         How automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`).
+    grid_like : GridLikeRecord, optional
+        The template raster whose cells are the blocks.
 
     Returns
     -------
@@ -434,7 +453,7 @@ def build_summary(
         jsonable(result.block.summary()), fine.ndim, grid_record(fine.grid), grid_record(coarse.grid),
         _active(result), _statistics(result), None if check is None else FlowCheck.from_dict(jsonable(check)),
         tuple(files), jsonable(timings or {}), CAUTION, tensor, faces,
-        None if wells is None else jsonable(wells), None if layers is None else jsonable(layers),
+        None if wells is None else jsonable(wells), None if layers is None else jsonable(layers), grid_like,
         _geometry(result, read),
     )  # fmt: skip
 

@@ -85,11 +85,12 @@ def compare(ctx: click.Context, field: tuple[str, ...], methods: str | None, exp
     """
     check_destination(out, overwrite)
     chosen = candidates(parse_methods(methods), bc=bc, border=border, exponent=exponent)
-    spec = block_spec(options)
+    spec, grid_like = block_spec(options)
     read = read_options(options)
     say = teller(ctx)
     paths = expand(list(field))
-    jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, spec.chunk_cells), "solver": solver,
+    jobs = {"read": read, "chunk_bytes": parse_chunk(chunk, None if grid_like else spec.chunk_cells),
+            "grid_like": grid_like, "solver": solver,
             "tolerance": tolerance, "check_limit": check_limit, "layer": None if layer is None else layer - 1,
             "recorded_read": recorded(read), "command": ctx.obj["command"], "overwrite": overwrite,
             "say": say, "wells": wells, "outer_pressure": outer_pressure,

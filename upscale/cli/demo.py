@@ -19,8 +19,10 @@ def demo(ctx: click.Context, out: str, overwrite: bool) -> None:  # fmt: skip
 
     The fields are generated from fixed seeds, so they are the same on every
     machine: a 2D lognormal map with its porosity, a 2D channel map, a 3D
-    layer cake with shale barriers and a 3D lognormal model, and a table of
-    test wells for the channel map. fields.json in the folder describes each.
+    layer cake with shale barriers, a 3D lognormal model, a 3D model over a
+    dome with a pinching layer (its surfaces, and its porosity on another
+    grid), an aquifer's conductivity and thickness maps, and a table of test
+    wells for the channel map. fields.json in the folder describes each.
     """
     names = write_demo_fields(out, overwrite=overwrite)
     if not ctx.obj["quiet"]:

@@ -82,6 +82,8 @@ def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot
         dz = grid.dz
         sizes += f", dz {dz[0]:g} m" if (dz == dz[0]).all() else f", dz {dz.min():g}-{dz.max():g} m"
     click.echo(f"cell size    {sizes}")
+    if description["geometry"] is not None:
+        _print_geometry(description["geometry"])
     click.echo(f"CRS          {crs_text(grid.crs)}")
     click.echo(f"unit         {fine.unit}")
     click.echo(f"active       {kx.active} of {kx.cells} cells ({100 * kx.active / kx.cells:.1f} %)")
@@ -101,6 +103,20 @@ def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot
         _print_layers(description["layers"], fine.unit)
     if plot is not None:
         click.echo(f"figure       {plot}")
+
+
+def _print_geometry(geometry: dict) -> None:
+    """The geometry's ranges, pinched-out cells and steepest dip, and a caution on a steep one."""
+    top, thickness = geometry["top_m"], geometry["thickness_m"]
+    pinched = geometry["pinched_cells"]
+    parts = [f"top {top['min']:g} to {top['max']:g} m" if top else "no top",
+             f"thickness {thickness['min']:g} to {thickness['max']:g} m",
+             f"{pinched} cells pinched out ({100 * pinched / geometry['cells']:.1f} %)",
+             f"steepest dip {geometry['steepest_dip_deg']:.2g}°"]  # fmt: skip
+    click.echo(f"geometry     {', '.join(parts)}")
+    if geometry["steepest_dip_deg"] > geometry["dip_limit_deg"]:
+        click.echo(f"             caution: dips above {geometry['dip_limit_deg']:.1f}° make the lateral "
+                   "transmissibilities more than 1 % too large (the dip is neglected)")  # fmt: skip
 
 
 def _grouping(text: str | None) -> LayerRequest:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import re
 from collections.abc import Callable
 from typing import Any
@@ -11,6 +12,7 @@ import dask.utils
 
 from ..analysis.percentiles import CONVENTIONS
 from ..check.limits import DEFAULT_LIMIT
+from ..errors import InputError
 from ..flow.solvers import SOLVERS
 from ..grid import REMAINDER_POLICIES, BlockSpec
 from ..io import GEOMETRY_ROLES, RESAMPLING_RULES, VALUE_SCALES
@@ -66,10 +68,11 @@ def parse_cell_size(text: str | None) -> tuple[float, float] | None:
     return (values[0], values[-1])
 
 
-def parse_chunk(text: str | None, block: tuple[int, int, int]) -> int | None:
+def parse_chunk(text: str | None, block: tuple[int, int, int] | None) -> int | None:
     """``--chunk``: a size (``"64MB"``) or a number of coarse blocks (``"400blocks"``) -> bytes.
 
-    A block count is turned into the float64 bytes of that many blocks.
+    A block count is turned into the float64 bytes of that many blocks; it is
+    refused when the block is not known yet (None: ``--grid-like``).
 
     Examples
     --------
@@ -78,6 +81,10 @@ def parse_chunk(text: str | None, block: tuple[int, int, int]) -> int | None:
     """
     if text is not None and text.strip().lower().endswith("blocks"):
         count = text.strip()[:-6].strip()
+        if block is None:
+            raise click.BadParameter(f"{text!r}: a number of blocks needs the block size, which "
+                                     "--grid-like takes from the template; give a size such as 64MB",
+                                     param_hint="--chunk")  # fmt: skip
         if not count.isdigit() or int(count) < 1:
             raise click.BadParameter(f"{text!r} is not a number of blocks such as 400blocks",
                                      param_hint="--chunk")  # fmt: skip
@@ -158,9 +165,18 @@ def field_options(command: Callable[..., Any]) -> Callable[..., Any]:
 def block_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """The block partition and its rules (shared by run and compare); see `block_spec`."""
     command = block_rule_options(command)
-    return click.option("--block", required=True, metavar="NXxNY[xNZ]",
-                        help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; "
-                        "8x8x2 adds 2 layers.")(command)  # fmt: skip
+    command = click.option(
+        "--grid-like", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+        help="A raster whose cells are the coarse blocks along x and y (its origin and cell size; its values "
+        "are not read): each cell a whole number of fine cells, its edges on fine cell edges, the same CRS. "
+        "The field is cut to the template's whole cells, so the coarse GeoTIFFs are on the template's grid; "
+        "--block then gives the layers only (2, 2,2,4 or auto:4) [default: 1 fine layer per coarse layer].",
+    )(command)  # fmt: skip
+    return click.option(
+        "--block", default=None, metavar="NXxNY[xNZ]",
+        help="Fine cells per coarse block, x (columns) first: 8x4 is 8 columns by 4 rows; 8x8x2 adds 2 "
+        "layers. Required unless --grid-like gives x and y.",
+    )(command)  # fmt: skip
 
 
 def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:
@@ -185,9 +201,33 @@ def block_rule_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
-def block_spec(options: dict[str, Any]) -> BlockSpec:
-    """Turn the values of `block_options` into the `BlockSpec` they describe."""
-    return BlockSpec.parse(options.pop("block"), **_block_rules(options))
+def block_spec(options: dict[str, Any]) -> tuple[BlockSpec, str | None]:
+    """Turn the values of `block_options` into the `BlockSpec` they describe, and the template raster.
+
+    With a template (``--grid-like``), ``--block`` gives the layers alone
+    (``2``, ``2,2,4``, ``auto:4``; 1 fine layer per coarse layer when left
+    out) and the sizes along x and y are 1 until the job reads them from the
+    template (`upscale.jobs.run.snapped`).
+
+    Examples
+    --------
+    >>> rules = {"remainder": "stop", "min_active": 0.0, "zero_k": "auto"}
+    >>> spec, template = block_spec({"block": "2,2,4", "grid_like": "coarse.tif", **rules})
+    >>> spec.cells, template
+    (((2, 2, 4), 1, 1), 'coarse.tif')
+    """
+    text, grid_like = options.pop("block"), options.pop("grid_like")
+    rules = _block_rules(options)
+    if grid_like is None:
+        if text is None:
+            raise InputError("give the blocks: --block NXxNY[xNZ] (fine cells per block, e.g. 8x8), or "
+                             "--grid-like FILE (a raster whose cells are the blocks)")  # fmt: skip
+        return BlockSpec.parse(text, **rules), None
+    if text is None or "x" not in text.lower():
+        with contextlib.suppress(InputError):  # refused below, in the words of --grid-like
+            return BlockSpec.parse(f"1x1x{text or 1}", **rules), grid_like
+    raise InputError(f"--grid-like takes the blocks' x and y from the template's cells; give --block the "
+                     f"layers alone (2, 2,2,4 or auto:4), not {text!r}")
 
 
 def block_specs(text: str, options: dict[str, Any]) -> list[BlockSpec]:

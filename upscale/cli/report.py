@@ -61,6 +61,11 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
         f"coarse grid  {dims(coarse.shape, fine.ndim)} blocks of {result.block} cells, "
         f"{summary.active.coarse_blocks} active"
     )
+    template = summary.grid_like
+    if template is not None:
+        click.echo(f"grid like    {template.path}: blocks are its cells from column "
+                   f"{template.template_columns[0]}, row {template.template_rows[0]}, on the fine cells from "
+                   f"column {template.columns[0]}, row {template.rows[0]} (counted from 0)")  # fmt: skip
     click.echo(f"method       {result.method}" + (f" ({opts})" if opts else ""))
     if summary.layers is not None:
         from ..analysis.layers import choice_lines

@@ -97,6 +97,7 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
       upscale run model.tif --dz 2 --kv-kh 0.1 --block 10x10x4 --method power --exponent 0.5 --out c/
       upscale run map.tif --block 16x16 --method flow --bc periodic --border 4 --out tensor/
       upscale run model.tif --dz 2 --block 10x10x4 --method xy=arithmetic,z=harmonic --out layered/
+      upscale run map.tif --grid-like simulator_grid.tif --method flow --out snapped/
       upscale run 'realizations/*.tif' --block 8x8 --method flow --workers 2 --out ensemble/
     """
     check_destination(out, overwrite)
@@ -104,15 +105,16 @@ def run(ctx: click.Context, field: tuple[str, ...], method: str, exponent: float
         raise InputError("--plot and --report show the flow check; leave out --no-check")
     if wells and no_check:
         raise InputError("--wells adds a well check to the flow check; leave out --no-check")
-    spec = block_spec(options)
+    spec, grid_like = block_spec(options)
     read = read_options(options)
     settings = Settings(
         block=spec, method=method, options={"exponent": exponent, "bc": bc, "border": border},
-        read=read, recorded_read=recorded(read), chunk_bytes=parse_chunk(chunk, spec.chunk_cells),
+        read=read, recorded_read=recorded(read),
+        chunk_bytes=parse_chunk(chunk, None if grid_like else spec.chunk_cells),
         check=not no_check, solver=solver, tolerance=tolerance, check_limit=check_limit, units=units,
         out_unit=out_unit, plot=plot, report=html_report, layer=None if layer is None else layer - 1,
         wells=wells, outer_pressure=outer_pressure, well_connection=well_connection,
-        percentiles=percentiles, command=ctx.obj["command"],
+        percentiles=percentiles, command=ctx.obj["command"], grid_like=grid_like,
     )  # fmt: skip
     paths = expand(list(field))
     quiet = ctx.obj["quiet"]

@@ -1,9 +1,9 @@
 """The demo scenario: fields of the Marrowfen Basin, an invented sedimentary basin.
 
-Everything here is fictional — the basin, its Ostrella Sandstone and the
-numbers — and exists to show the tool at work. The coordinates are on a
-made-up projected grid (transverse Mercator on a sphere, origin far from
-any real survey), not at any real place.
+Everything here is fictional — the basin, its Ostrella Sandstone, the
+Marrowfen Gravels aquifer and the numbers — and exists to show the tool at
+work. The coordinates are on a made-up projected grid (transverse Mercator
+on a sphere, origin far from any real survey), not at any real place.
 """
 
 from __future__ import annotations
@@ -54,8 +54,51 @@ def _windows(shape: tuple[int, int]) -> np.ndarray:
     return west | east
 
 
+def _dome_surfaces(shape: tuple[int, int], size: float) -> np.ndarray:
+    """Elevations (m, positive up) of the dome model's 9 surfaces, shape (9, M, N).
+
+    The top is a gentle dome with a slight undulation (dips below 3°); every
+    layer is about 3 m thick and thickens or thins by up to 15 %, except the
+    fifth: a shale wedge 3 m thick at the west edge that thins eastward to
+    nothing along a curved line 880-1000 m from it, and is absent beyond.
+    """
+    rows, cols = shape
+    y, x = (np.mgrid[0:rows, 0:cols] + 0.5) * size  # cell centres, m from the north-west corner
+    top = -1500.0 + 24.0 * np.exp(-((x - 900.0) ** 2 + (y - 700.0) ** 2) / (2 * 500.0**2))
+    top += 1.2 * np.sin(2 * np.pi * x / 640.0) * np.sin(2 * np.pi * y / 800.0)
+    swell = np.sin(2 * np.pi * (x + 0.7 * y) / 1100.0)
+    thickness = np.stack([3.0 * (1 + 0.15 * swell * (-1) ** layer) for layer in range(8)])
+    edge = 880.0 + 120.0 * np.sin(np.pi * y / (rows * size))  # where the wedge ends, m from the west
+    thickness[4] = 3.0 * np.clip(1.0 - x / edge, 0.0, 1.0)
+    return np.concatenate([top[None], top[None] - np.cumsum(thickness, axis=0)])
+
+
+def _dome() -> dict[str, np.ndarray]:
+    """The dome model's k (mD), surfaces (m) and porosity on a grid of twice the cell size."""
+    k = lognormal_field((8, 64, 64), (1.0, 6.0, 9.0), geometric_mean=80.0, sigma_ln=1.0, seed=27_604_913)
+    k[4] = lognormal_field((1, 64, 64), (1.0, 8.0, 8.0), geometric_mean=0.01, sigma_ln=0.4,
+                           seed=27_604_914)[0]  # fmt: skip
+    g = gaussian_field((8, 33, 33), (1.0, 3.0, 4.0), seed=27_604_915)
+    porosity = np.clip(0.17 + 0.03 * g, 0.08, 0.28)
+    porosity[4] = np.clip(0.05 + 0.01 * g[4], 0.02, 0.08)
+    return {"k": k, "surfaces": _dome_surfaces((64, 64), 25.0), "porosity": porosity}
+
+
+def _aquifer() -> dict[str, np.ndarray]:
+    """The valley aquifer's hydraulic conductivity (m/day) and thickness (m), 80 x 80 cells of 50 m."""
+    conductivity = lognormal_field((1, 80, 80), (1.0, 5.0, 10.0), geometric_mean=35.0, sigma_ln=0.9,
+                                   seed=39_118_527)  # fmt: skip
+    y, x = (np.mgrid[0:80, 0:80] + 0.5) / 80.0
+    axis = 0.5 + 0.12 * np.sin(2 * np.pi * x)  # the buried valley's axis winds west to east
+    thickness = 6.0 + 18.0 * np.clip(1.0 - ((y - axis) / 0.55) ** 2, 0.0, 1.0)
+    return {"conductivity": conductivity, "thickness": thickness[None]}
+
+
 def fields() -> dict[str, dict]:
-    """Every demo field: its array ``(L, M, N)``, cell size (m), layer thickness and story."""
+    """Every demo field: its array ``(L, M, N)``, cell size (m), layer thickness and story.
+
+    A field on a grid of its own also gives its ``origin`` (west and north edges, m).
+    """
     lognormal_gauss = gaussian_field((256, 256), (6.0, 12.0), seed=73_019_241)
     outside = _outline((256, 256))
     lognormal = 150.0 * np.exp(1.0 * lognormal_gauss)
@@ -135,7 +178,58 @@ def fields() -> dict[str, dict]:
             "sands cross only in two erosional windows; the north-east corner is outside the model "
             "(use --dz 2).",
         },
+        **_geometry_fields(),
         **realizations,
+    }
+
+
+def _geometry_fields() -> dict[str, dict]:
+    """The demo fields with a geometry: the dome model and the valley aquifer."""
+    dome, aquifer = _dome(), _aquifer()
+    return {
+        "marrowfen_dome.tif": {
+            "values": dome["k"],
+            "cell_size": 25.0,
+            "dz": None,
+            "unit": "mD",
+            "story": "3D model of the Ostrella Sandstone over a gentle dome, 8 layers of about 3 m "
+            "(marrowfen_dome_surfaces.tif): lognormal sands, geometric mean 80 mD, sigma(ln k) = 1, "
+            "and in layer 5 a 0.01 mD shale wedge that pinches out eastward.",
+        },
+        "marrowfen_dome_surfaces.tif": {
+            "values": dome["surfaces"],
+            "cell_size": 25.0,
+            "dz": None,
+            "unit": "m",
+            "story": "Elevations of the dome model's surfaces, m, positive up: the top of each of its "
+            "8 layers and the base of the last (use --surfaces); layer 5 is 3 m thick at the west "
+            "edge and 0 m (pinched out) beyond 880-1000 m east of it; dips below 3 degrees.",
+        },
+        "marrowfen_dome_porosity.tif": {
+            "values": dome["porosity"],
+            "cell_size": 50.0,
+            "origin": (_ORIGIN[0] - 25.0, _ORIGIN[1] + 25.0),
+            "dz": None,
+            "unit": "fraction",
+            "story": "Porosity of the dome model on another grid: cells of 50 m (twice the model's), "
+            "origin 25 m west and north of it (use --resample average).",
+        },
+        "marrowfen_aquifer_conductivity.tif": {
+            "values": aquifer["conductivity"],
+            "cell_size": 50.0,
+            "dz": None,
+            "unit": "m/day",
+            "story": "2D map of the Marrowfen Gravels, a valley aquifer of sand and gravel: lognormal "
+            "hydraulic conductivity, geometric mean 35 m/day, sigma(ln K) = 0.9.",
+        },
+        "marrowfen_aquifer_thickness.tif": {
+            "values": aquifer["thickness"],
+            "cell_size": 50.0,
+            "dz": None,
+            "unit": "m",
+            "story": "Saturated thickness of the Marrowfen Gravels on the grid of their conductivity "
+            "map, 6-24 m, thickest along the winding axis of the buried valley (use --thickness).",
+        },
     }
 
 
@@ -162,11 +256,12 @@ def write_demo_fields(folder: str | Path, overwrite: bool = False) -> list[str]:
         for name, spec in fields().items():
             values = spec["values"]
             size = spec["cell_size"]
+            west, north = spec.get("origin", _ORIGIN)
             grid = Grid(
                 dz=np.full(values.shape[0], spec["dz"] or 1.0),
                 dy=np.full(values.shape[1], size),
                 dx=np.full(values.shape[2], size),
-                transform=Affine(size, 0.0, _ORIGIN[0], 0.0, -size, _ORIGIN[1]),
+                transform=Affine(size, 0.0, west, 0.0, -size, north),
                 crs=crs,
             )
             (stage / name).parent.mkdir(exist_ok=True)

@@ -12,7 +12,7 @@ import numpy as np
 from affine import Affine
 
 from ..analysis.geometry import transmissivities, transmissivity_unit
-from ..analysis.records import jsonable
+from ..analysis.records import GridLikeRecord, jsonable
 from ..analysis.summary import RunSummary, build_summary
 from ..caution import CAUTION
 from ..errors import InputError
@@ -181,6 +181,7 @@ def write_result(
     read: dict[str, Any] | None = None,
     wells: dict[str, Any] | None = None,
     layers: dict[str, Any] | None = None,
+    grid_like: GridLikeRecord | None = None,
     images: list[tuple[str, bytes, bytes]] | None = None,
     page: str | None = None,
     units: str = "si",
@@ -208,6 +209,8 @@ def write_result(
     layers : dict, optional
         How the automatic layers were chosen (`upscale.analysis.layers.LayerChoice.summary`),
         recorded as ``layers`` in the summary.
+    grid_like : GridLikeRecord, optional
+        The template raster whose cells are the blocks, recorded as ``grid_like`` in the summary.
     images : list of (str, bytes, bytes), optional
         Figures to write as ``figures/NAME.png`` and ``.svg``.
     page : str, optional
@@ -259,7 +262,7 @@ def write_result(
             files.append("report.html")
         summary = build_summary(
             result, files=files, command=command, timings=timings, check=check, read=read, wells=wells,
-            layers=layers,
+            layers=layers, grid_like=grid_like,
         )
         (stage / MARKER).write_text(json.dumps(summary.to_dict(), indent=2, allow_nan=False) + "\n")
     return summary

@@ -33,7 +33,8 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
     summary : dict
         The run's ``summary.json``.
     fine : Field
-        The fine field as the run used it (cropped to whole blocks if it cropped).
+        The fine field as the run used it (cut to the template's whole cells
+        with ``--grid-like``, cropped to whole blocks if it cropped).
 
     Raises
     ------
@@ -59,6 +60,9 @@ def read_run(folder: str | Path) -> tuple[dict, Field]:
             raise InputError(f"{source}: the run's {role} input changed since the run (SHA-256 differs)")
     paths = {role: inputs[role]["resolved"] for role in ("ky", "kz", *GEOMETRY_ROLES) if role in inputs}
     fine = read_field(inputs["kx"]["resolved"], checksum=False, **paths, **read)
+    grid_like = summary.get("grid_like")
+    if grid_like is not None:  # the rows and columns under the template's whole cells
+        fine = fine.window(slice(*grid_like["rows"]), slice(*grid_like["columns"]))
     # runs recorded before the zero-k rule kept their zeros
     spec = BlockSpec.from_summary(block)
     fine = fine.leading(spec.used_shape(fine.shape))

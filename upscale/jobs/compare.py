@@ -15,6 +15,7 @@ from ..analysis.compare import Candidate, Comparison, Entry, compare_methods, pr
 from ..analysis.comparison_record import ComparisonRecord, comparison_record
 from ..analysis.ensemble import EnsembleRanking, ensemble_ranking
 from ..analysis.percentiles import refuse_convention
+from ..analysis.records import GridLikeRecord
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, too_large
 from ..check.wells import FineWells, fine_wells
 from ..errors import InputError
@@ -28,7 +29,7 @@ from ..io.realizations import read_realizations
 from ..io.wells import read_wells
 from ..optional import require_extra
 from ..steps import Say, Steps, silent
-from .run import refuse_automatic_layers, refuse_layer, refuse_unit, with_layers
+from .run import refuse_automatic_layers, refuse_layer, refuse_unit, snapped, with_layers
 
 if TYPE_CHECKING:
     from ..report.bundle import Bundle
@@ -40,7 +41,8 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
                  recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                  overwrite: bool = False, say: Say = silent, wells: str | None = None,
                  outer_pressure: float | None = None, well_connection: str = "near-well",
-                 out_unit: str | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
+                 out_unit: str | None = None,
+                 grid_like: str | None = None) -> tuple[Comparison, Bundle]:  # fmt: skip
     """Compare methods on the field in `path` and write ``compare.json``, the figures and the page.
 
     Parameters
@@ -62,6 +64,9 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     out_unit : str, optional
         The unit of the coarse values, tables and figures, of the input's kind
         (`upscale.Field.in_unit`); None: the input's.
+    grid_like : str, optional
+        A template raster whose cells are the coarse blocks along x and y:
+        the field is cut to its whole cells (`upscale.jobs.run.snapped`).
 
     Returns
     -------
@@ -77,7 +82,9 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     refuse_unit(read, out_unit)
     fine = read_field(path, chunk_bytes=chunk_bytes, block=block.chunk_cells, **read)
     refuse_comparison(fine, check_limit, layer)
-    (block,), (layers,), fine = with_layers(path, [block], fine, chunk_bytes=chunk_bytes, read=read)
+    fine, block, template = snapped(grid_like, fine, block)
+    (block,), (layers,), fine = with_layers(path, [block], fine, chunk_bytes=chunk_bytes, read=read,
+                                            grid_like=template)  # fmt: skip
     fine = fine.in_unit(out_unit or fine.unit)
     shared = wells_of_file(fine, block, wells, (outer_pressure, well_connection), solver, tolerance, say)
     result = compare_methods(fine, block, chosen, solver=solver, tolerance=tolerance,
@@ -86,11 +93,25 @@ def compare_file(path: str, block: BlockSpec, chosen: list[Candidate], out: str 
     _refuse_if_none_ran(result)
     result = with_per_axis(result, solver=solver, tolerance=tolerance)
     suggested = None if result.per_axis is None else run_command(
-        command or ["upscale", "compare", path, "--block", str(block)], result.per_axis.candidate, out)
+        command or _compare_command(path, block, grid_like), result.per_axis.candidate, out)
     record, made = _drawn(result, path, layer=layer, command=command or [], recorded_read=recorded_read,
-                          per_axis_command=suggested)  # fmt: skip
+                          per_axis_command=suggested, grid_like=template)  # fmt: skip
     write_comparison(out, record, made.images, made.page, overwrite=overwrite)
     return result, made
+
+
+def _compare_command(path: str, block: BlockSpec, grid_like: str | None) -> list[str]:
+    """The ``upscale compare`` command line of a comparison called from Python (none recorded).
+
+    Examples
+    --------
+    >>> _compare_command("m.tif", BlockSpec(3, 2, 2), "coarse.tif")
+    ['upscale', 'compare', 'm.tif', '--grid-like', 'coarse.tif', '--block', '2']
+    """
+    if grid_like is None:
+        return ["upscale", "compare", path, "--block", str(block)]
+    layers = str(block).split("x", 2)[2:]  # the template gives x and y; --block the layers alone
+    return ["upscale", "compare", path, "--grid-like", grid_like, *(["--block", *layers] if layers else [])]
 
 
 #: Options of ``upscale compare`` that ``upscale run`` does not take, or takes from the method chosen.
@@ -155,8 +176,8 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
                      recorded_read: dict[str, Any] | None = None, command: list[str] | None = None,
                      overwrite: bool = False, say: Say = silent, wells: str | None = None,
                      outer_pressure: float | None = None, well_connection: str = "near-well",
-                     percentiles: str = "nonexceedance",
-                     out_unit: str | None = None) -> EnsembleRanking:  # fmt: skip
+                     percentiles: str = "nonexceedance", out_unit: str | None = None,
+                     grid_like: str | None = None) -> EnsembleRanking:  # fmt: skip
     """Compare the same methods on every realization, and rank them by their spread.
 
     Each realization gets the folder `upscale compare` writes for one field
@@ -187,7 +208,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
         Replace the results in a folder that holds some.
     say : callable, optional
         Receives progress lines (silent by default).
-    wells, outer_pressure, well_connection, out_unit : optional
+    wells, outer_pressure, well_connection, out_unit, grid_like : optional
         As in `compare_file`, for every realization.
     percentiles : {'nonexceedance', 'exceedance'}
         How the percentiles are named (`upscale.analysis.percentiles`).
@@ -210,8 +231,10 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
     command = command or []
     names, fields = read_realizations(paths, chunk_bytes, block, read)
     fields = {name: fine.in_unit(out_unit or fine.unit) for name, fine in fields.items()}
-    first = next(iter(fields.values()))
-    refuse_comparison(first, check_limit, layer)
+    refuse_comparison(next(iter(fields.values())), check_limit, layer)
+    _, block, template = snapped(grid_like, fields[names[0]], block)  # the realizations share one grid
+    if template is not None:
+        fields = {name: template.window(fine) for name, fine in fields.items()}
     records = []
     with staged_folder(out, overwrite, marker=ENSEMBLE) as stage:
         for i, (name, fine) in enumerate(fields.items(), start=1):
@@ -228,7 +251,7 @@ def compare_ensemble(paths: list[str], block: BlockSpec, chosen: list[Candidate]
             _refuse_if_none_ran(result, paths[i - 1])
             with Steps(told)(None, "drawing the figures and writing"):
                 record, made = _drawn(result, paths[i - 1], layer=layer, command=command,
-                                      recorded_read=recorded_read)  # fmt: skip
+                                      recorded_read=recorded_read, grid_like=template)  # fmt: skip
                 write_comparison(stage / name, record, made.images, made.page)
             records.append(record)
             say(f"[{i}/{len(fields)}] realizations done ({name})")
@@ -265,10 +288,11 @@ def _refuse_if_none_ran(result: Comparison, path: str | None = None) -> None:
 
 def _drawn(result: Comparison, path: str, *, layer: int | None, command: list[str],
            recorded_read: dict[str, Any] | None,
-           per_axis_command: str | None = None) -> tuple[ComparisonRecord, Bundle]:  # fmt: skip
+           per_axis_command: str | None = None,
+           grid_like: GridLikeRecord | None = None) -> tuple[ComparisonRecord, Bundle]:  # fmt: skip
     """The record of one field's comparison (``compare.json``), and its figures and page."""
     from ..report.bundle import bundle  # matplotlib: the figures extra
 
     made = bundle(result, title=f"upscale — methods compared on {path}", command=command, layer=layer)
-    return comparison_record(result, command=command, read=recorded_read,
-                             per_axis_command=per_axis_command), made  # fmt: skip
+    return comparison_record(result, command=command, read=recorded_read, per_axis_command=per_axis_command,
+                             grid_like=grid_like), made  # fmt: skip

@@ -21,6 +21,7 @@ from ..analysis.ensemble import EnsembleSummary, ensemble_summary
 from ..analysis.ensemble_maps import block_spreads
 from ..analysis.layers import LayerChoice, resolve_layers
 from ..analysis.percentiles import refuse_convention
+from ..analysis.records import GridLikeRecord, grid_like_record
 from ..analysis.summary import RunSummary
 from ..check.axis import coarse_check, fine_solves
 from ..check.limits import RAISE_LIMIT, refuse_check_past_memory, refuse_global_past_limit, too_large
@@ -32,8 +33,10 @@ from ..export.ensemble import ENSEMBLE, write_ensemble
 from ..export.staging import staged_folder
 from ..field import Field
 from ..grid import BlockSpec
+from ..grid.template import snap_to
 from ..io import read_field
 from ..io.realizations import read_realizations
+from ..io.template import read_template
 from ..io.wells import read_wells
 from ..methods.coarsen import Upscaled, coarsen
 from ..methods.registry import find_method
@@ -51,6 +54,7 @@ class Settings:
     Attributes
     ----------
     block : BlockSpec
+        With `grid_like`, its sizes along x and y are replaced by the template's.
     method : str
     options : dict
         The method's options (``exponent``, ``bc``, ``border``; None when not given).
@@ -82,6 +86,9 @@ class Settings:
         How an ensemble's percentiles are named (`upscale.analysis.percentiles`).
     command : list of str
         The command line, recorded in the outputs.
+    grid_like : str or None
+        A template raster whose cells are the coarse blocks along x and y
+        (`upscale.grid.template`): the field is cut to its whole cells.
     """
 
     block: BlockSpec
@@ -104,6 +111,7 @@ class Settings:
     well_connection: str = "near-well"
     percentiles: str = "nonexceedance"
     command: list[str] = field(default_factory=list)
+    grid_like: str | None = None
 
     def __post_init__(self) -> None:
         refuse_unit(self.read, self.out_unit)  # before any work
@@ -160,8 +168,9 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         fine = read_field(path, chunk_bytes=settings.chunk_bytes, block=settings.block.chunk_cells,
                           **settings.read)  # fmt: skip
     refuse_layer(settings.layer, fine)
-    (block,), (layers,), fine = with_layers(path, [settings.block], fine, chunk_bytes=settings.chunk_bytes,
-                                            read=settings.read)  # fmt: skip
+    fine, block, grid_like = snapped(settings.grid_like, fine, settings.block)
+    (block,), (layers,), fine = with_layers(path, [block], fine, chunk_bytes=settings.chunk_bytes,
+                                            read=settings.read, grid_like=grid_like)  # fmt: skip
     fine = fine.in_unit(settings.out_unit or fine.unit)
     settings = replace(settings, block=block)
     wells = _wells(settings, fine)
@@ -227,14 +236,47 @@ def upscale_file(path: str, settings: Settings, out: str | Path, *, overwrite: b
         summary = write_result(result, out, overwrite=overwrite, command=settings.command,
                                timings=steps.timings, check=check, read=settings.recorded_read,
                                wells=wells_check, layers=layers.summary() if layers else None,
+                               grid_like=grid_like,
                                images=made.images if made and settings.plot else None,
                                page=made.page if made and settings.report else None,
                                units=settings.units)  # fmt: skip
     return result, summary
 
 
+def snapped(template: str | None, fine: Field, block: BlockSpec
+            ) -> tuple[Field, BlockSpec, GridLikeRecord | None]:  # fmt: skip
+    """`fine` cut to the whole cells of the raster `template`, and `block` of their size along x and y.
+
+    Parameters
+    ----------
+    template : str or None
+        A template raster whose cells are to be the coarse blocks (`upscale.grid.template`).
+    fine : Field
+        The fine field.
+    block : BlockSpec
+        Its layers are kept; its sizes along x and y are the template's.
+
+    Returns
+    -------
+    (Field, BlockSpec, GridLikeRecord or None)
+        Unchanged, with None, without a template.
+
+    Raises
+    ------
+    InputError
+        A template that cannot be read or does not fit the field (`upscale.grid.template.snap_to`).
+    """
+    if template is None:
+        return fine, block, None
+    found = read_template(template)
+    snap = snap_to(fine.grid, found)
+    record = grid_like_record(found, snap)
+    return record.window(fine), replace(block, nx=snap.nx, ny=snap.ny), record
+
+
 def with_layers(path: str, blocks: list[BlockSpec], fine: Field, *, chunk_bytes: int | None,
-                read: dict[str, Any]) -> tuple[list[BlockSpec], list[LayerChoice | None], Field]:  # fmt: skip
+                read: dict[str, Any], grid_like: GridLikeRecord | None = None
+                ) -> tuple[list[BlockSpec], list[LayerChoice | None], Field]:  # fmt: skip
     """`blocks` with their automatic layers chosen from `fine` (once each), and the field to upscale them in.
 
     Parameters
@@ -247,6 +289,8 @@ def with_layers(path: str, blocks: list[BlockSpec], fine: Field, *, chunk_bytes:
         The fine field.
     chunk_bytes, read
         As `fine` was read (`upscale.read_field`).
+    grid_like : GridLikeRecord, optional
+        The template whose whole cells `fine` was cut to (`snapped`); a field opened again is cut alike.
 
     Returns
     -------
@@ -268,8 +312,8 @@ def with_layers(path: str, blocks: list[BlockSpec], fine: Field, *, chunk_bytes:
     grouped = any(block.groups is not None for block in resolved)
     chunk = (fine.shape[0] if grouped else resolved[-1].chunk_cells[0], *resolved[-1].chunk_cells[1:])
     if chunk != blocks[-1].chunk_cells:  # within the chunk budget
-        fine = replace(read_field(path, chunk_bytes=chunk_bytes, block=chunk, checksum=False, **read),
-                       sources=fine.sources)  # fmt: skip
+        again = read_field(path, chunk_bytes=chunk_bytes, block=chunk, checksum=False, **read)
+        fine = replace(again if grid_like is None else grid_like.window(again), sources=fine.sources)
     return resolved, [choice for _, choice in found], fine
 
 
