@@ -258,6 +258,20 @@ def test_package_alone_reproduces_the_runs_coarse_k_eff(package, dim, method, un
         assert check["x"]["coarse"]["isolated_cells"] >= 1  # the walled-in cell
 
 
+def test_a_model_upscaled_to_one_coarse_layer_keeps_its_top_and_bottom_faces(inputs, tmp_path):
+    # one coarse layer is still a model: its package has z- and z+ outer faces, and the coarse
+    # system read back passes the run's vertical flow (before, they were left out as for a map)
+    out = tmp_path / "one-layer"
+    assert main(["-q", "run", str(inputs.k3), "--dz", ",".join(map(str, MODEL_DZ)), "--kv-kh", "0.1",
+                 "--block", "4x4x4", "--method", "arithmetic", "--out", str(out)]) == 0  # fmt: skip
+    assert {"z-", "z+"} <= set(_read_csv(out / "boundary.csv")["face"])
+    _, trans = read_package(out)
+    check = _summary(out)["check"]
+    for axis in ("x", "y", "z"):
+        assert pressure_drop(trans, axis, solver="direct").k_eff == pytest.approx(check[axis]["k_coarse"],
+                                                                                  rel=1e-10)  # fmt: skip
+
+
 # ---------------------------------------------------------------------------------------------
 # 2. Pore volume
 

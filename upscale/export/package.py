@@ -146,6 +146,9 @@ class PackageTables:
     geometry : Geometry, optional
         The coarse model's geometry (`upscale.geometry`): the cells' elevations,
         thicknesses and bulk volumes are its own. None: a flat model, top at 0 m.
+    ndim : int
+        2 for a map, which has no top and bottom faces; 3 for a model (one
+        coarse layer included).
 
     Notes
     -----
@@ -158,7 +161,7 @@ class PackageTables:
     def __init__(self, coarse_properties: dict[str, np.ndarray], trans: Transmissibilities, *,
                  factors: dict[str, Any], source: str,
                  direct: tuple[np.ndarray, ...] | None = None,
-                 geometry: Geometry | None = None) -> None:  # fmt: skip
+                 geometry: Geometry | None = None, ndim: int = 3) -> None:  # fmt: skip
         self.properties = coarse_properties
         self.trans = trans
         self.grid = trans.grid
@@ -169,6 +172,7 @@ class PackageTables:
         self.direct = direct
         self.centres = _centres(self.grid)
         self.geometry = geometry
+        self.ndim = ndim
         self.surfaces = surfaces(self.grid, geometry)
 
     def columns(self, table: str) -> list[str]:
@@ -269,7 +273,7 @@ class PackageTables:
     def _boundary(self) -> Iterator[dict[str, Any]]:
         grid, trans, length = self.grid, self.trans, self.length
         for a in range(3):
-            if grid.shape[0] == 1 and a == 0:
+            if self.ndim == 2 and a == 0:
                 continue  # a map has no top and bottom faces to flow through
             n = grid.shape[a]
             areas = np.broadcast_to(_face_areas(grid, a), grid.shape)

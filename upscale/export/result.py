@@ -78,7 +78,8 @@ def write_package(stage: Path, result: Upscaled, units: str, *, check: dict[str,
     source = find_method(result.method).faces or "harmonic"
     aquifer = {name: values * factors["length"] for name, values in (transmissivities(coarse) or {}).items()}
     tables = PackageTables({**properties, **aquifer}, trans, factors=factors, source=source,
-                           direct=result.direct_faces, geometry=coarse.geometry)  # fmt: skip
+                           direct=result.direct_faces, geometry=coarse.geometry,
+                           ndim=coarse.ndim)  # fmt: skip
     table_files = write_tables(stage, tables)
     solved = wells is not None and "wells" in wells
     if solved:
