@@ -249,6 +249,20 @@ def test_domain_bounds_reference_values():
     assert "Wiener lower (harmonic)" not in domain_bounds(holed, "x")
 
 
+def test_domain_bounds_weigh_cells_by_true_volume():
+    # an aquifer map of two columns, K = 1 and 4, 1 m and 3 m thick: flow along y passes them in
+    # parallel, so k_eff = Σ K b / Σ b = 3.25 (Wiener 1912; the arithmetic bound is reached), not
+    # the mean of 1 and 4 that cells of one reference thickness would give
+    from upscale.geometry import Geometry
+
+    field = Field.from_arrays(np.array([[1.0, 4.0], [1.0, 4.0]]),
+                              geometry=Geometry(np.zeros((2, 2)), np.array([[[1.0, 3.0], [1.0, 3.0]]])))
+    along_y = domain_bounds(field, "y")
+    assert along_y["Wiener upper (arithmetic)"] == pytest.approx(3.25, rel=1e-14)
+    assert along_y["Cardwell–Parsons lower"] == pytest.approx(3.25, rel=1e-14)
+    assert check_flow(field, field)["y"].fine.k_eff == pytest.approx(3.25, rel=1e-12)
+
+
 def test_histograms_on_a_log_axis_with_the_unit(plots_2d, comparison_2d):
     figure = plots_2d["histograms"].figure
     panels = _panels(figure)

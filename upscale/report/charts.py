@@ -197,9 +197,17 @@ def domain_bounds(fine, axis: str) -> dict[str, float]:
     """Wiener (1912) and Cardwell–Parsons (1945) bounds of the whole fine domain along `axis`.
 
     Inactive cells count as impermeable, as in the check: the Wiener lower
-    bound (harmonic mean) is then 0 and is left out.
+    bound (harmonic mean) is then 0 and is left out. A field with a geometry
+    is bounded as its flow is solved (`upscale.geometry`): on the reference
+    field, the values turned back by the ratio of true to reference bulk
+    volume (divided along x and y, multiplied along z), so the averages weigh
+    cells by true volume.
     """
     a = AXES[axis]
+    ratio = 1.0
+    if fine.geometry is not None:
+        ratio = float(np.asarray(fine.cell_volumes()).sum() / fine.grid.cell_volumes().sum())
+        fine = fine.reference()
     k = np.asarray(getattr(fine, PERMEABILITY[axis]) if getattr(fine, PERMEABILITY[axis]) is not None
                    else fine.kx, dtype=float)  # fmt: skip
     dz, whole = fine.grid.dz, k.shape
@@ -209,7 +217,8 @@ def domain_bounds(fine, axis: str) -> dict[str, float]:
         found["Wiener lower (harmonic)"] = float(averages.harmonic_mean(k, dz, whole).item())
     found["Cardwell–Parsons upper"] = float(bounds.slabs_bound(k, dz, whole, a).item())
     found["Cardwell–Parsons lower"] = float(bounds.tubes_bound(k, dz, whole, a).item())
-    return found
+    scale = ratio if a == 0 else 1.0 / ratio
+    return {name: value * scale for name, value in found.items()}
 
 
 def histograms(comparison: Comparison, unit: str) -> Figure:
