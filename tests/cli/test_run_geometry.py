@@ -83,6 +83,25 @@ def test_a_thickness_raster_gives_each_block_the_mean_of_k_times_b(run_cli, writ
     assert tags["unit"] == "m²/s"
 
 
+def test_a_method_that_makes_ky_differ_gives_tx_and_ty(run_cli, write_tif, tmp_path):
+    # layers of K across y (rows of 1 and 100 m/day): the sealed local solve gives Kx the arithmetic
+    # and Ky the harmonic mean of the rows (Bear 1972, §5.10), so Tx = Kx b and Ty = Ky b differ
+    K = np.where(np.arange(8)[:, None] % 2 == 0, 1.0, 100.0) * np.ones((8, 8))
+    b = 10.0
+    out = tmp_path / "out"
+    code, printed, err = run_cli("run", write_tif("K.tif", K, cell_size=CELL), "--unit", "m/day",
+                                 "--thickness", b, "--block", "4x4", "--method", "flow",
+                                 "--out", out)  # fmt: skip
+    assert code == 0, err
+    Tx, _ = _band(out / "transmissivity.tif")
+    Ty, _ = _band(out / "transmissivity_y.tif")
+    np.testing.assert_allclose(Tx, 50.5 * b, rtol=1e-12)
+    np.testing.assert_allclose(Ty, 2 / (1 / 1 + 1 / 100) * b, rtol=1e-12)
+    rows = {line.split()[0]: line.split() for line in printed.splitlines() if line[:3] in ("Tx ", "Ty ")}
+    assert set(rows) == {"Tx", "Ty"} and rows["Ty"][1] == rows["Tx"][1]  # fine: Ky is Kx, so Ty is Tx
+    assert "Tx, Ty: transmissivity K × thickness in m²/day" in printed
+
+
 def test_a_permeability_map_has_no_transmissivity(run_cli, write_tif, tmp_path):
     out = tmp_path / "out"
     code, printed, _ = run_cli("run", write_tif("k.tif", np.full((8, 8), 40.0), cell_size=CELL),

@@ -51,7 +51,7 @@ def test_surfaces_and_top_with_thickness_read_the_same_geometry(model):
 def test_a_run_keeps_the_pore_volume_and_its_check_reads_the_geometry_again(model, run_cli, tmp_path):
     k, porosity, _, thickness = model["values"]
     out = tmp_path / "out"
-    code, _, err = run_cli("run", model["k"], "--surfaces", model["surfaces"], "--porosity",
+    code, ran, err = run_cli("run", model["k"], "--surfaces", model["surfaces"], "--porosity",
                            model["porosity"], "--kv-kh", "0.1", "--block", "4x4x3", "--method", "flow",
                            "--out", out)  # fmt: skip
     assert code == 0, err
@@ -62,6 +62,9 @@ def test_a_run_keeps_the_pore_volume_and_its_check_reads_the_geometry_again(mode
     summary = json.loads((out / "summary.json").read_text())
     code, text, err = run_cli("check", out)
     assert code == 0, err
+    # the check of the folder reads the model and the package again and finds the run's numbers
+    rows = [line for line in ran.splitlines() if line.split()[:1] in (["x"], ["y"], ["z"], ["corner"])]
+    assert len(rows) == 4 and all(row in text.splitlines() for row in rows)
     assert [i["role"] for i in summary["inputs"]] == ["kx", "porosity", "surfaces"]
 
 

@@ -494,4 +494,6 @@ def _statistics(result: Upscaled) -> Statistics:
             for name, scan in result.fine_stats.items()}  # fmt: skip
     fine.update({name: described(values) for name, values in (transmissivities(result.fine) or {}).items()})
     coarse = {**result.coarse.properties(), **(transmissivities(result.coarse) or {})}
+    if "transmissivity_y" in coarse and "transmissivity_y" not in fine:  # ky is kx on the fine grid
+        fine["transmissivity_y"] = fine["transmissivity"]
     return Statistics(fine, {name: described(values) for name, values in coarse.items()})

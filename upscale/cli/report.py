@@ -17,6 +17,8 @@ from ..methods.coarsen import Upscaled
 from ..report.verdict import bound_note, outside_band
 from ..units import property_label, symbol
 
+#: Row labels of the transmissivities: T alone, or Tx and Ty when the method made ky differ from kx.
+_AQUIFER = {False: {"transmissivity": "T"}, True: {"transmissivity": "Tx", "transmissivity_y": "Ty"}}
 
 def number(value: float | None, spec: str = ".4g") -> str:
     """A number for a table; ``-`` for a missing or non-finite one."""
@@ -84,7 +86,7 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     aquifer = [name for name in stats.coarse if name.startswith("transmissivity")]
     for name in [*coarse.properties(), *aquifer]:
         f, c = stats.fine[name], stats.coarse[name]
-        label = name.replace("transmissivity", "T") if name in aquifer else property_label(name, fine.unit)
+        label = _AQUIFER[len(aquifer) > 1][name] if name in aquifer else property_label(name, fine.unit)
         rows.append([label, number(f.mean), number(f.geometric_mean),
                      number(c.mean), number(c.geometric_mean), number(c.min), number(c.max)])  # fmt: skip
     click.echo("")
@@ -93,7 +95,8 @@ def print_result(result: Upscaled, summary: RunSummary, out: str) -> None:
     shape = summary.geometry
     click.echo(f"({', '.join(property_label(PERMEABILITY[a], fine.unit) for a in fine.axes)} in {fine.unit}"
                + ("; porosity as a fraction" if fine.porosity is not None else "")
-               + (f"; T: transmissivity K × thickness in {shape.transmissivity_unit}" if aquifer else "")
+               + (f"; {', '.join(_AQUIFER[len(aquifer) > 1][n] for n in aquifer)}: transmissivity K × "
+                  f"thickness in {shape.transmissivity_unit}" if aquifer else "")
                + ")")  # fmt: skip
     if shape is not None and shape.caution:
         click.echo(f"caution: {shape.caution}")
