@@ -61,10 +61,14 @@ class Geometry:
     thickness : array of shape (L, M, N)
         Thickness of every cell in m, >= 0; 0 is pinched out (module docstring).
         NumPy or dask.
+    top_given : bool
+        False when only thicknesses were given and `top` is 0 m by default: the
+        elevations are then relative to an unknown top, and the dip unknown.
     """
 
     top: np.ndarray
     thickness: Any
+    top_given: bool = True
 
     @classmethod
     def from_surfaces(cls, surfaces: np.ndarray) -> Geometry:
@@ -173,7 +177,8 @@ class Geometry:
         -------
         dict
             ``top_m`` and ``thickness_m`` (``min``, ``max``), ``pinched_cells``,
-            ``cells``, ``steepest_dip_deg`` and ``dip_limit_deg`` (`DIP_LIMIT`).
+            ``cells``, ``steepest_dip_deg`` (None when the top was not given)
+            and ``dip_limit_deg`` (`DIP_LIMIT`).
 
         Examples
         --------
@@ -185,22 +190,23 @@ class Geometry:
         thickness = np.asarray(self.thickness, dtype=np.float64)
         top = self.top[np.isfinite(self.top)]
         return {
-            "top_m": {"min": float(top.min()), "max": float(top.max())} if top.size else None,
+            "top_m": ({"min": float(top.min()), "max": float(top.max())}
+                      if top.size and self.top_given else None),
             "thickness_m": {"min": float(thickness.min()), "max": float(thickness.max())},
             "pinched_cells": int(np.count_nonzero(thickness == 0)),
             "cells": int(thickness.size),
-            "steepest_dip_deg": steepest_dip(self.surfaces(), dx, dy),
+            "steepest_dip_deg": steepest_dip(self.surfaces(), dx, dy) if self.top_given else None,
             "dip_limit_deg": DIP_LIMIT,
         }
 
     def window(self, rows: slice, columns: slice) -> Geometry:
         """The geometry of a rectangle of rows and columns (all layers)."""
-        return Geometry(top=self.top[rows, columns], thickness=self.thickness[:, rows, columns])
+        return Geometry(self.top[rows, columns], self.thickness[:, rows, columns], self.top_given)
 
     def leading(self, shape: tuple[int, int, int]) -> Geometry:
         """The geometry of the first ``shape`` layers, rows and columns."""
-        return Geometry(top=self.top[: shape[1], : shape[2]],
-                        thickness=self.thickness[: shape[0], : shape[1], : shape[2]])  # fmt: skip
+        return Geometry(self.top[: shape[1], : shape[2]], self.thickness[: shape[0], : shape[1], : shape[2]],
+                        self.top_given)  # fmt: skip
 
 
 def steepest_dip(surfaces: np.ndarray, dx: float, dy: float) -> float:

@@ -141,10 +141,12 @@ GEOMETRY = {"top": "elevation of the top of the model", "thickness": "cell thick
 
 
 def geometry_variables(geometry: Any, dims: tuple[str, ...], on_dims: Any) -> dict[str, tuple]:
-    """The ``top`` (y, x) and ``thickness`` variables of a geometry, in m, positive up."""
-    return {"top": (("y", "x"), geometry.top, {"long_name": GEOMETRY["top"], "positive": "up", **_METRES}),
-            "thickness": (dims, on_dims(geometry.thickness), {"long_name": GEOMETRY["thickness"],
-                                                               **_METRES})}  # fmt: skip
+    """The ``thickness`` variable of a geometry and, when it was given, ``top`` (y, x); m, positive up."""
+    thickness = {"long_name": GEOMETRY["thickness"], **_METRES}
+    found = {"thickness": (dims, on_dims(geometry.thickness), thickness)}
+    if geometry.top_given:
+        found["top"] = (("y", "x"), geometry.top, {"long_name": GEOMETRY["top"], "positive": "up", **_METRES})
+    return found
 
 
 def _attributes(name: str, unit: str, source: tuple[str, str] | None) -> dict[str, str]:
@@ -157,7 +159,7 @@ def _attributes(name: str, unit: str, source: tuple[str, str] | None) -> dict[st
 class Parts(NamedTuple):
     """What a `Field` is made of, read from a Dataset or DataArray.
 
-    ``geometry`` is ``(top, thickness)`` of shapes (M, N) and (L, M, N), or None.
+    ``geometry`` is ``(top, thickness, top_given)``, shapes (M, N) and (L, M, N), or None.
     """
 
     arrays: dict[str, Any]
@@ -202,7 +204,7 @@ def from_labelled(data: Any, *, cell_size: tuple[float, float] | None, dz: Any,
     if isinstance(data, xr.Dataset) and "thickness" in data.data_vars:
         thickness = _cubes({"thickness": data["thickness"]}, _order(variables["kx"]))["thickness"]
         top = np.asarray(data["top"].transpose("y", "x").values, float) if "top" in data.data_vars else None
-        geometry = (np.zeros((rows, columns)) if top is None else top, thickness)
+        geometry = (np.zeros((rows, columns)) if top is None else top, thickness, top is not None)
     return Parts(arrays, grid, unit or variables["kx"].attrs.get("units") or "mD", sources, geometry)
 
 

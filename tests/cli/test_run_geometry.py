@@ -114,8 +114,8 @@ def test_a_permeability_map_has_no_transmissivity(run_cli, write_tif, tmp_path):
     assert "T: transmissivity" not in printed
 
 
-def _sloping_run(run_cli, write_tif, tmp_path, slope: float) -> tuple[str, dict]:
-    """A 3-layer model of 1 m thick layers whose top falls `slope` m per m eastward."""
+def _sloping_run(run_cli, write_tif, tmp_path, slope: float) -> tuple[str, dict, str]:
+    """A 3-layer model of 1 m thick layers whose top falls `slope` m per m eastward; its report page."""
     v, u = np.mgrid[0:8, 0:8] + 0.5
     thickness = np.ones((3, 8, 8))
     out = tmp_path / f"out-{slope}"
@@ -123,14 +123,15 @@ def _sloping_run(run_cli, write_tif, tmp_path, slope: float) -> tuple[str, dict]
         "run", write_tif("k.tif", uncorrelated_lognormal((3, 8, 8), SEED + 1), cell_size=CELL),
         "--top", write_tif(f"top-{slope}.tif", 100.0 - slope * CELL * u, cell_size=CELL),
         "--thickness", write_tif("th.tif", thickness, cell_size=CELL), "--kv-kh", "0.1",
-        "--block", "4x4x1", "--method", "arithmetic", "--no-check", "--out", out,
+        "--block", "4x4x1", "--method", "arithmetic", "--report", "--out", out,
     )  # fmt: skip
     assert code == 0
-    return printed, json.loads((out / "summary.json").read_text())["geometry"]
+    page = (out / "report.html").read_text()
+    return printed, json.loads((out / "summary.json").read_text())["geometry"], page
 
 
 def test_a_steep_model_prints_and_records_the_dip_caution(run_cli, write_tif, tmp_path):
-    printed, record = _sloping_run(run_cli, write_tif, tmp_path, 0.2)
+    printed, record, page = _sloping_run(run_cli, write_tif, tmp_path, 0.2)
     assert record["steepest_dip_deg"] == pytest.approx(math.degrees(math.atan(0.2)), rel=1e-12)
     assert record["caution"].startswith("the layers dip by up to 11.3°")
     excess = 1 / math.cos(math.atan(0.2)) ** 2 - 1  # 4.0 %
@@ -140,11 +141,15 @@ def test_a_steep_model_prints_and_records_the_dip_caution(run_cli, write_tif, tm
     assert record["given"] == "top and thickness" and record["pinched_out_cells"] == 0
     assert record["fine_bulk_volume_m3"] == pytest.approx(192 * CELL**2, rel=1e-15)
     assert record["coarse_bulk_volume_m3"] == pytest.approx(record["fine_bulk_volume_m3"], rel=1e-12)
+    # the report page names the geometry and carries the caution among its cautions
+    assert "cells 1–1 m thick (0 pinched out), steepest dip 11°" in page
+    assert "The layers dip by up to 11.3°" in page
 
 
 def test_a_gentle_model_has_no_dip_caution(run_cli, write_tif, tmp_path):
-    printed, record = _sloping_run(run_cli, write_tif, tmp_path, 0.02)
+    printed, record, page = _sloping_run(run_cli, write_tif, tmp_path, 0.02)
     assert record["steepest_dip_deg"] == pytest.approx(math.degrees(math.atan(0.02)), rel=1e-12)
     assert record["caution"] is None
     assert "caution:" not in printed
+    assert "steepest dip 1.1°" in page and "The layers dip" not in page
 

@@ -118,7 +118,7 @@ def geometry_record(fine: Field, coarse: Field, read: dict[str, Any] | None = No
     inputs = _inputs(fine, read)
     given = _given(inputs)
     described = fine.geometry.describe(float(fine.grid.dx[0]), float(fine.grid.dy[0]))
-    dip = None if given == "thickness" else described["steepest_dip_deg"]
+    dip = described["steepest_dip_deg"]
     found = transmissivities(coarse)
     return GeometryRecord(
         given, inputs["top"], inputs["thickness"], inputs["surfaces"],

@@ -8,6 +8,7 @@ import math
 import click
 
 from ..analysis.describe import GROUPING, describe_field
+from ..analysis.geometry import dip_caution
 from ..analysis.layers import choice_lines
 from ..analysis.records import jsonable
 from ..errors import InputError
@@ -107,16 +108,16 @@ def info(ctx: click.Context, field: str, as_json: bool, layers: str | None, plot
 
 def _print_geometry(geometry: dict) -> None:
     """The geometry's ranges, pinched-out cells and steepest dip, and a caution on a steep one."""
-    top, thickness = geometry["top_m"], geometry["thickness_m"]
+    top, thickness, dip = geometry["top_m"], geometry["thickness_m"], geometry["steepest_dip_deg"]
     pinched = geometry["pinched_cells"]
-    parts = [f"top {top['min']:g} to {top['max']:g} m" if top else "no top",
+    parts = [f"top {top['min']:g} to {top['max']:g} m" if top else "top not given (dip unknown)",
              f"thickness {thickness['min']:g} to {thickness['max']:g} m",
              f"{pinched} cells pinched out ({100 * pinched / geometry['cells']:.1f} %)",
-             f"steepest dip {geometry['steepest_dip_deg']:.2g}°"]  # fmt: skip
+             *([f"steepest dip {dip:.2g}°"] if dip is not None else [])]  # fmt: skip
     click.echo(f"geometry     {', '.join(parts)}")
-    if geometry["steepest_dip_deg"] > geometry["dip_limit_deg"]:
-        click.echo(f"             caution: dips above {geometry['dip_limit_deg']:.1f}° make the lateral "
-                   "transmissibilities more than 1 % too large (the dip is neglected)")  # fmt: skip
+    caution = dip_caution(dip)
+    if caution:
+        click.echo(f"             caution: {caution}")
 
 
 def _grouping(text: str | None) -> LayerRequest:

@@ -88,4 +88,4 @@ def geometry_from(top: float | str | Path | None, thickness: float | str | Path 
         cells = da.full(shape, float(thickness))
     else:
         cells = companion("thickness", thickness, "linear", layers)
-    return Geometry(top=surface, thickness=cells)
+    return Geometry(top=surface, thickness=cells, top_given=top is not None)

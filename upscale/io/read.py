@@ -304,7 +304,7 @@ def read_field(
 
     shape = geometry_from(top, thickness, surfaces, dz, main.shape, companion)
     if shape is not None:
-        shape = Geometry(top=shape.top, thickness=shape.thickness.rechunk(main.lazy.chunks))
+        shape = Geometry(shape.top, shape.thickness.rechunk(main.lazy.chunks), shape.top_given)
         shape.check_values()
         layer_dz = shape.layer_thickness()
     grid = Grid(

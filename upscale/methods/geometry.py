@@ -162,4 +162,5 @@ def coarse_geometry(field: Field, cells: tuple[Size, int, int], coarse_dz: np.nd
                     ratio: np.ndarray) -> Geometry:  # fmt: skip
     """Geometry of the coarse model: thickness ``r × T0`` and the mean fine top of each column."""
     top = apply_blocks(averages.bulk_mean, field.geometry.top[None], np.ones(1), (1, *cells[1:]))
-    return Geometry(top=np.asarray(top)[0], thickness=np.asarray(ratio) * coarse_dz[:, None, None])
+    thickness = np.asarray(ratio) * coarse_dz[:, None, None]
+    return Geometry(np.asarray(top)[0], thickness, field.geometry.top_given)

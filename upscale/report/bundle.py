@@ -10,6 +10,7 @@ import numpy as np
 from ..analysis.compare import Comparison
 from ..analysis.ensemble import EnsembleRanking, EnsembleSummary
 from ..analysis.ensemble_maps import REPRESENTATIVE_RULE, BlockSpread
+from ..analysis.geometry import dip_caution
 from ..analysis.percentiles import PERCENTILES, bar_text, label, note
 from ..analysis.plan_record import PlanRecord
 from ..analysis.records import check_flows, versions, working_folder
@@ -63,6 +64,8 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
     plots = build_figures(comparison, fine.unit, layer=layer)
     images, shown = _rendered(plots)
     grid = fine.grid
+    shape = fine.geometry
+    described = None if shape is None else shape.describe(float(grid.dx[0]), float(grid.dy[0]))
     job = {
         "title": title,
         "command": command,
@@ -70,13 +73,29 @@ def bundle(comparison: Comparison, *, title: str, command: list[str], layer: int
         "inputs": [{"role": s.role, "path": s.path, "sha256": s.sha256} for s in fine.sources],
         "unit": fine.unit,
         "grid": f"{_dims(fine.shape, fine.ndim)} cells of {grid.dx[0]:g} m × {grid.dy[0]:g} m"
-        + (f", {grid.dz.sum():g} m thick in all" if fine.ndim == 3 else ""),
+        + (_geometry_text(described) if described else
+           f", {grid.dz.sum():g} m thick in all" if fine.ndim == 3 else ""),
         "block": f"{comparison.block.label} fine cells (x first)",
-        "caution": CAUTION,
+        "caution": " ".join(filter(None, [CAUTION, _dip_caution(described)])),
         "versions": versions(),
     }
     page = report_page(comparison, shown, job)
     return Bundle(images, page)
+
+
+def _geometry_text(described: dict) -> str:
+    """The grid line's words on a geometry (`upscale.geometry.Geometry.describe`)."""
+    thickness = described["thickness_m"]
+    dip = described["steepest_dip_deg"]
+    pinched = described["pinched_cells"]
+    return (f", cells {thickness['min']:g}–{thickness['max']:g} m thick ({pinched} pinched out)"
+            + (f", steepest dip {dip:.2g}°" if dip is not None else ""))
+
+
+def _dip_caution(described: dict | None) -> str | None:
+    """The dip caution of `upscale.analysis.geometry.dip_caution`, as a sentence; None when none applies."""
+    caution = None if described is None else dip_caution(described["steepest_dip_deg"])
+    return None if caution is None else caution[0].upper() + caution[1:] + "."
 
 
 def _rendered(plots: list[Plot]) -> tuple[list[tuple[str, bytes, bytes]], list[tuple[Plot, bytes]]]:
