@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import PurePath
 from typing import TYPE_CHECKING, Any
 
@@ -222,10 +223,14 @@ class Field:
         """The field on the flat grid with the same two-point flow (`upscale.geometry`).
 
         Without a geometry the field itself. Dask arrays stay lazy; kx and ky
-        stay shared when they are.
+        stay shared when they are. Made once per field: the local solves, the
+        check and the wells all ask for it.
         """
-        if self.geometry is None:
-            return self
+        return self if self.geometry is None else self._reference
+
+    @cached_property
+    def _reference(self) -> Field:
+        # a frozen dataclass still has a __dict__, where cached_property keeps the value
         w = self.geometry.ratio(self.grid.dz)
         kx, ky, kz = reference_permeability(self.kx, self.ky, self.kz, w, self.grid.dz)
         if self.ky is self.kx:
