@@ -141,6 +141,36 @@ def test_section_depths_are_the_cumulative_layer_thicknesses():
     np.testing.assert_allclose(fine.get_coordinates()[0, :, 0], np.arange(17) * 5.0)
 
 
+def test_a_section_of_a_model_with_a_geometry_stands_on_its_true_elevations():
+    # every column between its own surfaces (upscale.geometry): a tilted top, a layer pinched out
+    # in the west half, which then has no height; the coarse blocks on the coarse surfaces
+    k = uncorrelated_lognormal((3, 8, 8), seed=5714)
+    x = np.arange(8)[None, :] * np.ones((8, 1))
+    thickness = np.stack([np.full((8, 8), 2.0), np.where(x < 4, 0.0, 1.0), np.full((8, 8), 3.0)])
+    top = 40.0 - 0.5 * x
+    field = Field.from_arrays(k, cell_size=(5.0, 5.0), geometry=upscale.Geometry(top, thickness))
+    comparison = compare_methods(field, "4x4x3", candidates(["harmonic"]))
+    figure = field_maps(comparison, "mD", row=2)
+    fine, coarse = (_mesh(ax) for ax in _panels(figure))
+    corners = fine.get_coordinates()  # (L + 1, 2N, 2): each column's two edges carry its surfaces
+    surfaces = field.geometry.surfaces()[:, 2, :]
+    np.testing.assert_array_equal(corners[:, 0::2, 1], surfaces)
+    np.testing.assert_array_equal(corners[:, 1::2, 1], surfaces)
+    np.testing.assert_array_equal(corners[0, 0::2, 0], np.arange(8) * 5.0)
+    heights = np.diff(corners[:, 0::2, 1], axis=0)
+    assert (heights[1, :4] == 0).all() and (heights[1, 4:] == -1.0).all()  # the pinched cells
+    # a coarse column is as thick as its bulk volume over its plan area: 5 m in the west, 6 m in the east
+    np.testing.assert_allclose(-np.diff(coarse.get_coordinates()[[0, -1], 0::2, 1], axis=0)[0], [5.0, 6.0])
+    assert _panels(figure)[0].get_ylabel() == "elevation (m)"
+    assert _panels(figure)[0].get_ylim() == (float(surfaces.min()), float(surfaces.max()))
+    # in the map of the pinched layer, the pinched cells hold no rock and show no value
+    plan_figure = field_maps(comparison, "mD", layer=1)
+    plan = _mesh(_panels(plan_figure)[0]).get_array()
+    np.testing.assert_array_equal(np.ma.getmaskarray(plan).reshape(8, 8), x < 4)
+    keys = [t.get_text() for t in plan_figure.legends[0].get_texts()]
+    assert keys == ["no value (inactive or pinched out)"]
+
+
 @pytest.mark.parametrize(("block", "layer", "held"), [
     ("8x8x2,2,4", 4, "coarse layer 3: fine 5–8"),  # fine layer 5 lies in the third group, layers 5 to 8
     ("8x8x2,2,4", 1, "coarse layer 1: fine 1–2"),

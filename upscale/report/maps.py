@@ -5,7 +5,10 @@ coordinates (the raster's, or metres from the origin; `coordinates`), with
 one colour bar per figure that states the property and unit. Cells with no
 value show a hatched background (`style.missing_background`). For a 3D
 model a map shows one layer; `field_maps` with a row shows a vertical
-x–z section through it, on the true layer thicknesses. Wells are marked at
+x–z section through it, on the true layer thicknesses — for a model with a
+geometry (`upscale.geometry`) on the true elevations, every column between
+its own surfaces, so a pinched-out cell has no height; in a layer's map it
+has no value. Wells are marked at
 their x, y by their name, injectors and producers by their own markers.
 """
 
@@ -21,7 +24,7 @@ from ..analysis.compare import Comparison, Entry
 from ..analysis.ensemble_maps import BlockSpread
 from ..analysis.percentiles import PERCENTILES, label
 from ..check.wells import WellCheck
-from ..field import Grid
+from ..field import Field, Grid
 from ..grid import BlockSpec
 from ..units import property_label
 from .coordinates import depth_edges, face_edges, label_map, plan_edges
@@ -29,6 +32,9 @@ from .flux import coarse_face_mismatch
 from .layout import LABEL, TICK, outer_labels, page_sizes, panel_grid, title
 from .style import (
     MISMATCH_MAP,
+    MISSING_HATCH,
+    MISSING_LABEL,
+    MISSING_LINE,
     PERMEABILITY_MAP,
     PRESSURE_MAP,
     SPREAD_MAP,
@@ -54,18 +60,45 @@ def _edges(grid: Grid, section: bool) -> tuple[np.ndarray, np.ndarray]:
     return (x, depth_edges(grid)) if section else (x, y)
 
 
-def _finish(fig: Figure, axes: list, grid: Grid, section: bool, values: list[np.ndarray]) -> None:
-    """Axis labels on the outer panels, aspect, the no-value key when a panel has no-value cells."""
+def _columns(field: Field, row: int, values: np.ndarray) -> tuple[tuple[np.ndarray, np.ndarray], np.ndarray]:
+    """Edges and values of a section through `row` on the true elevations of `field`'s geometry.
+
+    Each column is drawn between its own surfaces, as stair steps: its two
+    edges carry its surfaces, and a cell of no width (no value) joins it to
+    the next column.
+
+    Returns
+    -------
+    ((x, z), values)
+        x and z of shape (L + 1, 2N), values of shape (L, 2N - 1).
+    """
+    x, _ = plan_edges(field.grid)
+    surfaces = np.repeat(field.geometry.surfaces()[:, row, :], 2, axis=1)
+    drawn = np.full((values.shape[0], surfaces.shape[1] - 1), np.nan)
+    drawn[:, 0::2] = values
+    return (np.broadcast_to(np.repeat(x, 2)[1:-1], surfaces.shape), surfaces), drawn
+
+
+def _finish(fig: Figure, axes: list, grid: Grid, section: bool, values: list[np.ndarray],
+            elevations: tuple[float, float] | None = None, missing: str = MISSING_LABEL) -> None:  # fmt: skip
+    """Axis labels on the outer panels, aspect, the no-value key (`missing`) when a panel has no-value cells.
+
+    A section on true `elevations` (lowest, highest, m) is drawn upwards.
+    """
     for ax in axes:
         label_map(ax, grid, section)
-        if section:
+        if section and elevations is not None:
+            ax.set_aspect("auto")
+            ax.set_ylim(*elevations)
+            ax.set_ylabel("elevation (m)")
+        elif section:
             ax.set_aspect("auto")
             ax.set_ylim(float(depth_edges(grid)[-1]), 0.0)  # depth grows downwards
         else:
             ax.set_aspect("equal")
     outer_labels(axes)
     if any(np.isnan(np.asarray(v, dtype=float)).any() for v in values):
-        missing_key(fig)
+        missing_key(fig, missing)
     page_sizes(fig)
 
 
@@ -96,6 +129,8 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     coarse_where = ((None, spec.coarse_index(row, fine.shape[1], 1)) if row is not None
                     else (spec.coarse_index(layer, fine.shape[0], 0), None))  # fmt: skip
     fine_values = _slice(np.asarray(fine.kx, dtype=float), *where)
+    if fine.geometry is not None and row is None:  # a pinched-out cell holds no rock: no value to show
+        fine_values = np.where(np.asarray(fine.geometry.thickness)[layer] > 0, fine_values, np.nan)
     coarse_values = [_slice(e.result.coarse.kx, *coarse_where) for e in ran]
     norm = log_norm(fine_values, *coarse_values)
     section = row is not None
@@ -103,17 +138,35 @@ def field_maps(comparison: Comparison, unit: str, *, layer: int = 0, row: int | 
     fig, axes = panel_grid(1 + len(ran), height=2.0 if section else None, share=True,
                            title_lines=1 + held.count("\n"))  # fmt: skip
     cmap = with_missing(PERMEABILITY_MAP)
-    mesh = _draw(axes[0], on_log_scale(fine_values), _edges(fine.grid, section), cmap=cmap, norm=norm)
+    true = section and fine.geometry is not None
+
+    def panel(ax: Axes, field: Field, values: np.ndarray, at: int | None):
+        if not true:
+            return _draw(ax, on_log_scale(values), _edges(field.grid, section), cmap=cmap, norm=norm)
+        (x, z), values = _columns(field, at, values)
+        mesh = _draw(ax, on_log_scale(values), (x, z), cmap=cmap, norm=norm)
+        # no value is hatched inside the model only: above and below it there is no rock to draw
+        ax.patch.set_hatch(None)
+        ax.fill_between(x[0], z[-1], z[0], facecolor="none", hatch=MISSING_HATCH, edgecolor=MISSING_LINE,
+                        linewidth=0, zorder=0)  # fmt: skip
+        return mesh
+
+    mesh = panel(axes[0], fine, fine_values, row)
     axes[0].set_title("fine")
     for ax, entry, values in zip(axes[1:], ran, coarse_values):
-        _draw(ax, on_log_scale(values), _edges(entry.result.coarse.grid, section), cmap=cmap, norm=norm)
+        panel(ax, entry.result.coarse, values, coarse_where[1])
         ax.set_title(entry_name(comparison, entry) + held)
     kx = property_label("kx", unit)
     fig.colorbar(mesh, ax=axes, label=f"{kx} ({unit}, log scale)", shrink=0.8,
                  extend=extend_of(norm, fine_values, *coarse_values))  # fmt: skip
     where_text = f"section through row {row}" if section else f"layer {layer + 1}"
     title(fig, f"Fine and coarse {kx}, {where_text}" if fine.ndim == 3 else f"Fine and coarse {kx}")
-    _finish(fig, axes, fine.grid, section, [fine_values, *coarse_values])
+    elevations = None
+    if true:
+        surfaces = fine.geometry.surfaces()[:, row, :]
+        elevations = (float(np.nanmin(surfaces)), float(np.nanmax(surfaces)))
+    missing = MISSING_LABEL if fine.geometry is None else "no value (inactive or pinched out)"
+    _finish(fig, axes, fine.grid, section, [fine_values, *coarse_values], elevations, missing)
     return fig
 
 

@@ -108,7 +108,7 @@ def missing_background(ax: Axes) -> None:
     ax.patch.set_edgecolor(MISSING_LINE)  # the hatch's colour; the background has no outline
 
 
-def missing_key(figure: Figure) -> None:
-    """A legend entry below the panels saying what the hatching means."""
-    key = Patch(facecolor="white", edgecolor=MISSING_LINE, hatch=MISSING_HATCH, label=MISSING_LABEL)
+def missing_key(figure: Figure, label: str = MISSING_LABEL) -> None:
+    """A legend entry below the panels saying what the hatching means (`label`)."""
+    key = Patch(facecolor="white", edgecolor=MISSING_LINE, hatch=MISSING_HATCH, label=label)
     figure.legend(handles=[key], loc="outside lower left", fontsize=LABEL, frameon=False)
