@@ -78,7 +78,7 @@ def surfaces(grid: Grid, geometry: Geometry | None) -> np.ndarray:
     [0.0, -2.0, -8.0]
     """
     if geometry is None:
-        return (0.0 - np.concatenate([[0.0], np.cumsum(grid.dz)]))[:, None, None]  # 0.0 - : no -0
+        return grid.edges()[2][:, None, None]
     return geometry.surfaces()
 
 
@@ -339,7 +339,7 @@ def column_units(tables: PackageTables, factors: dict[str, Any], crs_unit: str, 
         "z_top": f"{length} above the top of the model", "z_bottom": f"{length} above the top of the model",
         "value": f"unit of pressure (control pressure) or {t}·(unit of pressure) (control rate: q·μ)",
     }  # fmt: skip
-    if "/" in k:  # a hydraulic conductivity, whose maps may have a transmissivity
+    if "transmissivity" in tables.properties:  # a conductivity map with a thickness
         known["transmissivity"] = known["transmissivity_y"] = transmissivity_unit(k)
     columns = {name: tables.columns(name) for name in TABLES}
     if wells:
